@@ -1,0 +1,122 @@
+"""The one exception hierarchy of benchwright.
+
+This module is a leaf: it imports nothing of the project, so both ``drivers`` and every layer of
+``sequencer`` may raise and catch these classes.  ``sequencer.errors`` re-exports all of them and adds
+the errors that belong above the instrument layer.
+
+::
+
+    BenchwrightError                      root: the CLI prints any of these as one line
+    ├── TransportError                    the link failed (address attached)
+    │   ├── InstrumentTimeout             no reply within the timeout
+    │   ├── ConnectionRefused             nothing listens at the address / host unreachable
+    │   └── ConnectionClosed              the peer closed the link
+    ├── ProtocolError                     a reply that cannot be parsed (malformed block, garbled number)
+    ├── InstrumentError                   the instrument reported an error (SYSTem:ERRor? gave a code)
+    ├── ConfigError                       a bench, dialect or board file is wrong (file:line:column)
+    ├── ProcedureError                    (sequencer.errors) a procedure is wrong (file:line:column)
+    ├── StoreError                        (sequencer.errors) the results database refused or is too new
+    └── RunAborted                        (sequencer.errors) the run was stopped (interlock, operator,
+                                          signal, instrument fault); carries the reason
+
+A value outside its limits is a verdict, never an exception.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+class BenchwrightError(Exception):
+    """Root of every error benchwright raises on purpose."""
+
+
+class TransportError(BenchwrightError):
+    """The link to an instrument failed."""
+
+    def __init__(self, message: str, *, address: str = "", command: str = "") -> None:
+        self.address = address
+        self.command = command
+        parts = [message]
+        if address:
+            parts.append(f"at {address}")
+        if command:
+            parts.append(f"(sending {command!r})")
+        super().__init__(" ".join(parts))
+
+
+class InstrumentTimeout(TransportError):
+    """No reply arrived within the instrument's timeout."""
+
+
+class ConnectionRefused(TransportError):
+    """Nothing accepts connections at the address."""
+
+
+class ConnectionClosed(TransportError):
+    """The instrument closed the link."""
+
+
+class ProtocolError(BenchwrightError):
+    """A reply could not be understood (malformed block header, garbled number)."""
+
+    def __init__(self, message: str, *, address: str = "", command: str = "") -> None:
+        self.address = address
+        self.command = command
+        suffix = ""
+        if address:
+            suffix += f" at {address}"
+        if command:
+            suffix += f" (after {command!r})"
+        super().__init__(message + suffix)
+
+
+class InstrumentError(BenchwrightError):
+    """The instrument reported an entry in its error queue."""
+
+    def __init__(self, code: int, message: str, *, address: str = "", command: str = "") -> None:
+        self.code = code
+        self.instrument_message = message
+        self.address = address
+        self.command = command
+        text = f"instrument error {code},{message!r}"
+        if command:
+            text += f" after {command!r}"
+        if address:
+            text += f" at {address}"
+        super().__init__(text)
+
+
+@dataclass(frozen=True)
+class Location:
+    """A place in a text file: 1-based line and column."""
+
+    file: str
+    line: int
+    column: int
+
+    def __str__(self) -> str:
+        return f"{self.file}:{self.line}:{self.column}"
+
+
+@dataclass(frozen=True)
+class Problem:
+    """One located problem in an input file."""
+
+    location: Location
+    message: str
+
+    def __str__(self) -> str:
+        return f"{self.location}: {self.message}"
+
+
+class LocatedError(BenchwrightError):
+    """An input file has one or more problems, each with file, line and column."""
+
+    def __init__(self, problems: list[Problem] | tuple[Problem, ...]) -> None:
+        self.problems: tuple[Problem, ...] = tuple(problems)
+        super().__init__("\n".join(str(p) for p in self.problems))
+
+
+class ConfigError(LocatedError):
+    """A bench, dialect or board file is wrong."""

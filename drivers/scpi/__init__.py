@@ -1,0 +1,1 @@
+"""SCPI layer: wire formats (pure functions) and the session above the transport."""

@@ -1,0 +1,57 @@
+"""Errors of the sequencer layers; the whole hierarchy is drawn in ``drivers.errors``."""
+
+from __future__ import annotations
+
+from drivers.errors import (
+    BenchwrightError,
+    ConfigError,
+    ConnectionClosed,
+    ConnectionRefused,
+    InstrumentError,
+    InstrumentTimeout,
+    LocatedError,
+    Location,
+    Problem,
+    ProtocolError,
+    TransportError,
+)
+
+__all__ = [
+    "BenchwrightError",
+    "ConfigError",
+    "ConnectionClosed",
+    "ConnectionRefused",
+    "InstrumentError",
+    "InstrumentTimeout",
+    "LocatedError",
+    "Location",
+    "Problem",
+    "ProcedureError",
+    "ProtocolError",
+    "RunAborted",
+    "StoreError",
+    "TransportError",
+]
+
+
+class ProcedureError(LocatedError):
+    """A procedure (or limits, batch file) is wrong; every problem located."""
+
+
+class StoreError(BenchwrightError):
+    """The results database cannot be used (refused, newer schema, missing run)."""
+
+
+class RunAborted(BenchwrightError):
+    """The run was stopped before its end.
+
+    ``cause`` is a short word for the kind (``interlock``, ``operator``, ``signal``, ``instrument``,
+    ``precondition``, ``overcurrent``); ``step_path`` the step that was running.
+    """
+
+    def __init__(self, reason: str, *, cause: str = "", step_path: str = "") -> None:
+        self.reason = reason
+        self.cause = cause
+        self.step_path = step_path
+        text = reason if not step_path else f"{reason} [step {step_path}]"
+        super().__init__(text)
