@@ -14,6 +14,7 @@ the errors that belong above the instrument layer.
     ├── ProtocolError                     a reply that cannot be parsed (malformed block, garbled number)
     ├── InstrumentError                   the instrument reported an error (SYSTem:ERRor? gave a code)
     ├── ConfigError                       a bench, dialect or board file is wrong (file:line:column)
+    ├── SafetyLimitError                  a bias request above the bench limits (refused before sending)
     ├── ProcedureError                    (sequencer.errors) a procedure is wrong (file:line:column)
     ├── StoreError                        (sequencer.errors) the results database refused or is too new
     └── RunAborted                        (sequencer.errors) the run was stopped (interlock, operator,
@@ -120,3 +121,7 @@ class LocatedError(BenchwrightError):
 
 class ConfigError(LocatedError):
     """A bench, dialect or board file is wrong."""
+
+
+class SafetyLimitError(BenchwrightError):
+    """A requested voltage, ramp rate or current is above the bench file's limit; nothing was sent."""

@@ -58,7 +58,8 @@ class RunInfo:
     instruments: tuple[InstrumentInfo, ...] = ()
     parameters: Mapping[str, Any] = field(default_factory=dict)
     bench_text: str = ""
-    resumed_from: int | None = None
+    procedure_files: Mapping[str, str] = field(default_factory=dict)   # included files: relative path -> text
+    batch: str = ""
     repeat_of: int | None = None
 
 

@@ -1,0 +1,250 @@
+"""Safe, bounded, located YAML loading for every file benchwright reads.
+
+* Only plain YAML types are built (mappings, sequences, strings, numbers, booleans, null, dates); any
+  other tag (``!!python/object``, custom ``!tags``) is a located error, never an object.
+* Bounded: the document size, the number of aliases and the size of the expanded tree are capped
+  *before* anything is built, so an alias bomb is refused in milliseconds.
+* Located: mappings and sequences come back as :class:`YamlMap` and :class:`YamlSeq`, which remember the
+  line and column of every key and item, so a checker can report ``file:line:column: message``.
+* Duplicate keys are errors.
+
+This module is a leaf (imports only ``drivers.errors`` and PyYAML); every layer may use it.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Hashable
+from dataclasses import dataclass
+from typing import Any
+
+import yaml
+from yaml.nodes import MappingNode, Node, ScalarNode, SequenceNode
+
+from drivers.errors import LocatedError, Location, Problem
+
+#: Defaults: a procedure or bench file is a few kB; these leave a wide margin.
+DEFAULT_MAX_BYTES = 2_000_000
+DEFAULT_MAX_ALIASES = 200
+DEFAULT_MAX_NODES = 200_000
+DEFAULT_MAX_DEPTH = 64
+
+_ALLOWED_TAGS = {
+    "tag:yaml.org,2002:str",
+    "tag:yaml.org,2002:int",
+    "tag:yaml.org,2002:float",
+    "tag:yaml.org,2002:bool",
+    "tag:yaml.org,2002:null",
+    "tag:yaml.org,2002:timestamp",
+    "tag:yaml.org,2002:map",
+    "tag:yaml.org,2002:seq",
+}
+
+
+@dataclass(frozen=True)
+class YamlLimits:
+    """Bounds applied while loading."""
+
+    max_bytes: int = DEFAULT_MAX_BYTES
+    max_aliases: int = DEFAULT_MAX_ALIASES
+    max_nodes: int = DEFAULT_MAX_NODES
+    max_depth: int = DEFAULT_MAX_DEPTH
+
+
+class YamlMap(dict):
+    """A mapping that knows where it and each of its keys and values stand in the file."""
+
+    location: Location
+    key_locations: dict[Hashable, Location]
+    value_locations: dict[Hashable, Location]
+
+    def where(self, key: Hashable | None = None, *, of_key: bool = False) -> Location:
+        """Location of the value at ``key`` (or of the key itself), else of the mapping."""
+        if key is None:
+            return self.location
+        table = self.key_locations if of_key else self.value_locations
+        return table.get(key, self.location)
+
+
+class YamlSeq(list):
+    """A sequence that knows where it and each of its items stand in the file."""
+
+    location: Location
+    item_locations: list[Location]
+
+    def where(self, index: int | None = None) -> Location:
+        """Location of item ``index``, else of the sequence."""
+        if index is None or not 0 <= index < len(self.item_locations):
+            return self.location
+        return self.item_locations[index]
+
+
+def location_of(node: Node, file: str) -> Location:
+    """1-based location of a YAML node."""
+    return Location(file, node.start_mark.line + 1, node.start_mark.column + 1)
+
+
+def where(container: Any, key: Any = None, file: str = "<input>") -> Location:
+    """Location of ``container[key]`` (or of ``container``) if it came from :func:`load_yaml`."""
+    if isinstance(container, YamlMap | YamlSeq):
+        return container.where(key)
+    return Location(file, 1, 1)
+
+
+def load_yaml(
+    text: str | bytes,
+    file: str,
+    *,
+    limits: YamlLimits = YamlLimits(),  # noqa: B008 - frozen
+    error: type[LocatedError] = LocatedError,
+) -> Any:
+    """Parse one YAML document into plain, located Python values.
+
+    Raises ``error`` (a :class:`LocatedError` subclass) listing every problem found with its location.
+    An empty document gives ``None``.
+    """
+    start = Location(file, 1, 1)
+    if isinstance(text, bytes):
+        if len(text) > limits.max_bytes:
+            raise error([Problem(start, f"file is {len(text)} bytes, above the limit of {limits.max_bytes}")])
+        try:
+            text = text.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            raise error([Problem(start, f"not UTF-8 text ({exc.reason} at byte {exc.start})")]) from None
+    if len(text) > limits.max_bytes:
+        raise error([Problem(start, f"file is {len(text)} characters, above the limit of {limits.max_bytes}")])
+    if "\x00" in text:
+        raise error([Problem(start, "file contains a NUL byte: not a text file")])
+    try:
+        root = _compose(text, limits)
+    except _TooManyAliases as exc:
+        raise error([Problem(exc.location(file), str(exc))]) from None
+    except yaml.MarkedYAMLError as exc:
+        mark = exc.problem_mark or exc.context_mark
+        loc = Location(file, mark.line + 1, mark.column + 1) if mark else start
+        message = " ".join(p for p in (exc.context, exc.problem) if p) or "invalid YAML"
+        raise error([Problem(loc, f"YAML syntax: {message}")]) from None
+    except yaml.YAMLError as exc:
+        raise error([Problem(start, f"YAML syntax: {exc}")]) from None
+    if root is None:
+        return None
+    problems: list[Problem] = []
+    size = _expanded_size(root, {}, 0, limits, file, problems)
+    if problems:
+        raise error(problems[:1])
+    if size > limits.max_nodes:
+        raise error([Problem(location_of(root, file), f"document expands to {size} nodes, above the limit of {limits.max_nodes} (alias bomb?)")])
+    builder = _Builder(file)
+    value = builder.build(root)
+    if builder.problems:
+        raise error(builder.problems)
+    return value
+
+
+class _TooManyAliases(yaml.YAMLError):
+    def __init__(self, count: int, mark: Any) -> None:
+        super().__init__(f"more than {count} aliases: refused (alias bomb?)")
+        self.mark = mark
+
+    def location(self, file: str) -> Location:
+        if self.mark is None:
+            return Location(file, 1, 1)
+        return Location(file, self.mark.line + 1, self.mark.column + 1)
+
+
+class _BoundedLoader(yaml.SafeLoader):
+    """SafeLoader that counts aliases while composing."""
+
+    max_aliases = DEFAULT_MAX_ALIASES
+    alias_count = 0
+
+    def compose_node(self, parent: Node | None, index: Any) -> Node | None:  # type: ignore[override]
+        if self.check_event(yaml.AliasEvent):
+            self.alias_count += 1
+            if self.alias_count > self.max_aliases:
+                raise _TooManyAliases(self.max_aliases, self.peek_event().start_mark)
+        return super().compose_node(parent, index)
+
+
+def _compose(text: str, limits: YamlLimits) -> Node | None:
+    loader = _BoundedLoader(text)
+    loader.max_aliases = limits.max_aliases
+    try:
+        return loader.get_single_node()
+    finally:
+        loader.dispose()
+
+
+def _expanded_size(node: Node, memo: dict[int, int], depth: int, limits: YamlLimits, file: str, problems: list[Problem]) -> int:
+    """Number of nodes the tree has once aliases are expanded (memoised per node, so linear)."""
+    key = id(node)
+    if key in memo:
+        return memo[key]
+    if depth > limits.max_depth:
+        problems.append(Problem(location_of(node, file), f"nesting deeper than {limits.max_depth} levels"))
+        return 1
+    memo[key] = limits.max_nodes + 1  # a node met again while being sized is a cycle
+    total = 1
+    if isinstance(node, SequenceNode):
+        for child in node.value:
+            total += _expanded_size(child, memo, depth + 1, limits, file, problems)
+            if total > limits.max_nodes or problems:
+                break
+    elif isinstance(node, MappingNode):
+        for k, v in node.value:
+            total += _expanded_size(k, memo, depth + 1, limits, file, problems)
+            total += _expanded_size(v, memo, depth + 1, limits, file, problems)
+            if total > limits.max_nodes or problems:
+                break
+    memo[key] = total
+    return total
+
+
+class _Builder:
+    """Turns a composed node tree into YamlMap / YamlSeq / scalars, collecting located problems."""
+
+    def __init__(self, file: str) -> None:
+        self.file = file
+        self.problems: list[Problem] = []
+        self._constructor = yaml.constructor.SafeConstructor()
+
+    def build(self, node: Node) -> Any:
+        if node.tag not in _ALLOWED_TAGS:
+            self.problems.append(Problem(location_of(node, self.file), f"tag {node.tag!r} is not allowed (plain YAML only)"))
+            return None
+        if isinstance(node, ScalarNode):
+            return self._scalar(node)
+        if isinstance(node, SequenceNode):
+            seq = YamlSeq(self.build(child) for child in node.value)
+            seq.location = location_of(node, self.file)
+            seq.item_locations = [location_of(child, self.file) for child in node.value]
+            return seq
+        return self._mapping(node)
+
+    def _scalar(self, node: ScalarNode) -> Any:
+        try:
+            return self._constructor.construct_object(node, deep=True)
+        except (yaml.YAMLError, ValueError, OverflowError) as exc:
+            self.problems.append(Problem(location_of(node, self.file), f"bad value {node.value!r}: {exc}"))
+            return None
+
+    def _mapping(self, node: MappingNode) -> YamlMap:
+        out = YamlMap()
+        out.location = location_of(node, self.file)
+        out.key_locations = {}
+        out.value_locations = {}
+        for key_node, value_node in node.value:
+            if key_node.tag == "tag:yaml.org,2002:merge":
+                self.problems.append(Problem(location_of(key_node, self.file), "merge keys ('<<') are not supported"))
+                continue
+            key = self.build(key_node)
+            if not isinstance(key, Hashable) or isinstance(key, YamlMap | YamlSeq):
+                self.problems.append(Problem(location_of(key_node, self.file), "a mapping key must be a plain value"))
+                continue
+            if key in out:
+                first = out.key_locations[key]
+                self.problems.append(Problem(location_of(key_node, self.file), f"duplicate key {key!r} (first at line {first.line})"))
+                continue
+            out[key] = self.build(value_node)
+            out.key_locations[key] = location_of(key_node, self.file)
+            out.value_locations[key] = location_of(value_node, self.file)
+        return out

@@ -1,0 +1,43 @@
+"""Figures of merit from captured traces and scans: pure functions on numpy arrays, no I/O.
+
+Units: times in ns, voltages in mV unless a name says otherwise.  Functions on traces take a 1-D
+trace or a 2-D array (one trace a row) and return a float or one value per row.  Wrong inputs
+raise ValueError with a message that names the argument.
+"""
+
+from __future__ import annotations
+
+from .crosstalk import crosstalk_db, crosstalk_peak_percent, crosstalk_percent
+from .lines import LineFit, fit_line, inl_percent
+from .noise import ELEMENTARY_CHARGE_C, TraceAverage, average_traces, enc_electrons
+from .pulses import baseline_rms, pulse_height
+from .scurves import SCurveFit, fit_s_curve
+from .thresholds import ThresholdCalibration, noise_rate, rice_nu0, threshold_calibration
+from .timing import peaking_time, rise_time, zero_crossing_time
+from .transfer import TransferFit, transfer_curve
+
+__all__ = [
+    "ELEMENTARY_CHARGE_C",
+    "LineFit",
+    "SCurveFit",
+    "ThresholdCalibration",
+    "TraceAverage",
+    "TransferFit",
+    "average_traces",
+    "baseline_rms",
+    "crosstalk_db",
+    "crosstalk_peak_percent",
+    "crosstalk_percent",
+    "enc_electrons",
+    "fit_line",
+    "fit_s_curve",
+    "inl_percent",
+    "noise_rate",
+    "peaking_time",
+    "pulse_height",
+    "rice_nu0",
+    "rise_time",
+    "threshold_calibration",
+    "transfer_curve",
+    "zero_crossing_time",
+]

@@ -1,0 +1,161 @@
+"""The step kinds of the procedure language: names, arguments, canonical units.
+
+This table is the contract between the procedure layer (which validates a step against it, converts
+every quantity with a unit into the canonical unit below and writes the JSON Schema from it) and the
+engine (which has one handler per kind and receives ``PlannedStep.args`` already converted).
+
+Canonical units: signal voltages mV, bias voltages V, pulse times ns, durations s, rates Hz, ramp rates
+V/s, currents µA.  A value written with a unit in YAML (``40 mV``, ``0.2 V``, ``1 kHz``, ``50 ns``,
+``5 V/s``) is converted; a bare number is taken in the canonical unit.
+
+``measures``: the step reads something (its results are stored and replayed on resume instead of being
+re-executed).  ``configures``: the step sets instrument state (re-applied on resume so the bench is in
+the state the remaining steps expect).  ``hazard``: the step can make a voltage live.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from typing import Any, Literal
+
+Dimension = Literal[
+    "voltage", "bias_voltage", "time", "duration", "frequency", "slew", "current",
+    "int", "float", "bool", "str", "name", "names", "ints", "percent",
+]
+
+CANONICAL_UNIT: Mapping[str, str] = {
+    "voltage": "mV",
+    "bias_voltage": "V",
+    "time": "ns",
+    "duration": "s",
+    "frequency": "Hz",
+    "slew": "V/s",
+    "current": "uA",
+    "percent": "%",
+}
+
+
+@dataclass(frozen=True)
+class Arg:
+    """One argument of a step kind."""
+
+    name: str
+    dimension: Dimension
+    required: bool = True
+    default: Any = None
+    doc: str = ""
+    choices: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class StepKind:
+    """A step kind: what it needs and what it does."""
+
+    name: str
+    role: str | None
+    args: tuple[Arg, ...]
+    doc: str
+    measures: bool = False
+    configures: bool = False
+    hazard: bool = False
+    produces: tuple[str, ...] = ()          # quantity names (DESIGN.md) an analysis step can produce
+    extra: Mapping[str, Any] = field(default_factory=dict)
+
+    def arg(self, name: str) -> Arg | None:
+        """The argument called ``name``, if the kind has one."""
+        return next((a for a in self.args if a.name == name), None)
+
+
+def _k(name: str, role: str | None, doc: str, *args: Arg, **flags: Any) -> StepKind:
+    return StepKind(name=name, role=role, args=tuple(args), doc=doc, **flags)
+
+
+_TRACE_ANALYSIS = (
+    Arg("traces", "name", doc="name given to the captured traces (scope.capture into)"),
+    Arg("n_baseline", "int", required=False, default=200, doc="samples before the pulse used as baseline"),
+)
+
+KINDS: Mapping[str, StepKind] = {k.name: k for k in (
+    # -- pulser -----------------------------------------------------------------------------------
+    _k("pulser.amplitude", "pulser", "set the test-pulse amplitude",
+       Arg("mV", "voltage", doc="pulse amplitude"), configures=True),
+    _k("pulser.shape", "pulser", "set pulse width and edge times",
+       Arg("width", "time", required=False), Arg("leading", "time", required=False),
+       Arg("trailing", "time", required=False), configures=True),
+    _k("pulser.rate", "pulser", "set the pulse repetition rate", Arg("hz", "frequency"), configures=True),
+    _k("pulser.burst", "pulser", "pulses per trigger (0 = continuous)", Arg("count", "int"), configures=True),
+    _k("pulser.output", "pulser", "switch the pulser output", Arg("on", "bool"), configures=True),
+    _k("pulser.trigger", "pulser", "send one trigger (*TRG)"),
+    # -- scope / digitizer ------------------------------------------------------------------------
+    _k("scope.input", "scope", "range and offset of one scope input",
+       Arg("input", "int"), Arg("range", "voltage", doc="full scale, +/- half"),
+       Arg("offset", "voltage", required=False, default=0.0), configures=True),
+    _k("scope.timebase", "scope", "sample rate, record length and pre-trigger time",
+       Arg("sample_rate", "frequency"), Arg("points", "int"),
+       Arg("pretrigger", "time", required=False, default=0.0), configures=True),
+    _k("scope.trigger", "scope", "trigger source and level",
+       Arg("source", "str"), Arg("level", "voltage", required=False, default=0.0), configures=True),
+    _k("scope.average", "scope", "number of acquisitions averaged per capture", Arg("count", "int"),
+       configures=True),
+    _k("scope.capture", "scope", "acquire and fetch traces from one or more inputs",
+       Arg("inputs", "ints", doc="scope inputs, e.g. [1] or [1, 2, 3]"),
+       Arg("into", "names", doc="one trace name per input"), measures=True),
+    # -- threshold DAC, counter -------------------------------------------------------------------
+    _k("threshold.level", "threshold", "set a discriminator threshold",
+       Arg("channel", "int"), Arg("mV", "voltage"), configures=True),
+    _k("counter.gate", "counter", "counting gate time", Arg("seconds", "duration"), configures=True),
+    _k("counter.count", "counter", "count discriminator firings over one gate",
+       Arg("channel", "int"), Arg("into", "name"), measures=True),
+    # -- bias supply ------------------------------------------------------------------------------
+    _k("bias.limit", "bias", "current limit (trip)", Arg("current", "current"), configures=True),
+    _k("bias.ramp", "bias", "ramp the bias voltage (never a step) and wait until it is reached",
+       Arg("volts", "bias_voltage"), Arg("rate", "slew", required=False), configures=True,
+       hazard=True),
+    _k("bias.output", "bias", "switch the bias output", Arg("on", "bool"), configures=True,
+       hazard=True),
+    _k("bias.read", "bias", "measure bias voltage and current", Arg("into", "name"), measures=True),
+    # -- channel switch ---------------------------------------------------------------------------
+    _k("switch.route", "switch", "route a board channel and output to a scope input",
+       Arg("channel", "int"), Arg("output", "str"), Arg("input", "int"), configures=True),
+    _k("switch.inject", "switch", "select the channel that receives the test pulse",
+       Arg("channel", "int"), configures=True),
+    _k("switch.open_all", "switch", "open every relay", configures=True),
+    # -- flow -------------------------------------------------------------------------------------
+    _k("wait", None, "settle for a time", Arg("seconds", "duration")),
+    _k("prompt", None, "show a message to the operator and wait for acknowledgement or a value",
+       Arg("message", "str"), Arg("enter", "name", required=False, doc="store the typed value under this name"),
+       measures=True),
+    # -- analysis (sequencer.analysis) ------------------------------------------------------------
+    _k("analyse.transfer", None, "gain, offset and INL from pulse heights over an amplitude sweep",
+       *_TRACE_ANALYSIS, Arg("x", "name", doc="the sweep variable holding the injected amplitude (mV)"),
+       Arg("method", "str", required=False, default="peak", choices=("peak", "template")),
+       Arg("deviation", "percent", required=False, default=1.0, doc="dynamic range: deviation from the line"),
+       produces=("gain", "offset_mV", "inl_pct")),
+    _k("analyse.noise", None, "input-referred noise: baseline RMS divided by the measured gain",
+       Arg("traces", "name"), Arg("n_baseline", "int", required=False, default=0,
+                                  doc="0 = the whole trace"),
+       Arg("gain", "float", required=False, doc="V/V; default: the gain measured earlier in the run"),
+       produces=("noise_in_mV",)),
+    _k("analyse.crosstalk", None, "victim amplitude over aggressor amplitude",
+       Arg("aggressor", "name"), Arg("victim", "name"), Arg("victim_channel", "int"),
+       Arg("aggressor_channel", "int"), Arg("n_baseline", "int", required=False, default=200),
+       produces=("crosstalk_pct",)),
+    _k("analyse.s_curve", None, "fit the discriminator S-curve of counts over a threshold sweep",
+       Arg("counts", "name"), Arg("x", "name", doc="sweep variable holding the threshold (mV)"),
+       Arg("trials", "int", doc="pulses sent per gate"),
+       produces=("threshold_mV", "threshold_sigma_mV")),
+    _k("analyse.discriminator", None,
+       "discriminator offset: intercept of the S-curve 50 % points against the pulse height",
+       Arg("counts", "name"), Arg("x", "name"), Arg("amplitude", "name",
+                                                   doc="sweep variable holding the injected amplitude"),
+       Arg("trials", "int"), Arg("gain", "float", required=False,
+                                 doc="x1 gain (V/V); default: measured earlier in the run"),
+       produces=("discriminator_offset_mV",)),
+    _k("analyse.peaking", None, "shaped output: start to first positive peak (and zero crossing)",
+       *_TRACE_ANALYSIS, produces=("peaking_time_ns",)),
+    _k("analyse.rise", None, "fast output: 10 %-90 % rise time", *_TRACE_ANALYSIS,
+       produces=("rise_time_ns",)),
+    _k("analyse.leakage", None, "bias-line current at the test voltage",
+       Arg("reading", "name", doc="name given to bias.read"), produces=("leakage_nA",)),
+)}

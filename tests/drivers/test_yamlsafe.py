@@ -1,0 +1,63 @@
+"""Safe, bounded, located YAML loading."""
+
+import time
+
+import pytest
+
+from drivers.errors import LocatedError
+from drivers.yamlsafe import YamlMap, YamlSeq, load_yaml
+
+
+def test_locations_of_keys_and_items():
+    data = load_yaml("a: 1\nb:\n  - x\n  - {c: 2}\n", "f.yaml")
+    assert isinstance(data, YamlMap)
+    assert data.where("b").line == 3
+    assert data.where("b", of_key=True) .line == 2
+    seq = data["b"]
+    assert isinstance(seq, YamlSeq)
+    assert seq.where(1).line == 4 and seq.where(1).column == 5
+    assert seq[1].where("c").line == 4
+
+
+def test_python_tag_is_refused_not_built():
+    with pytest.raises(LocatedError) as exc:
+        load_yaml("x: !!python/object/apply:os.system ['true']\n", "evil.yaml")
+    assert "evil.yaml:1:4" in str(exc.value)
+    assert "not allowed" in str(exc.value)
+
+
+def test_billion_laughs_refused_fast():
+    # The classic exponential alias expansion ("billion laughs"), 9 levels of 9 aliases.
+    lines = ['a0: &a0 ["lol","lol","lol","lol","lol","lol","lol","lol","lol"]']
+    for i in range(1, 9):
+        refs = ",".join([f"*a{i - 1}"] * 9)
+        lines.append(f"a{i}: &a{i} [{refs}]")
+    text = "\n".join(lines) + "\n"
+    t = time.perf_counter()
+    with pytest.raises(LocatedError, match="alias"):
+        load_yaml(text, "bomb.yaml")
+    assert time.perf_counter() - t < 0.5
+
+
+def test_small_alias_use_is_fine():
+    data = load_yaml("base: &b {x: 1}\nother: *b\n", "ok.yaml")
+    assert data["other"] == {"x": 1}
+
+
+def test_syntax_error_located():
+    with pytest.raises(LocatedError) as exc:
+        load_yaml("a: [1, 2\nb: 3\n", "bad.yaml")
+    assert str(exc.value).startswith("bad.yaml:")
+    assert "YAML syntax" in str(exc.value)
+
+
+def test_duplicate_key():
+    with pytest.raises(LocatedError, match=r"dup.yaml:2:1: duplicate key 'a'"):
+        load_yaml("a: 1\na: 2\n", "dup.yaml")
+
+
+def test_size_cap_and_binary():
+    with pytest.raises(LocatedError, match="above the limit"):
+        load_yaml("a: " + "x" * 3_000_000, "big.yaml")
+    with pytest.raises(LocatedError, match="UTF-8"):
+        load_yaml(b"\xff\xfe\x00", "bin.yaml")
