@@ -1,0 +1,153 @@
+"""Batch files: the boards of one batch to qualify in turn with one procedure.
+
+::
+
+    batch: NR-2025-W27                 # batch name
+    procedure: ../procedures/qualify-pa8.yaml   # relative to this file
+    board_type: PA8                    # default for every board
+    operator: A. Example               # default for every board
+    boards:
+      - serial: NR-PA8-0001
+        sim_board: sim/NR-PA8-0001.yaml          # optional: simulated board file (relative)
+      - {serial: NR-PA8-0002, operator: B. Example}
+
+Serials must be unique; paths are resolved relative to the batch file.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from drivers.errors import Location, Problem
+from drivers.yamlsafe import YamlMap, YamlSeq, load_yaml
+from sequencer.errors import ProcedureError
+
+from .checking import check_keys, require_keys
+
+BATCH_KEYS = ("batch", "procedure", "board_type", "operator", "description", "boards")
+BOARD_KEYS = ("serial", "board_type", "operator", "sim_board")
+SERIAL = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
+
+
+@dataclass(frozen=True, kw_only=True)
+class BatchBoard:
+    """One board of a batch."""
+
+    serial: str
+    board_type: str
+    operator: str
+    sim_board: str | None = None  # path of a simulated board file, resolved
+    location: Location | None = None
+
+
+@dataclass(frozen=True, kw_only=True)
+class Batch:
+    """A batch of boards and the procedure that qualifies them."""
+
+    name: str
+    procedure: str  # path, resolved relative to the batch file
+    boards: tuple[BatchBoard, ...]
+    description: str = ""
+    source_path: str = ""
+
+
+def _text(data: YamlMap, key: str, problems: list[Problem], default: str = "") -> str:
+    value = data.get(key, default)
+    if not isinstance(value, str) or (key in data and not value.strip()):
+        problems.append(Problem(data.where(key), f"{key}: needs a non-empty text"))
+        return default
+    return value
+
+
+def _board(
+    entry: Any, at: Location, defaults: dict[str, str], base: Path, problems: list[Problem]
+) -> BatchBoard | None:
+    if not isinstance(entry, YamlMap):
+        problems.append(Problem(at, "a board is a mapping such as {serial: NR-PA8-0001}"))
+        return None
+    before = len(problems)
+    check_keys(entry, BOARD_KEYS, problems, "a batch board")
+    require_keys(entry, ("serial",), problems, "a batch board")
+    serial = entry.get("serial", "")
+    if "serial" in entry and (not isinstance(serial, str) or not SERIAL.match(serial)):
+        problems.append(
+            Problem(
+                entry.where("serial"), f"serial {serial!r} must be letters, digits, '_', '.', '-'"
+            )
+        )
+    values = {k: _text(entry, k, problems, defaults[k]) for k in ("board_type", "operator")}
+    for key, value in values.items():
+        if not value:
+            problems.append(
+                Problem(entry.where(), f"board needs a {key} (here or at the top of the batch)")
+            )
+    sim = entry.get("sim_board")
+    if sim is not None and (not isinstance(sim, str) or not sim.strip()):
+        problems.append(
+            Problem(entry.where("sim_board"), "sim_board: needs the path of a board file")
+        )
+    if len(problems) != before:
+        return None
+    return BatchBoard(
+        serial=serial, sim_board=str(base / sim) if sim else None, location=at, **values
+    )
+
+
+def parse_batch_text(text: str | bytes, file: str) -> Batch:
+    """A batch file's text as a :class:`Batch`; :class:`ProcedureError` with every problem located."""
+    data = load_yaml(text, file, error=ProcedureError)
+    if not isinstance(data, YamlMap):
+        raise ProcedureError(
+            [Problem(Location(file, 1, 1), "a batch file is a mapping with 'boards:'")]
+        )
+    problems: list[Problem] = []
+    check_keys(data, BATCH_KEYS, problems, "a batch file")
+    require_keys(data, ("batch", "procedure", "boards"), problems, "a batch file")
+    base = Path(file).parent
+    name = _text(data, "batch", problems)
+    procedure = _text(data, "procedure", problems)
+    defaults = {k: _text(data, k, problems) for k in ("board_type", "operator")}
+    description = _text(data, "description", problems)
+    boards: list[BatchBoard] = []
+    raw = data.get("boards")
+    if "boards" in data and (not isinstance(raw, YamlSeq) or not raw):
+        problems.append(Problem(data.where("boards"), "boards: needs a list of boards"))
+        raw = YamlSeq()
+    seen: dict[str, int] = {}
+    for i, entry in enumerate(raw or ()):
+        board = _board(entry, raw.where(i), defaults, base, problems)
+        if board is None:
+            continue
+        if board.serial in seen:
+            problems.append(
+                Problem(
+                    raw.where(i),
+                    f"serial {board.serial!r} listed twice (first at line {seen[board.serial]})",
+                )
+            )
+            continue
+        seen[board.serial] = raw.where(i).line
+        boards.append(board)
+    if problems:
+        raise ProcedureError(problems)
+    return Batch(
+        name=name,
+        procedure=str(base / procedure),
+        boards=tuple(boards),
+        description=description,
+        source_path=file,
+    )
+
+
+def load_batch(path: str | Path) -> Batch:
+    """The batch file at ``path``."""
+    try:
+        raw = Path(path).read_bytes()
+    except OSError as exc:
+        raise ProcedureError(
+            [Problem(Location(str(path), 1, 1), f"cannot read batch file: {exc.strerror}")]
+        ) from None
+    return parse_batch_text(raw, str(path))

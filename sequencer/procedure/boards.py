@@ -1,0 +1,150 @@
+"""Board-type files (``procedures/boards/<type>.yaml``): channels and outputs of a kind of board.
+
+::
+
+    board_type: PA8
+    description: ...
+    channels: 8
+    outputs:                      # in order; nominal_gain in V/V for the outputs that have one
+      x1: {nominal_gain: 1.0}
+      x5: {nominal_gain: 5.0}
+      shaped: {}
+
+:func:`load_board_type` gives a :class:`BoardInfo` template (serial empty); :func:`board_info` fills in
+the serial of the board under test.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+import re
+from pathlib import Path
+
+import procedures
+from drivers.errors import Location, Problem
+from drivers.yamlsafe import YamlMap, load_yaml
+from sequencer.errors import ProcedureError
+
+from .checking import check_keys, require_keys
+from .plan_model import BoardInfo
+
+BOARD_KEYS = ("board_type", "description", "channels", "outputs")
+OUTPUT_KEYS = ("nominal_gain", "description")
+MAX_CHANNELS = 1024
+_OUTPUT_NAME = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.+-]*$")
+
+
+def shipped_dir(kind: str) -> Path:
+    """``procedures/<kind>`` of the installed package (``boards``, ``limits``)."""
+    return Path(procedures.__file__).resolve().parent / kind
+
+
+def board_type_path(name_or_path: str | Path) -> Path:
+    """A path as given, or the shipped file of a board-type name."""
+    text = str(name_or_path)
+    if text.endswith((".yaml", ".yml")) or "/" in text or "\\" in text:
+        return Path(text)
+    return shipped_dir("boards") / f"{text}.yaml"
+
+
+def parse_board_type(text: str | bytes, file: str) -> BoardInfo:
+    """A board-type file's text as a :class:`BoardInfo` template."""
+    data = load_yaml(text, file, error=ProcedureError)
+    problems: list[Problem] = []
+    if not isinstance(data, YamlMap):
+        raise ProcedureError(
+            [
+                Problem(
+                    Location(file, 1, 1),
+                    "a board-type file is a mapping (board_type, channels, outputs)",
+                )
+            ]
+        )
+    check_keys(data, BOARD_KEYS, problems, "a board-type file")
+    require_keys(data, ("board_type", "channels", "outputs"), problems, "a board-type file")
+    name = data.get("board_type", "")
+    if not isinstance(name, str) or not name:
+        problems.append(Problem(data.where("board_type"), "board_type: needs a name such as PA8"))
+    channels = data.get("channels", 1)
+    if (
+        isinstance(channels, bool)
+        or not isinstance(channels, int)
+        or not 1 <= channels <= MAX_CHANNELS
+    ):
+        problems.append(
+            Problem(
+                data.where("channels"), f"channels: needs a whole number from 1 to {MAX_CHANNELS}"
+            )
+        )
+    outputs, gains = _outputs(data, problems)
+    if problems:
+        raise ProcedureError(problems)
+    return BoardInfo(
+        serial="", board_type=name, channels=channels, outputs=outputs, nominal_gain=gains
+    )
+
+
+def _outputs(data: YamlMap, problems: list[Problem]) -> tuple[tuple[str, ...], dict[str, float]]:
+    raw = data.get("outputs")
+    if raw is None:
+        return (), {}
+    if not isinstance(raw, YamlMap) or not raw:
+        problems.append(
+            Problem(
+                data.where("outputs"),
+                "outputs: needs a mapping of output name: {nominal_gain: ...}",
+            )
+        )
+        return (), {}
+    gains: dict[str, float] = {}
+    for key, spec in raw.items():
+        if not isinstance(key, str) or not _OUTPUT_NAME.match(key):
+            problems.append(
+                Problem(
+                    raw.where(key, of_key=True),
+                    f"output name {key!r} must be letters, digits, '_', '.', '+', '-'",
+                )
+            )
+            continue
+        if spec is None:
+            continue
+        if not isinstance(spec, YamlMap):
+            problems.append(
+                Problem(raw.where(key), "an output is a mapping such as {nominal_gain: 5.0}")
+            )
+            continue
+        check_keys(spec, OUTPUT_KEYS, problems, f"output {key!r}")
+        gain = spec.get("nominal_gain")
+        if gain is None:
+            continue
+        if (
+            isinstance(gain, bool)
+            or not isinstance(gain, int | float)
+            or not math.isfinite(gain)
+            or gain <= 0
+        ):
+            problems.append(
+                Problem(spec.where("nominal_gain"), "nominal_gain: needs a positive number (V/V)")
+            )
+            continue
+        gains[key] = float(gain)
+    return tuple(str(k) for k in raw), gains
+
+
+def load_board_type(name_or_path: str | Path) -> BoardInfo:
+    """The board type called ``name_or_path`` (shipped) or in that file; serial left empty."""
+    path = board_type_path(name_or_path)
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise ProcedureError(
+            [Problem(Location(str(path), 1, 1), f"cannot read board-type file: {exc.strerror}")]
+        ) from None
+    return parse_board_type(raw, str(path))
+
+
+def board_info(board_type: BoardInfo | str | Path, serial: str) -> BoardInfo:
+    """The board under test: its type (a template, a name or a file) with ``serial`` filled in."""
+    template = board_type if isinstance(board_type, BoardInfo) else load_board_type(board_type)
+    return dataclasses.replace(template, serial=serial)

@@ -1,0 +1,83 @@
+"""Checks of planned steps that need resolved values: channels and outputs of the board, names captured
+before an analysis reads them, sweep variables an analysis names, and unique paths."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+from drivers.errors import Problem
+
+from .checking import suggest
+from .model import Leaf
+from .plan_model import BoardInfo, PlannedStep
+
+CAPTURE_REFS = ("traces", "counts", "reading", "aggressor", "victim")
+SWEEP_REFS = ("x", "amplitude")
+CHANNEL_ARGS = ("channel", "victim_channel", "aggressor_channel")
+PRODUCING_ARGS = ("into", "enter")
+
+
+class StepChecks:
+    """Follows the plan in order: what has been captured and which sweep variables were met."""
+
+    def __init__(self, board: BoardInfo, problems: list[Problem]) -> None:
+        self.board = board
+        self.problems = problems
+        self.produced: set[str] = set()
+        self.swept: set[str] = set()
+
+    def _add(self, step: Leaf, key: str, message: str) -> None:
+        self.problems.append(Problem(step.args[key].location, f"{step.kind}: {message}"))
+
+    def check(self, step: Leaf, args: Mapping[str, Any], labels: Mapping[str, Any]) -> None:
+        """Problems of one leaf with its resolved ``args``; then note what it produces."""
+        board = self.board
+        for key in CHANNEL_ARGS:
+            if key in step.args and not 1 <= args[key] <= board.channels:
+                self._add(
+                    step,
+                    key,
+                    f"{key} {args[key]} outside 1..{board.channels} of {board.board_type}",
+                )
+        if "output" in step.args and args["output"] not in board.outputs:
+            hint = suggest(args["output"], board.outputs)
+            self._add(step, "output", f"{board.board_type} has no output {args['output']!r}{hint}")
+        if step.kind.startswith("analyse."):
+            for key in CAPTURE_REFS:
+                if key in step.args and args[key] not in self.produced:
+                    hint = suggest(args[key], self.produced)
+                    self._add(
+                        step, key, f"nothing captured into {args[key]!r} before this step{hint}"
+                    )
+            for key in SWEEP_REFS:
+                if key in step.args and args[key] not in self.swept:
+                    hint = suggest(args[key], self.swept)
+                    self._add(
+                        step,
+                        key,
+                        f"{args[key]!r} is not a sweep variable met before this step{hint}",
+                    )
+        for key in PRODUCING_ARGS:
+            value = args.get(key)
+            if value is not None:
+                self.produced.update(value if isinstance(value, tuple) else (value,))
+        self.swept.update(k for k in labels if k not in ("channel", "output"))
+
+
+def check_unique(steps: list[PlannedStep], problems: list[Problem]) -> None:
+    """A path met twice is a problem at the second step."""
+    first: dict[str, PlannedStep] = {}
+    for step in steps:
+        if step.path not in first:
+            first[step.path] = step
+            continue
+        other = first[step.path].location
+        line = f" (first at line {other.line})" if other else ""
+        assert step.location is not None
+        problems.append(
+            Problem(
+                step.location,
+                f"duplicate step path {step.path!r}{line}: give the step a distinct 'name:'",
+            )
+        )

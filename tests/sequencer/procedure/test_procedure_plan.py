@@ -1,0 +1,157 @@
+"""Expansion into a plan: paths, labels, conditions, sweeps, estimates, safety figures, determinism."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from sequencer.errors import ProcedureError
+from sequencer.procedure import (
+    board_info,
+    build_plan,
+    format_plan,
+    load_procedure,
+    load_procedure_text,
+)
+
+ROOT = Path(__file__).resolve().parents[3]
+DATA = Path(__file__).parent / "data"
+PA8 = board_info("PA8", "NR-PA8-0001")
+
+
+def plan_of(text: str, board=PA8, **kw):
+    return build_plan(load_procedure_text(text, "t.yaml"), board, **kw)
+
+
+HEAD = "name: t\nversion: 1\nboard_type: PA8\n"
+
+
+def test_quick_gain_paths_labels_and_args():
+    plan = build_plan(load_procedure(ROOT / "procedures/examples/quick-gain.yaml"), PA8)
+    by_path = {s.path: s for s in plan.steps}
+    step = by_path["gain/ch3/x5/amp=40mV/capture"]
+    assert step.kind == "scope.capture" and step.labels == {
+        "channel": 3,
+        "output": "x5",
+        "amp": 40.0,
+    }
+    assert dict(step.args) == {"inputs": (1,), "into": ("pulses",)}
+    assert by_path["gain/ch3/x5/amp=40mV/amplitude"].args == {"mV": 40.0}
+    # range = 2.4 x 100 mV x nominal gain 5.0 of x5 (board file) = 1200 mV
+    assert by_path["gain/ch3/x5/input"].args["range"] == pytest.approx(1200.0)
+    assert by_path["setup/timebase"].args == {
+        "sample_rate": 1e9,
+        "points": 1000,
+        "pretrigger": 100.0,
+    }
+    # 8 channels x 2 outputs x 5 amplitudes x 3 steps per amplitude
+    assert sum(s.kind == "scope.capture" for s in plan.steps) == 80
+    assert [s.block for s in plan.steps][:6] == ["setup"] * 6 and plan.steps[-1].block == "cleanup"
+    assert len({s.path for s in plan.steps}) == len(plan.steps)
+
+
+def test_plans_are_deterministic():
+    for path in (ROOT / "procedures/examples/quick-gain.yaml", DATA / "full.yaml"):
+        a = build_plan(load_procedure(path), PA8)
+        b = build_plan(load_procedure(path), PA8)
+        assert [(s.path, s.kind, dict(s.args), dict(s.labels), s.estimate_s) for s in a.steps] == [
+            (s.path, s.kind, dict(s.args), dict(s.labels), s.estimate_s) for s in b.steps
+        ]
+        assert format_plan(a) == format_plan(b)
+
+
+def test_when_skips_the_missing_neighbour_of_the_edge_channel():
+    plan = build_plan(load_procedure(DATA / "full.yaml"), PA8)
+    paths = [s.path for s in plan.steps if s.path.startswith("xtalk/")]
+    assert "xtalk/ch2/x1/route-right" in paths and "xtalk/ch8/x1/route" in paths
+    assert not any(
+        p.startswith("xtalk/ch8/x1/") and p.endswith(("route-right", "capture", "crosstalk"))
+        for p in paths
+    )
+    crosstalk = next(s for s in plan.steps if s.path == "xtalk/ch2/x1/crosstalk")
+    assert crosstalk.args["victim_channel"] == 3 and crosstalk.args["aggressor_channel"] == 2
+
+
+def test_cartesian_and_zipped_sweeps():
+    plan = build_plan(load_procedure(DATA / "full.yaml"), PA8)
+    levels = [s for s in plan.steps if s.kind == "threshold.level"]
+    # product: first variable outermost; range 2..6 mV step 2 mV includes the stop
+    assert [(s.labels["amp"], s.labels["thr"]) for s in levels] == [
+        (20.0, 2.0),
+        (20.0, 4.0),
+        (20.0, 6.0),
+        (60.0, 2.0),
+        (60.0, 4.0),
+        (60.0, 6.0),
+    ]
+    assert levels[0].path == "scurve/amp=20mV/thr=2mV/level"
+    shapes = [s for s in plan.steps if s.kind == "pulser.shape"]
+    assert [s.path for s in shapes] == ["width=10ns,rate=1kHz/shape", "width=20ns,rate=2kHz/shape"]
+    assert [s.labels["width"] for s in shapes] == [10.0, 20.0]  # labels of times in ns
+
+
+def test_linspace_values_are_clean():
+    plan = plan_of(
+        HEAD + "steps:\n  - sweep: {a: {linspace: [0.1 V, 0.3 V, 5]}}\n    do:\n"
+        "      - pulser.amplitude: '{a}'\n"
+    )
+    assert [s.args["mV"] for s in plan.steps] == [100.0, 150.0, 200.0, 250.0, 300.0]
+    assert plan.steps[1].path == "a=0.15V/amplitude"
+
+
+def test_bias_meta_and_ramp_estimates_track_the_setpoint():
+    plan = build_plan(load_procedure(DATA / "full.yaml"), PA8)
+    assert plan.meta.max_bias_volts == 30.0 and plan.meta.max_ramp_V_per_s == 5.0
+    ramps = [s for s in plan.steps if s.kind == "bias.ramp"]
+    assert ramps[0].args == {"volts": 30.0, "rate": 2.0}  # rate from defaults.ramp_rate
+    assert all(s.hazard for s in ramps)
+    # |30 V - 0 V| / 2 V/s = 15 s and |0 V - 30 V| / 5 V/s = 6 s, each plus the 0.5 s settling check
+    assert [s.estimate_s for s in ramps] == pytest.approx([15.5, 6.5])
+    off = [s for s in plan.steps if s.kind == "bias.output"]
+    assert [s.hazard for s in off] == [True, False]
+
+
+def test_capture_and_count_estimates():
+    plan = plan_of(
+        HEAD + "steps:\n  - scope.timebase: {sample_rate: 1 GS/s, points: 5000}\n"
+        "  - scope.average: 10\n  - pulser.rate: 100 Hz\n  - scope.capture: {inputs: [1, 2], into: [a, b]}\n"
+        "  - counter.gate: 0.25 s\n  - counter.count: {channel: 1, into: n}\n  - wait: 2 s\n"
+    )
+    capture, count, wait = plan.steps[3], plan.steps[5], plan.steps[6]
+    # 10 acquisitions x max(5000 / 1e9 s, 1 / 100 Hz) + 2 inputs x (5 ms + 5000 x 2 B / 10 MB/s)
+    assert capture.estimate_s == pytest.approx(10 * 0.01 + 2 * (0.005 + 0.001))
+    assert count.estimate_s == pytest.approx(0.25 + 0.02)
+    assert wait.estimate_s == 2.0
+    text = format_plan(plan)
+    assert "scope.capture" in text and "estimated duration" in text and "7 steps" in text
+
+
+def test_overrides_replace_parameters():
+    text = HEAD + "parameters: {amp: 40 mV}\nsteps:\n  - pulser.amplitude: '{amp}'\n"
+    assert plan_of(text, overrides={"amp": "25 mV"}).steps[0].args == {"mV": 25.0}
+    assert plan_of(text).parameters == {"amp": "40 mV"}
+    with pytest.raises(ProcedureError, match="override 'amps': no such parameter"):
+        plan_of(text, overrides={"amps": 1})
+
+
+def test_board_values_in_expressions():
+    small = board_info("PA8", "X")
+    from dataclasses import replace
+
+    four = replace(small, channels=4)
+    text = (
+        HEAD
+        + "steps:\n  - for_channels: all\n    do:\n      - scope.average: '{board.channels * channel}'\n"
+    )
+    assert [s.args["count"] for s in plan_of(text, board=four).steps] == [4, 8, 12, 16]
+
+
+def test_plan_carries_source_and_limits():
+    path = ROOT / "procedures/examples/quick-gain.yaml"
+    plan = build_plan(load_procedure(path), PA8)
+    import hashlib
+
+    assert plan.source_text == path.read_text()
+    assert plan.sha256 == hashlib.sha256(path.read_bytes()).hexdigest()
+    assert plan.limit_for("gain", "x5").low == 4.75
