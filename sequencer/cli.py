@@ -1,18 +1,296 @@
-"""Command line and composition root of benchwright."""
+"""Command line and composition root of benchwright.
+
+Every command reads its files and the environment once, hands plain values down, and maps the one
+exception hierarchy (``drivers.errors``) to the exit codes of DESIGN.md:
+
+0 all measured values within limits · 1 at least one value outside its limits · 2 bad input (file,
+option, procedure) · 3 run aborted (instrument fault, interlock, operator, signal).
+"""
 
 from __future__ import annotations
+
+import os
+import sys
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
 
 import click
 
 from sequencer import __version__
+from sequencer.cli_common import (
+    EXIT_ABORT,
+    EXIT_FAIL,
+    EXIT_INPUT,
+    EXIT_OK,
+    SAFETY_HELP,
+    db_option,
+    env,
+    fail,
+    handles_errors,
+)
+from sequencer.errors import StoreError
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.group(context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
 @click.version_option(__version__, prog_name="benchwright")
-def cli() -> None:
+@click.option("--debug", is_flag=True, help="Show tracebacks for errors.")
+def cli(debug: bool) -> None:
     """Qualify front-end electronics boards with versioned test procedures."""
+
+
+# -- procedures ---------------------------------------------------------------------------------
+
+
+@cli.command()
+@click.argument("procedures", nargs=-1, required=True, type=click.Path(dir_okay=False))
+@handles_errors
+def validate(procedures: tuple[str, ...]) -> None:
+    """Check procedure files; print file:line:column: message per problem (exit 2 if any)."""
+    from sequencer.procedure import validate_paths
+
+    problems = validate_paths(procedures)
+    if problems:
+        fail(EXIT_INPUT, "\n".join(str(p) for p in problems))
+    for path in procedures:
+        click.echo(f"{path}: ok")
+
+
+@cli.command()
+@click.argument("procedure", type=click.Path(dir_okay=False))
+@click.option("--board", "serial", default="PLAN-ONLY", show_default=True, help="Board serial for the paths.")
+@click.option("--board-type", default=None, help="Board type (default: the procedure's).")
+@handles_errors
+def plan(procedure: str, serial: str, board_type: str | None) -> None:
+    """Show the expanded step list with paths, counts and an estimated duration."""
+    from sequencer.compose import plan_for
+    from sequencer.procedure import format_plan, load_procedure
+
+    click.echo(format_plan(plan_for(load_procedure(procedure), serial, board_type=board_type)))
+
+
+@cli.command()
+@handles_errors
+def schema() -> None:
+    """Print the JSON Schema (draft 2020-12) of the procedure format, for editors."""
+    from sequencer.procedure import schema_text
+
+    click.echo(schema_text())
+
+
+# -- running ------------------------------------------------------------------------------------
+
+
+def _acknowledge_on_terminal() -> Callable[[Any], bool] | None:
+    """A terminal prompt for the safety caution, or None when there is no terminal."""
+    if not (sys.stdin.isatty() and sys.stderr.isatty()):
+        return None
+
+    def ask(caution: Any) -> bool:
+        click.echo(caution.text(), err=True)
+        return click.confirm("Acknowledge and make the voltage live?", default=False, err=True)
+
+    return ask
+
+
+def _prompt_on_terminal() -> Callable[[str, bool], str] | None:
+    if not sys.stdin.isatty():
+        return None
+
+    def ask(message: str, wants_value: bool) -> str:
+        if wants_value:
+            return str(click.prompt(message, err=True))
+        click.pause(f"{message} — press any key to continue", err=True)
+        return ""
+
+    return ask
+
+
+def _summarise(run_id: int, outcome: Any) -> int:
+    verdict = "PASS" if outcome.failed == 0 else f"FAIL ({outcome.failed} value(s) outside limits)"
+    click.echo(f"run {run_id} completed: {outcome.measurements} measurement(s), {verdict}")
+    return EXIT_OK if outcome.failed == 0 else EXIT_FAIL
+
+
+@cli.command(epilog=SAFETY_HELP)
+@click.argument("procedure", type=click.Path(dir_okay=False), required=False)
+@click.option("--bench", "bench_path", type=click.Path(dir_okay=False), help="Bench file (roles → instruments).")
+@click.option("--sim", "sim_board", type=click.Path(dir_okay=False), help="Start a simulated bench for this board file.")
+@click.option("--board", "serial", default=None, help="Serial of the board under test (default with --sim: the board file's).")
+@db_option
+@click.option("--operator", default=lambda: os.environ.get("USER", ""), help="Operator name recorded with the run.")
+@click.option("--yes", is_flag=True, help="Unattended: acknowledge the safety caution (recorded as such).")
+@click.option("--repeat", "repeat", type=int, default=None, metavar="RUN_ID", help="Rerun the procedure text stored for that run.")
+@click.option("--log", "log_path", type=click.Path(dir_okay=False), default=None, help="Append a plain-text event log here.")
+@handles_errors
+def run(procedure: str | None, bench_path: str | None, sim_board: str | None, serial: str | None,
+        db: str | None, operator: str, yes: bool, repeat: int | None, log_path: str | None) -> None:
+    """Run a procedure on a bench (or the simulator) for one board and record everything."""
+    from sequencer import compose
+    from sequencer.procedure import load_procedure, load_procedure_text
+
+    with compose.open_store(db, env()) as store:
+        if repeat is not None:
+            record = compose.check_store(store, repeat)
+            proc = load_procedure_text(record.procedure_text, record.procedure_path or f"run-{repeat}.yaml",
+                                       files=getattr(record, "procedure_files", None) or None)
+        elif procedure:
+            proc = load_procedure(procedure)
+        else:
+            raise click.UsageError("give PROCEDURE or --repeat RUN_ID")
+        board_type = None
+        if serial is None and sim_board:
+            serial, board_type = compose.sim_board_serial(sim_board)
+        if not serial:
+            raise click.UsageError("give --board SERIAL")
+        plan_ = compose.plan_for(proc, serial)
+        request = compose.RunRequest(
+            operator=operator, unattended=yes, acknowledge=_acknowledge_on_terminal(),
+            prompt=_prompt_on_terminal(), repeat_of=repeat, progress=True,
+            log_path=Path(log_path) if log_path else None, procedure_files=proc.source_files(),
+        )
+        del board_type
+        with compose.bench_for(bench_path, sim_board) as spec:
+            if repeat is not None:
+                _warn_identity_change(store, repeat, spec)
+            result = compose.execute(plan_, spec, store, request)
+    sys.exit(_summarise(result.run_id, result.outcome))
+
+
+def _warn_identity_change(store: Any, run_id: int, spec: Any) -> None:
+    """Warn when the bench's addresses differ from those recorded for the repeated run."""
+    record = store.get_run(run_id)
+    before = {i.role: i.address for i in getattr(record, "instruments", ())}
+    now = {role: s.address for role, s in spec.instruments.items()}
+    for role, address in before.items():
+        if now.get(role) not in (None, address):
+            click.echo(f"warning: {role} is {now[role]} now, was {address} in run {run_id}", err=True)
+
+
+@cli.command()
+@click.argument("run_id", type=int)
+@db_option
+@click.option("--bench", "bench_path", type=click.Path(dir_okay=False), help="Another bench file.")
+@click.option("--sim", "sim_board", type=click.Path(dir_okay=False), help="Continue on a simulated bench.")
+@click.option("--operator", default=lambda: os.environ.get("USER", ""))
+@click.option("--yes", is_flag=True, help="Unattended: acknowledge the safety caution.")
+@handles_errors
+def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str | None,
+           operator: str, yes: bool) -> None:
+    """Continue an interrupted or aborted run from its last completed step."""
+    from drivers.bench import bench_from_mapping
+    from sequencer import compose
+    from sequencer.procedure import board_info, build_plan, load_board_type, load_procedure_text
+
+    with compose.open_store(db, env()) as store:
+        store.mark_stale_runs_interrupted()
+        record = compose.check_store(store, run_id)
+        if record.status == "completed":
+            raise StoreError(f"run {run_id} is completed; a completed run is never resumed (use run --repeat)")
+        proc = load_procedure_text(record.procedure_text, record.procedure_path or f"run-{run_id}.yaml",
+                                   files=getattr(record, "procedure_files", None) or None)
+        plan_ = build_plan(proc, board_info(load_board_type(record.board_type or proc.board_type), record.board))
+        request = compose.RunRequest(operator=operator or record.operator, unattended=yes,
+                                     acknowledge=_acknowledge_on_terminal(), prompt=_prompt_on_terminal())
+        if bench_path or sim_board:
+            bench_cm = compose.bench_for(bench_path, sim_board)
+        else:
+            import contextlib
+
+            import yaml
+
+            text = getattr(record, "bench_text", "")
+            if not text:
+                raise StoreError(f"run {run_id} kept no bench file; give --bench or --sim")
+            bench_cm = contextlib.nullcontext(bench_from_mapping(yaml.safe_load(text), source=f"<bench of run {run_id}>"))
+        with bench_cm as spec:
+            result = compose.execute(plan_, spec, store, request, resume_run=run_id)
+    sys.exit(_summarise(result.run_id, result.outcome))
+
+
+# -- results ------------------------------------------------------------------------------------
+
+
+@cli.command()
+@db_option
+@click.option("--format", "fmt", type=click.Choice(["table", "csv", "json"]), default="table", show_default=True)
+@click.option("--board", default=None)
+@click.option("--procedure", default=None)
+@handles_errors
+def runs(db: str | None, fmt: str, board: str | None, procedure: str | None) -> None:
+    """Past runs: id, procedure, board, status, start, end."""
+    from sequencer import compose
+    from sequencer.store import RUN_COLUMNS, format_rows, run_rows
+
+    with compose.open_store(db, env()) as store:
+        store.mark_stale_runs_interrupted()
+        rows = run_rows(store, board=board, procedure=procedure)
+    click.echo(format_rows(rows, fmt, RUN_COLUMNS), nl=False)
+
+
+@cli.command()
+@db_option
+@click.option("--run", "run_id", type=int, default=None)
+@click.option("--board", default=None)
+@click.option("--procedure", default=None)
+@click.option("--format", "fmt", type=click.Choice(["csv", "json"]), default="csv", show_default=True)
+@handles_errors
+def export(db: str | None, run_id: int | None, board: str | None, procedure: str | None, fmt: str) -> None:
+    """Measurements to stdout, one row per value with limits and verdict."""
+    from sequencer import compose
+    from sequencer.store import EXPORT_COLUMNS, export_rows, format_rows
+
+    with compose.open_store(db, env()) as store:
+        rows = export_rows(store, run_id=run_id, board=board, procedure=procedure)
+    click.echo(format_rows(rows, fmt, EXPORT_COLUMNS), nl=False)
+
+
+# -- instruments and the simulator ----------------------------------------------------------------
+
+
+@cli.command()
+@click.option("--bench", "bench_path", required=True, type=click.Path(dir_okay=False))
+@handles_errors
+def instruments(bench_path: str) -> None:
+    """Identify each instrument; warn on identity mismatch or calibration past due."""
+    from drivers.bench import load_bench
+    from drivers.instruments import describe_bench, format_reports
+
+    reports = describe_bench(load_bench(bench_path))
+    click.echo(format_reports(reports))
+    if any(getattr(r, "error", "") for r in reports):
+        sys.exit(EXIT_ABORT)
+
+
+@cli.command()
+@click.option("--board", "board_path", required=True, type=click.Path(dir_okay=False))
+@click.option("--host", default="127.0.0.1", show_default=True)
+@click.option("--port-base", default=0, type=int, help="First TCP port (0 = free ports).")
+@click.option("--bench-out", type=click.Path(dir_okay=False), default=None, help="Write the bench file here.")
+@handles_errors
+def sim(board_path: str, host: str, port_base: int, bench_out: str | None) -> None:
+    """Serve the simulated instruments of a board file until interrupted."""
+    from drivers.sim import serve
+
+    def ready(bench: Any) -> None:
+        for role, port in bench.ports.items():
+            click.echo(f"{role:9s} TCPIP0::{host}::{port}::SOCKET")
+        if bench_out:
+            click.echo(f"bench file: {bench_out}")
+        click.echo("serving; Ctrl-C to stop", err=True)
+
+    serve(board_path, host=host, port_base=port_base, bench_out=Path(bench_out) if bench_out else None,
+          on_ready=ready)
+
+
+def _add_report_commands() -> None:
+    from sequencer import cli_reports
+
+    for command in cli_reports.COMMANDS:
+        cli.add_command(command)
 
 
 def main() -> None:
     """Entry point of the ``benchwright`` command."""
+    _add_report_commands()
     cli()

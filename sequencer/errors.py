@@ -13,6 +13,7 @@ from drivers.errors import (
     Location,
     Problem,
     ProtocolError,
+    SafetyLimitError,
     TransportError,
 )
 
@@ -29,6 +30,7 @@ __all__ = [
     "ProcedureError",
     "ProtocolError",
     "RunAborted",
+    "SafetyLimitError",
     "StoreError",
     "TransportError",
 ]

@@ -1,0 +1,82 @@
+"""What every command shares: exit codes, the error-to-exit-code mapping, common options."""
+
+from __future__ import annotations
+
+import functools
+import os
+import sys
+import traceback
+from collections.abc import Callable
+from typing import Any, NoReturn, TypeVar
+
+import click
+
+from sequencer.errors import (
+    BenchwrightError,
+    InstrumentError,
+    LocatedError,
+    ProtocolError,
+    RunAborted,
+    SafetyLimitError,
+    StoreError,
+    TransportError,
+)
+
+EXIT_OK, EXIT_FAIL, EXIT_INPUT, EXIT_ABORT = 0, 1, 2, 3
+
+SAFETY_HELP = (
+    "\b\nCAUTION: bias and high-voltage supplies can hurt people. More than 33 V rms / 46.7 V peak / "
+    "70 V dc counts as hazardous live (IEC 61010-1, from memory; 35 V dc in wet locations). The "
+    "software interlock check is no substitute for the hardware interlock on the supply's inhibit "
+    "input. Keep the enclosure closed while live; local codes, your lab's safety rules and qualified "
+    "personnel decide."
+)
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+
+def fail(code: int, message: str) -> NoReturn:
+    click.echo(message, err=True)
+    sys.exit(code)
+
+
+def handles_errors(func: F) -> F:
+    """Map benchwright's errors to one clear line and an exit code (a traceback only with --debug)."""
+
+    @functools.wraps(func)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        debug = bool(click.get_current_context().find_root().params.get("debug"))
+        try:
+            return func(*args, **kwargs)
+        except LocatedError as exc:
+            _debug(debug)
+            fail(EXIT_INPUT, "\n".join(str(p) for p in exc.problems))
+        except (SafetyLimitError, StoreError) as exc:
+            _debug(debug)
+            fail(EXIT_INPUT, f"error: {exc}")
+        except RunAborted as exc:
+            _debug(debug)
+            fail(EXIT_ABORT, f"aborted: {exc}")
+        except (TransportError, InstrumentError, ProtocolError) as exc:
+            _debug(debug)
+            fail(EXIT_ABORT, f"aborted: instrument fault: {exc}")
+        except BenchwrightError as exc:
+            _debug(debug)
+            fail(EXIT_INPUT, f"error: {exc}")
+
+    return wrapper  # type: ignore[return-value]
+
+
+def _debug(debug: bool) -> None:
+    if debug:
+        traceback.print_exc()
+
+
+def env() -> dict[str, str]:
+    return dict(os.environ)
+
+
+db_option = click.option(
+    "--db", default=None, metavar="URL",
+    help="SQLAlchemy URL of the results database (default: $BENCHWRIGHT_DB or sqlite:///benchwright.db).",
+)

@@ -1,0 +1,200 @@
+"""Composition root, part two: how a run is put together from its parts.
+
+``cli.py`` parses options and maps errors to exit codes; this module wires the procedure, the bench
+(real or simulated), the store, the runner and its subscribers.  Together with ``cli.py`` it is the
+only place that imports both the engine and the store.
+"""
+
+from __future__ import annotations
+
+import contextlib
+from collections.abc import Callable, Iterator, Mapping, Sequence
+from dataclasses import dataclass, field, replace
+from datetime import UTC, datetime
+from pathlib import Path
+from typing import Any
+
+from drivers.bench import BenchSpec, bench_from_mapping, load_bench, open_bench
+from sequencer.engine import (
+    Caution,
+    Runner,
+    RunOptions,
+    RunOutcome,
+    check_plan_against_bench,
+    describe_run,
+)
+from sequencer.engine.log import RunLog
+from sequencer.engine.progress import ProgressDisplay
+from sequencer.errors import ConfigError, Location, Problem, ProcedureError, StoreError
+from sequencer.events import Event, RunFinished
+from sequencer.procedure import Plan, Procedure, board_info, build_plan, load_board_type
+from sequencer.store import Store, default_url
+
+
+@dataclass(frozen=True, kw_only=True)
+class RunRequest:
+    """Everything a run needs besides the plan and the bench."""
+
+    operator: str = ""
+    unattended: bool = False
+    acknowledge: Callable[[Caution], bool] | None = None
+    prompt: Callable[[str, bool], str] | None = None
+    batch: str = ""
+    repeat_of: int | None = None
+    progress: bool = True
+    log_path: Path | None = None
+    handle_signals: bool = True
+    extra_subscribers: Sequence[Callable[[Event], None]] = field(default_factory=tuple)
+    procedure_files: Mapping[str, str] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class RunResult:
+    """A run that reached its end."""
+
+    run_id: int
+    outcome: RunOutcome
+
+
+def open_store(db: str | None, env: Mapping[str, str]) -> Store:
+    """The results store at ``db`` (an SQLAlchemy URL), else ``BENCHWRIGHT_DB``, else the default."""
+    return Store.open(db or default_url(env))
+
+
+def plan_for(procedure: Procedure, serial: str, *, board_type: str | None = None) -> Plan:
+    """The plan of ``procedure`` for the board ``serial`` of the procedure's (or the given) type."""
+    type_name = board_type or procedure.board_type
+    if not type_name:
+        raise ProcedureError(
+            [Problem(procedure.location, "the procedure names no board_type; cannot plan")]
+        )
+    return build_plan(procedure, board_info(load_board_type(type_name), serial))
+
+
+@contextlib.contextmanager
+def bench_for(bench_path: str | None, sim_board: str | None) -> Iterator[BenchSpec]:
+    """The bench spec from a bench file, or a simulated bench started in-process for the run."""
+    if bench_path and sim_board:
+        raise ConfigError([Problem(Location("<options>", 1, 1), "give --bench or --sim, not both")])
+    if bench_path:
+        yield load_bench(bench_path)
+        return
+    if not sim_board:
+        raise ConfigError([Problem(Location("<options>", 1, 1), "give --bench FILE or --sim BOARD.yaml")])
+    from drivers.sim import start_sim_bench
+
+    with start_sim_bench(sim_board) as sim:
+        yield bench_from_mapping(sim.bench_mapping(), source=f"<simulated bench for {sim_board}>")
+
+
+def sim_board_serial(sim_board: str) -> tuple[str, str]:
+    """(serial, board_type) written in a simulated board file."""
+    from drivers.sim import load_board
+
+    board = load_board(sim_board)
+    return board.serial, getattr(board, "board_type", "")
+
+
+def preflight(plan: Plan, spec: BenchSpec) -> None:
+    """Refuse (bad input, exit 2) a plan that asks more of the bench than its file allows."""
+    problems = check_plan_against_bench(plan, spec)
+    if problems:
+        at = Location(plan.source_path or "<procedure>", 1, 1)
+        raise ProcedureError([Problem(at, p) for p in problems])
+
+
+def execute(
+    plan: Plan,
+    spec: BenchSpec,
+    store: Store,
+    request: RunRequest,
+    *,
+    resume_run: int | None = None,
+) -> RunResult:
+    """Run ``plan`` on the bench ``spec``, recording into ``store``.
+
+    A new run is created, or ``resume_run`` is reopened and its completed steps are replayed.
+    Raises ``RunAborted`` (after the engine's cleanup and safe state) when the run is stopped.
+    """
+    preflight(plan, spec)
+    with open_bench(spec, roles=_roles_needed(plan, spec)) as bench:
+        completed = None
+        info = None
+        if resume_run is None:
+            info = describe_run(
+                plan, bench, operator=request.operator, batch=request.batch, repeat_of=request.repeat_of
+            )
+            if request.procedure_files:
+                info = replace(info, procedure_files=dict(request.procedure_files))
+            run_id = store.create_run(info, started_at=datetime.now(UTC))
+        else:
+            run_id = resume_run
+            completed = store.completed_steps(run_id)
+            store.reopen_run(run_id)
+        subscribers: list[Callable[[Event], None]] = [store.subscriber]
+        closers: list[Callable[[], None]] = []
+        if request.progress:
+            display = ProgressDisplay(plan)
+            subscribers.append(display)
+            closers.append(display.close)
+        if request.log_path is not None:
+            log = RunLog(request.log_path)
+            subscribers.append(log)
+            closers.append(log.close)
+        subscribers.extend(request.extra_subscribers)
+        options = RunOptions(
+            acknowledge=request.acknowledge,
+            unattended=request.unattended,
+            operator=request.operator,
+            handle_signals=request.handle_signals,
+            prompt=request.prompt,
+        )
+        try:
+            runner = Runner(
+                plan, bench, run_id=run_id, subscribers=subscribers, options=options,
+                completed=completed, info=info,
+            )
+            outcome = runner.run()
+        finally:
+            for close in closers:
+                close()
+    return RunResult(run_id=run_id, outcome=outcome)
+
+
+def _roles_needed(plan: Plan, spec: BenchSpec) -> list[str]:
+    """Roles the plan uses (declared or used by its steps) that the bench has."""
+    from sequencer.procedure.kinds import KINDS
+
+    used = set(plan.meta.roles)
+    for step in plan.steps:
+        role = KINDS[step.kind].role if step.kind in KINDS else None
+        if role:
+            used.add(role)
+    missing = sorted(r for r in used if r not in spec.instruments)
+    if missing:
+        raise ConfigError(
+            [
+                Problem(
+                    Location(spec.source or "<bench>", 1, 1),
+                    f"the procedure needs role(s) {', '.join(missing)} that the bench file does not define",
+                )
+            ]
+        )
+    return sorted(used)
+
+
+def finish_if_running(store: Store, run_id: int, reason: str) -> None:
+    """Mark a run aborted when the engine could not even start it (e.g. the bench did not answer)."""
+    record = store.get_run(run_id)
+    if record.status == "running":
+        store.handle(RunFinished(run_id=run_id, status="aborted", at=datetime.now(UTC), reason=reason))
+
+
+def check_store(store: Store, run_id: int) -> Any:
+    """The run's record, or StoreError naming the missing run."""
+    try:
+        return store.get_run(run_id)
+    except StoreError:
+        raise
+    except LookupError as exc:
+        raise StoreError(f"no run {run_id} in the database") from exc

@@ -1,0 +1,23 @@
+"""The engine: runs a plan through the drivers, keeps the bias safe, emits the run's events.
+
+Imports the procedure model, the analysis functions and the drivers; never the store or the CLI.
+"""
+
+from __future__ import annotations
+
+from .preflight import build_caution, check_plan_against_bench
+from .provenance import describe_run
+from .records import Caution, CompletedStepLike, RunOptions, RunOutcome, StepResult
+from .runner import Runner
+
+__all__ = [
+    "Caution",
+    "CompletedStepLike",
+    "RunOptions",
+    "RunOutcome",
+    "Runner",
+    "StepResult",
+    "build_caution",
+    "check_plan_against_bench",
+    "describe_run",
+]

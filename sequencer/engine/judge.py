@@ -1,0 +1,74 @@
+"""Turn a computed figure into a judged ``Measurement`` (limit from the plan, verdict)."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from sequencer.events import Measurement
+from sequencer.procedure.plan_model import PlannedStep
+
+from .context import RunContext
+
+UNITS = {
+    "gain": "V/V",
+    "offset_mV": "mV",
+    "inl_pct": "%",
+    "noise_in_mV": "mV",
+    "crosstalk_pct": "%",
+    "threshold_mV": "mV",
+    "threshold_sigma_mV": "mV",
+    "discriminator_offset_mV": "mV",
+    "peaking_time_ns": "ns",
+    "rise_time_ns": "ns",
+    "leakage_nA": "nA",
+}
+"""Units of the quantities of DESIGN.md."""
+
+DEFAULT_OUTPUT = {
+    "analyse.s_curve": "x1",
+    "analyse.discriminator": "x1",
+    "analyse.peaking": "shaped",
+}
+"""Output a kind's measurements belong to when the step's labels do not name one."""
+
+
+def channel_of(step: PlannedStep) -> int | None:
+    value = step.labels.get("channel")
+    return None if value is None else int(value)
+
+
+def output_of(step: PlannedStep) -> str | None:
+    value = step.labels.get("output", DEFAULT_OUTPUT.get(step.kind))
+    return None if value is None else str(value)
+
+
+def measure(
+    ctx: RunContext,
+    step: PlannedStep,
+    quantity: str,
+    value: float,
+    *,
+    uncertainty: float | None = None,
+    channel: Any = "from-labels",
+    output: Any = "from-labels",
+    aggressor: int | None = None,
+) -> Measurement:
+    """A ``Measurement`` of ``quantity`` judged against ``plan.limit_for(quantity, output)``."""
+    ch = channel_of(step) if channel == "from-labels" else channel
+    out = output_of(step) if output == "from-labels" else output
+    limit = ctx.plan.limit_for(quantity, out)
+    value = float(value)
+    unc = None if uncertainty is None or not math.isfinite(uncertainty) else float(uncertainty)
+    return Measurement(
+        quantity=quantity,
+        value=value,
+        unit=UNITS.get(quantity, limit.unit if limit else ""),
+        uncertainty=unc,
+        channel=ch,
+        output=out,
+        aggressor=aggressor,
+        low=None if limit is None else limit.low,
+        high=None if limit is None else limit.high,
+        verdict="info" if limit is None else limit.judge(value),
+    )

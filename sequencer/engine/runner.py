@@ -1,0 +1,309 @@
+"""The runner: executes a plan through the drivers and emits the run's events.
+
+Order: preflight (roles, bias limits, acknowledgement possible) → setup and main steps → on abort
+the bias safe state first → the cleanup block (always) → the bias safe state (verified by
+read-back) → ``RunFinished``.  An abort raises ``RunAborted`` after all of that, with one line that
+names the instrument, the command and the step path.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping, Sequence
+from datetime import UTC, datetime
+from typing import Any
+
+from drivers.errors import BenchwrightError
+from sequencer.errors import RunAborted
+from sequencer.events import (
+    Event,
+    MeasurementMade,
+    RunFinished,
+    RunInfo,
+    RunStarted,
+    StepFinished,
+    StepStarted,
+    TraceCaptured,
+)
+from sequencer.procedure.kinds import KINDS
+from sequencer.procedure.plan_model import Plan, PlannedStep
+
+from .context import Reading, RunContext, StopFlag
+from .faults import FAULTS, describe_fault
+from .preflight import check_plan_against_bench, hazard_steps
+from .provenance import describe_run
+from .records import CompletedStepLike, RunOptions, RunOutcome, StepResult
+from .replay import reexecuted_on_resume, result_from_store, yields_data
+from .safety import BiasGuard
+from .signals import stop_on_signals
+from .steps import handler_table
+from .steps.analysis import failed_analysis
+
+
+def utc_now() -> datetime:
+    """The default clock: aware UTC time."""
+    return datetime.now(UTC)
+
+
+class Runner:
+    """Runs one plan on one bench (``run()`` once)."""
+
+    def __init__(
+        self,
+        plan: Plan,
+        bench: Any,
+        *,
+        run_id: int,
+        subscribers: Sequence[Callable[[Event], None]],
+        options: RunOptions,
+        completed: Mapping[str, CompletedStepLike] | None = None,
+        clock: Callable[[], datetime] = utc_now,
+        info: RunInfo | None = None,
+    ) -> None:
+        self.plan = plan
+        self.bench = bench
+        self.run_id = run_id
+        self.subscribers = tuple(subscribers)
+        self.options = options
+        self.completed = dict(completed or {})
+        self.clock = clock
+        self.info = info
+        self.handlers = handler_table()
+        self.stop = StopFlag()
+
+    # -- events -------------------------------------------------------------------------------
+    def emit(self, event: Event) -> None:
+        for subscriber in self.subscribers:
+            subscriber(event)
+
+    # -- the run ------------------------------------------------------------------------------
+    def run(self) -> RunOutcome:
+        """Execute the plan; ``RunOutcome`` at the normal end, else ``RunAborted`` (after cleanup
+        and the bias safe state)."""
+        with stop_on_signals(self.stop, enabled=self.options.handle_signals):
+            return self._run()
+
+    def _run(self) -> RunOutcome:
+        ctx = RunContext(
+            plan=self.plan,
+            bench=self.bench,
+            run_id=self.run_id,
+            emit=self.emit,
+            options=self.options,
+            clock=self.clock,
+            stop=self.stop,
+        )
+        ctx.guard = guard = BiasGuard(ctx)
+        info = self.info or describe_run(self.plan, self.bench, operator=self.options.operator)
+        self.emit(RunStarted(run_id=self.run_id, info=info, at=self.clock()))
+        failure: RunAborted | None = None
+        try:
+            self._preflight()
+            body = [s for s in self.plan.steps if s.block != "cleanup"]
+            for index, step in enumerate(body):
+                self._step(ctx, step, index)
+            ctx.step = None
+        except BaseException as exc:
+            failure = self._as_abort(exc, ctx.path)
+            if not isinstance(exc, BenchwrightError | KeyboardInterrupt):
+                failure.__cause__ = exc
+        unsafe = guard.make_safe(ctx.path) if failure is not None else ""
+        cleanup_error = self._cleanup(ctx, aborted=failure is not None)
+        if failure is not None or guard.touched:
+            unsafe = unsafe or guard.make_safe("")
+        if failure is None and (cleanup_error or unsafe):
+            failure = cleanup_error or RunAborted("bias safe state not confirmed", cause="unsafe")
+        if failure is not None:
+            reason = str(failure) + (f"; {unsafe}" if unsafe else "")
+            self.emit(
+                RunFinished(run_id=self.run_id, status="aborted", at=self.clock(), reason=reason)
+            )
+            final = RunAborted(reason, cause=failure.cause)
+            final.step_path = failure.step_path
+            raise final from (failure.__cause__ or failure)
+        self.emit(RunFinished(run_id=self.run_id, status="completed", at=self.clock()))
+        ms = ctx.measurements
+        return RunOutcome(
+            status="completed", failed=sum(m.verdict == "fail" for m in ms), measurements=len(ms)
+        )
+
+    def _preflight(self) -> None:
+        problems = check_plan_against_bench(self.plan, self.bench.spec)
+        for step in self.plan.steps:
+            role = KINDS[step.kind].role if step.kind in KINDS else None
+            if (
+                role is not None
+                and role in self.bench.spec.instruments
+                and getattr(self.bench, role, None) is None
+            ):
+                problems.append(f"role {role!r} is not open on the bench (step {step.path})")
+                break
+        for path, done in self.completed.items():
+            step = next((s for s in self.plan.steps if s.path == path), None)
+            if step is not None and step.kind != done.kind:
+                problems.append(
+                    f"resume: step {path} was {done.kind!r}, the plan has {step.kind!r}"
+                )
+        if problems:
+            raise RunAborted("precondition failed: " + "; ".join(problems), cause="precondition")
+        if (
+            hazard_steps(self.plan)
+            and not self.options.unattended
+            and self.options.acknowledge is None
+        ):
+            raise RunAborted(
+                "the procedure makes a voltage live but there is no terminal to "
+                "acknowledge the caution and --yes was not given; no voltage applied",
+                cause="operator",
+            )
+
+    def _step(self, ctx: RunContext, step: PlannedStep, index: int) -> None:
+        ctx.step = step
+        ctx.checkpoint()
+        ctx.guard.at_step()
+        started = self.clock()
+        self.emit(
+            StepStarted(
+                run_id=self.run_id,
+                path=step.path,
+                kind=step.kind,
+                index=index,
+                total=len(self.plan.steps),
+                at=started,
+            )
+        )
+        done = self.completed.get(step.path)
+        if done is not None and not reexecuted_on_resume(step):
+            if yields_data(step.kind):
+                self._absorb(ctx, step, result_from_store(step, done), publish=False)
+            status = "replayed"
+            result = None
+        else:
+            result = self._execute(ctx, step)
+            self._absorb(ctx, step, result, publish=done is None)
+            status = "completed" if done is None else "replayed"
+        self.emit(
+            StepFinished(
+                run_id=self.run_id,
+                path=step.path,
+                kind=step.kind,
+                status=status,
+                started_at=started,
+                finished_at=self.clock(),
+                settings=dict(step.args),
+                results={} if result is None else dict(result.results),
+                error=str(result.results.get("error", "")) if result is not None else "",
+            )
+        )
+
+    def _execute(self, ctx: RunContext, step: PlannedStep) -> StepResult:
+        handler = self.handlers[step.kind]
+        if step.kind.startswith("analyse."):
+            try:
+                return handler(ctx, step)
+            except ValueError as exc:
+                return failed_analysis(ctx, step, exc)
+        return handler(ctx, step)
+
+    def _absorb(
+        self, ctx: RunContext, step: PlannedStep, result: StepResult, *, publish: bool
+    ) -> None:
+        """Feed a step's output to the context (and, when ``publish``, to the subscribers)."""
+        for item in result.traces:
+            ctx.add_trace(item)
+            if publish:
+                t = item.trace
+                self.emit(
+                    TraceCaptured(
+                        run_id=self.run_id,
+                        path=step.path,
+                        name=item.name,
+                        samples=t.volts,
+                        dt_s=t.dt_s,
+                        t0_s=t.t0_s,
+                        source=t.source,
+                        averages=t.averages,
+                        labels=dict(item.labels),
+                    )
+                )
+        for name, value in dict(result.results.get("readings", {})).items():
+            ctx.add_reading(Reading(name=name, value=value, labels=dict(step.labels)))
+        for m in result.measurements:
+            ctx.add_measurement(m)
+            if publish:
+                self.emit(MeasurementMade(run_id=self.run_id, path=step.path, measurement=m))
+
+    def _cleanup(self, ctx: RunContext, *, aborted: bool) -> RunAborted | None:
+        """Run the cleanup block; the first error is returned, every error recorded."""
+        first: RunAborted | None = None
+        ctx.in_cleanup = True
+        steps = [s for s in self.plan.steps if s.block == "cleanup"]
+        offset = len(self.plan.steps) - len(steps)
+        for index, step in enumerate(steps, start=offset):
+            if aborted and _raises_voltage(step):
+                self._skip(step, index, "skipped after an abort: it would raise the bias")
+                continue
+            try:
+                self._step(ctx, step, index)
+            except BaseException as exc:
+                abort = self._as_abort(exc, step.path)
+                first = first or abort
+                now = self.clock()
+                self.emit(
+                    StepFinished(
+                        run_id=self.run_id,
+                        path=step.path,
+                        kind=step.kind,
+                        status="failed",
+                        started_at=now,
+                        finished_at=now,
+                        settings=dict(step.args),
+                        error=str(abort),
+                    )
+                )
+        ctx.step = None
+        return first
+
+    def _skip(self, step: PlannedStep, index: int, why: str) -> None:
+        now = self.clock()
+        self.emit(
+            StepStarted(
+                run_id=self.run_id,
+                path=step.path,
+                kind=step.kind,
+                index=index,
+                total=len(self.plan.steps),
+                at=now,
+            )
+        )
+        self.emit(
+            StepFinished(
+                run_id=self.run_id,
+                path=step.path,
+                kind=step.kind,
+                status="skipped",
+                started_at=now,
+                finished_at=now,
+                settings=dict(step.args),
+                error=why,
+            )
+        )
+
+    def _as_abort(self, exc: BaseException, path: str) -> RunAborted:
+        if isinstance(exc, RunAborted):
+            return (
+                exc
+                if exc.step_path or not path
+                else RunAborted(exc.reason, cause=exc.cause, step_path=path)
+            )
+        if isinstance(exc, KeyboardInterrupt):
+            return RunAborted("stopped by SIGINT", cause="signal", step_path=path)
+        cause = "instrument" if isinstance(exc, FAULTS) else "error"
+        return RunAborted(
+            describe_fault(exc, self.bench.spec.instruments), cause=cause, step_path=path
+        )
+
+
+def _raises_voltage(step: PlannedStep) -> bool:
+    if step.kind == "bias.ramp":
+        return float(step.args["volts"]) != 0.0
+    return step.kind == "bias.output" and bool(step.args["on"])

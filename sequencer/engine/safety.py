@@ -1,0 +1,314 @@
+"""The bias guard: acknowledgement, interlock watch, ramps with read-back, and the safe state.
+
+Voltages are never stepped: every change is a ramp that polls the measured voltage until it is
+within tolerance, checking interlock, trip and current on every poll.  On any abort the guard ramps
+the bias down at the permitted rate (or switches the output off at once after a trip), verifies 0 V
+and output off by reading back, and records every event as a ``SafetyEvent``.
+"""
+
+from __future__ import annotations
+
+import threading
+import time
+from typing import Any
+
+from drivers.errors import BenchwrightError, ProtocolError, TransportError
+from sequencer.errors import RunAborted
+from sequencer.events import SafetyEvent
+
+from .context import RunContext
+from .faults import describe_fault
+from .preflight import build_caution
+
+
+class BiasGuard:
+    """Everything the run does to the bias supply goes through here."""
+
+    def __init__(self, ctx: RunContext) -> None:
+        self.ctx = ctx
+        self.bias = ctx.bench.bias
+        spec = ctx.bench.spec.instruments.get("bias")
+        self.address = getattr(spec, "address", "")
+        self.max_rate = getattr(spec, "max_ramp_V_per_s", None)
+        self.current_limit_uA: float | None = getattr(spec, "max_current_uA", None)
+        self.acknowledged = False
+        self.live = False  # output may be on above 0 V
+        self.touched = False  # any bias step ran in this run
+        self.rate: float | None = self.max_rate
+        self._watcher: _Watcher | None = None
+
+    # -- events -------------------------------------------------------------------------------
+    def record(self, kind: str, path: str = "", **detail: Any) -> None:
+        """Emit one SafetyEvent."""
+        self.ctx.emit(
+            SafetyEvent(
+                run_id=self.ctx.run_id,
+                path=path or self.ctx.path,
+                kind=kind,
+                at=self.ctx.clock(),
+                detail=detail,
+            )
+        )
+
+    def _abort(self, cause: str, reason: str) -> RunAborted:
+        return RunAborted(reason, cause=cause, step_path=self.ctx.path)
+
+    # -- before the first hazard --------------------------------------------------------------
+    def arm(self) -> None:
+        """Interlock closed, caution acknowledged (or recorded unattended), watcher started."""
+        if self.acknowledged:
+            return
+        if self.bias is None:
+            raise self._abort(
+                "precondition", "a step makes a voltage live but the bench has no bias role"
+            )
+        closed = self.bias.interlock_closed()
+        self.record("interlock", closed=closed)
+        if not closed:
+            raise self._abort(
+                "interlock", f"bias at {self.address}: interlock open, refusing to apply voltage"
+            )
+        caution = build_caution(self.ctx.plan, self.ctx.bench.spec)
+        opts = self.ctx.options
+        if opts.unattended:
+            self.record(
+                "acknowledgement",
+                operator=opts.operator,
+                mode="unattended",
+                max_volts=caution.max_volts,
+                at=self.ctx.clock().isoformat(),
+            )
+        elif opts.acknowledge is None:
+            raise self._abort(
+                "operator",
+                "voltage would go live but there is no terminal to "
+                "acknowledge the caution and --yes was not given; no voltage applied",
+            )
+        elif opts.acknowledge(caution):
+            self.record(
+                "acknowledgement",
+                operator=opts.operator,
+                mode="interactive",
+                max_volts=caution.max_volts,
+                at=self.ctx.clock().isoformat(),
+            )
+        else:
+            self.record(
+                "acknowledgement",
+                operator=opts.operator,
+                mode="declined",
+                max_volts=caution.max_volts,
+                at=self.ctx.clock().isoformat(),
+            )
+            raise self._abort("operator", "the operator declined the caution; no voltage applied")
+        self.acknowledged = True
+        self._watcher = _Watcher(self, opts.interlock_interval_s)
+        self._watcher.start()
+
+    def at_step(self) -> None:
+        """Called before every step: while live, the interlock is read."""
+        if self.live and self.bias is not None and not self.bias.interlock_closed():
+            self.record("interlock", closed=False)
+            raise self._abort("interlock", f"bias at {self.address}: interlock opened while live")
+
+    # -- ramps --------------------------------------------------------------------------------
+    def switch_on(self) -> None:
+        """Output on at 0 V (the setpoint is brought to 0 first, so nothing steps)."""
+        tol = self.ctx.options.ramp_tolerance_V
+        if self.bias.output_on():
+            return
+        if abs(self.bias.setpoint()) > tol:
+            self.bias.start_ramp(0.0, self._rate(None))
+            self.record("setpoint", volts=0.0, output=False)
+        self.bias.set_output(True)
+        self.live = True
+        self.record("output", on=True)
+
+    def switch_off(self) -> None:
+        """Ramp to 0 V, then output off; verified by read-back."""
+        if abs(self.bias.voltage()) > self.ctx.options.ramp_tolerance_V:
+            self.ramp(0.0, None)
+        self.bias.set_output(False)
+        self.record("output", on=False)
+        self.live = False
+
+    def ramp(self, volts: float, rate: float | None, *, going_down: bool = False) -> float:
+        """Ramp to ``volts`` at ``rate`` (default the bench's limit) and wait; the measured V."""
+        opts = self.ctx.options
+        rate_v = self._rate(rate)
+        start = self.bias.voltage()
+        self.record("ramp_start", from_V=start, to_V=volts, rate_V_per_s=rate_v)
+        self.bias.start_ramp(volts, rate_v)
+        self.record("setpoint", volts=volts)
+        if volts != 0.0:
+            self.live = True
+        deadline = time.monotonic() + abs(volts - start) / rate_v * 1.5 + opts.ramp_margin_s
+        while True:
+            measured = self.poll(going_down=going_down)
+            if abs(measured - volts) <= opts.ramp_tolerance_V:
+                break
+            if time.monotonic() > deadline:
+                raise self._abort(
+                    "instrument",
+                    f"bias at {self.address}: measured {measured:.3f} V "
+                    f"did not reach {volts:g} V within the expected ramp time",
+                )
+            if going_down:
+                time.sleep(opts.ramp_poll_s)
+            else:
+                self.ctx.checkpoint()
+                self.ctx.stop.wait(opts.ramp_poll_s)
+        self.record("ramp_end", volts=measured)
+        return measured
+
+    def poll(self, *, going_down: bool = False) -> float:
+        """Read voltage, current, interlock and trip; abort on a bad one unless going down."""
+        v = self.bias.voltage()
+        i = self.bias.current_A()
+        closed = self.bias.interlock_closed()
+        trip = self.bias.tripped()
+        self.record("reading", volts=v, current_A=i, interlock_closed=closed, tripped=trip)
+        if going_down:
+            return v
+        if not closed:
+            raise self._abort(
+                "interlock", f"bias at {self.address}: interlock opened during a ramp"
+            )
+        if trip:
+            raise self._abort(
+                "trip",
+                f"bias at {self.address}: the supply tripped (over-current "
+                f"protection) at {v:.3f} V",
+            )
+        limit = self.current_limit_uA
+        if limit is not None and abs(i) * 1e6 > limit:
+            raise self._abort(
+                "overcurrent",
+                f"bias at {self.address}: over-current "
+                f"{abs(i) * 1e6:.3f} uA above the limit {limit:g} uA at {v:.3f} V",
+            )
+        return v
+
+    def _rate(self, rate: float | None) -> float:
+        chosen = rate if rate is not None else (self.rate or self.max_rate)
+        if chosen is None or chosen <= 0:
+            raise self._abort(
+                "precondition",
+                f"bias at {self.address}: no permitted ramp rate (bench max_ramp_V_per_s)",
+            )
+        if self.max_rate is not None and chosen > self.max_rate:
+            raise self._abort(
+                "precondition",
+                f"bias at {self.address}: ramp rate {chosen:g} V/s "
+                f"above the bench limit {self.max_rate:g} V/s",
+            )
+        return chosen
+
+    # -- the end ------------------------------------------------------------------------------
+    def stop_watch(self) -> None:
+        if self._watcher is not None:
+            self._watcher.stop()
+            self._watcher = None
+
+    def make_safe(self, path: str) -> str:
+        """Bias to 0 V and output off, verified; returns '' or an 'UNSAFE: ...' note."""
+        self.stop_watch()
+        if self.bias is None:
+            return ""
+        try:
+            self._bring_down(path)
+            return self._verify(path)
+        except (TransportError, ProtocolError) as exc:
+            self.record(
+                "link_lost", path, error=describe_fault(exc, self.ctx.bench.spec.instruments)
+            )
+            return self._off_through_reconnect(path)
+        except BenchwrightError as exc:
+            self.record("unsafe", path, error=str(exc))
+            return f"UNSAFE: bias at {self.address}: output state not confirmed off ({exc})"
+
+    def _bring_down(self, path: str) -> None:
+        if self.bias.output_on():
+            if self.bias.tripped():
+                self.bias.set_output(False)
+                self.record("output", path, on=False, why="trip")
+            else:
+                if abs(self.bias.voltage()) > self.ctx.options.ramp_tolerance_V:
+                    try:
+                        self.ramp(0.0, None, going_down=True)
+                    except RunAborted as exc:  # stuck ramp: off at once
+                        self.record("ramp_stuck", path, error=str(exc))
+                self.bias.set_output(False)
+                self.record("output", path, on=False)
+        if abs(self.bias.setpoint()) > self.ctx.options.ramp_tolerance_V:
+            self.bias.start_ramp(0.0, self._rate(None))  # output is off: nothing moves
+            self.record("setpoint", path, volts=0.0, output=False)
+
+    def _verify(self, path: str) -> str:
+        on = self.bias.output_on()
+        v = self.bias.voltage()
+        self.live = on
+        if on or abs(v) > self.ctx.options.ramp_tolerance_V:
+            self.record("unsafe", path, output=on, volts=v)
+            return (
+                f"UNSAFE: bias at {self.address} reads output {'on' if on else 'off'} at "
+                f"{v:.3f} V after the safe-state sequence"
+            )
+        self.record("safe_state", path, output=False, volts=v)
+        return ""
+
+    def _off_through_reconnect(self, path: str) -> str:
+        try:
+            reconnect(self.bias)
+            self.bias.set_output(False)
+            self.record("output", path, on=False, why="after reconnect")
+            return self._verify(path)
+        except BenchwrightError as exc:
+            self.record("unsafe", path, error=str(exc))
+            return (
+                f"UNSAFE: bias at {self.address}: lost the link and could not confirm the "
+                f"output off ({exc})"
+            )
+
+
+def reconnect(role: Any) -> None:
+    """Reconnect the transport under a role driver (bounded; raises TransportError on failure)."""
+    session = getattr(role, "session", None)
+    transport = getattr(session, "transport", None)
+    if transport is None or not hasattr(transport, "reconnect"):
+        raise TransportError("no way to reconnect", address=getattr(transport, "address", ""))
+    transport.reconnect()
+
+
+class _Watcher:
+    """Background reader of the interlock and trip while a voltage may be live."""
+
+    def __init__(self, guard: BiasGuard, interval_s: float) -> None:
+        self._guard = guard
+        self._interval = interval_s
+        self._done = threading.Event()
+        self._thread = threading.Thread(target=self._loop, name="interlock-watch", daemon=True)
+
+    def start(self) -> None:
+        self._thread.start()
+
+    def stop(self) -> None:
+        self._done.set()
+        self._thread.join(timeout=5.0)
+
+    def _loop(self) -> None:
+        g = self._guard
+        stop = g.ctx.stop
+        while not self._done.wait(self._interval):
+            if not g.live:
+                continue
+            try:
+                if not g.bias.interlock_closed():
+                    stop.request("interlock", f"bias at {g.address}: interlock opened while live")
+                    return
+                if g.bias.tripped():
+                    stop.request("trip", f"bias at {g.address}: the supply tripped while live")
+                    return
+            except BenchwrightError as exc:
+                stop.request("instrument", describe_fault(exc, g.ctx.bench.spec.instruments))
+                return

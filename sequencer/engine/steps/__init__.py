@@ -1,0 +1,24 @@
+"""Step handlers: one module per family, one table from kind name to handler.
+
+A handler is ``(ctx: RunContext, step: PlannedStep) -> StepResult``.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+
+from sequencer.procedure.plan_model import PlannedStep
+
+from ..context import RunContext
+from ..records import StepResult
+from . import analysis, bias, counter, flow, pulser, scope, switch, threshold
+
+Handler = Callable[[RunContext, PlannedStep], StepResult]
+
+
+def handler_table() -> Mapping[str, Handler]:
+    """Every kind name of ``sequencer.procedure.kinds.KINDS`` mapped to its handler."""
+    table: dict[str, Handler] = {}
+    for family in (pulser, scope, threshold, counter, bias, switch, flow, analysis):
+        table.update(family.HANDLERS)
+    return table

@@ -1,0 +1,245 @@
+"""Handlers of the ``analyse.*`` kinds: select the scope's traces and readings, call
+``sequencer.analysis``, judge the figures.
+
+Inputs are the items called by the step's name argument whose labels contain all the step's own
+labels (its loop scope), in capture order; sweep values come from each item's labels (``x``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import replace
+from typing import Any
+
+import numpy as np
+
+from sequencer import analysis as an
+from sequencer.procedure.kinds import KINDS
+from sequencer.procedure.plan_model import PlannedStep
+
+from ..context import Reading, RunContext
+from ..judge import channel_of, measure, output_of
+from ..records import NamedTrace, StepResult
+
+
+class AnalysisInputError(ValueError):
+    """The scope holds no usable inputs for an analysis step."""
+
+
+def _traces(ctx: RunContext, step: PlannedStep, name: str) -> list[NamedTrace]:
+    items = ctx.select_traces(name, step.labels)
+    if not items:
+        raise AnalysisInputError(
+            f"no traces called {name!r} captured in the scope {dict(step.labels)}"
+        )
+    return items
+
+
+def _readings(ctx: RunContext, step: PlannedStep, name: str) -> list[Reading]:
+    items = ctx.select_readings(name, step.labels)
+    if not items:
+        raise AnalysisInputError(f"no readings called {name!r} in the scope {dict(step.labels)}")
+    return items
+
+
+def _stack_mV(items: Sequence[NamedTrace]) -> tuple[np.ndarray, float]:
+    """One row per trace in mV, and the common sample interval in ns."""
+    dt = items[0].trace.dt_ns
+    if any(abs(t.trace.dt_ns - dt) > 1e-9 * dt for t in items):
+        raise AnalysisInputError("traces of one analysis have different sample intervals")
+    return np.vstack([t.trace.mV for t in items]), dt
+
+
+def _sweep(items: Sequence[Any], var: str) -> np.ndarray:
+    try:
+        return np.array([float(i.labels[var]) for i in items])
+    except KeyError:
+        raise AnalysisInputError(
+            f"sweep variable {var!r} is not among the labels of the inputs"
+        ) from None
+
+
+def _mean_err(values: Any) -> tuple[float, float | None]:
+    arr = np.atleast_1d(np.asarray(values, dtype=float))
+    if arr.size < 2:
+        return float(arr[0]), None
+    return float(arr.mean()), float(arr.std(ddof=1) / np.sqrt(arr.size))
+
+
+def _gain(ctx: RunContext, step: PlannedStep, output: str | None) -> float:
+    given = step.args.get("gain")
+    if given is not None:
+        return float(given)
+    found = ctx.measured("gain", channel=channel_of(step), output=output)
+    if found is None:
+        raise AnalysisInputError(
+            f"no gain measured earlier for channel {channel_of(step)} output {output}: give gain:"
+        )
+    return found
+
+
+def analyse_transfer(ctx: RunContext, step: PlannedStep) -> StepResult:
+    a = step.args
+    items = _traces(ctx, step, a["traces"])
+    rows, dt = _stack_mV(items)
+    heights = an.pulse_height(rows, dt, int(a.get("n_baseline", 200)), a.get("method", "peak"))
+    fit = an.transfer_curve(
+        _sweep(items, a["x"]), heights, deviation_pct=float(a.get("deviation", 1.0))
+    )
+    return StepResult(
+        results={
+            "points": len(items),
+            "dynamic_range_mV": fit.dynamic_range_mV,
+            "chi2_ndf": fit.fit.chi2_ndf,
+        },
+        measurements=[
+            measure(ctx, step, "gain", fit.gain, uncertainty=fit.gain_err),
+            measure(ctx, step, "offset_mV", fit.offset_mV, uncertainty=fit.offset_err),
+            measure(ctx, step, "inl_pct", fit.inl_pct),
+        ],
+    )
+
+
+def analyse_noise(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """Baseline RMS, corrected to a single acquisition for averaged captures (white noise falls as
+    1/√N with N averages — REFERENCES.md), divided by the gain."""
+    items = _traces(ctx, step, step.args["traces"])
+    rows, _ = _stack_mV(items)
+    n = int(step.args.get("n_baseline") or 0) or rows.shape[1]
+    rms = np.atleast_1d(an.baseline_rms(rows, n))
+    single = rms * np.sqrt([t.trace.averages for t in items])
+    combined = float(np.sqrt(np.mean(single**2)))
+    gain = _gain(ctx, step, output_of(step))
+    unc = combined / np.sqrt(2.0 * n * len(items)) / abs(gain)  # RMS of n Gaussian samples
+    return StepResult(
+        results={"baseline_rms_mV": combined, "gain": gain, "traces": len(items)},
+        measurements=[measure(ctx, step, "noise_in_mV", combined / abs(gain), uncertainty=unc)],
+    )
+
+
+def analyse_crosstalk(ctx: RunContext, step: PlannedStep) -> StepResult:
+    a = step.args
+    agg = _traces(ctx, step, a["aggressor"])
+    vic = _traces(ctx, step, a["victim"])
+    if len(agg) != len(vic):
+        raise AnalysisInputError(f"{len(agg)} aggressor traces but {len(vic)} victim traces")
+    arows, dt = _stack_mV(agg)
+    vrows, _ = _stack_mV(vic)
+    pct, err = _mean_err(an.crosstalk_percent(arows, vrows, dt, int(a.get("n_baseline", 200))))
+    m = measure(
+        ctx,
+        step,
+        "crosstalk_pct",
+        pct,
+        uncertainty=err,
+        channel=int(a["victim_channel"]),
+        aggressor=int(a["aggressor_channel"]),
+    )
+    return StepResult(results={"pairs": len(agg)}, measurements=[m])
+
+
+def analyse_s_curve(ctx: RunContext, step: PlannedStep) -> StepResult:
+    a = step.args
+    items = _readings(ctx, step, a["counts"])
+    fit = an.fit_s_curve(_sweep(items, a["x"]), [float(i.value) for i in items], int(a["trials"]))
+    return StepResult(
+        results={"points": len(items), "chi2_ndf": fit.chi2_ndf},
+        measurements=[
+            measure(ctx, step, "threshold_mV", fit.mu, uncertainty=fit.mu_err),
+            measure(ctx, step, "threshold_sigma_mV", fit.sigma, uncertainty=fit.sigma_err),
+        ],
+    )
+
+
+def analyse_discriminator(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """One S-curve per injected amplitude; the intercept of μ against gain × amplitude."""
+    a = step.args
+    items = _readings(ctx, step, a["counts"])
+    groups: dict[float, list[Reading]] = {}
+    for amp, item in zip(_sweep(items, a["amplitude"]), items, strict=True):
+        groups.setdefault(float(amp), []).append(item)
+    gain = _gain(ctx, step, "x1")
+    mus, errs = [], []
+    for group in groups.values():
+        fit = an.fit_s_curve(
+            _sweep(group, a["x"]), [float(i.value) for i in group], int(a["trials"])
+        )
+        mus.append(fit.mu)
+        errs.append(fit.mu_err)
+    heights = gain * np.array(list(groups))
+    cal = an.threshold_calibration(heights, mus, errs)
+    return StepResult(
+        results={"amplitudes": list(groups), "mu_mV": mus, "slope": cal.slope, "gain": gain},
+        measurements=[
+            measure(ctx, step, "discriminator_offset_mV", cal.offset_mV, uncertainty=cal.offset_err)
+        ],
+    )
+
+
+def analyse_peaking(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """Pulse start = the trigger instant, i.e. ``-t0`` on the trace's own axis."""
+    items = _traces(ctx, step, step.args["traces"])
+    rows, dt = _stack_mV(items)
+    starts = np.array([-t.trace.t0_ns for t in items])
+    value, err = _mean_err(an.peaking_time(rows, dt, starts))
+    results: dict[str, Any] = {"traces": len(items)}
+    try:
+        zc, _ = _mean_err(
+            an.zero_crossing_time(
+                rows, dt, starts, n_baseline=int(step.args.get("n_baseline", 200))
+            )
+        )
+        results["zero_crossing_ns"] = zc
+    except ValueError:
+        pass  # unipolar shaper: no zero crossing
+    return StepResult(
+        results=results,
+        measurements=[measure(ctx, step, "peaking_time_ns", value, uncertainty=err)],
+    )
+
+
+def analyse_rise(ctx: RunContext, step: PlannedStep) -> StepResult:
+    items = _traces(ctx, step, step.args["traces"])
+    rows, dt = _stack_mV(items)
+    value, err = _mean_err(an.rise_time(rows, dt, int(step.args.get("n_baseline", 200))))
+    return StepResult(
+        results={"traces": len(items)},
+        measurements=[measure(ctx, step, "rise_time_ns", value, uncertainty=err)],
+    )
+
+
+def analyse_leakage(ctx: RunContext, step: PlannedStep) -> StepResult:
+    reading = _readings(ctx, step, step.args["reading"])[-1].value
+    if not isinstance(reading, Mapping) or "current_A" not in reading:
+        raise AnalysisInputError(f"{step.args['reading']!r} is not a bias reading (bias.read into)")
+    current_nA = float(reading["current_A"]) * 1e9
+    m = measure(ctx, step, "leakage_nA", current_nA, channel=None, output=None)
+    return StepResult(results={"volts": reading.get("volts")}, measurements=[m])
+
+
+HANDLERS = {
+    "analyse.transfer": analyse_transfer,
+    "analyse.noise": analyse_noise,
+    "analyse.crosstalk": analyse_crosstalk,
+    "analyse.s_curve": analyse_s_curve,
+    "analyse.discriminator": analyse_discriminator,
+    "analyse.peaking": analyse_peaking,
+    "analyse.rise": analyse_rise,
+    "analyse.leakage": analyse_leakage,
+}
+
+
+def failed_analysis(ctx: RunContext, step: PlannedStep, exc: Exception) -> StepResult:
+    """An analysis that could not compute its figures: each produced quantity is NaN, verdict fail
+    (a dead channel is a failed channel, not a crashed run)."""
+    a = step.args
+    extra: dict[str, Any] = {}
+    if step.kind == "analyse.crosstalk":
+        extra = {"channel": int(a["victim_channel"]), "aggressor": int(a["aggressor_channel"])}
+    if step.kind == "analyse.leakage":
+        extra = {"channel": None, "output": None}
+    ms = [
+        replace(measure(ctx, step, q, float("nan"), **extra), verdict="fail")
+        for q in KINDS[step.kind].produces
+    ]
+    return StepResult(results={"error": str(exc)}, measurements=ms)

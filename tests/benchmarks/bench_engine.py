@@ -1,0 +1,244 @@
+"""Engine benchmarks: ``python -m tests.benchmarks --only engine``.
+
+* ``noop_steps``: a 1,000-step plan of ``wait 0 s`` steps, wall time (goal < 1 s).
+* ``engine_overhead``: a gain scan (configuring steps and captures) run by the engine against the
+  simulator, over a hand-written pyvisa script doing the same SCPI exchanges against the same
+  simulator: the exchanges the engine made are recorded once (command text, reads, block reads),
+  then replayed with bare pyvisa calls, TCP_NODELAY set as the drivers do (goal ratio <= 1.10).
+* ``engine_vs_direct_drivers``: the engine over the same plan written as direct driver calls (the
+  engine's own share of the overhead; the rest of ``engine_overhead`` is the drivers' layer).
+* ``engine_overhead_vs_naive``: the same against the naive script: pyvisa default settings (no
+  TCP_NODELAY), same exchanges — for reference.
+Best of ``REPEATS`` runs each, interleaved, in the same process.
+"""
+
+from __future__ import annotations
+
+import socket
+import time
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+import pyvisa
+import yaml
+
+from drivers.bench import bench_from_mapping, open_bench, open_transport
+from drivers.sim import board_from_mapping, start_sim_bench
+from sequencer.engine import Runner, RunOptions, describe_run
+from sequencer.procedure.plan_model import BoardInfo, Plan, PlannedStep, ProcedureMeta
+
+REPEATS = 5
+BOARD = Path(__file__).resolve().parents[2] / "drivers" / "sim" / "boards" / "example-pa8.yaml"
+
+
+def _plan(steps: list[PlannedStep]) -> Plan:
+    return Plan(
+        meta=ProcedureMeta(name="bench", version="1"),
+        board=BoardInfo(serial="NR-PA8-0001", board_type="PA8", channels=8),
+        steps=tuple(steps),
+    )
+
+
+def _s(path: str, kind: str, labels: dict | None = None, **args: Any) -> PlannedStep:
+    return PlannedStep(path=path, kind=kind, args=args, labels=labels or {})
+
+
+def noop_plan() -> Plan:
+    return _plan([_s(f"idle/{i}", "wait", seconds=0.0) for i in range(1000)])
+
+
+def scan_plan() -> Plan:
+    steps = [
+        _s("setup/timebase", "scope.timebase", sample_rate=1e9, points=500, pretrigger=100.0),
+        _s("setup/input", "scope.input", input=1, range=1200.0),
+        _s("setup/trigger", "scope.trigger", source="EXTernal"),
+        _s("setup/pulser", "pulser.output", on=True),
+    ]
+    for ch in (1, 2):
+        steps.append(_s(f"gain/ch{ch}/inject", "switch.inject", channel=ch))
+        for out in ("x1", "x5"):
+            scope = {"channel": ch, "output": out}
+            steps.append(
+                _s(
+                    f"gain/ch{ch}/{out}/route",
+                    "switch.route",
+                    scope,
+                    channel=ch,
+                    output=out,
+                    input=1,
+                )
+            )
+            for amp in range(5, 55, 5):
+                lab = {**scope, "amp": float(amp)}
+                steps += [
+                    _s(f"gain/ch{ch}/{out}/{amp}/set", "pulser.amplitude", lab, mV=float(amp)),
+                    _s(
+                        f"gain/ch{ch}/{out}/{amp}/cap",
+                        "scope.capture",
+                        lab,
+                        inputs=[1],
+                        into=["pulse"],
+                    ),
+                ]
+            steps.append(
+                _s(
+                    f"gain/ch{ch}/{out}/fit",
+                    "analyse.transfer",
+                    scope,
+                    traces="pulse",
+                    x="amp",
+                    n_baseline=80,
+                )
+            )
+    return _plan(steps)
+
+
+class Recorder:
+    """Wraps a real transport and notes every exchange (benchmark only)."""
+
+    def __init__(self, inner: Any, log: list[tuple[str, str, Any]]) -> None:
+        self._inner, self._log = inner, log
+
+    def __getattr__(self, name: str) -> Any:
+        return getattr(self._inner, name)
+
+    def write(self, text: str) -> None:
+        self._log.append((self._inner.address, "write", text))
+        self._inner.write(text)
+
+    def read(self) -> bytes:
+        self._log.append((self._inner.address, "read", None))
+        return self._inner.read()
+
+    def read_bytes(self, n: int) -> bytes:
+        self._log.append((self._inner.address, "read_bytes", n))
+        return self._inner.read_bytes(n)
+
+
+def run_engine(plan: Plan, spec: Any, opener: Callable = open_transport) -> float:
+    with open_bench(spec, opener=opener) as bench:
+        info = describe_run(plan, bench, identities=False)
+        runner = Runner(plan, bench, run_id=1, subscribers=[], options=RunOptions(), info=info)
+        t0 = time.perf_counter()
+        runner.run()
+        return time.perf_counter() - t0
+
+
+def run_script(log: list[tuple[str, str, Any]], spec: Any, *, tuned: bool) -> float:
+    """The same exchanges with bare pyvisa calls; one resource per instrument."""
+    rm = pyvisa.ResourceManager("@py")
+    res = {}
+    for inst in spec.instruments.values():
+        r = rm.open_resource(inst.address)
+        r.read_termination = "\n"
+        r.write_termination = "\n"
+        r.timeout = inst.timeout_ms
+        if tuned:
+            r.chunk_size = 1 << 20
+            sock = r.visalib.sessions[r.session].interface
+            sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+        res[inst.address] = r
+    try:
+        t0 = time.perf_counter()
+        for address, op, arg in log:
+            r = res[address]
+            if op == "write":
+                r.write(arg)
+            elif op == "read":
+                r.read_raw()
+            else:
+                r.read_bytes(arg)
+        return time.perf_counter() - t0
+    finally:
+        for r in res.values():
+            r.close()
+        rm.close()
+
+
+def run_drivers(plan: Plan, spec: Any) -> float:
+    """The same plan as direct driver calls (no engine): isolates the engine's own share."""
+    from sequencer.analysis import pulse_height, transfer_curve
+
+    with open_bench(spec) as bench:
+        t0 = time.perf_counter()
+        traces: list[tuple[dict, Any]] = []
+        for st in plan.steps:
+            a = st.args
+            if st.kind == "scope.timebase":
+                bench.scope.set_timebase(
+                    sample_rate_hz=a["sample_rate"],
+                    points=a["points"],
+                    pretrigger_ns=a["pretrigger"],
+                )
+            elif st.kind == "scope.input":
+                bench.scope.set_input(a["input"], range_mV=a["range"])
+            elif st.kind == "scope.trigger":
+                bench.scope.set_trigger(a["source"])
+            elif st.kind == "pulser.output":
+                bench.pulser.set_output(a["on"])
+            elif st.kind == "switch.inject":
+                bench.switch.inject(a["channel"])
+            elif st.kind == "switch.route":
+                bench.switch.route(a["channel"], a["output"], a["input"])
+            elif st.kind == "pulser.amplitude":
+                bench.pulser.set_amplitude(a["mV"])
+            elif st.kind == "scope.capture":
+                traces.append((dict(st.labels), bench.scope.capture(a["inputs"])[0]))
+            elif st.kind == "analyse.transfer":
+                sel = [
+                    (lab, t)
+                    for lab, t in traces
+                    if all(lab.get(k) == v for k, v in st.labels.items())
+                ]
+                rows = [t.mV for _, t in sel]
+                heights = pulse_height(rows, sel[0][1].dt_ns, a["n_baseline"])
+                transfer_curve([lab["amp"] for lab, _ in sel], heights)
+        return time.perf_counter() - t0
+
+
+def _row(
+    name: str, ours: float, baseline: float | None, goal: str, met: bool, unit: str = "s"
+) -> dict:
+    return {
+        "name": name,
+        "ours": ours,
+        "baseline": baseline,
+        "unit": unit,
+        "ratio": None if baseline is None else ours / baseline,
+        "goal": goal,
+        "verdict": "met" if met else "short",
+    }
+
+
+def run() -> list[dict]:
+    board = board_from_mapping(yaml.safe_load(BOARD.read_text()))
+    with start_sim_bench(board) as sim:
+        spec = bench_from_mapping(sim.bench_mapping())
+        noop = min(run_engine(noop_plan(), spec) for _ in range(REPEATS))
+        plan = scan_plan()
+        log: list[tuple[str, str, Any]] = []
+        run_engine(plan, spec, opener=lambda s: Recorder(open_transport(s), log))
+        start = next(i for i, entry in enumerate(log) if entry[2] == "SENSe:SWEep:SRATe 1e+09")
+        log = log[start:]  # the run's exchanges (opening the bench is not part of it)
+        ours, tuned, naive, direct = [], [], [], []
+        for _ in range(REPEATS):
+            ours.append(run_engine(plan, spec))
+            direct.append(run_drivers(plan, spec))
+            tuned.append(run_script(log, spec, tuned=True))
+            naive.append(run_script(log, spec, tuned=False))
+    o, t, n, d = min(ours), min(tuned), min(naive), min(direct)
+    return [
+        _row("noop_steps", noop, None, "< 1 s for 1,000 steps", noop < 1.0),
+        _row(
+            "engine_overhead",
+            o,
+            t,
+            f"<= 1.10x hand-written pyvisa ({len(log)} exchanges)",
+            o / t <= 1.10,
+        ),
+        _row("engine_overhead_vs_naive", o, n, "reference: pyvisa default settings", True),
+        _row(
+            "engine_vs_direct_drivers", o, d, "diagnostic: same plan as direct driver calls", True
+        ),
+    ]
