@@ -1,0 +1,228 @@
+"""Start the six simulated instruments of a bench, describe them as a bench file, serve until stopped.
+
+``start_sim_bench`` wires one board to a pulser, scope, threshold DAC, counter, bias supply and channel
+switch, each a real TCP server on ``host`` (ports ``port_base + 0..5`` in :data:`ROLES` order, or free
+ephemeral ports with ``port_base=0``).  ``serve`` is what ``benchwright sim`` runs.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import signal
+import sys
+import threading
+import time
+from collections.abc import Callable
+from pathlib import Path
+from types import FrameType
+from typing import Any
+
+import yaml
+
+from drivers.errors import TransportError
+from drivers.sim.bias import BiasSupply
+from drivers.sim.board import ROLES, BoardSpec
+from drivers.sim.board_loader import load_board
+from drivers.sim.counter import Counter
+from drivers.sim.digitizer import Digitizer
+from drivers.sim.faults import FaultRunner
+from drivers.sim.instrument import MAKER, SimInstrument
+from drivers.sim.pulser import Pulser
+from drivers.sim.server import InstrumentServer
+from drivers.sim.switch import Switch
+from drivers.sim.threshold import ThresholdDac
+
+DEFAULT_TIMEOUT_MS = 5000
+
+
+def _instruments(board: BoardSpec, clock: Callable[[], float]) -> dict[str, SimInstrument]:
+    """The six instruments, cross-wired to the board and to each other."""
+
+    def common(role: str) -> dict[str, Any]:
+        ident = ROLES.index(role) + 1
+        return {"instrument_id": ident, "serial": f"SIM{ident:02d}-{board.serial}", "clock": clock}
+
+    n = len(board.channels)
+    pulser = Pulser(**common("pulser"))
+    switch = Switch(channels=n, **common("switch"))
+    threshold = ThresholdDac(channels=n, **common("threshold"))
+    return {
+        "pulser": pulser,
+        "scope": Digitizer(board=board, pulser=pulser, switch=switch, **common("scope")),
+        "threshold": threshold,
+        "counter": Counter(
+            board=board, pulser=pulser, switch=switch, threshold=threshold, **common("counter")
+        ),
+        "bias": BiasSupply(board=board, **common("bias")),
+        "switch": switch,
+    }
+
+
+class SimBench:
+    """A running simulated bench: six instrument servers sharing one board and one lock."""
+
+    def __init__(
+        self,
+        board: BoardSpec,
+        *,
+        host: str = "127.0.0.1",
+        port_base: int = 0,
+        bench_name: str = "sim-bench",
+        max_volts: float = 60.0,
+        max_ramp_V_per_s: float = 10.0,
+        max_current_uA: float = 100.0,
+        clock: Callable[[], float] = time.monotonic,
+    ) -> None:
+        self.board = board
+        self.host = host
+        self.bench_name = bench_name
+        self.limits = {
+            "max_volts": max_volts,
+            "max_ramp_V_per_s": max_ramp_V_per_s,
+            "max_current_uA": max_current_uA,
+        }
+        self.instruments = _instruments(board, clock)
+        lock = threading.Lock()
+        self._servers: dict[str, InstrumentServer] = {}
+        try:
+            for index, role in enumerate(ROLES):
+                port = port_base + index if port_base else 0
+                try:
+                    server = InstrumentServer(
+                        self.instruments[role],
+                        lock=lock,
+                        host=host,
+                        port=port,
+                        faults=FaultRunner(board.faults_for(role), clock),
+                    )
+                except OSError as exc:
+                    raise TransportError(
+                        f"cannot listen for the simulated {role} on {host}:{port}: "
+                        f"{exc.strerror or exc}"
+                    ) from None
+                self._servers[role] = server
+                server.start()
+        except BaseException:
+            self.stop()
+            raise
+
+    @property
+    def ports(self) -> dict[str, int]:
+        """role -> TCP port."""
+        return {role: server.port for role, server in self._servers.items()}
+
+    def address(self, role: str) -> str:
+        """VISA resource string of ``role``."""
+        return f"TCPIP0::{self.host}::{self.ports[role]}::SOCKET"
+
+    def stop(self) -> None:
+        """Stop every server and close every client connection (idempotent)."""
+        servers, self._servers = self._servers, {}
+        stoppers = [threading.Thread(target=server.stop) for server in servers.values()]
+        for stopper in stoppers:  # in parallel: each waits up to one poll interval
+            stopper.start()
+        for stopper in stoppers:
+            stopper.join()
+
+    def __enter__(self) -> SimBench:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.stop()
+
+    def bench_mapping(self) -> dict[str, Any]:
+        """The bench-file data (DESIGN.md "Bench file") describing this simulated bench."""
+        due = dt.date.today() + dt.timedelta(days=365)
+        instruments: dict[str, Any] = {}
+        for role, inst in self.instruments.items():
+            entry: dict[str, Any] = {
+                "address": self.address(role),
+                "dialect": "generic",
+                "read_termination": "\n",
+                "write_termination": "\n",
+                "timeout_ms": DEFAULT_TIMEOUT_MS,
+                "expect_id": f"{MAKER},{inst.model}",
+                "calibration_due": due,
+            }
+            if role == "bias":
+                entry.update(self.limits)
+            instruments[role] = entry
+        return {"bench": self.bench_name, "instruments": instruments}
+
+    def write_bench(self, path: str | Path) -> Path:
+        """Write :meth:`bench_mapping` as a YAML bench file; returns the path."""
+        out = Path(path)
+        header = f"# simulated bench for board {self.board.serial} ({self.board.source})\n"
+        out.write_text(
+            header + yaml.safe_dump(self.bench_mapping(), sort_keys=False), encoding="utf-8"
+        )
+        return out
+
+
+def start_sim_bench(
+    board: BoardSpec | str | Path,
+    *,
+    host: str = "127.0.0.1",
+    port_base: int = 0,
+    bench_name: str = "sim-bench",
+    max_volts: float = 60.0,
+    max_ramp_V_per_s: float = 10.0,
+    max_current_uA: float = 100.0,
+    clock: Callable[[], float] = time.monotonic,
+) -> SimBench:
+    """Start the simulated instruments of ``board`` (a spec or a board file) in background threads."""
+    spec = board if isinstance(board, BoardSpec) else load_board(board)
+    return SimBench(
+        spec,
+        host=host,
+        port_base=port_base,
+        bench_name=bench_name,
+        max_volts=max_volts,
+        max_ramp_V_per_s=max_ramp_V_per_s,
+        max_current_uA=max_current_uA,
+        clock=clock,
+    )
+
+
+def serve(
+    board_path: str | Path,
+    *,
+    host: str = "127.0.0.1",
+    port_base: int = 0,
+    bench_out: Path | None = None,
+    on_ready: Callable[[SimBench], None] | None = None,
+    stop_event: threading.Event | None = None,
+) -> None:
+    """Serve the simulated bench of ``board_path`` until SIGINT or SIGTERM, then stop cleanly.
+
+    Prints the VISA address of each instrument and writes the bench file to ``bench_out`` if given.
+    Signal handlers are installed only in the main thread; ``stop_event`` (set by the caller) also
+    stops the bench, for embedding.
+    """
+    stop = stop_event if stop_event is not None else threading.Event()
+
+    def on_signal(signum: int, frame: FrameType | None) -> None:
+        stop.set()
+
+    in_main = threading.current_thread() is threading.main_thread()
+    previous = (
+        {s: signal.signal(s, on_signal) for s in (signal.SIGINT, signal.SIGTERM)} if in_main else {}
+    )
+    try:
+        with start_sim_bench(board_path, host=host, port_base=port_base) as bench:
+            if bench_out is not None:
+                bench.write_bench(bench_out)
+            print(f"simulated bench for board {bench.board.serial}:")
+            for role in ROLES:
+                print(f"  {role:<9} {bench.address(role)}")
+            if bench_out is not None:
+                print(f"bench file: {bench_out}")
+            print("press Ctrl-C to stop", flush=True)
+            if on_ready is not None:
+                on_ready(bench)
+            while not stop.wait(0.2):
+                pass
+        print("simulated bench stopped", file=sys.stderr, flush=True)
+    finally:
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)

@@ -1,0 +1,138 @@
+"""The simulated board file: typed, frozen specification of the board the simulator plays.
+
+Keys fixed by DESIGN.md ("Simulated board file"): ``serial``, ``outputs``, ``shaper {order, tau_ns,
+kind}``, ``crosstalk_pct``, ``bias_resistance_Mohm``, ``seed``, ``faults``, ``channels`` (``gain_x1,
+gain_x5, baseline_mV, noise_in_mV, saturation_mV, discriminator_offset_mV, dead``).
+
+Extra keys, each with its default:
+
+============================  =========  ===========================================================
+key                           default    meaning
+============================  =========  ===========================================================
+``board_type``                PA8        printed in the identity of the bench
+``polarity``                  positive   ``negative``: the fast outputs (x1, x5) swing negative
+``inverter``                  false      an inverter stage after the preamp flips the fast outputs
+``pulse.rise_ns``             4.0        10-90 % rise time of the fast preamp pulse (ns)
+``pulse.decay_ns``            40.0       decay time constant of the fast pulse (ns)
+``pulse_delay_ns``            0.0        the pulses start this long after the trigger instant
+``shaper.gain``               1.0        shaped peak = gain_x1 * A * shaper.gain (before tanh)
+``adc_bits``                  12         digitizer resolution (6-16 bits)
+``time_scale``                0.0        counter gates last gate_time * time_scale real seconds
+``discriminator_tau_ns``      5.0        noise bandwidth of the discriminator input, as CR-RC²
+``dark_rate_hz``              0.0        rate of random dark pulses counted by the discriminator
+``dark_height_mV``            10.0       their height at the x1 output
+``bias_current_offset_nA``    0.02       offset of the bias supply's current meter
+``bias_current_noise_nA``     0.002      RMS noise of the current meter
+``bias_voltage_noise_mV``     1.0        RMS noise of the voltage meter
+============================  =========  ===========================================================
+
+Channel defaults: gain_x1 1.0, gain_x5 5.0, baseline_mV 0, noise_in_mV 0.3, saturation_mV 1500,
+discriminator_offset_mV 0, dead false.  Faults: see :mod:`drivers.sim.faults`.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from types import MappingProxyType
+
+#: The instrument roles, in port order (port_base + index).
+ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch")
+#: Board outputs and the digit k of the switch route numbers.
+OUTPUT_INDEX = MappingProxyType({"x1": 1, "x5": 2, "shaped": 3})
+FAULT_KINDS = ("interlock_open", "no_reply", "disconnect", "garbled_reply", "scpi_error")
+MAX_CHANNELS = 99  # the switch numbers channels with two digits
+
+
+@dataclass(frozen=True, kw_only=True)
+class ChannelSpec:
+    """One channel of the board (DESIGN.md keys)."""
+
+    gain_x1: float = 1.0
+    gain_x5: float = 5.0
+    baseline_mV: float = 0.0
+    noise_in_mV: float = 0.3
+    saturation_mV: float = 1500.0
+    discriminator_offset_mV: float = 0.0
+    dead: bool = False
+
+
+@dataclass(frozen=True, kw_only=True)
+class ShaperSpec:
+    """CR-RCⁿ (unipolar) or CR²-RCⁿ (bipolar) shaper: order n, time constant τ."""
+
+    order: int = 4
+    tau_ns: float = 50.0
+    kind: str = "unipolar"
+    gain: float = 1.0
+
+
+@dataclass(frozen=True, kw_only=True)
+class PulseSpec:
+    """Fast preamp pulse: 10-90 % rise and decay; the solved time constants of the shape."""
+
+    rise_ns: float = 4.0
+    decay_ns: float = 40.0
+    tau_rise_ns: float = 0.0
+    tau_decay_ns: float = 0.0
+
+
+@dataclass(frozen=True, kw_only=True)
+class FaultSpec:
+    """One injected fault; exactly one of ``after_s`` / ``after_commands`` is set."""
+
+    kind: str
+    role: str
+    after_s: float | None = None
+    after_commands: int | None = None
+    code: int = -300
+    message: str = ""
+
+
+@dataclass(frozen=True, kw_only=True)
+class BoardSpec:
+    """Everything the simulator needs to know about the board it plays."""
+
+    serial: str
+    channels: tuple[ChannelSpec, ...]
+    board_type: str = "PA8"
+    outputs: Mapping[str, float] = field(
+        default_factory=lambda: MappingProxyType({"x1": 1.0, "x5": 5.0})
+    )
+    shaper: ShaperSpec = field(default_factory=ShaperSpec)
+    pulse: PulseSpec = field(default_factory=PulseSpec)
+    crosstalk_pct: float = 0.0
+    bias_resistance_Mohm: float = 5000.0
+    seed: int = 0
+    faults: tuple[FaultSpec, ...] = ()
+    polarity: str = "positive"
+    inverter: bool = False
+    pulse_delay_ns: float = 0.0
+    adc_bits: int = 12
+    time_scale: float = 0.0
+    discriminator_tau_ns: float = 5.0
+    dark_rate_hz: float = 0.0
+    dark_height_mV: float = 10.0
+    bias_current_offset_nA: float = 0.02
+    bias_current_noise_nA: float = 0.002
+    bias_voltage_noise_mV: float = 1.0
+    source: str = "<board>"
+
+    @property
+    def fast_sign(self) -> int:
+        """+1 or -1: the sign of the fast outputs after polarity and inverter."""
+        sign = -1 if self.polarity == "negative" else 1
+        return -sign if self.inverter else sign
+
+    def gain(self, channel: int, output: str) -> float:
+        """Small-signal gain of ``output`` of board channel ``channel`` (1-based)."""
+        spec = self.channels[channel - 1]
+        if output == "x1":
+            return spec.gain_x1
+        if output == "x5":
+            return spec.gain_x5
+        return spec.gain_x1 * self.shaper.gain
+
+    def faults_for(self, role: str) -> tuple[FaultSpec, ...]:
+        """The faults that hit the instrument playing ``role``."""
+        return tuple(f for f in self.faults if f.role == role)

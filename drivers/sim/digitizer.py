@@ -1,0 +1,314 @@
+"""Simulated scope / digitizer with four inputs, wired to the board through the channel switch.
+
+``*RST`` defaults and limits (SI units on the wire):
+
+==========================================  =================  ====================================
+setting                                     default            limits
+==========================================  =================  ====================================
+``SENSe:SWEep:SRATe``                       1 GS/s             1 kS/s - 5 GS/s
+``SENSe:SWEep:POINts``                      1000               2 - 1 000 000
+``SENSe:AVERage:COUNt``                     1                  1 - 65536
+``SENSe:VOLTage<i>:RANGe:UPPer`` (full)     1 V (±0.5 V)       1 mV - 20 V
+``SENSe:VOLTage<i>:OFFSet`` (centre)        0 V                ±10 V
+``TRIGger:SEQuence:DELay`` (pre-trigger)    100 ns             ±1 ms
+``TRIGger:SEQuence:SOURce`` / ``:LEVel``    EXTernal / 0 V     stored, not simulated
+``FORMat:DATA``                             INTeger,16         INTeger,16 | REAL,32
+``FORMat:BORDer``                           NORMal (big end.)  NORMal | SWAPped
+==========================================  =================  ====================================
+
+The resolution is the board file's ``adc_bits`` (default 12).  The scope is triggered by the pulser:
+t = 0 is the trigger, the record starts at t0 = -delay.  ``INITiate`` acquires all four inputs at once
+(what the switch routes to each; an unrouted input reads 0 V without noise); a pulse is present when
+the pulser output is on and a channel is injected.  ``TRACe:PREamble? CHANnel<i>`` answers
+``x_increment_s, x_origin_s, y_increment_V, y_origin_V, points, averages`` of the last acquisition
+(volts = code · y_increment + y_origin; REAL,32 data are volts, increment 1, origin 0).  Noise of each
+acquisition comes from ``np.random.default_rng([seed, instrument_id, capture_counter])``.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from drivers.scpi.blocks import format_block
+from drivers.sim.adc import CODES_16, digitize
+from drivers.sim.board import BoardSpec
+from drivers.sim.instrument import Call, Command, SimInstrument, command
+from drivers.sim.physics import band_limited_noise
+from drivers.sim.pulser import Pulser
+from drivers.sim.response import noise_rms_mV, noise_tau_ns, output_signal_mV
+from drivers.sim.scpi_parser import (
+    STANDARD_ERRORS,
+    format_float,
+    matches_word,
+    parse_choice,
+    parse_int,
+    parse_number,
+    scpi_error,
+)
+from drivers.sim.switch import SCOPE_INPUTS, Switch
+
+
+@dataclass(kw_only=True)
+class ScopeSettings:
+    """What the digitizer is set to."""
+
+    sample_rate_hz: float = 1e9
+    points: int = 1000
+    averages: int = 1
+    pretrigger_s: float = 100e-9
+    trigger_source: str = "EXTernal"
+    trigger_level_V: float = 0.0
+    real32: bool = False
+    full_scale_V: list[float] = field(default_factory=lambda: [1.0] * SCOPE_INPUTS)
+    offset_V: list[float] = field(default_factory=lambda: [0.0] * SCOPE_INPUTS)
+
+
+@dataclass(frozen=True)
+class Record:
+    """One acquisition of all inputs: codes and their calibration."""
+
+    codes: np.ndarray  # int16, one row per input
+    dt_s: float
+    t0_s: float
+    lsb_V: tuple[float, ...]
+    offset_V: tuple[float, ...]
+    averages: int
+
+
+_SOURCE = re.compile(r"([A-Za-z]+)(\d+)$")
+
+
+def parse_input(text: str) -> int:
+    """``CHANnel<i>`` -> i (1..4)."""
+    m = _SOURCE.match(text.strip())
+    if not m or not matches_word(m.group(1), "CHANnel"):
+        raise scpi_error(-224, text)
+    value = int(m.group(2))
+    if not 1 <= value <= SCOPE_INPUTS:
+        raise scpi_error(-222, text)
+    return value
+
+
+class Digitizer(SimInstrument):
+    """The scope role."""
+
+    role = "scope"
+    model = "LTS-DG4"
+
+    def __init__(
+        self, *, board: BoardSpec, pulser: Pulser, switch: Switch, **kwargs: object
+    ) -> None:
+        self.board = board
+        self.pulser = pulser
+        self.switch = switch
+        self.settings = ScopeSettings()
+        self.record: Record | None = None
+        self.captures = 0
+        super().__init__(**kwargs)  # type: ignore[arg-type]
+
+    def reset(self) -> None:
+        self.settings = ScopeSettings()
+        self.record = None
+
+    def commands(self) -> Sequence[Command]:
+        return [
+            command(
+                "[SENSe:]VOLTage#:RANGe[:UPPer]",
+                write=lambda c: self._set_input(c, "full_scale_V", 1e-3, 20.0),
+                query=lambda c: self._get_input(c, "full_scale_V"),
+            ),
+            command(
+                "[SENSe:]VOLTage#:OFFSet",
+                write=lambda c: self._set_input(c, "offset_V", -10.0, 10.0),
+                query=lambda c: self._get_input(c, "offset_V"),
+            ),
+            command(
+                "[SENSe:]SWEep:SRATe",
+                write=lambda c: self._set("sample_rate_hz", c, 1e3, 5e9),
+                query=lambda c: format_float(self.settings.sample_rate_hz),
+            ),
+            command(
+                "[SENSe:]SWEep:POINts",
+                write=lambda c: self._set_int("points", c, 2, 1_000_000),
+                query=lambda c: str(self.settings.points),
+            ),
+            command(
+                "[SENSe:]AVERage:COUNt",
+                write=lambda c: self._set_int("averages", c, 1, 65536),
+                query=lambda c: str(self.settings.averages),
+            ),
+            command(
+                "TRIGger[:SEQuence]:SOURce",
+                write=self._set_trigger_source,
+                query=lambda c: self.settings.trigger_source,
+            ),
+            command(
+                "TRIGger[:SEQuence]:LEVel",
+                write=lambda c: self._set("trigger_level_V", c, -10.0, 10.0),
+                query=lambda c: format_float(self.settings.trigger_level_V),
+            ),
+            command(
+                "TRIGger[:SEQuence]:DELay",
+                write=lambda c: self._set("pretrigger_s", c, -1e-3, 1e-3),
+                query=lambda c: format_float(self.settings.pretrigger_s),
+            ),
+            command(
+                "FORMat[:DATA]",
+                write=self._set_format,
+                max_params=2,
+                query=lambda c: "REAL,32" if self.settings.real32 else "INT,16",
+            ),
+            command("INITiate[:IMMediate]", write=lambda c: self.acquire(), max_params=0),
+            command("TRACe:PREamble", query=self._preamble, max_query_params=1),
+            command("TRACe[:DATA]", query=self._data, max_query_params=1),
+        ]
+
+    # --- settings ------------------------------------------------------------------------------
+    def _set(self, name: str, call: Call, lo: float, hi: float) -> None:
+        setattr(self.settings, name, parse_number(call.arg(), lo=lo, hi=hi))
+
+    def _set_int(self, name: str, call: Call, lo: int, hi: int) -> None:
+        setattr(self.settings, name, parse_int(call.arg(), lo=lo, hi=hi))
+
+    def _set_input(self, call: Call, name: str, lo: float, hi: float) -> None:
+        index = call.suffix(0, hi=SCOPE_INPUTS) - 1
+        getattr(self.settings, name)[index] = parse_number(call.arg(), lo=lo, hi=hi)
+
+    def _get_input(self, call: Call, name: str) -> str:
+        return format_float(getattr(self.settings, name)[call.suffix(0, hi=SCOPE_INPUTS) - 1])
+
+    def _set_trigger_source(self, call: Call) -> None:
+        text = call.arg()
+        if _SOURCE.match(text):
+            self.settings.trigger_source = f"CHAN{parse_input(text)}"
+        else:
+            self.settings.trigger_source = parse_choice(text, ("IMMediate", "EXTernal")).upper()[:3]
+
+    def _set_format(self, call: Call) -> None:
+        kind = parse_choice(call.arg(0), ("INTeger", "REAL"))
+        width = (
+            parse_int(call.params[1], lo=1, hi=64)
+            if len(call.params) > 1
+            else (16 if kind == "INTeger" else 32)
+        )
+        if (kind, width) not in (("INTeger", 16), ("REAL", 32)):
+            raise scpi_error(-224, f"{kind},{width}")
+        self.settings.real32 = kind == "REAL"
+
+    # --- acquisition ---------------------------------------------------------------------------
+    def acquire(self) -> None:
+        """Acquire all inputs (the average of ``averages`` triggers) into :attr:`record`."""
+        s = self.settings
+        board = self.board
+        self.captures += 1
+        rng = np.random.default_rng([board.seed, self.instrument_id, self.captures])
+        dt_ns = 1e9 / s.sample_rate_hz
+        t_ns = -s.pretrigger_s * 1e9 + dt_ns * np.arange(s.points)
+        on = self.pulser.settings.output_on
+        injected = self.switch.injected if on else None
+        volts = np.zeros((SCOPE_INPUTS, s.points))
+        sigma = np.zeros(SCOPE_INPUTS)
+        streams: dict[tuple[int, str], int] = {}  # (channel, fast|shaped) -> noise row
+        rows: list[int] = []
+        for i in range(1, SCOPE_INPUTS + 1):
+            source = self.switch.source_of(i)
+            if source is None:
+                rows.append(-1)
+                continue
+            output, channel = source
+            volts[i - 1] = 1e-3 * output_signal_mV(
+                board,
+                channel,
+                output,
+                injected=injected,
+                amplitude_mV=self.pulser.amplitude_mV,
+                t_ns=t_ns,
+            )
+            sigma[i - 1] = 1e-3 * noise_rms_mV(board, channel, output)
+            rows.append(
+                streams.setdefault(
+                    (channel, "shaped" if output == "shaped" else "fast"), len(streams)
+                )
+            )
+        noise = self._noise(rng, streams, s.points, dt_ns, rows)
+        codes = digitize(
+            volts,
+            noise,
+            sigma,
+            averages=s.averages,
+            full_scale_V=np.array(s.full_scale_V),
+            offset_V=np.array(s.offset_V),
+            bits=board.adc_bits,
+            rng=rng,
+        )
+        self.record = Record(
+            codes=codes,
+            dt_s=dt_ns * 1e-9,
+            t0_s=-s.pretrigger_s,
+            lsb_V=tuple(fs / CODES_16 for fs in s.full_scale_V),
+            offset_V=tuple(s.offset_V),
+            averages=s.averages,
+        )
+
+    def _noise(
+        self,
+        rng: np.random.Generator,
+        streams: dict[tuple[int, str], int],
+        points: int,
+        dt_ns: float,
+        rows: list[int],
+    ) -> np.ndarray:
+        """Unit-RMS noise per input: x1 and x5 of one channel share their preamp's stream."""
+        drawn = np.zeros((max(len(streams), 1), points))
+        for kind in ("fast", "shaped"):
+            members = [row for (channel, k), row in streams.items() if k == kind]
+            if members:
+                tau = noise_tau_ns(self.board, "shaped" if kind == "shaped" else "x1")
+                drawn[members] = band_limited_noise(rng, len(members), points, dt_ns, tau)
+        noise = np.zeros((SCOPE_INPUTS, points))
+        for i, row in enumerate(rows):
+            if row >= 0:
+                noise[i] = drawn[row]
+        return noise
+
+    # --- read-out ------------------------------------------------------------------------------
+    def _preamble(self, call: Call) -> str:
+        index = parse_input(call.arg()) - 1
+        rec = self.record
+        s = self.settings
+        if rec is None:
+            values = [
+                1.0 / s.sample_rate_hz,
+                -s.pretrigger_s,
+                s.full_scale_V[index] / CODES_16,
+                s.offset_V[index],
+                s.points,
+                s.averages,
+            ]
+        else:
+            values = [
+                rec.dt_s,
+                rec.t0_s,
+                rec.lsb_V[index],
+                rec.offset_V[index],
+                rec.codes.shape[1],
+                rec.averages,
+            ]
+        if s.real32:
+            values[2:4] = [1.0, 0.0]
+        return ",".join(format_float(v) for v in values)
+
+    def _data(self, call: Call) -> bytes:
+        index = parse_input(call.arg()) - 1
+        rec = self.record
+        if rec is None:  # answer an empty block so the client does not wait for a reply
+            self.push_error(-230, STANDARD_ERRORS[-230])
+            return format_block(b"")
+        if self.settings.real32:
+            volts = rec.codes[index] * rec.lsb_V[index] + rec.offset_V[index]
+            return format_block(volts, kind="float32", big_endian=self.big_endian)
+        return format_block(rec.codes[index], kind="int16", big_endian=self.big_endian)
