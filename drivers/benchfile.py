@@ -1,0 +1,320 @@
+"""The bench file: which instrument plays which role, and how to reach it (loaded and checked).
+
+```yaml
+bench: bench-2
+instruments:   # roles: pulser, scope, threshold, counter, bias, switch
+  pulser: {address: "TCPIP0::127.0.0.1::5025::SOCKET", dialect: generic, expect_id: "", calibration_due: 2027-06-30}
+  bias:   {address: "TCPIP0::127.0.0.1::5029::SOCKET", dialect: generic, max_volts: 60, max_ramp_V_per_s: 5}
+```
+Per instrument also ``read_termination``, ``write_termination`` (a string, or ``LF``/``CR``/``CRLF``),
+``timeout_ms``, ``chunk_size``, ``visa_library`` (default ``@py``) and, for the bias supply,
+``max_current_uA``.  Unknown keys are located errors with a "did you mean" hint.  A dialect given as a
+path is resolved against the bench file's folder and checked at load.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import difflib
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from drivers.dialect import GENERIC, load_dialect, shipped_dialect_path
+from drivers.errors import ConfigError, Location, Problem
+from drivers.scpi.session import Identity
+from drivers.transport import DEFAULT_CHUNK_SIZE, DEFAULT_TIMEOUT_MS, DEFAULT_VISA_LIBRARY
+from drivers.yamlsafe import YamlMap, load_yaml
+
+ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch")
+_TERMINATIONS = {"LF": "\n", "CR": "\r", "CRLF": "\r\n", "\\n": "\n", "\\r": "\r", "\\r\\n": "\r\n"}
+_BIAS_ONLY = ("max_volts", "max_ramp_V_per_s", "max_current_uA")
+_KEYS = (
+    "address",
+    "dialect",
+    "visa_library",
+    "expect_id",
+    "calibration_due",
+    "timeout_ms",
+    "read_termination",
+    "write_termination",
+    "chunk_size",
+    *_BIAS_ONLY,
+)
+
+
+@dataclass(frozen=True, kw_only=True)
+class InstrumentSpec:
+    """One instrument of the bench file (``max_*`` only for the bias supply)."""
+
+    role: str
+    address: str
+    dialect: str = GENERIC
+    visa_library: str = DEFAULT_VISA_LIBRARY
+    expect_id: str = ""
+    calibration_due: dt.date | None = None
+    timeout_ms: int = DEFAULT_TIMEOUT_MS
+    read_termination: str = "\n"
+    write_termination: str = "\n"
+    chunk_size: int = DEFAULT_CHUNK_SIZE
+    max_volts: float | None = None
+    max_ramp_V_per_s: float | None = None
+    max_current_uA: float | None = None
+
+
+@dataclass(frozen=True, kw_only=True)
+class BenchSpec:
+    name: str
+    instruments: Mapping[str, InstrumentSpec]
+    source: str = "<bench>"
+    text: str = field(default="", repr=False)  # the file as read, for provenance
+
+
+def load_bench(path: str | Path) -> BenchSpec:
+    """Read and check a bench file; every problem is reported as ``file:line:column: message``."""
+    path = Path(path)
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise ConfigError(
+            [Problem(Location(str(path), 1, 1), f"cannot read bench file: {exc.strerror}")]
+        ) from None
+    data = load_yaml(raw, str(path), error=ConfigError)
+    spec = bench_from_mapping(data, source=str(path), base_dir=path.parent)
+    return BenchSpec(
+        name=spec.name, instruments=spec.instruments, source=spec.source, text=raw.decode("utf-8")
+    )
+
+
+def bench_from_mapping(
+    data: Any, source: str = "<bench>", *, base_dir: Path | None = None
+) -> BenchSpec:
+    """Check a bench mapping (from :func:`drivers.yamlsafe.load_yaml` for located errors)."""
+    problems: list[Problem] = []
+    if not isinstance(data, Mapping):
+        raise ConfigError(
+            [
+                Problem(
+                    Location(source, 1, 1),
+                    "a bench file is a mapping with 'bench:' and 'instruments:'",
+                )
+            ]
+        )
+    _unknown(data, ("bench", "instruments"), "key", problems, source)
+    name = data.get("bench")
+    if not isinstance(name, str) or not name.strip():
+        problems.append(Problem(_where(data, "bench", source), "'bench:' must name the bench"))
+        name = ""
+    instruments: dict[str, InstrumentSpec] = {}
+    entries = data.get("instruments")
+    if not isinstance(entries, Mapping) or not entries:
+        problems.append(
+            Problem(
+                _where(data, "instruments", source),
+                f"'instruments:' must map roles ({', '.join(ROLES)}) to instruments",
+            )
+        )
+    else:
+        _unknown(entries, ROLES, "role", problems, source)
+        for role in ROLES:
+            if role in entries:
+                spec = _instrument(role, entries[role], entries, problems, source, base_dir)
+                if spec is not None:
+                    instruments[role] = spec
+    if problems:
+        raise ConfigError(problems)
+    return BenchSpec(name=name, instruments=instruments, source=source)
+
+
+def instrument_warnings(
+    spec: InstrumentSpec, identity: Identity | None, today: dt.date
+) -> list[str]:
+    """Identity not matching ``expect_id`` (case-insensitive substring of ``*IDN?``); calibration past due."""
+    out: list[str] = []
+    if (
+        identity is not None
+        and spec.expect_id
+        and spec.expect_id.lower() not in identity.raw.lower()
+    ):
+        out.append(
+            f"{spec.role}: identity {identity.raw!r} does not match expect_id {spec.expect_id!r}"
+        )
+    if spec.calibration_due is not None and spec.calibration_due < today:
+        days = (today - spec.calibration_due).days
+        out.append(
+            f"{spec.role}: calibration was due {spec.calibration_due.isoformat()} ({days} days ago)"
+        )
+    return out
+
+
+def _instrument(
+    role: str,
+    entry: Any,
+    parent: Mapping,
+    problems: list[Problem],
+    source: str,
+    base_dir: Path | None,
+) -> InstrumentSpec | None:
+    if not isinstance(entry, Mapping):
+        problems.append(
+            Problem(
+                _where(parent, role, source),
+                f"{role}: expected a mapping such as {{address: ..., dialect: generic}}",
+            )
+        )
+        return None
+    start = len(problems)
+    _unknown(entry, _KEYS, f"{role} key", problems, source)
+    if role != "bias":
+        for key in _BIAS_ONLY:
+            if key in entry:
+                problems.append(
+                    Problem(
+                        _where(entry, key, source, of_key=True),
+                        f"{role}: {key} applies to the bias supply only",
+                    )
+                )
+    values: dict[str, Any] = {"role": role}
+    check = _Checker(role, entry, problems, source)
+    values["address"] = check.text("address", required=True)
+    values["visa_library"] = check.text("visa_library", default=DEFAULT_VISA_LIBRARY)
+    values["expect_id"] = check.text("expect_id", default="", allow_empty=True)
+    values["calibration_due"] = check.date("calibration_due")
+    values["timeout_ms"] = check.integer("timeout_ms", DEFAULT_TIMEOUT_MS, 1, 3_600_000)
+    values["chunk_size"] = check.integer("chunk_size", DEFAULT_CHUNK_SIZE, 1024, 1 << 30)
+    values["read_termination"] = check.termination("read_termination")
+    values["write_termination"] = check.termination("write_termination")
+    values["dialect"] = _dialect(role, entry, problems, source, base_dir)
+    if role == "bias":
+        for key in _BIAS_ONLY:
+            values[key] = check.positive(key, required=key != "max_current_uA")
+    if len(problems) > start:
+        return None
+    return InstrumentSpec(**values)
+
+
+def _dialect(
+    role: str, entry: Mapping, problems: list[Problem], source: str, base_dir: Path | None
+) -> str:
+    name = entry.get("dialect", GENERIC)
+    where = _where(entry, "dialect", source)
+    if not isinstance(name, str) or not name.strip():
+        problems.append(
+            Problem(where, f"{role}: dialect must be 'generic' or the path of a dialect file")
+        )
+        return GENERIC
+    is_path = name.endswith((".yaml", ".yml")) or "/" in name or "\\" in name
+    path = Path(name) if is_path else shipped_dialect_path(name)
+    if is_path and not path.is_absolute() and base_dir is not None:
+        path = base_dir / path
+    if not path.is_file():
+        problems.append(Problem(where, f"{role}: dialect {name!r} not found ({path})"))
+        return name
+    try:
+        load_dialect(path)
+    except ConfigError as exc:
+        problems.extend(exc.problems)
+    return str(path) if is_path else name
+
+
+class _Checker:
+    """Reads typed values out of one instrument entry, recording located problems."""
+
+    def __init__(self, role: str, entry: Mapping, problems: list[Problem], source: str) -> None:
+        self.role, self.entry, self.problems, self.source = role, entry, problems, source
+
+    def _bad(self, key: str, message: str) -> None:
+        self.problems.append(
+            Problem(_where(self.entry, key, self.source), f"{self.role}: {key} {message}")
+        )
+
+    def text(
+        self, key: str, *, required: bool = False, default: str = "", allow_empty: bool = False
+    ) -> str:
+        if key not in self.entry:
+            if required:
+                self.problems.append(
+                    Problem(_where(self.entry, None, self.source), f"{self.role}: missing '{key}:'")
+                )
+            return default
+        value = self.entry[key]
+        if value is None and allow_empty:
+            return ""
+        if not isinstance(value, str) or (not allow_empty and not value.strip()):
+            self._bad(key, "must be a non-empty string" if not allow_empty else "must be a string")
+            return default
+        return value.strip()
+
+    def integer(self, key: str, default: int, low: int, high: int) -> int:
+        value = self.entry.get(key, default)
+        if not isinstance(value, int) or isinstance(value, bool) or not low <= value <= high:
+            self._bad(key, f"must be an integer from {low} to {high}, got {value!r}")
+            return default
+        return value
+
+    def positive(self, key: str, *, required: bool) -> float | None:
+        if key not in self.entry:
+            if required:
+                self.problems.append(
+                    Problem(
+                        _where(self.entry, None, self.source),
+                        f"{self.role}: missing '{key}:' (a safety limit the bias supply needs)",
+                    )
+                )
+            return None
+        value = self.entry[key]
+        if not isinstance(value, int | float) or isinstance(value, bool) or not value > 0:
+            self._bad(key, f"must be a positive number, got {value!r}")
+            return None
+        return float(value)
+
+    def date(self, key: str) -> dt.date | None:
+        value = self.entry.get(key)
+        if value is None or value == "":
+            return None
+        if isinstance(value, dt.datetime):
+            return value.date()
+        if isinstance(value, dt.date):
+            return value
+        if isinstance(value, str):
+            try:
+                return dt.date.fromisoformat(value.strip())
+            except ValueError:
+                pass
+        self._bad(key, f"must be a date YYYY-MM-DD, got {value!r}")
+        return None
+
+    def termination(self, key: str) -> str:
+        value = self.entry.get(key, "\n")
+        if isinstance(value, str):
+            value = _TERMINATIONS.get(value.strip() if value.strip() else value, value)
+        if not isinstance(value, str) or not value or len(value) > 2:
+            self._bad(
+                key,
+                f'must be one or two characters such as "\\n", LF, CR or CRLF, got {value!r} (without a read termination every query times out)',
+            )
+            return "\n"
+        return value
+
+
+def _where(data: Any, key: Any, source: str, *, of_key: bool = False) -> Location:
+    if isinstance(data, YamlMap):
+        return data.where(key, of_key=of_key)
+    return Location(source, 1, 1)
+
+
+def _unknown(
+    data: Mapping, allowed: tuple[str, ...], what: str, problems: list[Problem], source: str
+) -> None:
+    for key in data:
+        if key not in allowed:
+            close = difflib.get_close_matches(str(key), allowed, n=1)
+            hint = (
+                f" (did you mean {close[0]!r}?)"
+                if close
+                else f" (expected one of: {', '.join(allowed)})"
+            )
+            problems.append(
+                Problem(_where(data, key, source, of_key=True), f"unknown {what} {key!r}{hint}")
+            )

@@ -1,0 +1,20 @@
+"""One driver per bench role, each over a :class:`drivers.scpi.session.ScpiSession` and a dialect."""
+
+from drivers.roles.bias import BiasSupply
+from drivers.roles.counter import Counter
+from drivers.roles.pulser import Pulser
+from drivers.roles.scope import Scope
+from drivers.roles.switch import Switch
+from drivers.roles.threshold import ThresholdDac
+
+#: Role name (as in the bench file) -> driver class.
+ROLE_CLASSES = {
+    "pulser": Pulser,
+    "scope": Scope,
+    "threshold": ThresholdDac,
+    "counter": Counter,
+    "bias": BiasSupply,
+    "switch": Switch,
+}
+
+__all__ = ["ROLE_CLASSES", "BiasSupply", "Counter", "Pulser", "Scope", "Switch", "ThresholdDac"]

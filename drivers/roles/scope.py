@@ -1,0 +1,142 @@
+"""Oscilloscope / digitizer: input ranges, time base, trigger, averaging, calibrated traces.
+
+Traces travel as binary blocks (``FORMat:DATA INTeger,16`` with ``FORMat:BORDer NORMal``, sent once
+when the scope is opened) and are calibrated with ``TRACe:PREamble?``:
+``x_increment_s, x_origin_s, y_increment_V, y_origin_V, points, averages``;
+``volts = code * y_increment + y_origin``, ``t = x_origin + i * x_increment``.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from drivers.dialect import Dialect
+from drivers.errors import ProtocolError
+from drivers.roles.base import RoleDriver, check_finite, check_range, check_word
+from drivers.scpi.blocks import numpy_dtype
+from drivers.scpi.session import ScpiSession
+from drivers.trace import Trace
+
+if TYPE_CHECKING:
+    from drivers.benchfile import InstrumentSpec
+
+MAX_INPUT = 64
+PREAMBLE_FIELDS = (
+    "x_increment_s",
+    "x_origin_s",
+    "y_increment_V",
+    "y_origin_V",
+    "points",
+    "averages",
+)
+
+
+class Scope(RoleDriver):
+    """Ranges and levels in mV, times in ns, rates in Hz; traces in volts with their time base."""
+
+    role = "scope"
+
+    def __init__(
+        self, session: ScpiSession, dialect: Dialect, spec: InstrumentSpec | None = None
+    ) -> None:
+        super().__init__(session, dialect, spec)
+        if dialect.has("common", "byte_order"):
+            session.write(dialect.command("common", "byte_order"))
+        self._write("set_data_format", kind=dialect.binary.data_format)
+
+    def set_input(self, input: int, *, range_mV: float, offset_mV: float = 0.0) -> None:
+        """Full-scale range (±range/2) and offset of one input, in mV."""
+        n = _input(input)
+        span = check_range("range_mV", range_mV, 0.0, 1e6)
+        if span <= 0:
+            raise ValueError("range_mV must be above 0")
+        self._write("set_range", input=n, volts=span * 1e-3)
+        self._write("set_offset", input=n, volts=check_finite("offset_mV", offset_mV) * 1e-3)
+
+    def set_timebase(
+        self, *, sample_rate_hz: float, points: int, pretrigger_ns: float = 0.0
+    ) -> None:
+        """Sample rate, record length and the pre-trigger time (the first sample is at -pretrigger)."""
+        rate = check_range("sample_rate_hz", sample_rate_hz, 0.0, 1e12)
+        if rate <= 0:
+            raise ValueError("sample_rate_hz must be above 0")
+        if int(points) != points or not 1 <= points <= 1 << 28:
+            raise ValueError(f"points={points!r} must be a whole number from 1")
+        self._write("set_sample_rate", hertz=rate)
+        self._write("set_points", count=int(points))
+        self._write(
+            "set_trigger_delay",
+            seconds=check_range("pretrigger_ns", pretrigger_ns, 0.0, 1e12) * 1e-9,
+        )
+
+    def sample_rate_hz(self) -> float:
+        return float(self._query("get_sample_rate"))
+
+    def set_trigger(self, source: str, level_mV: float = 0.0) -> None:
+        """Trigger source (``EXTernal``, ``CHANnel1``..., ``IMMediate``) and level in mV."""
+        self._write("set_trigger_source", source=check_word("source", source))
+        self._write("set_trigger_level", volts=check_finite("level_mV", level_mV) * 1e-3)
+
+    def set_averages(self, count: int) -> None:
+        """Acquisitions averaged per record (1 = none)."""
+        if int(count) != count or not 1 <= count <= 1 << 20:
+            raise ValueError(f"count={count!r} must be a whole number from 1")
+        self._write("set_average_count", count=int(count))
+
+    def acquire(self) -> None:
+        """Start one acquisition (with its averages) and wait until it is complete (``*OPC?``)."""
+        with self.session.lock:
+            self._write("acquire", reapply=False)
+            self.session.wait_complete()
+
+    def fetch(self, input: int) -> Trace:
+        """The last record of ``input`` as a calibrated trace in volts."""
+        n = _input(input)
+        binary = self.dialect.binary
+        with self.session.lock:
+            pre = self._query("preamble", input=n)
+            payload = self.session.query_block_bytes(self._command("fetch", input=n))
+        dtype = numpy_dtype(binary.kind, binary.big_endian)
+        if len(payload) % dtype.itemsize:
+            raise ProtocolError(
+                f"CHAN{n}: block of {len(payload)} bytes is not a whole number of {binary.kind}",
+                address=self.address,
+            )
+        # A view in the wire's byte order: calibration converts and swaps in one pass.
+        codes = np.frombuffer(payload, dtype=dtype)
+        return calibrated_trace(codes, pre, source=f"CHAN{n}")
+
+    def capture(self, inputs: Sequence[int]) -> list[Trace]:
+        """Acquire once, then fetch each of ``inputs``."""
+        numbers = [_input(i) for i in inputs]
+        with self.session.lock:
+            self.acquire()
+            return [self.fetch(i) for i in numbers]
+
+
+def calibrated_trace(codes: np.ndarray, preamble: Sequence[float], *, source: str) -> Trace:
+    """Apply the preamble (see the module docstring) to raw codes."""
+    if len(preamble) < len(PREAMBLE_FIELDS):
+        raise ProtocolError(
+            f"TRACe:PREamble? gave {len(preamble)} fields, expected {', '.join(PREAMBLE_FIELDS)}"
+        )
+    dx, x0, dy, y0, points, averages = (float(v) for v in preamble[:6])
+    if int(points) != len(codes):
+        raise ProtocolError(
+            f"{source}: preamble announces {int(points)} points, the block holds {len(codes)}"
+        )
+    if not dx > 0:
+        raise ProtocolError(f"{source}: preamble x_increment {dx!r} is not positive")
+    volts = codes.astype(np.float64)  # one new array (swapped from the wire order if need be)
+    volts *= dy
+    volts += y0
+    return Trace(volts=volts, dt_s=dx, t0_s=x0, source=source, averages=max(1, int(averages)))
+
+
+def _input(input: int) -> int:
+    if int(input) != input or not 1 <= input <= MAX_INPUT:
+        raise ValueError(f"input={input!r} must be 1..{MAX_INPUT}")
+    return int(input)

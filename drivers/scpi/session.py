@@ -1,0 +1,413 @@
+"""The SCPI layer above a transport: messages, numbers, binary blocks, the error queue, recovery.
+
+* ``write`` sends a configuring command and then drains the error queue (``SYSTem:ERRor:NEXT?`` until
+  ``0,...``); a non-zero entry raises :class:`InstrumentError` naming the command, code and message.
+* ``query_block`` reads an IEEE 488.2 block itself: the header, then exactly the declared bytes with
+  the termination character off, then the trailing terminator -- never ``query_binary_values``.
+* After a timeout or a garbled reply the input is out of step: the next call drains it and
+  resynchronises (``*CLS``, ``*OPC?``) first.  Queries and settings are retried once after that;
+  actions (trigger, initiate, output on) never are.  A dropped link is reopened (bounded, by the
+  transport) and the cached settings re-applied -- outputs are never switched on again by this layer.
+* One re-entrant lock per instrument: every public method holds it, and a role holds it around a
+  compound operation (``with session.lock:``), so two threads never interleave on one link.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import threading
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass
+from types import TracebackType
+from typing import Protocol, TypeVar
+
+import numpy as np
+
+from drivers.errors import (
+    ConnectionClosed,
+    ConnectionRefused,
+    InstrumentError,
+    InstrumentTimeout,
+    ProtocolError,
+    TransportError,
+)
+from drivers.scpi.blocks import MAX_BLOCK_BYTES, decode_payload, parse_block_header
+
+DEFAULT_OPC_TIMEOUT_MS = 10_000
+DEFAULT_RETRIES = 1
+#: More entries than this in the error queue means the instrument is not answering the query sanely.
+MAX_ERROR_ENTRIES = 64
+
+T = TypeVar("T")
+
+
+class Transport(Protocol):
+    """What the SCPI layer needs from a link (``drivers.transport.VisaTransport`` or a test script)."""
+
+    address: str
+    timeout_ms: int
+
+    @property
+    def read_termination(self) -> str: ...
+    def write(self, text: str) -> None: ...
+    def read(self) -> bytes: ...
+    def read_bytes(self, n: int) -> bytes: ...
+    def more_pending(self, wait_s: float = ...) -> bool: ...
+    def drain(self) -> None: ...
+    def reconnect(self) -> None: ...
+    def close(self) -> None: ...
+
+
+@dataclass(frozen=True)
+class Identity:
+    """The four fields of an IEEE 488.2 ``*IDN?`` reply (§4.1.3.6, from memory), and the raw text."""
+
+    maker: str
+    model: str
+    serial: str
+    firmware: str
+    raw: str
+
+    def __str__(self) -> str:
+        return f"{self.maker} {self.model} (serial {self.serial}, firmware {self.firmware})"
+
+
+def parse_identity(reply: str) -> Identity:
+    """Split ``maker,model,serial,firmware``; missing fields are empty, extra commas stay in firmware."""
+    text = reply.strip()
+    if not text:
+        raise ProtocolError("empty *IDN? reply")
+    fields = [f.strip() for f in text.split(",", 3)]
+    fields += [""] * (4 - len(fields))
+    return Identity(
+        maker=fields[0], model=fields[1], serial=fields[2], firmware=fields[3], raw=text
+    )
+
+
+def parse_error_entry(reply: str) -> tuple[int, str]:
+    """``-113,"Undefined header"`` -> ``(-113, "Undefined header")`` (SCPI-1999 SYSTem:ERRor format)."""
+    code_text, sep, message = reply.strip().partition(",")
+    try:
+        code = int(code_text.strip())
+    except ValueError:
+        raise ProtocolError(f"error queue reply {reply!r} does not start with a number") from None
+    message = message.strip()
+    if len(message) >= 2 and message[0] == message[-1] == '"':
+        message = message[1:-1].replace('""', '"')
+    return code, message if sep else ""
+
+
+def header_of(command: str) -> str:
+    """The program header of a command (up to the first space), upper-cased: the settings-cache key."""
+    return command.strip().split(" ", 1)[0].upper()
+
+
+class ScpiSession:
+    """One instrument spoken to in SCPI over a :class:`Transport`."""
+
+    def __init__(
+        self,
+        transport: Transport,
+        *,
+        check_errors: bool = True,
+        opc_timeout_ms: int = DEFAULT_OPC_TIMEOUT_MS,
+        retries: int = DEFAULT_RETRIES,
+        error_query: str = "SYSTem:ERRor:NEXT?",
+        clear_command: str = "*CLS",
+        opc_query: str = "*OPC?",
+        max_block_bytes: int = MAX_BLOCK_BYTES,
+    ) -> None:
+        self.transport = transport
+        self.check_errors = check_errors
+        self.opc_timeout_ms = opc_timeout_ms
+        self.retries = retries
+        self.error_query = error_query
+        self.clear_command = clear_command
+        self.opc_query = opc_query
+        self.max_block_bytes = max_block_bytes
+        self.lock = threading.RLock()
+        self._settings: dict[str, str] = {}
+        self._out_of_step = False
+        self._link_lost = False
+        #: How often the link was reopened / the input resynchronised (for logs and tests).
+        self.reconnects = 0
+        self.resyncs = 0
+
+    @property
+    def address(self) -> str:
+        return self.transport.address
+
+    # -- public verbs ----------------------------------------------------------------------------
+    def write(self, command: str, *, reapply: bool = True, key: str | None = None) -> None:
+        """Send a configuring command, then check the error queue.
+
+        ``reapply``: remember it (under ``key``, default its header) to re-send after a reconnect, and
+        retry it once after a link failure; pass ``False`` for actions (``*TRG``, ``INIT``, output on).
+        """
+        with self.lock:
+            self._call(lambda: self._write_checked(command), retry=reapply)
+            if reapply:
+                self._settings[key or header_of(command)] = command
+
+    def forget(self, prefix: str) -> None:
+        """Drop cached settings whose key starts with ``prefix`` (e.g. after ``ROUTe:OPEN:ALL``)."""
+        with self.lock:
+            for k in [k for k in self._settings if k.startswith(prefix)]:
+                del self._settings[k]
+
+    @property
+    def cached_settings(self) -> list[str]:
+        """The commands re-applied after a reconnect, in order."""
+        with self.lock:
+            return list(self._settings.values())
+
+    def query(self, command: str, *, timeout_ms: int | None = None, retry: bool = True) -> str:
+        """Send a query and return its reply as text (terminator stripped)."""
+        with self.lock:
+            return self._call(lambda: self._ask(command, timeout_ms), retry=retry)
+
+    def query_float(self, command: str, *, timeout_ms: int | None = None) -> float:
+        return self.query_parsed(command, _to_float, timeout_ms=timeout_ms)
+
+    def query_int(self, command: str, *, timeout_ms: int | None = None) -> int:
+        return self.query_parsed(command, _to_int, timeout_ms=timeout_ms)
+
+    def query_bool(self, command: str, *, timeout_ms: int | None = None) -> bool:
+        return self.query_parsed(command, _to_bool, timeout_ms=timeout_ms)
+
+    def query_csv(self, command: str, *, timeout_ms: int | None = None) -> list[float]:
+        return self.query_parsed(command, _to_csv, timeout_ms=timeout_ms)
+
+    def query_parsed(
+        self, command: str, parse: Callable[[str], T], *, timeout_ms: int | None = None
+    ) -> T:
+        """Query and parse; a garbled reply puts the session out of step and is retried once."""
+
+        def once() -> T:
+            reply = self._ask(command, timeout_ms)
+            try:
+                return parse(reply)
+            except ValueError as exc:
+                raise ProtocolError(
+                    f"garbled reply {reply!r}: {exc}", address=self.address, command=command
+                ) from None
+
+        with self.lock:
+            return self._call(once, retry=True)
+
+    def query_block(
+        self,
+        command: str,
+        *,
+        kind: str = "int16",
+        big_endian: bool = True,
+        timeout_ms: int | None = None,
+    ) -> np.ndarray:
+        """Query an IEEE 488.2 binary block (``#<n><len>`` or ``#0``) straight into a numpy array
+        (native byte order)."""
+        payload = self.query_block_bytes(command, timeout_ms=timeout_ms)
+        try:
+            return decode_payload(payload, kind=kind, big_endian=big_endian)
+        except ProtocolError as exc:
+            raise ProtocolError(str(exc), address=self.address, command=command) from None
+
+    def query_block_bytes(self, command: str, *, timeout_ms: int | None = None) -> bytes:
+        """The data bytes of a binary block reply (header and terminator consumed), undecoded."""
+        with self.lock:
+            return self._call(lambda: self._ask_block(command, timeout_ms), retry=True)
+
+    def identify(self) -> Identity:
+        """``*IDN?`` parsed into maker, model, serial and firmware."""
+        return parse_identity(self.query("*IDN?"))
+
+    def wait_complete(self, timeout_ms: int | None = None) -> None:
+        """Block until pending operations finish (``*OPC?``), with its own timeout."""
+        with self.lock:
+            self._call(lambda: self._sync(timeout_ms or self.opc_timeout_ms), retry=True)
+
+    def errors(self) -> list[tuple[int, str]]:
+        """Drain the error queue; ``[]`` when it holds only ``0,"No error"``."""
+        with self.lock:
+            return self._call(self._drain_errors, retry=True)
+
+    def resynchronise(self) -> None:
+        """Discard stray input, clear status (``*CLS``) and wait for ``*OPC?``."""
+        with self.lock:
+            self._resync()
+
+    def close(self) -> None:
+        with self.lock:
+            self.transport.close()
+
+    def __enter__(self) -> ScpiSession:
+        return self
+
+    def __exit__(
+        self,
+        exc_type: type[BaseException] | None,
+        exc: BaseException | None,
+        tb: TracebackType | None,
+    ) -> None:
+        self.close()
+
+    # -- recovery --------------------------------------------------------------------------------
+    def _call(self, op: Callable[[], T], *, retry: bool) -> T:
+        self._recover_if_needed()
+        attempts = 1 + (max(0, self.retries) if retry else 0)
+        for attempt in range(attempts):
+            try:
+                return op()
+            except (InstrumentTimeout, ProtocolError):
+                self._out_of_step = True
+                if attempt == attempts - 1:
+                    raise
+            except (ConnectionClosed, ConnectionRefused):
+                self._link_lost = True
+                if attempt == attempts - 1:
+                    raise
+            self._recover_if_needed()
+        raise AssertionError("unreachable")  # pragma: no cover
+
+    def _recover_if_needed(self) -> None:
+        if self._link_lost:
+            self.transport.reconnect()
+            self.reconnects += 1
+            self._link_lost = False
+            self._out_of_step = True
+            self._resync()
+            for command in list(self._settings.values()):
+                self._write_checked(command)
+        elif self._out_of_step:
+            self._resync()
+
+    def _resync(self) -> None:
+        self.resyncs += 1
+        self.transport.drain()
+        self._send(self.clear_command)
+        self._sync(self.opc_timeout_ms)
+        self._out_of_step = False
+
+    # -- wire ------------------------------------------------------------------------------------
+    def _send(self, command: str) -> None:
+        self.transport.write(command)
+
+    def _ask(self, command: str, timeout_ms: int | None = None) -> str:
+        with self._timeout(timeout_ms):
+            self._send(command)
+            return self.transport.read().decode("ascii", "replace").strip()
+
+    def _sync(self, timeout_ms: int) -> None:
+        reply = self._ask(self.opc_query, timeout_ms)
+        if reply.strip() not in ("1", "+1"):
+            raise ProtocolError(
+                f"{self.opc_query} replied {reply!r}, expected 1", address=self.address
+            )
+
+    def _write_checked(self, command: str) -> None:
+        self._send(command)
+        if not self.check_errors:
+            return
+        entries = self._drain_errors()
+        if entries:
+            code, message = entries[0]
+            error = InstrumentError(code, message, address=self.address, command=command)
+            error.queued = entries  # type: ignore[attr-defined]  # every entry drained, in order
+            raise error
+
+    def _drain_errors(self) -> list[tuple[int, str]]:
+        entries: list[tuple[int, str]] = []
+        for _ in range(MAX_ERROR_ENTRIES):
+            code, message = parse_error_entry(self._ask(self.error_query))
+            if code == 0:
+                return entries
+            entries.append((code, message))
+        raise ProtocolError(
+            f"error queue still not empty after {MAX_ERROR_ENTRIES} reads", address=self.address
+        )
+
+    def _ask_block(self, command: str, timeout_ms: int | None) -> bytes:
+        with self._timeout(timeout_ms):
+            self._send(command)
+            head = self.transport.read_bytes(2)
+            for _ in range(8):  # tolerate a little whitespace before '#'
+                if head[:1] not in (b" ", b"\r", b"\n", b"\t"):
+                    break
+                head = head[1:] + self.transport.read_bytes(1)
+            if head[:1] != b"#" or not head[1:2].isdigit():
+                raise ProtocolError(
+                    f"binary block must start with '#<digit>', got {head!r}",
+                    address=self.address,
+                    command=command,
+                )
+            ndigits = int(head[1:2])
+            if ndigits == 0:
+                return self._read_indefinite(command)
+            header = head + self.transport.read_bytes(ndigits)
+            try:
+                _, length = parse_block_header(header, max_bytes=self.max_block_bytes)
+            except ProtocolError as exc:
+                raise ProtocolError(str(exc), address=self.address, command=command) from None
+            assert length is not None
+            payload = self.transport.read_bytes(length)
+            rest = self.transport.read()
+            if rest.strip(b"\r\n"):
+                raise ProtocolError(
+                    f"{len(rest)} unexpected bytes after the binary block",
+                    address=self.address,
+                    command=command,
+                )
+            return payload
+
+    def _read_indefinite(self, command: str) -> bytes:
+        """``#0`` data runs to the message terminator; a terminator byte followed at once by more
+        data is part of the data (a real instrument sends the block in one go)."""
+        term = self.transport.read_termination.encode("ascii")
+        data = bytearray(self.transport.read())
+        while self.transport.more_pending():
+            data += term + self.transport.read()
+            if len(data) > self.max_block_bytes:
+                raise ProtocolError(
+                    f"indefinite block above the cap of {self.max_block_bytes} bytes",
+                    address=self.address,
+                    command=command,
+                )
+        return bytes(data)
+
+    @contextlib.contextmanager
+    def _timeout(self, timeout_ms: int | None) -> Iterator[None]:
+        if timeout_ms is None:
+            yield
+            return
+        before = self.transport.timeout_ms
+        self.transport.timeout_ms = int(timeout_ms)
+        try:
+            yield
+        finally:
+            with contextlib.suppress(TransportError):
+                self.transport.timeout_ms = before
+
+
+def _to_float(text: str) -> float:
+    return float(text.strip())
+
+
+def _to_int(text: str) -> int:
+    with contextlib.suppress(ValueError):
+        return int(text.strip())
+    value = float(text.strip())
+    if not value.is_integer():
+        raise ValueError("not an integer")
+    return int(value)
+
+
+def _to_bool(text: str) -> bool:
+    word = text.strip().upper()
+    if word in ("1", "+1", "ON"):
+        return True
+    if word in ("0", "+0", "OFF"):
+        return False
+    raise ValueError("expected 1/0 or ON/OFF")
+
+
+def _to_csv(text: str) -> list[float]:
+    return [float(part) for part in text.strip().split(",") if part.strip()]

@@ -1,0 +1,93 @@
+"""Message and byte reads on a TCP socket that a pyvisa-py SOCKET session owns.
+
+Used by :mod:`drivers.transport` for the fast path: the bytes pyvisa-py has already received (its
+pending buffer, a ``bytearray``) are consumed first and kept consistent, so pyvisa's own reads and these
+can follow each other.  Errors are the built-in ``TimeoutError`` and ``ConnectionResetError``; the
+transport maps them to ours with the address attached.  Every wait is bounded by a deadline.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import select
+import socket
+import time
+
+RECV_SIZE = 65536
+_DONTWAIT = getattr(socket, "MSG_DONTWAIT", 0)
+
+
+def peer_closed(sock: socket.socket | None) -> bool:
+    """True when the peer has closed: the socket is readable and a peek returns end-of-file."""
+    if sock is None:
+        return False
+    try:
+        ready, _, _ = select.select([sock], [], [], 0)
+        return bool(ready) and sock.recv(1, socket.MSG_PEEK) == b""
+    except (OSError, ValueError):
+        return True
+
+
+def send_all(sock: socket.socket, data: bytes, timeout_s: float) -> None:
+    """Send every byte of ``data`` or raise ``TimeoutError``."""
+    view = memoryview(data)
+    if _DONTWAIT:  # one system call when the send buffer has room (the usual case)
+        with contextlib.suppress(BlockingIOError):
+            view = view[sock.send(view, _DONTWAIT) :]
+    deadline = time.monotonic() + timeout_s
+    while view:
+        _, ready, _ = select.select([], [sock], [], _remaining(deadline))
+        if not ready:
+            raise TimeoutError(f"could not send within {timeout_s * 1000:.0f} ms")
+        view = view[sock.send(view) :]
+
+
+def receive_message(
+    pending: bytearray, sock: socket.socket, term: bytes, timeout_s: float, max_bytes: int
+) -> bytes:
+    """Bytes up to and including the terminator byte ``term``; the rest stays in ``pending``."""
+    deadline = time.monotonic() + timeout_s
+    searched = 0
+    while True:
+        at = pending.find(term, searched)
+        if at >= 0:
+            message = bytes(pending[: at + 1])
+            del pending[: at + 1]
+            return message
+        searched = len(pending)
+        if searched > max_bytes:
+            raise ConnectionResetError(f"reply longer than {max_bytes} bytes without a terminator")
+        _wait_readable(sock, deadline, timeout_s, f"no reply within {timeout_s * 1000:.0f} ms")
+        chunk = sock.recv(RECV_SIZE)
+        if not chunk:
+            raise ConnectionResetError("the instrument closed the link")
+        pending += chunk
+
+
+def receive_exactly(pending: bytearray, sock: socket.socket, n: int, timeout_s: float) -> bytearray:
+    """Exactly ``n`` bytes, received straight into one buffer (no termination character)."""
+    buffer = bytearray(n)
+    view = memoryview(buffer)
+    got = min(len(pending), n)
+    view[:got] = pending[:got]
+    del pending[:got]
+    deadline = time.monotonic() + timeout_s
+    while got < n:
+        _wait_readable(sock, deadline, timeout_s, f"got {got} of {n} bytes")
+        count = sock.recv_into(view[got:], n - got)
+        if count == 0:
+            raise ConnectionResetError(f"the instrument closed the link after {got} of {n} bytes")
+        got += count
+    return buffer
+
+
+def _wait_readable(sock: socket.socket, deadline: float, timeout_s: float, what: str) -> None:
+    ready, _, _ = select.select([sock], [], [], _remaining(deadline))
+    if not ready:
+        raise TimeoutError(
+            f"{what} within {timeout_s * 1000:.0f} ms" if "within" not in what else what
+        )
+
+
+def _remaining(deadline: float) -> float:
+    return max(0.0, deadline - time.monotonic())

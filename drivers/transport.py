@@ -1,0 +1,390 @@
+"""The link to one instrument: a VISA resource opened through pyvisa (the only module importing it).
+
+The contract above this module is tiny -- ``write(text)``, ``read() -> bytes``, ``read_bytes(n)``,
+``drain()``, ``more_pending()``, ``reconnect()``, ``close()`` and a context manager -- so the SCPI
+layer can be tested over a scripted transport.
+
+Facts of pyvisa 1.16 / pyvisa-py 0.8 handled here:
+
+* pyvisa-py leaves Nagle's algorithm on, so a write followed by a query stalls ~40 ms on the peer's
+  delayed ACK; its ``VI_ATTR_TCPIP_NODELAY`` setter is not wired, so TCP_NODELAY is set on the
+  session's socket (``visalib.sessions[session].interface``).
+* A refused connection is not reported at open (non-blocking connect); the socket's ``SO_ERROR`` is
+  checked right after opening so it surfaces here, with the address.
+* A peer that closed shows only as a timeout in pyvisa-py; the socket is peeked for end-of-file before
+  each write and after a timeout, so it is reported as :class:`ConnectionClosed`.
+* ``read_bytes`` with the termination character enabled ends a low-level read at every 0x0A byte of
+  binary data; it runs here with the termination character off.
+* Fast path (``socket_fast_path``, on by default): on a pyvisa-py SOCKET session, messages and blocks
+  are sent and received on the session's socket by :mod:`drivers.sockio`, sharing pyvisa-py's pending
+  buffer.  pyvisa still resolves and opens the address and owns the session.  Measured on loopback
+  (tests/benchmarks/bench_drivers.py): a 2 MB block is received straight into one buffer instead of
+  copied once per layer, and a write + query costs about half as much Python time.  Other backends
+  and INSTR resources go through pyvisa's ``write`` / ``read_raw`` / ``read_bytes``.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import errno
+import os
+import select
+import socket
+import time
+from collections.abc import Iterator
+from dataclasses import dataclass
+from types import TracebackType
+from typing import Any
+
+import pyvisa
+from pyvisa import constants
+from pyvisa.errors import InvalidSession, VisaIOError
+
+from drivers import sockio
+from drivers.errors import ConnectionClosed, ConnectionRefused, InstrumentTimeout, TransportError
+
+DEFAULT_VISA_LIBRARY = "@py"
+DEFAULT_TIMEOUT_MS = 5000
+DEFAULT_CHUNK_SIZE = 1 << 20
+DEFAULT_RECONNECT_ATTEMPTS = 3
+DEFAULT_RECONNECT_BACKOFF_S = 0.2
+#: A text reply longer than this without its terminator is refused (binary data uses read_bytes).
+MAX_MESSAGE_BYTES = 16 * 1024 * 1024
+
+_TIMEOUT_CODES = {constants.StatusCode.error_timeout}
+_CLOSED_CODES = {
+    constants.StatusCode.error_connection_lost,
+    constants.StatusCode.error_io,
+    constants.StatusCode.error_invalid_object,
+}
+_REFUSED_CODES = {
+    constants.StatusCode.error_resource_not_found,
+    constants.StatusCode.error_resource_busy,
+}
+
+
+@dataclass(frozen=True, kw_only=True)
+class TransportSettings:
+    """How one instrument's link is opened (all per instrument, from the bench file)."""
+
+    visa_library: str = DEFAULT_VISA_LIBRARY
+    timeout_ms: int = DEFAULT_TIMEOUT_MS
+    read_termination: str = "\n"
+    write_termination: str = "\n"
+    chunk_size: int = DEFAULT_CHUNK_SIZE
+    reconnect_attempts: int = DEFAULT_RECONNECT_ATTEMPTS
+    reconnect_backoff_s: float = DEFAULT_RECONNECT_BACKOFF_S
+    #: On pyvisa-py SOCKET sessions, send and receive on the session's socket directly (see above).
+    socket_fast_path: bool = True
+
+
+class VisaTransport:
+    """One open VISA resource; every pyvisa and socket error leaves as a :class:`TransportError`."""
+
+    def __init__(self, address: str, settings: TransportSettings, resource: Any) -> None:
+        self.address = address
+        self.settings = settings
+        self._resource: Any = resource
+        self._last_command = ""  # attached to errors of the reads that follow it
+        self._timeout_ms = int(settings.timeout_ms)
+
+    # -- opening -------------------------------------------------------------------------------
+    @classmethod
+    def open(
+        cls,
+        address: str,
+        *,
+        visa_library: str = DEFAULT_VISA_LIBRARY,
+        timeout_ms: int = DEFAULT_TIMEOUT_MS,
+        read_termination: str = "\n",
+        write_termination: str = "\n",
+        chunk_size: int = DEFAULT_CHUNK_SIZE,
+        reconnect_attempts: int = DEFAULT_RECONNECT_ATTEMPTS,
+        reconnect_backoff_s: float = DEFAULT_RECONNECT_BACKOFF_S,
+        socket_fast_path: bool = True,
+    ) -> VisaTransport:
+        """Open ``address`` (e.g. ``TCPIP0::127.0.0.1::5025::SOCKET``) on ``visa_library``."""
+        settings = TransportSettings(
+            visa_library=visa_library,
+            timeout_ms=timeout_ms,
+            read_termination=read_termination,
+            write_termination=write_termination,
+            chunk_size=chunk_size,
+            reconnect_attempts=reconnect_attempts,
+            reconnect_backoff_s=reconnect_backoff_s,
+            socket_fast_path=socket_fast_path,
+        )
+        return cls(address, settings, _open_resource(address, settings))
+
+    @property
+    def read_termination(self) -> str:
+        return self.settings.read_termination
+
+    @property
+    def timeout_ms(self) -> int:
+        """The current I/O timeout in milliseconds (kept here and on the VISA resource)."""
+        return self._timeout_ms
+
+    @timeout_ms.setter
+    def timeout_ms(self, value: int) -> None:
+        self._live().timeout = int(value)
+        self._timeout_ms = int(value)
+
+    # -- I/O -----------------------------------------------------------------------------------
+    def write(self, text: str) -> None:
+        """Send one message; the write termination is appended.
+
+        On the pyvisa path a closed peer is looked for first (pyvisa-py would only show it as a
+        timeout); on the fast path the next read sees end-of-file at once.
+        """
+        resource = self._live()
+        link = self._fast_link(resource)
+        if link is None and _peer_closed(_socket_of(resource)):
+            raise ConnectionClosed(
+                "the instrument closed the link", address=self.address, command=text
+            )
+        self._last_command = text
+        with self._mapped(text):
+            if link is None:
+                resource.write(text)
+            else:
+                data = (text + self.settings.write_termination).encode("ascii")
+                sockio.send_all(link[1], data, self._timeout_ms / 1000.0)
+
+    def read(self) -> bytes:
+        """One message up to the read termination, the terminator stripped."""
+        resource = self._live()
+        term = self.settings.read_termination.encode("ascii")
+        link = self._fast_link(resource) if term else None  # no terminator: pyvisa reads to END
+        with self._mapped(self._last_command):
+            if link is None:
+                data = resource.read_raw()
+            else:
+                pending, sock = link
+                data = sockio.receive_message(
+                    pending, sock, term[-1:], self._timeout_ms / 1000.0, MAX_MESSAGE_BYTES
+                )
+        if term and data.endswith(term):
+            data = data[: -len(term)]
+        return data
+
+    def read_bytes(self, n: int) -> bytes:
+        """Exactly ``n`` raw bytes, with the termination character off (binary data)."""
+        if n <= 0:
+            return b""
+        resource = self._live()
+        link = self._fast_link(resource)
+        with self._mapped(self._last_command):
+            if link is not None:
+                pending, sock = link
+                return sockio.receive_exactly(pending, sock, n, self._timeout_ms / 1000.0)  # type: ignore[return-value]
+            data = self._pyvisa_read_bytes(resource, n)
+        if len(data) != n:
+            raise InstrumentTimeout(
+                f"expected {n} bytes, got {len(data)}",
+                address=self.address,
+                command=self._last_command,
+            )
+        return data
+
+    def _pyvisa_read_bytes(self, resource: Any, n: int) -> bytes:
+        attr = constants.ResourceAttribute.termchar_enabled
+        resource.set_visa_attribute(attr, constants.VI_FALSE)
+        try:
+            return resource.read_bytes(n, break_on_termchar=False)
+        finally:
+            if self.settings.read_termination:
+                resource.set_visa_attribute(attr, constants.VI_TRUE)
+
+    def _fast_link(self, resource: Any) -> tuple[bytearray, socket.socket] | None:
+        """(pending buffer, socket) of a pyvisa-py SOCKET session, when the fast path is on."""
+        if not self.settings.socket_fast_path:
+            return None
+        session = _pyvisa_py_session(resource)
+        pending = getattr(session, "_pending_buffer", None)
+        sock = getattr(session, "interface", None)
+        if isinstance(pending, bytearray) and isinstance(sock, socket.socket):
+            return pending, sock
+        return None
+
+    def more_pending(self, wait_s: float = 0.005) -> bool:
+        """True when more input is waiting (or arrives within ``wait_s``); best effort."""
+        resource = self._live()
+        session = _pyvisa_py_session(resource)
+        if session is not None and getattr(session, "_pending_buffer", None):
+            return True
+        sock = _socket_of(resource)
+        if sock is None:
+            return False
+        try:
+            ready, _, _ = select.select([sock], [], [], wait_s)
+            return bool(ready) and sock.recv(1, socket.MSG_PEEK) != b""
+        except OSError:
+            return False
+
+    def drain(self) -> None:
+        """Discard any input waiting (a late or partial reply), so the next reply is in step."""
+        resource = self._live()
+        with self._mapped("<clear>"):
+            resource.clear()
+
+    # -- life cycle ----------------------------------------------------------------------------
+    def reconnect(self) -> None:
+        """Close and reopen the link: a bounded number of attempts with doubling back-off."""
+        self._close_resource()
+        attempts = max(1, self.settings.reconnect_attempts)
+        delay = self.settings.reconnect_backoff_s
+        last: TransportError | None = None
+        for attempt in range(attempts):
+            try:
+                self._resource = _open_resource(self.address, self.settings)
+                self._timeout_ms = int(self.settings.timeout_ms)
+                return
+            except TransportError as exc:
+                last = exc
+            if attempt < attempts - 1:
+                time.sleep(delay)
+                delay *= 2
+        assert last is not None
+        raise type(last)(
+            f"reconnect failed after {attempts} attempts ({last.__cause__ or last})",
+            address=self.address,
+        ) from last
+
+    def close(self) -> None:
+        """Close the resource (safe to call twice)."""
+        self._close_resource()
+
+    def __enter__(self) -> VisaTransport:
+        return self
+
+    def __exit__(
+        self,
+        exc_type: type[BaseException] | None,
+        exc: BaseException | None,
+        tb: TracebackType | None,
+    ) -> None:
+        self.close()
+
+    # -- internals -----------------------------------------------------------------------------
+    def _live(self) -> Any:
+        if self._resource is None:
+            raise ConnectionClosed("the link is closed", address=self.address)
+        return self._resource
+
+    def _close_resource(self) -> None:
+        resource, self._resource = self._resource, None
+        if resource is not None:
+            with contextlib.suppress(VisaIOError, InvalidSession, OSError, AttributeError):
+                resource.close()
+
+    @contextlib.contextmanager
+    def _mapped(self, command: str = "") -> Iterator[None]:
+        """Translate pyvisa and OS errors into ours, the address and command attached."""
+        try:
+            yield
+        except VisaIOError as exc:
+            raise self._from_visa(exc, command) from exc
+        except InvalidSession as exc:
+            raise ConnectionClosed(
+                "the VISA session is gone", address=self.address, command=command
+            ) from exc
+        except ConnectionRefusedError as exc:
+            raise ConnectionRefused(
+                f"connection refused ({exc})", address=self.address, command=command
+            ) from exc
+        except TimeoutError as exc:
+            raise InstrumentTimeout(
+                str(exc) or "no reply", address=self.address, command=command
+            ) from exc
+        except OSError as exc:
+            raise ConnectionClosed(
+                f"link failed ({exc})", address=self.address, command=command
+            ) from exc
+
+    def _from_visa(self, exc: VisaIOError, command: str) -> TransportError:
+        code = exc.error_code
+        if code in _TIMEOUT_CODES:
+            if _peer_closed(_socket_of(self._resource)):
+                return ConnectionClosed(
+                    "the instrument closed the link", address=self.address, command=command
+                )
+            return InstrumentTimeout(
+                f"no reply within {self.settings.timeout_ms} ms",
+                address=self.address,
+                command=command,
+            )
+        if code in _CLOSED_CODES:
+            return ConnectionClosed(
+                f"link lost ({exc.abbreviation})", address=self.address, command=command
+            )
+        if code in _REFUSED_CODES:
+            return ConnectionRefused(
+                f"cannot open ({exc.abbreviation})", address=self.address, command=command
+            )
+        return TransportError(
+            f"VISA error {exc.abbreviation}", address=self.address, command=command
+        )
+
+
+def _open_resource(address: str, settings: TransportSettings) -> Any:
+    """Open and configure one resource; refused links are reported here, not at the first write."""
+    try:
+        manager = pyvisa.ResourceManager(settings.visa_library)
+        resource = manager.open_resource(address, open_timeout=settings.timeout_ms)
+    except VisaIOError as exc:
+        raise ConnectionRefused(f"cannot open ({exc.abbreviation})", address=address) from exc
+    except (OSError, ValueError) as exc:
+        raise ConnectionRefused(f"cannot open ({exc})", address=address) from exc
+    except Exception as exc:  # pyvisa-py raises a bare Exception("could not connect: ...")
+        raise ConnectionRefused(f"cannot open ({exc})", address=address) from exc
+    try:
+        resource.timeout = settings.timeout_ms
+        resource.read_termination = settings.read_termination or None
+        resource.write_termination = settings.write_termination
+        resource.chunk_size = settings.chunk_size
+        sock = _socket_of(resource)
+        if sock is not None:
+            _check_connected(sock, address)
+            sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+    except BaseException:
+        with contextlib.suppress(Exception):
+            resource.close()
+        raise
+    return resource
+
+
+def _check_connected(sock: socket.socket, address: str) -> None:
+    error = sock.getsockopt(socket.SOL_SOCKET, socket.SO_ERROR)
+    if error:
+        raise ConnectionRefused(f"connection refused ({_errno_name(error)})", address=address)
+    try:
+        sock.getpeername()
+    except OSError as exc:
+        raise ConnectionRefused(f"not connected ({exc})", address=address) from exc
+
+
+def _errno_name(code: int) -> str:
+    return f"{errno.errorcode.get(code, code)}: {os.strerror(code)}"
+
+
+def _pyvisa_py_session(resource: Any) -> Any:
+    sessions = getattr(getattr(resource, "visalib", None), "sessions", None)
+    if not isinstance(sessions, dict):
+        return None
+    return sessions.get(getattr(resource, "session", None))
+
+
+def _socket_of(resource: Any) -> socket.socket | None:
+    """The TCP socket of a pyvisa-py SOCKET session, else ``None`` (other backends, INSTR)."""
+    if resource is None:
+        return None
+    try:
+        interface = getattr(_pyvisa_py_session(resource), "interface", None)
+    except InvalidSession:
+        return None
+    return interface if isinstance(interface, socket.socket) else None
+
+
+def _peer_closed(sock: socket.socket | None) -> bool:
+    return sockio.peer_closed(sock)
