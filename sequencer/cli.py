@@ -224,7 +224,7 @@ def runs(db: str | None, fmt: str, board: str | None, procedure: str | None) -> 
 
     with compose.open_store(db, env()) as store:
         store.mark_stale_runs_interrupted()
-        rows = run_rows(store, board=board, procedure=procedure)
+        rows = run_rows(store.list_runs(board=board, procedure=procedure))
     click.echo(format_rows(rows, fmt, RUN_COLUMNS), nl=False)
 
 
@@ -256,8 +256,10 @@ def instruments(bench_path: str) -> None:
     from drivers.bench import load_bench
     from drivers.instruments import describe_bench, format_reports
 
-    reports = describe_bench(load_bench(bench_path))
-    click.echo(format_reports(reports))
+    import datetime as dt
+
+    reports = describe_bench(load_bench(bench_path), dt.date.today())
+    click.echo("\n".join(format_reports(reports)))
     if any(getattr(r, "error", "") for r in reports):
         sys.exit(EXIT_ABORT)
 
@@ -272,15 +274,8 @@ def sim(board_path: str, host: str, port_base: int, bench_out: str | None) -> No
     """Serve the simulated instruments of a board file until interrupted."""
     from drivers.sim import serve
 
-    def ready(bench: Any) -> None:
-        for role, port in bench.ports.items():
-            click.echo(f"{role:9s} TCPIP0::{host}::{port}::SOCKET")
-        if bench_out:
-            click.echo(f"bench file: {bench_out}")
-        click.echo("serving; Ctrl-C to stop", err=True)
-
     serve(board_path, host=host, port_base=port_base, bench_out=Path(bench_out) if bench_out else None,
-          on_ready=ready)
+          on_ready=None)
 
 
 def _add_report_commands() -> None:

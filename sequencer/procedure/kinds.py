@@ -73,7 +73,8 @@ def _k(name: str, role: str | None, doc: str, *args: Arg, **flags: Any) -> StepK
 
 _TRACE_ANALYSIS = (
     Arg("traces", "name", doc="name given to the captured traces (scope.capture into)"),
-    Arg("n_baseline", "int", required=False, default=200, doc="samples before the pulse used as baseline"),
+    Arg("n_baseline", "int", required=False, default=0,
+        doc="samples before the pulse used as baseline; 0 = every pre-trigger sample"),
 )
 
 KINDS: Mapping[str, StepKind] = {k.name: k for k in (
@@ -139,7 +140,7 @@ KINDS: Mapping[str, StepKind] = {k.name: k for k in (
        produces=("noise_in_mV",)),
     _k("analyse.crosstalk", None, "victim amplitude over aggressor amplitude",
        Arg("aggressor", "name"), Arg("victim", "name"), Arg("victim_channel", "int"),
-       Arg("aggressor_channel", "int"), Arg("n_baseline", "int", required=False, default=200),
+       Arg("aggressor_channel", "int"), Arg("n_baseline", "int", required=False, default=0),
        produces=("crosstalk_pct",)),
     _k("analyse.s_curve", None, "fit the discriminator S-curve of counts over a threshold sweep",
        Arg("counts", "name"), Arg("x", "name", doc="sweep variable holding the threshold (mV)"),

@@ -78,11 +78,27 @@ def _gain(ctx: RunContext, step: PlannedStep, output: str | None) -> float:
     return found
 
 
+def _n_baseline(step: PlannedStep, items: list[Any]) -> int:
+    """The baseline window: the step's ``n_baseline``, or (0, the default) every sample recorded
+    before the trigger instant, where the test pulse starts (less two samples of margin)."""
+    given = int(step.args.get("n_baseline") or 0)
+    if given > 0:
+        return given
+    trace = items[0].trace
+    pre = int(np.floor(-trace.t0_s / trace.dt_s)) - 2 if trace.dt_s > 0 else 0
+    if pre < 4:
+        raise AnalysisInputError(
+            f"traces {items[0].name!r} have {max(pre + 2, 0)} pre-trigger samples: set the scope's "
+            "pretrigger or give n_baseline"
+        )
+    return pre
+
+
 def analyse_transfer(ctx: RunContext, step: PlannedStep) -> StepResult:
     a = step.args
     items = _traces(ctx, step, a["traces"])
     rows, dt = _stack_mV(items)
-    heights = an.pulse_height(rows, dt, int(a.get("n_baseline", 200)), a.get("method", "peak"))
+    heights = an.pulse_height(rows, dt, _n_baseline(step, items), a.get("method", "peak"))
     fit = an.transfer_curve(
         _sweep(items, a["x"]), heights, deviation_pct=float(a.get("deviation", 1.0))
     )
@@ -125,7 +141,7 @@ def analyse_crosstalk(ctx: RunContext, step: PlannedStep) -> StepResult:
         raise AnalysisInputError(f"{len(agg)} aggressor traces but {len(vic)} victim traces")
     arows, dt = _stack_mV(agg)
     vrows, _ = _stack_mV(vic)
-    pct, err = _mean_err(an.crosstalk_percent(arows, vrows, dt, int(a.get("n_baseline", 200))))
+    pct, err = _mean_err(an.crosstalk_percent(arows, vrows, dt, _n_baseline(step, agg)))
     m = measure(
         ctx,
         step,
@@ -186,7 +202,7 @@ def analyse_peaking(ctx: RunContext, step: PlannedStep) -> StepResult:
     try:
         zc, _ = _mean_err(
             an.zero_crossing_time(
-                rows, dt, starts, n_baseline=int(step.args.get("n_baseline", 200))
+                rows, dt, starts, n_baseline=_n_baseline(step, items)
             )
         )
         results["zero_crossing_ns"] = zc
@@ -201,7 +217,7 @@ def analyse_peaking(ctx: RunContext, step: PlannedStep) -> StepResult:
 def analyse_rise(ctx: RunContext, step: PlannedStep) -> StepResult:
     items = _traces(ctx, step, step.args["traces"])
     rows, dt = _stack_mV(items)
-    value, err = _mean_err(an.rise_time(rows, dt, int(step.args.get("n_baseline", 200))))
+    value, err = _mean_err(an.rise_time(rows, dt, _n_baseline(step, items)))
     return StepResult(
         results={"traces": len(items)},
         measurements=[measure(ctx, step, "rise_time_ns", value, uncertainty=err)],
