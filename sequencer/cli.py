@@ -253,10 +253,10 @@ def export(db: str | None, run_id: int | None, board: str | None, procedure: str
 @handles_errors
 def instruments(bench_path: str) -> None:
     """Identify each instrument; warn on identity mismatch or calibration past due."""
+    import datetime as dt
+
     from drivers.bench import load_bench
     from drivers.instruments import describe_bench, format_reports
-
-    import datetime as dt
 
     reports = describe_bench(load_bench(bench_path), dt.date.today())
     click.echo("\n".join(format_reports(reports)))
