@@ -24,7 +24,7 @@ class Trace:
     meta: dict[str, str] = field(default_factory=dict)
 
     @property
-    def mV(self) -> np.ndarray:  # noqa: N802 - the unit is the name
+    def mV(self) -> np.ndarray:
         """Samples in millivolts."""
         return self.volts * 1e3
 

@@ -94,7 +94,7 @@ def load_yaml(
     text: str | bytes,
     file: str,
     *,
-    limits: YamlLimits = YamlLimits(),  # noqa: B008 - frozen
+    limits: YamlLimits = YamlLimits(),
     error: type[LocatedError] = LocatedError,
 ) -> Any:
     """Parse one YAML document into plain, located Python values.
