@@ -279,9 +279,9 @@ def sim(board_path: str, host: str, port_base: int, bench_out: str | None) -> No
 
 
 def _add_report_commands() -> None:
-    from sequencer import cli_reports
+    from sequencer import cli_reports, cli_results
 
-    for command in cli_reports.COMMANDS:
+    for command in (*cli_results.COMMANDS, *cli_reports.COMMANDS):
         cli.add_command(command)
 
 

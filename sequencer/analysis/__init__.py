@@ -10,7 +10,7 @@ from __future__ import annotations
 from .crosstalk import crosstalk_db, crosstalk_peak_percent, crosstalk_percent
 from .lines import LineFit, fit_line, inl_percent
 from .noise import ELEMENTARY_CHARGE_C, TraceAverage, average_traces, enc_electrons
-from .pulses import baseline_rms, pulse_height
+from .pulses import baseline_rms, pretrigger_baseline, pulse_height
 from .scurves import SCurveFit, fit_s_curve
 from .thresholds import ThresholdCalibration, noise_rate, rice_nu0, threshold_calibration
 from .timing import peaking_time, rise_time, zero_crossing_time
@@ -34,6 +34,7 @@ __all__ = [
     "inl_percent",
     "noise_rate",
     "peaking_time",
+    "pretrigger_baseline",
     "pulse_height",
     "rice_nu0",
     "rise_time",

@@ -113,3 +113,22 @@ def _template_for(arr: np.ndarray, n_baseline: int, template: ArrayLike | None) 
     if top <= 0.0:
         raise ValueError("template has no positive peak: pulses are expected positive-going")
     return shape / top
+
+
+def pretrigger_baseline(n_baseline: int, t0_ns: float, dt_ns: float, *, margin: int = 2) -> int:
+    """The baseline window in samples: ``n_baseline`` when positive, else (0) every sample recorded
+    before the trigger instant t = 0, where the test pulse starts, less ``margin`` samples.
+
+    ``t0_ns`` is the time of the first sample relative to the trigger (negative = pre-trigger).
+    Raises ``ValueError`` when fewer than 4 pre-trigger samples remain.
+    """
+    if n_baseline > 0:
+        return int(n_baseline)
+    if not dt_ns > 0:
+        raise ValueError(f"sample interval must be positive, got {dt_ns} ns")
+    pre = int(np.floor(-t0_ns / dt_ns)) - margin
+    if pre < 4:
+        raise ValueError(
+            f"only {max(pre + margin, 0)} pre-trigger samples: set the scope's pretrigger or give n_baseline"
+        )
+    return pre

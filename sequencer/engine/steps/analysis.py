@@ -79,19 +79,12 @@ def _gain(ctx: RunContext, step: PlannedStep, output: str | None) -> float:
 
 
 def _n_baseline(step: PlannedStep, items: list[Any]) -> int:
-    """The baseline window: the step's ``n_baseline``, or (0, the default) every sample recorded
-    before the trigger instant, where the test pulse starts (less two samples of margin)."""
-    given = int(step.args.get("n_baseline") or 0)
-    if given > 0:
-        return given
+    """The step's ``n_baseline``, or (0, the default) every pre-trigger sample of its traces."""
     trace = items[0].trace
-    pre = int(np.floor(-trace.t0_s / trace.dt_s)) - 2 if trace.dt_s > 0 else 0
-    if pre < 4:
-        raise AnalysisInputError(
-            f"traces {items[0].name!r} have {max(pre + 2, 0)} pre-trigger samples: set the scope's "
-            "pretrigger or give n_baseline"
-        )
-    return pre
+    try:
+        return an.pretrigger_baseline(int(step.args.get("n_baseline") or 0), trace.t0_ns, trace.dt_ns)
+    except ValueError as exc:
+        raise AnalysisInputError(f"traces {items[0].name!r}: {exc}") from None
 
 
 def analyse_transfer(ctx: RunContext, step: PlannedStep) -> StepResult:

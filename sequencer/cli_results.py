@@ -1,0 +1,111 @@
+"""Commands that read the results store only: certificates, their verification, trends and the
+batch report.  Plotting and PDF libraries are imported inside the commands."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import click
+
+from sequencer.cli_common import EXIT_FAIL, EXIT_INPUT, db_option, env, fail, handles_errors
+
+
+@click.command()
+@db_option
+@click.option("--run", "run_id", type=int, required=True, help="Run to certify.")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), required=True, help="Folder for the certificates.")
+@click.option("--paper", type=click.Choice(["A4", "Letter"]), default="A4", show_default=True)
+@handles_errors
+def certify(db: str | None, run_id: int, out_dir: str, paper: str) -> None:
+    """One certificate per channel (PDF and HTML) for a run."""
+    from sequencer import compose
+    from sequencer.reports import certify_run
+
+    with compose.open_store(db, env()) as store:
+        compose.check_store(store, run_id)
+        paths = certify_run(store, run_id, Path(out_dir), paper=paper)
+    pdfs = [p for p in paths if p.suffix == ".pdf"]
+    click.echo(f"{len(pdfs)} certificate(s) (PDF and HTML) in {out_dir}")
+    for p in pdfs:
+        click.echo(f"  {p.name}")
+
+
+@click.command()
+@db_option
+@click.argument("certificate", type=click.Path(dir_okay=False, exists=True))
+@handles_errors
+def verify(db: str | None, certificate: str) -> None:
+    """Check a certificate (PDF or HTML) against the database; exit 1 if anything differs."""
+    from sequencer import compose
+    from sequencer.reports import verify_certificate
+
+    with compose.open_store(db, env()) as store:
+        result = verify_certificate(store, Path(certificate))
+    if result.ok:
+        click.echo(f"{certificate}: matches the database (certificate {result.number}, data sha256 {result.data_sha256[:12]})")
+        return
+    click.echo(f"{certificate}: DOES NOT MATCH the database", err=True)
+    for diff in result.differences:
+        click.echo(f"  {diff}", err=True)
+    sys.exit(EXIT_FAIL)
+
+
+@click.command()
+@db_option
+@click.option("--board", required=True, help="Board serial.")
+@click.option("--quantity", required=True, help="Quantity name, e.g. gain or noise_in_mV.")
+@click.option("--channel", type=int, default=None)
+@click.option("--output", default=None, help="Output name (x1, x5, shaped).")
+@click.option("--reference-runs", type=int, default=5, show_default=True, help="Runs that define the control band.")
+@click.option("--band", nargs=2, type=float, default=None, metavar="LOW HIGH", help="Give the control band instead.")
+@click.option("--out", "out_file", type=click.Path(dir_okay=False), default=None, help="Write the plot (PNG).")
+@click.option("--format", "fmt", type=click.Choice(["text", "csv"]), default="text", show_default=True)
+@handles_errors
+def trend(db: str | None, board: str, quantity: str, channel: int | None, output: str | None,
+          reference_runs: int, band: tuple[float, float] | None, out_file: str | None, fmt: str) -> None:
+    """The quantity over past runs of a board, with a control band; warns on drift."""
+    from sequencer import compose
+    from sequencer.reports import plot_trend, trend_csv
+    from sequencer.reports import trend as compute_trend
+
+    with compose.open_store(db, env()) as store:
+        try:
+            result = compute_trend(store, board, quantity, channel=channel, output=output,
+                                   reference_runs=reference_runs, band=tuple(band) if band else None)
+        except ValueError as exc:
+            fail(EXIT_INPUT, f"error: {exc}")
+    if fmt == "csv":
+        click.echo(trend_csv(result), nl=False)
+    else:
+        where = f"channel {result.channel} " if result.channel is not None else ""
+        where += f"output {result.output} " if result.output else ""
+        click.echo(f"{result.quantity} of {result.board} {where}over {len(result.points)} run(s)")
+        if result.band_low is not None:
+            click.echo(f"control band {result.band_low:.6g} … {result.band_high:.6g} {result.unit} ({result.band_source})")
+        for p in result.flagged:
+            click.echo(f"  outside the band: run {p.run_id} value {p.value:.6g}")
+    if out_file:
+        click.echo(f"plot: {plot_trend(result, Path(out_file))}")
+    if result.warning:
+        click.echo(f"warning: {result.warning}", err=True)
+
+
+@click.command()
+@db_option
+@click.option("--batch", required=True, help="Batch name.")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None, help="Also write PDF and HTML here.")
+@handles_errors
+def report(db: str | None, batch: str, out_dir: str | None) -> None:
+    """Batch summary: yield, distributions, robust outliers, failed channels."""
+    from sequencer import compose
+    from sequencer.reports import batch_report, batch_summary
+
+    with compose.open_store(db, env()) as store:
+        click.echo(batch_summary(store, batch).to_text())
+        if out_dir:
+            for path in batch_report(store, batch, Path(out_dir)):
+                click.echo(f"report: {path}")
+
+
+COMMANDS: list[click.Command] = [certify, verify, trend, report]
