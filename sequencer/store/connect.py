@@ -1,0 +1,170 @@
+"""Opening the results database: the URL, the engine and the per-connection settings.
+
+SQLite gets, on every connection (a ``connect`` event listener): a busy timeout (other benches may hold
+the write lock), ``foreign_keys=ON``, ``journal_mode=WAL`` (readers never block the writer) and
+``synchronous=FULL`` (a committed step survives a power loss, not only a crash).  Write transactions
+start with ``BEGIN IMMEDIATE`` so that two writers queue on the busy timeout instead of failing with
+"database is locked" when a read lock cannot be upgraded.  WAL needs shared memory between the
+processes, so a file on a network filesystem is refused (use PostgreSQL there).
+
+PostgreSQL goes through ``postgresql+psycopg://`` (the ``postgres`` extra, imported lazily).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Mapping
+from datetime import date, datetime
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from sqlalchemy import Engine, create_engine, event, make_url
+from sqlalchemy.engine import URL
+from sqlalchemy.exc import ArgumentError, NoSuchModuleError
+
+from sequencer.errors import StoreError
+
+DEFAULT_URL = "sqlite:///benchwright.db"
+DEFAULT_BUSY_TIMEOUT_S = 30.0
+DEFAULT_CONNECT_TIMEOUT_S = 10  # PostgreSQL: an unreachable server fails in seconds, not minutes
+NETWORK_FILESYSTEMS = frozenset({"nfs", "nfs4", "cifs", "smb3", "smbfs", "9p", "fuse.sshfs", "afs"})
+WRITE_OPTION = "benchwright_write"
+
+
+def default_url(env: Mapping[str, str]) -> str:
+    """The database URL: ``BENCHWRIGHT_DB`` from ``env`` if set and not empty, else the default."""
+    return env.get("BENCHWRIGHT_DB") or DEFAULT_URL
+
+
+def parse_url(url: str) -> URL:
+    """Parse and check an SQLAlchemy URL; only SQLite and PostgreSQL (psycopg 3) are supported."""
+    try:
+        parsed = make_url(url)
+    except ArgumentError as exc:
+        raise StoreError(f"not a database URL: {url!r}") from exc
+    backend = parsed.get_backend_name()
+    if backend == "sqlite":
+        return parsed
+    if backend == "postgresql":
+        if parsed.get_driver_name() != "psycopg":
+            raise StoreError(
+                f"use postgresql+psycopg:// for PostgreSQL, not {parsed.drivername}://"
+            )
+        return parsed
+    raise StoreError(
+        f"unsupported database {parsed.drivername!r}: use sqlite:/// or postgresql+psycopg://"
+    )
+
+
+def network_filesystem(path: Path, mounts_text: str) -> str | None:
+    """The network filesystem type ``path`` lies on, from ``/proc/mounts`` text, or None."""
+    best, best_type = "", None
+    target = str(path.resolve())
+    for line in mounts_text.splitlines():
+        fields = line.split()
+        if len(fields) < 3:
+            continue
+        mount_point = fields[1].replace("\\040", " ")
+        inside = target == mount_point or target.startswith(mount_point.rstrip("/") + "/")
+        if inside and len(mount_point) >= len(best):
+            best, best_type = mount_point, fields[2]
+    return best_type if best_type in NETWORK_FILESYSTEMS else None
+
+
+def _check_sqlite_file(url: URL) -> None:
+    database = url.database or ""
+    if database in ("", ":memory:") or database.startswith("file:"):
+        return
+    path = Path(database)
+    if not path.parent.exists():
+        raise StoreError(f"cannot open {database}: folder {path.parent} does not exist")
+    mounts = Path("/proc/mounts")
+    if mounts.exists():
+        fs = network_filesystem(path, mounts.read_text())
+        if fs:
+            raise StoreError(
+                f"{database} is on a network filesystem ({fs}); SQLite WAL does not work there, "
+                "use a local file or PostgreSQL (postgresql+psycopg://)"
+            )
+
+
+def _json_default(value: Any) -> Any:
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    if isinstance(value, datetime | date):
+        return value.isoformat()
+    raise TypeError(f"{type(value).__name__} is not JSON-serialisable")
+
+
+def dump_json(value: Any) -> str:
+    """JSON for the JSON columns: numpy scalars/arrays and datetimes converted; NaN/inf as null."""
+    return json.dumps(_finite(value), default=_json_default, allow_nan=False)
+
+
+def _finite(value: Any) -> Any:
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, Mapping):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_finite(v) for v in value]
+    return value
+
+
+def _sqlite_engine(url: URL, busy_timeout_s: float) -> Engine:
+    _check_sqlite_file(url)
+    engine = create_engine(url, json_serializer=dump_json)
+
+    @event.listens_for(engine, "connect")
+    def _on_connect(dbapi_conn: Any, _record: Any) -> None:
+        dbapi_conn.isolation_level = (
+            None  # the driver stays out of the way; we emit BEGIN ourselves
+        )
+        cur = dbapi_conn.cursor()
+        cur.execute(f"PRAGMA busy_timeout = {int(busy_timeout_s * 1000)}")
+        cur.execute("PRAGMA foreign_keys = ON")
+        cur.execute("PRAGMA journal_mode = WAL")
+        cur.execute("PRAGMA synchronous = FULL")
+        cur.close()
+
+    @event.listens_for(engine, "begin")
+    def _on_begin(conn: Any) -> None:
+        write = conn.get_execution_options().get(WRITE_OPTION, False)
+        conn.exec_driver_sql("BEGIN IMMEDIATE" if write else "BEGIN")
+
+    return engine
+
+
+def _postgres_engine(url: URL) -> Engine:
+    try:
+        import psycopg  # noqa: F401  (lazy: the postgres extra)
+    except ImportError as exc:
+        raise StoreError(
+            "PostgreSQL needs the psycopg driver: pip install 'benchwright[postgres]'"
+        ) from exc
+    connect_args = (
+        {} if "connect_timeout" in url.query else {"connect_timeout": DEFAULT_CONNECT_TIMEOUT_S}
+    )
+    try:
+        return create_engine(
+            url, json_serializer=dump_json, pool_pre_ping=True, connect_args=connect_args
+        )
+    except NoSuchModuleError as exc:
+        raise StoreError(f"cannot load the driver for {url.drivername}") from exc
+
+
+def open_engine(url: str, *, busy_timeout_s: float = DEFAULT_BUSY_TIMEOUT_S) -> Engine:
+    """An engine for ``url`` with benchwright's connection settings (see the module docstring)."""
+    parsed = parse_url(url)
+    if parsed.get_backend_name() == "sqlite":
+        return _sqlite_engine(parsed, busy_timeout_s)
+    return _postgres_engine(parsed)
+
+
+def writer(engine: Engine) -> Engine:
+    """The same engine, but its transactions take the write lock at BEGIN (SQLite)."""
+    return engine.execution_options(**{WRITE_OPTION: True})

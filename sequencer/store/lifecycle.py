@@ -1,0 +1,192 @@
+"""A run's life in the database: created, finished, marked interrupted, reopened, annotated.
+
+Every function takes a connection inside a write transaction (the caller commits).  A run's status
+columns are the only stored values that ever change, never once the run is completed, and every change
+also appends an annotation (the audit trail) in the same transaction.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from collections.abc import Mapping
+from datetime import UTC, datetime
+from typing import Any
+
+from sqlalchemy import Connection, func, insert, select, update
+from sqlalchemy.dialects import postgresql, sqlite
+
+from sequencer.errors import StoreError
+from sequencer.events import RunInfo
+from sequencer.store.liveness import ProcessIdentity, process_alive
+from sequencer.store.models import Annotation, Document, Instrument, Run, Step
+
+SYSTEM_AUTHOR = "benchwright"
+FINAL_STATUSES = ("completed", "aborted", "interrupted")
+
+
+def _store_document(conn: Connection, text: str) -> str:
+    """Insert ``text`` once (keyed by the SHA-256 of its UTF-8 bytes); return the key."""
+    key = hashlib.sha256(text.encode("utf-8")).hexdigest()
+    dialect = postgresql if conn.dialect.name == "postgresql" else sqlite
+    conn.execute(dialect.insert(Document).values(sha256=key, text=text).on_conflict_do_nothing())
+    return key
+
+
+def annotate(
+    conn: Connection,
+    run_id: int,
+    *,
+    kind: str,
+    text: str,
+    author: str = SYSTEM_AUTHOR,
+    detail: Mapping[str, Any] | None = None,
+    at: datetime | None = None,
+) -> None:
+    """Append a note or an audit entry to a run."""
+    conn.execute(
+        insert(Annotation).values(
+            run_id=run_id,
+            at=at or datetime.now(UTC),
+            kind=kind,
+            author=author,
+            text=text,
+            detail=dict(detail or {}),
+        )
+    )
+
+
+def insert_run(conn: Connection, info: RunInfo, started_at: datetime, me: ProcessIdentity) -> int:
+    """A new run in status ``running``, with its documents and instruments; returns its id."""
+    procedure_doc = _store_document(conn, info.procedure_text)
+    bench_doc = _store_document(conn, info.bench_text) if info.bench_text else None
+    result = conn.execute(
+        insert(Run).values(
+            procedure=info.procedure,
+            procedure_version=info.procedure_version,
+            procedure_sha256=info.procedure_sha256,
+            procedure_path=info.procedure_path,
+            procedure_doc=procedure_doc,
+            bench=info.bench,
+            bench_doc=bench_doc,
+            board=info.board,
+            board_type=info.board_type,
+            batch=info.batch,
+            operator=info.operator,
+            software_version=info.software_version,
+            parameters=dict(info.parameters),
+            repeat_of=info.repeat_of,
+            status="running",
+            reason="",
+            started_at=started_at,
+            ended_at=None,
+            host=me.host,
+            pid=me.pid,
+            process_tag=me.tag,
+        )
+    )
+    run_id = int(result.inserted_primary_key[0])
+    if info.instruments:
+        conn.execute(
+            insert(Instrument),
+            [
+                {
+                    "run_id": run_id,
+                    "role": i.role,
+                    "address": i.address,
+                    "maker": i.maker,
+                    "model": i.model,
+                    "serial": i.serial,
+                    "firmware": i.firmware,
+                    "calibration_due": i.calibration_due,
+                }
+                for i in info.instruments
+            ],
+        )
+    return run_id
+
+
+def _locked_run(conn: Connection, run_id: int) -> Any:
+    row = conn.execute(
+        select(Run.status, Run.host, Run.pid, Run.process_tag, Run.ended_at, Run.reason)
+        .where(Run.id == run_id)
+        .with_for_update()
+    ).first()
+    if row is None:
+        raise StoreError(f"no run {run_id} in the database")
+    return row
+
+
+def _refuse_completed(run_id: int, status: str) -> None:
+    if status == "completed":
+        raise StoreError(f"run {run_id} is completed and is never modified: repeat it as a new run")
+
+
+def finish_run(conn: Connection, run_id: int, status: str, at: datetime, reason: str) -> None:
+    """End a running run as completed, aborted or interrupted, with its reason."""
+    if status not in FINAL_STATUSES:
+        raise StoreError(
+            f"a run cannot finish as {status!r}: use one of {', '.join(FINAL_STATUSES)}"
+        )
+    row = _locked_run(conn, run_id)
+    _refuse_completed(run_id, row.status)
+    if row.status != "running":
+        raise StoreError(
+            f"run {run_id} is {row.status}, not running: reopen it before finishing it"
+        )
+    conn.execute(
+        update(Run).where(Run.id == run_id).values(status=status, ended_at=at, reason=reason)
+    )
+    detail = {"from": row.status, "to": status, "reason": reason}
+    annotate(conn, run_id, kind="finished", text=f"run {status}", detail=detail, at=at)
+
+
+def is_stale(host: str, pid: int, tag: str, me: ProcessIdentity) -> bool:
+    """A running run's recorder is known dead: same host as us and its process gone."""
+    return host == me.host and not process_alive(pid, tag)
+
+
+def reopen_run(conn: Connection, run_id: int, me: ProcessIdentity, at: datetime) -> None:
+    """Set an aborted, interrupted or stale running run back to running, owned by ``me``."""
+    row = _locked_run(conn, run_id)
+    _refuse_completed(run_id, row.status)
+    if row.status == "running" and not is_stale(row.host, row.pid, row.process_tag, me):
+        raise StoreError(
+            f"run {run_id} is still running on {row.host} (pid {row.pid}); "
+            "it can be resumed once that process has ended"
+        )
+    conn.execute(
+        update(Run)
+        .where(Run.id == run_id)
+        .values(
+            status="running", ended_at=None, reason="", host=me.host, pid=me.pid, process_tag=me.tag
+        )
+    )
+    detail = {"from": row.status, "previous_host": row.host, "previous_pid": row.pid}
+    detail |= {"previous_ended_at": row.ended_at, "previous_reason": row.reason}
+    detail |= {"host": me.host, "pid": me.pid}
+    annotate(conn, run_id, kind="resumed", text=f"resumed from {row.status}", detail=detail, at=at)
+
+
+def mark_stale(conn: Connection, me: ProcessIdentity, at: datetime) -> list[int]:
+    """Mark ``interrupted`` every running run of this host whose recording process is dead.
+
+    Its ``ended_at`` is the end of its last finished step (or its start): the last moment known.
+    """
+    rows = conn.execute(
+        select(Run.id, Run.pid, Run.process_tag, Run.started_at)
+        .where(Run.status == "running", Run.host == me.host)
+        .with_for_update()
+    ).all()
+    stale = [r for r in rows if not process_alive(r.pid, r.process_tag)]
+    reason = "the recording process ended without finishing the run"
+    for r in stale:
+        last_step = conn.execute(select(func.max(Step.finished_at)).where(Step.run_id == r.id))
+        ended_at = last_step.scalar() or r.started_at  # the last thing known to have happened
+        conn.execute(
+            update(Run)
+            .where(Run.id == r.id)
+            .values(status="interrupted", ended_at=ended_at, reason=reason)
+        )
+        detail = {"from": "running", "to": "interrupted", "pid": r.pid}
+        annotate(conn, r.id, kind="interrupted", text=reason, detail=detail, at=at)
+    return [r.id for r in stale]

@@ -1,0 +1,1 @@
+"""Alembic migrations of the results database (run programmatically by ``sequencer.store.migrate``)."""

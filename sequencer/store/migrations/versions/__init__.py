@@ -1,0 +1,1 @@
+"""Revisions, oldest first: 0001 initial schema, 0002 annotations + append-only guards."""

@@ -1,0 +1,329 @@
+"""Reading the record: runs, steps, traces, measurements, trends, notes, safety events.
+
+Every function takes an open connection and returns frozen records (``records.py``).  Date filters
+apply to the run's start: ``since`` inclusive, ``until`` exclusive, aware datetimes.
+"""
+
+from __future__ import annotations
+
+from collections import defaultdict
+from collections.abc import Iterable
+from datetime import datetime
+from typing import Any
+
+from sqlalchemy import ColumnElement, Connection, Select, select
+
+from sequencer.errors import StoreError
+from sequencer.events import InstrumentInfo
+from sequencer.store.models import (
+    Annotation,
+    Document,
+    Instrument,
+    Measurement,
+    Run,
+    SafetyRecord,
+    Step,
+    Trace,
+)
+from sequencer.store.records import (
+    Annotation as AnnotationRecord,
+)
+from sequencer.store.records import (
+    CompletedStep,
+    RunRecord,
+    SeriesPoint,
+    StepRecord,
+    StoredMeasurement,
+    StoredTrace,
+)
+from sequencer.store.records import (
+    SafetyRecord as SafetyRecordOut,
+)
+from sequencer.store.tracecodec import decode_samples
+
+
+def run_filters(
+    *,
+    run_id: int | None = None,
+    board: str | None = None,
+    procedure: str | None = None,
+    since: datetime | None = None,
+    until: datetime | None = None,
+    status: str | None = None,
+    batch: str | None = None,
+) -> list[ColumnElement[bool]]:
+    """WHERE clauses on ``runs`` for the given filters (None = no filter)."""
+    clauses: list[ColumnElement[bool]] = []
+    for column, value in (
+        (Run.id, run_id),
+        (Run.board, board),
+        (Run.procedure, procedure),
+        (Run.status, status),
+        (Run.batch, batch),
+    ):
+        if value is not None:
+            clauses.append(column == value)
+    if since is not None:
+        clauses.append(Run.started_at >= since)
+    if until is not None:
+        clauses.append(Run.started_at < until)
+    return clauses
+
+
+def _run_records(conn: Connection, runs: Select[Any]) -> list[RunRecord]:
+    rows = conn.execute(runs).mappings().all()
+    if not rows:
+        return []
+    chosen = runs.subquery()
+    ids = select(chosen.c.id)
+    docs_of = select(chosen.c.procedure_doc).union(select(chosen.c.bench_doc))
+    texts = dict(
+        conn.execute(
+            select(Document.sha256, Document.text).where(Document.sha256.in_(docs_of))
+        ).all()
+    )
+    instruments: dict[int, list[InstrumentInfo]] = defaultdict(list)
+    for i in conn.execute(
+        select(*Instrument.__table__.c).where(Instrument.run_id.in_(ids)).order_by(Instrument.id)
+    ).mappings():
+        instruments[i["run_id"]].append(
+            InstrumentInfo(
+                role=i["role"],
+                address=i["address"],
+                maker=i["maker"],
+                model=i["model"],
+                serial=i["serial"],
+                firmware=i["firmware"],
+                calibration_due=i["calibration_due"],
+            )
+        )
+    return [
+        RunRecord(
+            id=r["id"],
+            procedure=r["procedure"],
+            procedure_version=r["procedure_version"],
+            procedure_sha256=r["procedure_sha256"],
+            procedure_path=r["procedure_path"],
+            procedure_text=texts[r["procedure_doc"]],
+            bench=r["bench"],
+            bench_text=texts.get(r["bench_doc"], "") if r["bench_doc"] else "",
+            board=r["board"],
+            board_type=r["board_type"],
+            batch=r["batch"],
+            operator=r["operator"],
+            software_version=r["software_version"],
+            parameters=r["parameters"],
+            instruments=tuple(instruments[r["id"]]),
+            repeat_of=r["repeat_of"],
+            status=r["status"],
+            reason=r["reason"],
+            started_at=r["started_at"],
+            ended_at=r["ended_at"],
+            host=r["host"],
+            pid=r["pid"],
+        )
+        for r in rows
+    ]
+
+
+def _runs(clauses: Iterable[ColumnElement[bool]]) -> Select[Any]:
+    return select(*Run.__table__.c).where(*clauses)
+
+
+def list_runs(conn: Connection, **filters: Any) -> list[RunRecord]:
+    """Runs matching ``run_filters(**filters)``, oldest first."""
+    return _run_records(conn, _runs(run_filters(**filters)).order_by(Run.started_at, Run.id))
+
+
+def get_run(conn: Connection, run_id: int) -> RunRecord:
+    found = list_runs(conn, run_id=run_id)
+    if not found:
+        raise StoreError(f"no run {run_id} in the database")
+    return found[0]
+
+
+def latest_run(conn: Connection, **filters: Any) -> RunRecord | None:
+    query = _runs(run_filters(**filters)).order_by(Run.started_at.desc(), Run.id.desc()).limit(1)
+    found = _run_records(conn, query)
+    return found[0] if found else None
+
+
+def steps(conn: Connection, run_id: int) -> list[StepRecord]:
+    """Every finished step of a run (completed, failed, skipped), in the order written."""
+    query = select(*Step.__table__.c).where(Step.run_id == run_id).order_by(Step.id)
+    return [
+        StepRecord(
+            path=s["path"],
+            kind=s["kind"],
+            position=s["position"],
+            status=s["status"],
+            started_at=s["started_at"],
+            finished_at=s["finished_at"],
+            error=s["error"],
+        )
+        for s in conn.execute(query).mappings()
+    ]
+
+
+def _trace_query(run_id: int) -> Select[Any]:
+    return (
+        select(Step.path, *Trace.__table__.c)
+        .join(Step, Step.id == Trace.step_id)
+        .where(Trace.run_id == run_id)
+        .order_by(Trace.id)
+    )
+
+
+def _stored_trace(t: Any) -> StoredTrace:
+    return StoredTrace(
+        path=t["path"],
+        name=t["name"],
+        samples=decode_samples(t["data"]),
+        dt_s=t["dt_s"],
+        t0_s=t["t0_s"],
+        source=t["source"],
+        averages=t["averages"],
+        labels=t["labels"],
+    )
+
+
+def traces(conn: Connection, run_id: int, path_prefix: str | None = None) -> list[StoredTrace]:
+    """The traces of a run's completed steps, optionally only under ``path_prefix``."""
+    query = _trace_query(run_id)
+    if path_prefix:
+        query = query.where(Step.path.startswith(path_prefix, autoescape=True))
+    return [_stored_trace(t) for t in conn.execute(query).mappings()]
+
+
+def _measurement_query(clauses: Iterable[ColumnElement[bool]]) -> Select[Any]:
+    return (
+        select(Step.path, *Measurement.__table__.c)
+        .join(Run, Run.id == Measurement.run_id)
+        .join(Step, Step.id == Measurement.step_id)
+        .where(*clauses)
+        .order_by(Measurement.run_id, Measurement.id)
+    )
+
+
+def _stored_measurement(m: Any) -> StoredMeasurement:
+    return StoredMeasurement(
+        run_id=m["run_id"],
+        path=m["path"],
+        quantity=m["quantity"],
+        value=m["value"],
+        unit=m["unit"],
+        uncertainty=m["uncertainty"],
+        channel=m["channel"],
+        output=m["output"],
+        aggressor=m["aggressor"],
+        low=m["low"],
+        high=m["high"],
+        verdict=m["verdict"],
+    )
+
+
+def measurements(conn: Connection, **filters: Any) -> list[StoredMeasurement]:
+    """Measurements of the runs matching ``run_filters(**filters)``, by run then as recorded."""
+    query = _measurement_query(run_filters(**filters))
+    return [_stored_measurement(m) for m in conn.execute(query).mappings()]
+
+
+def completed_steps(conn: Connection, run_id: int) -> dict[str, CompletedStep]:
+    """Path -> completed step with its settings, results, traces and measurements."""
+    by_step_traces: dict[str, list[StoredTrace]] = defaultdict(list)
+    for t in conn.execute(_trace_query(run_id)).mappings():
+        by_step_traces[t["path"]].append(_stored_trace(t))
+    by_step_ms: dict[str, list[StoredMeasurement]] = defaultdict(list)
+    for m in conn.execute(_measurement_query([Measurement.run_id == run_id])).mappings():
+        by_step_ms[m["path"]].append(_stored_measurement(m))
+    query = (
+        select(*Step.__table__.c)
+        .where(Step.run_id == run_id, Step.status == "completed")
+        .order_by(Step.id)
+    )
+    return {
+        s["path"]: CompletedStep(
+            path=s["path"],
+            kind=s["kind"],
+            started_at=s["started_at"],
+            finished_at=s["finished_at"],
+            settings=s["settings"],
+            results=s["results"],
+            traces=tuple(by_step_traces[s["path"]]),
+            measurements=tuple(by_step_ms[s["path"]]),
+        )
+        for s in conn.execute(query).mappings()
+    }
+
+
+def quantity_series(
+    conn: Connection,
+    *,
+    board: str,
+    quantity: str,
+    channel: int | None = None,
+    output: str | None = None,
+    procedure: str | None = None,
+) -> list[SeriesPoint]:
+    """A quantity over the completed runs of a board, oldest first (None = any channel/output)."""
+    query = (
+        select(Run.started_at, *Measurement.__table__.c)
+        .join(Run, Run.id == Measurement.run_id)
+        .where(*run_filters(board=board, procedure=procedure, status="completed"))
+        .where(Measurement.quantity == quantity)
+        .order_by(Run.started_at, Measurement.id)
+    )
+    if channel is not None:
+        query = query.where(Measurement.channel == channel)
+    if output is not None:
+        query = query.where(Measurement.output == output)
+    return [
+        SeriesPoint(
+            run_id=m["run_id"],
+            started_at=m["started_at"],
+            value=m["value"],
+            uncertainty=m["uncertainty"],
+            low=m["low"],
+            high=m["high"],
+            verdict=m["verdict"],
+            channel=m["channel"],
+            output=m["output"],
+        )
+        for m in conn.execute(query).mappings()
+    ]
+
+
+def annotations(
+    conn: Connection, run_id: int, *, notes_only: bool = False
+) -> list[AnnotationRecord]:
+    """The notes (and, unless ``notes_only``, the audit entries) of a run, oldest first."""
+    query = (
+        select(*Annotation.__table__.c).where(Annotation.run_id == run_id).order_by(Annotation.id)
+    )
+    if notes_only:
+        query = query.where(Annotation.kind == "note")
+    return [
+        AnnotationRecord(
+            run_id=a["run_id"],
+            at=a["at"],
+            kind=a["kind"],
+            author=a["author"],
+            text=a["text"],
+            detail=a["detail"],
+        )
+        for a in conn.execute(query).mappings()
+    ]
+
+
+def safety_events(conn: Connection, run_id: int) -> list[SafetyRecordOut]:
+    query = (
+        select(*SafetyRecord.__table__.c)
+        .where(SafetyRecord.run_id == run_id)
+        .order_by(SafetyRecord.id)
+    )
+    return [
+        SafetyRecordOut(
+            run_id=s["run_id"], path=s["path"], kind=s["kind"], at=s["at"], detail=s["detail"]
+        )
+        for s in conn.execute(query).mappings()
+    ]

@@ -1,0 +1,219 @@
+"""``Store``: the results database of benchwright, opened from an SQLAlchemy URL.
+
+It records runs (``create_run`` then the runner's events through ``handle`` / ``subscriber``, see
+``recording.py``), answers the queries of reports, trends and resume, and keeps results append-only:
+a completed run is never modified; notes and status changes are audited additions.
+Every database failure leaves it as a ``StoreError`` with one clear line.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from datetime import UTC, datetime
+from types import TracebackType
+from typing import Any, Self
+
+from sqlalchemy import Connection, Engine
+from sqlalchemy.exc import SQLAlchemyError
+
+from sequencer.errors import StoreError
+from sequencer.events import Event, RunInfo
+from sequencer.store import lifecycle, queries
+from sequencer.store.connect import open_engine, writer
+from sequencer.store.liveness import this_process
+from sequencer.store.migrate import ensure_schema
+from sequencer.store.recording import Recorder
+from sequencer.store.records import (
+    Annotation,
+    CompletedStep,
+    RunRecord,
+    SafetyRecord,
+    SeriesPoint,
+    StepRecord,
+    StoredMeasurement,
+    StoredTrace,
+)
+
+
+def _first_line(exc: BaseException) -> str:
+    orig = getattr(exc, "orig", None) or exc
+    return str(orig).strip().splitlines()[0] if str(orig).strip() else type(orig).__name__
+
+
+@contextmanager
+def _as_store_error(what: str) -> Iterator[None]:
+    try:
+        yield
+    except SQLAlchemyError as exc:
+        raise StoreError(f"{what}: {_first_line(exc)}") from exc
+
+
+class Store:
+    """The results database.  Open with ``Store.open(url)``; close with ``close()`` or ``with``."""
+
+    def __init__(self, engine: Engine) -> None:
+        """Wrap an engine whose schema is at head (``Store.open`` makes sure of that)."""
+        self.engine = engine
+        self._writer = writer(engine)
+        self._recorder = Recorder(engine)
+
+    @classmethod
+    def open(cls, url: str) -> Store:
+        """Connect, create or upgrade the schema; ``StoreError`` if unreachable or newer."""
+        engine = open_engine(url)
+        where = engine.url.render_as_string(hide_password=True)
+        try:
+            with _as_store_error(f"cannot open the results database {where}"):
+                ensure_schema(engine)
+        except BaseException:
+            engine.dispose()
+            raise
+        return cls(engine)
+
+    def close(self) -> None:
+        self.engine.dispose()
+
+    def __enter__(self) -> Self:
+        return self
+
+    def __exit__(
+        self,
+        exc_type: type[BaseException] | None,
+        exc: BaseException | None,
+        tb: TracebackType | None,
+    ) -> None:
+        self.close()
+
+    @contextmanager
+    def _read(self, what: str) -> Iterator[Connection]:
+        with _as_store_error(what), self.engine.connect() as conn:
+            yield conn
+
+    @contextmanager
+    def _write(self, what: str) -> Iterator[Connection]:
+        with _as_store_error(what), self._writer.begin() as conn:
+            yield conn
+
+    # -- recording ---------------------------------------------------------------------------
+    def create_run(self, info: RunInfo, started_at: datetime) -> int:
+        """A new run in status ``running`` (records this host and pid); returns its id."""
+        with self._write(f"cannot record run of {info.procedure} on {info.board}") as conn:
+            return lifecycle.insert_run(conn, info, started_at, this_process())
+
+    def handle(self, event: Event) -> None:
+        """Record one of the runner's events (see ``recording.py`` for what is written when)."""
+        try:
+            self._recorder.handle(event)
+        except (SQLAlchemyError, ValueError) as exc:  # message built only on failure: a hot path
+            path = getattr(event, "path", "")
+            where = f" step {path}" if path else ""
+            what = f"cannot record {type(event).__name__} of run {event.run_id}{where}"
+            raise StoreError(f"{what}: {_first_line(exc)}") from exc
+
+    @property
+    def subscriber(self) -> Callable[[Event], None]:
+        """``handle``, to subscribe to the runner's events."""
+        return self.handle
+
+    def reopen_run(self, run_id: int) -> None:
+        """Set an aborted/interrupted (or dead-process running) run to running again, audited."""
+        with self._write(f"cannot reopen run {run_id}") as conn:
+            lifecycle.reopen_run(conn, run_id, this_process(), datetime.now(UTC))
+
+    def mark_stale_runs_interrupted(self) -> list[int]:
+        """Running runs of this host whose process is gone become ``interrupted``; their ids."""
+        with self._write("cannot check for interrupted runs") as conn:
+            return lifecycle.mark_stale(conn, this_process(), datetime.now(UTC))
+
+    def add_note(self, run_id: int, text: str, author: str) -> None:
+        """Append an operator's note to a run (any status; notes are additions, never edits)."""
+        with self._write(f"cannot add a note to run {run_id}") as conn:
+            queries.get_run(conn, run_id)
+            lifecycle.annotate(conn, run_id, kind="note", text=text, author=author)
+
+    # -- reading -----------------------------------------------------------------------------
+    def get_run(self, run_id: int) -> RunRecord:
+        with self._read(f"cannot read run {run_id}") as conn:
+            return queries.get_run(conn, run_id)
+
+    def list_runs(
+        self,
+        board: str | None = None,
+        procedure: str | None = None,
+        since: datetime | None = None,
+        until: datetime | None = None,
+        status: str | None = None,
+        batch: str | None = None,
+    ) -> list[RunRecord]:
+        """Matching runs, oldest first (``since`` inclusive, ``until`` exclusive, on the start)."""
+        filters: dict[str, Any] = dict(board=board, procedure=procedure, since=since, until=until)
+        with self._read("cannot list runs") as conn:
+            return queries.list_runs(conn, **filters, status=status, batch=batch)
+
+    def runs_of_batch(self, batch: str) -> list[RunRecord]:
+        return self.list_runs(batch=batch)
+
+    def latest_qualification(self, board: str, procedure: str | None = None) -> RunRecord | None:
+        """The board's most recently started completed run (of ``procedure`` if given)."""
+        with self._read(f"cannot read runs of {board}") as conn:
+            return queries.latest_run(conn, board=board, procedure=procedure, status="completed")
+
+    def steps(self, run_id: int) -> list[StepRecord]:
+        """Every finished step of a run (completed, failed or skipped), in order."""
+        with self._read(f"cannot read steps of run {run_id}") as conn:
+            return queries.steps(conn, run_id)
+
+    def completed_steps(self, run_id: int) -> dict[str, CompletedStep]:
+        """Path -> completed step with settings, results, traces and measurements (for resume)."""
+        with self._read(f"cannot read steps of run {run_id}") as conn:
+            return queries.completed_steps(conn, run_id)
+
+    def traces(self, run_id: int, path_prefix: str | None = None) -> list[StoredTrace]:
+        with self._read(f"cannot read traces of run {run_id}") as conn:
+            return queries.traces(conn, run_id, path_prefix)
+
+    def measurements(
+        self,
+        run_id: int | None = None,
+        board: str | None = None,
+        procedure: str | None = None,
+        since: datetime | None = None,
+        until: datetime | None = None,
+    ) -> list[StoredMeasurement]:
+        filters: dict[str, Any] = dict(run_id=run_id, board=board, procedure=procedure)
+        with self._read("cannot read measurements") as conn:
+            return queries.measurements(conn, **filters, since=since, until=until)
+
+    def quantity_series(
+        self,
+        board: str,
+        quantity: str,
+        channel: int | None = None,
+        output: str | None = None,
+        procedure: str | None = None,
+    ) -> list[SeriesPoint]:
+        """``quantity`` over the board's completed runs, oldest first (None = every channel/output)."""
+        with self._read(f"cannot read {quantity} of {board}") as conn:
+            return queries.quantity_series(
+                conn,
+                board=board,
+                quantity=quantity,
+                channel=channel,
+                output=output,
+                procedure=procedure,
+            )
+
+    def notes(self, run_id: int) -> list[Annotation]:
+        """The operators' notes of a run, oldest first."""
+        with self._read(f"cannot read notes of run {run_id}") as conn:
+            return queries.annotations(conn, run_id, notes_only=True)
+
+    def audit_trail(self, run_id: int) -> list[Annotation]:
+        """Notes and status changes (finished, resumed, interrupted) of a run, oldest first."""
+        with self._read(f"cannot read the audit trail of run {run_id}") as conn:
+            return queries.annotations(conn, run_id)
+
+    def safety_events(self, run_id: int) -> list[SafetyRecord]:
+        with self._read(f"cannot read safety events of run {run_id}") as conn:
+            return queries.safety_events(conn, run_id)
