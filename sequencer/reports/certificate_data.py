@@ -1,0 +1,317 @@
+"""Everything one channel's certificate shows, gathered from the store, and its SHA-256.
+
+The certificate is a rendering of a :class:`CertificateData`; nothing on it comes from elsewhere.  The
+data's canonical JSON (:func:`canonical_json`: sorted keys, no whitespace, ASCII, NaN as null, floats
+as Python's shortest round-trip ``repr``) is embedded in the PDF and the HTML, and its SHA-256
+(:func:`data_sha256`) is printed on them; ``verify`` gathers the same data from the database again and
+compares.  Fields marked ``hashed=False`` (the raw samples of a plotted pulse) are left out of the
+canonical form; their digest (``trace_sha256``) is in it instead.
+
+Certificate number scheme: ``BW-<run id, 6 digits>-<board serial>-CH<channel, 2 digits>``, e.g.
+``BW-000042-NR-PA8-0001-CH03``: deterministic from the run and the channel, unique in one database.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass, field, fields, is_dataclass
+from datetime import datetime
+from typing import Any
+
+from .evidence import PulseShape, RunSnapshot, SCurve, TransferCurve, gather_evidence, snapshot_run
+from .quantities import quantity_rank
+
+SCHEMA = "benchwright-certificate/1"
+HASH_PREFIX_DIGITS = 12
+
+__all__ = [
+    "SCHEMA",
+    "CertificateData",
+    "InstrumentLine",
+    "QuantityLine",
+    "SafetyLine",
+    "canonical_dict",
+    "canonical_json",
+    "certificate_from_dict",
+    "certificate_number",
+    "data_sha256",
+    "gather_certificate",
+    "gather_certificates",
+]
+
+
+@dataclass(frozen=True, kw_only=True)
+class InstrumentLine:
+    role: str
+    maker: str
+    model: str
+    serial: str
+    firmware: str
+    calibration_due: str
+    address: str
+
+
+@dataclass(frozen=True, kw_only=True)
+class QuantityLine:
+    """One stored measurement; ``channel`` None for a per-board quantity (e.g. ``leakage_nA``)."""
+
+    quantity: str
+    channel: int | None
+    output: str | None
+    aggressor: int | None
+    value: float | None
+    uncertainty: float | None
+    unit: str
+    low: float | None
+    high: float | None
+    verdict: str
+
+
+@dataclass(frozen=True, kw_only=True)
+class SafetyLine:
+    at: str
+    path: str
+    kind: str
+    detail: str  # canonical JSON of the event's detail mapping
+
+
+@dataclass(frozen=True, kw_only=True)
+class CertificateData:
+    """One channel of one run, as certified."""
+
+    schema: str = SCHEMA
+    number: str
+    run_id: int
+    channel: int
+    board: str
+    board_type: str
+    batch: str
+    procedure: str
+    procedure_version: str
+    procedure_sha256: str
+    bench: str
+    operator: str
+    started_at: str
+    ended_at: str
+    run_status: str
+    run_reason: str
+    software_version: str
+    instruments: tuple[InstrumentLine, ...]
+    quantities: tuple[QuantityLine, ...]
+    crosstalk_out: tuple[QuantityLine, ...]  # this channel as the aggressor
+    safety: tuple[SafetyLine, ...]
+    transfer: tuple[TransferCurve, ...] = ()
+    s_curves: tuple[SCurve, ...] = ()
+    pulses: tuple[PulseShape, ...] = ()
+    verdict: str = field(default="INCOMPLETE")
+
+    @property
+    def procedure_hash_prefix(self) -> str:
+        return self.procedure_sha256[:HASH_PREFIX_DIGITS]
+
+
+def certificate_number(run_id: int, serial: str, channel: int) -> str:
+    """``BW-<run_id:06d>-<serial>-CH<channel:02d>`` (module docstring)."""
+    return f"BW-{run_id:06d}-{serial}-CH{channel:02d}"
+
+
+def overall_verdict(quantities: Iterable[QuantityLine], run_status: str) -> str:
+    """FAIL if any value failed; else INCOMPLETE if the run did not complete or nothing was judged
+    pass; else PASS.  A failed value outranks an incomplete run."""
+    verdicts = [q.verdict for q in quantities]
+    if "fail" in verdicts:
+        return "FAIL"
+    if run_status != "completed" or "pass" not in verdicts:
+        return "INCOMPLETE"
+    return "PASS"
+
+
+def gather_certificates(store: Any, run_id: int) -> list[CertificateData]:
+    """One :class:`CertificateData` per channel that has a measurement in run ``run_id``."""
+    snap = snapshot_run(store, run_id)
+    return [_certificate(snap, channel) for channel in snap.channels]
+
+
+def gather_certificate(store: Any, run_id: int, channel: int) -> CertificateData:
+    """The data of one channel; ``KeyError`` if the run has no measurement of that channel."""
+    snap = snapshot_run(store, run_id)
+    if channel not in snap.channels:
+        raise KeyError(f"run {run_id} has no measurement of channel {channel}")
+    return _certificate(snap, channel)
+
+
+def _certificate(snap: RunSnapshot, channel: int) -> CertificateData:
+    run = snap.run
+    mine = [m for m in snap.measurements if m.channel == channel or m.channel is None]
+    quantities = tuple(sorted((_quantity(m) for m in mine), key=_quantity_key))
+    crosstalk_out = tuple(
+        sorted(
+            (
+                _quantity(m)
+                for m in snap.measurements
+                if m.aggressor == channel and m.channel != channel
+            ),
+            key=_quantity_key,
+        )
+    )
+    transfer, s_curves, pulses = gather_evidence(snap, channel)
+    return CertificateData(
+        number=certificate_number(int(run.id), str(run.board), channel),
+        run_id=int(run.id),
+        channel=channel,
+        board=run.board,
+        board_type=run.board_type,
+        batch=run.batch or "",
+        procedure=run.procedure,
+        procedure_version=run.procedure_version,
+        procedure_sha256=run.procedure_sha256,
+        bench=run.bench,
+        operator=run.operator,
+        started_at=_iso(run.started_at),
+        ended_at=_iso(run.ended_at),
+        run_status=run.status,
+        run_reason=run.reason or "",
+        software_version=run.software_version,
+        instruments=tuple(sorted((_instrument(i) for i in run.instruments), key=lambda i: i.role)),
+        quantities=quantities,
+        crosstalk_out=crosstalk_out,
+        safety=tuple(_safety(e) for e in snap.safety_events),
+        transfer=transfer,
+        s_curves=s_curves,
+        pulses=pulses,
+        verdict=overall_verdict(quantities, run.status),
+    )
+
+
+def _quantity_key(q: QuantityLine) -> tuple:
+    return (
+        q.channel is not None,  # board-level rows first
+        quantity_rank(q.quantity),
+        q.quantity,
+        q.output or "",
+        q.aggressor or 0,
+        q.channel or 0,
+    )
+
+
+def _quantity(m: Any) -> QuantityLine:
+    return QuantityLine(
+        quantity=m.quantity,
+        channel=m.channel,
+        output=m.output,
+        aggressor=m.aggressor,
+        value=_float_or_none(m.value),
+        uncertainty=_float_or_none(m.uncertainty),
+        unit=m.unit,
+        low=_float_or_none(m.low),
+        high=_float_or_none(m.high),
+        verdict=m.verdict,
+    )
+
+
+def _instrument(i: Any) -> InstrumentLine:
+    return InstrumentLine(
+        role=i.role,
+        maker=i.maker or "",
+        model=i.model or "",
+        serial=i.serial or "",
+        firmware=i.firmware or "",
+        calibration_due=str(i.calibration_due or ""),
+        address=i.address or "",
+    )
+
+
+def _safety(e: Any) -> SafetyLine:
+    return SafetyLine(
+        at=_iso(e.at),
+        path=e.path,
+        kind=e.kind,
+        detail=json.dumps(_plain(dict(e.detail or {})), sort_keys=True, separators=(",", ":")),
+    )
+
+
+def _iso(value: datetime | str | None) -> str:
+    if value is None:
+        return ""
+    return value if isinstance(value, str) else value.isoformat()
+
+
+def _float_or_none(value: float | None) -> float | None:
+    if value is None:
+        return None
+    v = float(value)
+    return v if math.isfinite(v) else None
+
+
+# -- canonical form -------------------------------------------------------------------------------
+
+
+def canonical_dict(data: Any) -> Any:
+    """Plain JSON value of ``data``: dataclasses as dicts (fields with ``hashed=False`` left out),
+    tuples as lists, non-finite floats as None."""
+    if is_dataclass(data) and not isinstance(data, type):
+        return {
+            f.name: canonical_dict(getattr(data, f.name))
+            for f in fields(data)
+            if f.metadata.get("hashed", True)
+        }
+    return _plain(data)
+
+
+def _plain(value: Any) -> Any:
+    if is_dataclass(value) and not isinstance(value, type):
+        return canonical_dict(value)
+    if isinstance(value, Mapping):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_plain(v) for v in value]
+    if isinstance(value, bool) or value is None or isinstance(value, str):
+        return value
+    if isinstance(value, int):
+        return int(value)
+    if isinstance(value, float) or hasattr(value, "__float__"):
+        v = float(value)
+        return v if math.isfinite(v) else None
+    return str(value)
+
+
+def canonical_json(data: Any) -> str:
+    """The canonical JSON text of ``data`` (a dataclass or an already plain value)."""
+    return json.dumps(
+        canonical_dict(data),
+        sort_keys=True,
+        separators=(",", ":"),
+        ensure_ascii=True,
+        allow_nan=False,
+    )
+
+
+def data_sha256(data: Any) -> str:
+    """Hex SHA-256 of the UTF-8 canonical JSON of ``data``."""
+    return hashlib.sha256(canonical_json(data).encode("utf-8")).hexdigest()
+
+
+def certificate_from_dict(value: Mapping[str, Any]) -> CertificateData:
+    """A :class:`CertificateData` from its canonical dict (as embedded in a certificate).
+
+    Raises ``KeyError`` / ``TypeError`` when the dict does not have the canonical fields.
+    """
+    v = dict(value)
+
+    def rows(key: str, cls: type, tuples: tuple[str, ...] = ()) -> tuple[Any, ...]:
+        return tuple(
+            cls(**{k: tuple(x) if k in tuples else x for k, x in dict(item).items()})
+            for item in v.pop(key, [])
+        )
+
+    v["instruments"] = rows("instruments", InstrumentLine)
+    v["quantities"] = rows("quantities", QuantityLine)
+    v["crosstalk_out"] = rows("crosstalk_out", QuantityLine)
+    v["safety"] = rows("safety", SafetyLine)
+    v["transfer"] = rows("transfer", TransferCurve, ("amplitudes_mV", "heights_mV"))
+    v["s_curves"] = rows("s_curves", SCurve, ("thresholds_mV", "counts"))
+    v["pulses"] = rows("pulses", PulseShape)
+    return CertificateData(**v)

@@ -1,0 +1,83 @@
+"""``certify_run``: the certificates of a run, one PDF and one HTML per channel.
+
+The data of every channel is read from the store in this process (one snapshot of the run); the
+rendering (plots, PDF, HTML) runs in a process pool, one chunk of channels per worker, so that each
+worker builds its figures once and reuses them for its whole chunk.  Workers start with
+``forkserver`` (``spawn`` where that is missing): never ``fork``, which is unsafe in a process that
+runs threads (the simulated bench does).
+"""
+
+from __future__ import annotations
+
+import multiprocessing
+import os
+import re
+from concurrent.futures import ProcessPoolExecutor
+from pathlib import Path
+from typing import Any
+
+from .certificate_data import CertificateData, gather_certificates
+
+MIN_PER_WORKER = 3
+"""Below this many certificates per worker, starting a pool costs more than it saves."""
+
+_UNSAFE = re.compile(r"[^A-Za-z0-9._-]+")
+
+
+def certificate_stem(data: CertificateData) -> str:
+    """File name (without suffix) of a certificate: its number, made safe for any filesystem."""
+    return _UNSAFE.sub("_", data.number)
+
+
+def certify_run(
+    store: Any, run_id: int, out_dir: Path | str, *, workers: int | None = None, paper: str = "A4"
+) -> list[Path]:
+    """Write ``<number>.pdf`` and ``<number>.html`` for every channel of run ``run_id`` into
+    ``out_dir``; returns the paths, PDF then HTML per channel, in channel order.
+
+    ``workers``: processes to render with (default: the CPU count); 1 renders in this process.
+    """
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    datas = gather_certificates(store, run_id)
+    if not datas:
+        return []
+    n = max(1, min(workers or os.cpu_count() or 1, len(datas) // MIN_PER_WORKER or 1))
+    if n == 1:
+        return [Path(p) for p in render_certificates(datas, str(out), paper)]
+    chunks = [datas[i::n] for i in range(n)]
+    methods = multiprocessing.get_all_start_methods()
+    context = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
+    with ProcessPoolExecutor(max_workers=n, mp_context=context) as pool:
+        written = {
+            p
+            for chunk in pool.map(render_certificates, chunks, [str(out)] * n, [paper] * n)
+            for p in chunk
+        }
+    paths = [out / f"{certificate_stem(d)}{suffix}" for d in datas for suffix in (".pdf", ".html")]
+    missing = [p for p in paths if str(p) not in written]
+    if missing:
+        raise RuntimeError(f"certificate workers did not write {missing[0]}")
+    return paths
+
+
+def render_certificates(datas: list[CertificateData], out_dir: str, paper: str = "A4") -> list[str]:
+    """Render ``datas`` with one :class:`~sequencer.reports.plots.Plotter`; PDF then HTML paths."""
+    from .certificate_html import render_html
+    from .certificate_pdf import render_pdf
+    from .plots import Plotter
+
+    plotter = Plotter()
+    written: list[str] = []
+    for d in datas:
+        images = {
+            "transfer": plotter.transfer(d.transfer),
+            "s_curves": plotter.s_curves(d.s_curves),
+            "pulses": plotter.pulses(d.pulses),
+            "crosstalk": plotter.crosstalk(d.crosstalk_out, d.channel),
+        }
+        stem = certificate_stem(d)
+        pdf = render_pdf(d, images, Path(out_dir) / f"{stem}.pdf", paper=paper)
+        html = render_html(d, images, Path(out_dir) / f"{stem}.html")
+        written += [str(pdf), str(html)]
+    return written

@@ -1,0 +1,81 @@
+"""Display facts of the DESIGN.md quantities and how numbers are printed on reports.
+
+Number formatting (common practice, cf. the Particle Data Group rounding rule, from memory): an
+uncertainty is printed with two significant digits and its value to the same decimal place; a value
+without uncertainty with ``VALUE_DIGITS`` significant digits.  The printed text is a pure function of
+the stored numbers, so ``verify`` can recompute it.
+"""
+
+from __future__ import annotations
+
+import math
+
+VALUE_DIGITS = 5
+UNCERTAINTY_DIGITS = 2
+
+UNITS: dict[str, str] = {
+    "gain": "V/V",
+    "offset_mV": "mV",
+    "inl_pct": "%",
+    "noise_in_mV": "mV",
+    "crosstalk_pct": "%",
+    "threshold_mV": "mV",
+    "threshold_sigma_mV": "mV",
+    "discriminator_offset_mV": "mV",
+    "peaking_time_ns": "ns",
+    "rise_time_ns": "ns",
+    "leakage_nA": "nA",
+}
+"""DESIGN.md quantity names (FIXED) and their units."""
+
+ORDER: tuple[str, ...] = tuple(UNITS)
+"""The order in which quantities are listed on a certificate (DESIGN.md table order)."""
+
+
+def quantity_rank(quantity: str) -> int:
+    """Sort key: DESIGN.md order first, unknown quantities after, alphabetically by the caller."""
+    return ORDER.index(quantity) if quantity in ORDER else len(ORDER)
+
+
+def format_number(value: float | None, digits: int = VALUE_DIGITS) -> str:
+    """``value`` with ``digits`` significant digits, no exponent for |v| in [1e-4, 1e6); "—" if None."""
+    if value is None:
+        return "—"
+    if not math.isfinite(value):
+        return "NaN" if math.isnan(value) else ("+inf" if value > 0 else "-inf")
+    if value == 0.0:
+        return "0"
+    magnitude = abs(value)
+    if not 1e-4 <= magnitude < 1e6:
+        return f"{value:.{digits - 1}e}"
+    decimals = max(0, digits - 1 - math.floor(math.log10(magnitude)))
+    return f"{value:.{decimals}f}"
+
+
+def format_measured(value: float | None, uncertainty: float | None) -> tuple[str, str]:
+    """(value text, uncertainty text): the value rounded to the uncertainty's second digit."""
+    if value is None or uncertainty is None or not math.isfinite(uncertainty) or uncertainty <= 0:
+        return format_number(value), format_number(uncertainty) if uncertainty is not None else ""
+    if not math.isfinite(value):
+        return format_number(value), format_number(uncertainty, UNCERTAINTY_DIGITS)
+    exponent = math.floor(math.log10(uncertainty)) - (UNCERTAINTY_DIGITS - 1)
+    decimals = max(0, -exponent)
+    if decimals > 12 or abs(value) >= 1e6:
+        return format_number(value), format_number(uncertainty, UNCERTAINTY_DIGITS)
+    return f"{value:.{decimals}f}", f"{uncertainty:.{decimals}f}"
+
+
+def format_limits(low: float | None, high: float | None) -> str:
+    """The acceptance window as text: ``a … b``, ``≥ a``, ``≤ b`` or ``—``."""
+    if low is None and high is None:
+        return "—"
+    if low is None:
+        return f"≤ {format_limit(high)}"
+    if high is None:
+        return f"≥ {format_limit(low)}"
+    return f"{format_limit(low)} … {format_limit(high)}"
+
+
+def format_limit(value: float | None) -> str:
+    """A limit as set (shortest form, up to 6 significant digits): 0.9, 1.1, 250, 1e-05."""
+    return "—" if value is None else f"{value:.6g}"

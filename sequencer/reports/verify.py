@@ -1,0 +1,198 @@
+"""``verify_certificate``: check a certificate (PDF or HTML) against the results database.
+
+Three checks, every difference reported as one line:
+
+1. the data embedded in the certificate still hashes to the SHA-256 printed on it (the embedded
+   data was not edited);
+2. the visible values are those of the embedded data (HTML: each ``data-field`` cell; PDF: each
+   printed value, verdict and the hash are found in the page text);
+3. the database, gathered again for the certificate's run and channel, gives the same canonical
+   data; if not, each field that differs is named with both values.
+
+Reading a PDF needs ``pypdf`` (in the ``test`` extra today; ``benchwright verify`` of a PDF needs it
+installed).  HTML needs only the standard library.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from html.parser import HTMLParser
+from pathlib import Path
+from typing import Any
+
+from sequencer.errors import StoreError
+
+from .certificate_data import (
+    SCHEMA,
+    canonical_dict,
+    certificate_from_dict,
+    data_sha256,
+    gather_certificate,
+)
+from .certificate_html import DATA_SCRIPT_ID, META_NAME, QUANTITY_COLUMNS
+from .certificate_pdf import ATTACHMENT_NAME, needs_unicode_font, pdf_text
+from .certificate_view import quantity_rows
+
+MAX_DIFFERENCES = 50
+
+
+@dataclass(frozen=True)
+class VerifyResult:
+    ok: bool
+    differences: list[str] = field(default_factory=list)
+    number: str = ""
+    data_sha256: str = ""
+
+
+@dataclass(frozen=True)
+class _Embedded:
+    meta: dict[str, Any]
+    data: dict[str, Any]
+    visible: dict[str, str] | None  # HTML data-field -> text
+    page_text: str | None  # PDF text
+
+
+def verify_certificate(store: Any, path: Path | str) -> VerifyResult:
+    """Compare the certificate at ``path`` with the database of ``store`` (module docstring).
+
+    ``ValueError`` if the file is not a benchwright certificate at all.
+    """
+    p = Path(path)
+    embedded = _read_pdf(p) if p.suffix.lower() == ".pdf" else _read_html(p)
+    meta = embedded.meta
+    if meta.get("schema") != SCHEMA:
+        raise ValueError(f"{p}: not a benchwright certificate (schema {meta.get('schema')!r})")
+    printed = str(meta.get("data_sha256", ""))
+    problems: list[str] = []
+    if data_sha256(embedded.data) != printed:
+        problems.append("embedded data does not match the SHA-256 printed on the certificate")
+    problems += _visible_problems(embedded)
+    try:
+        fresh = gather_certificate(store, int(meta["run_id"]), int(meta["channel"]))
+    except (StoreError, KeyError) as exc:
+        problems.append(f"database: {exc}")
+        return VerifyResult(False, problems, str(meta.get("number", "")), printed)
+    if data_sha256(fresh) != data_sha256(embedded.data):
+        changed = diff(embedded.data, canonical_dict(fresh))
+        problems += [f"{d} (certificate != database)" for d in changed]
+    return VerifyResult(
+        not problems, problems[:MAX_DIFFERENCES], str(meta.get("number", "")), printed
+    )
+
+
+def diff(a: Any, b: Any, where: str = "") -> list[str]:
+    """Paths (``quantities.3.value``) where two plain JSON values differ, with both values."""
+    if isinstance(a, dict) and isinstance(b, dict):
+        out: list[str] = []
+        for key in sorted(set(a) | set(b)):
+            sub = f"{where}.{key}" if where else str(key)
+            if key not in a or key not in b:
+                out.append(f"{sub}: {a.get(key, '<missing>')!r} != {b.get(key, '<missing>')!r}")
+            else:
+                out += diff(a[key], b[key], sub)
+        return out
+    if isinstance(a, list) and isinstance(b, list):
+        out = [
+            x
+            for i, (p, q) in enumerate(zip(a, b, strict=False))
+            for x in diff(p, q, f"{where}.{i}")
+        ]
+        if len(a) != len(b):
+            out.append(f"{where}: {len(a)} entries != {len(b)} entries")
+        return out
+    return [] if a == b else [f"{where}: {a!r} != {b!r}"]
+
+
+def _visible_problems(e: _Embedded) -> list[str]:
+    try:
+        data = certificate_from_dict(e.data)
+    except (KeyError, TypeError) as exc:
+        return [f"embedded data is not a certificate's: {exc}"]
+    rows = quantity_rows(data)
+    problems = []
+    if e.visible is not None:
+        expected = {
+            f"{r.key}.{col}": text
+            for r in rows
+            for col, text in zip(QUANTITY_COLUMNS, r.cells, strict=True)
+        }
+        for key, text in expected.items():
+            shown = e.visible.get(key)
+            if shown != text:
+                problems.append(f"printed {key}: {shown!r} but the data says {text!r}")
+        problems += [
+            f"printed {k} is not in the data" for k in sorted(set(e.visible) - set(expected))
+        ]
+    if e.page_text is not None:
+        unicode_font = needs_unicode_font(data)
+        page = " ".join(e.page_text.split())
+        for r in rows:
+            line = " ".join(pdf_text(c, unicode_font) for c in r.cells)
+            if line not in page:
+                problems.append(f"printed {r.key}: {line!r} not found in the PDF text")
+    return problems
+
+
+def _read_pdf(path: Path) -> _Embedded:
+    try:
+        from pypdf import PdfReader
+    except ImportError as exc:  # pragma: no cover - depends on the environment
+        raise ImportError("verifying a PDF certificate needs pypdf: pip install pypdf") from exc
+    reader = PdfReader(str(path))
+    keywords = (reader.metadata or {}).get("/Keywords", "")
+    try:
+        meta = json.loads(str(keywords))
+        payload = reader.attachments[ATTACHMENT_NAME][0]
+        data = json.loads(payload.decode("utf-8"))
+    except (ValueError, KeyError, IndexError) as exc:
+        raise ValueError(f"{path}: no benchwright certificate data in this PDF") from exc
+    text = "\n".join(page.extract_text() or "" for page in reader.pages)
+    return _Embedded(meta=meta, data=data, visible=None, page_text=text)
+
+
+class _CertificateHTML(HTMLParser):
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.meta: str | None = None
+        self.data_text: list[str] = []
+        self.fields: dict[str, str] = {}
+        self._in_data = False
+        self._field: str | None = None
+        self._buf: list[str] = []
+
+    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        a = dict(attrs)
+        if tag == "meta" and a.get("name") == META_NAME:
+            self.meta = a.get("content") or ""
+        elif tag == "script" and a.get("id") == DATA_SCRIPT_ID:
+            self._in_data = True
+        elif a.get("data-field"):
+            self._field, self._buf = a["data-field"], []
+
+    def handle_endtag(self, tag: str) -> None:
+        if tag == "script":
+            self._in_data = False
+        elif self._field is not None and tag in ("td", "th"):
+            self.fields[self._field] = "".join(self._buf)
+            self._field = None
+
+    def handle_data(self, data: str) -> None:
+        if self._in_data:
+            self.data_text.append(data)
+        elif self._field is not None:
+            self._buf.append(data)
+
+
+def _read_html(path: Path) -> _Embedded:
+    parser = _CertificateHTML()
+    parser.feed(path.read_text(encoding="utf-8"))
+    parser.close()
+    if parser.meta is None or not parser.data_text:
+        raise ValueError(f"{path}: no benchwright certificate data in this file")
+    try:
+        meta = json.loads(parser.meta)
+        data = json.loads("".join(parser.data_text))
+    except ValueError as exc:
+        raise ValueError(f"{path}: the embedded certificate data is not JSON") from exc
+    return _Embedded(meta=meta, data=data, visible=parser.fields, page_text=None)
