@@ -36,6 +36,7 @@ class TransportError(BenchwrightError):
     """The link to an instrument failed."""
 
     def __init__(self, message: str, *, address: str = "", command: str = "") -> None:
+        self.message = message
         self.address = address
         self.command = command
         parts = [message]
@@ -44,6 +45,12 @@ class TransportError(BenchwrightError):
         if command:
             parts.append(f"(sending {command!r})")
         super().__init__(" ".join(parts))
+
+    def with_command(self, command: str) -> TransportError:
+        """The same error naming the command it happened on (kept if one is named already)."""
+        if self.command:
+            return self
+        return type(self)(self.message, address=self.address, command=command)
 
 
 class InstrumentTimeout(TransportError):

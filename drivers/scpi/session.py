@@ -24,6 +24,7 @@ from typing import Protocol, TypeVar
 import numpy as np
 
 from drivers.errors import (
+    BenchwrightError,
     ConnectionClosed,
     ConnectionRefused,
     InstrumentError,
@@ -257,15 +258,20 @@ class ScpiSession:
         for attempt in range(attempts):
             try:
                 return op()
-            except (InstrumentTimeout, ProtocolError):
+            except (InstrumentTimeout, ProtocolError) as exc:
                 self._out_of_step = True
                 if attempt == attempts - 1:
                     raise
-            except (ConnectionClosed, ConnectionRefused):
+                failure: BenchwrightError = exc
+            except (ConnectionClosed, ConnectionRefused) as exc:
                 self._link_lost = True
                 if attempt == attempts - 1:
                     raise
-            self._recover_if_needed()
+                failure = exc
+            try:
+                self._recover_if_needed()
+            except (TransportError, ProtocolError) as recovery:
+                raise failure from recovery  # the command that failed, not the resync, is the news
         raise AssertionError("unreachable")  # pragma: no cover
 
     def _recover_if_needed(self) -> None:
@@ -284,7 +290,10 @@ class ScpiSession:
         self.resyncs += 1
         self.transport.drain()
         self._send(self.clear_command)
-        self._sync(self.opc_timeout_ms)
+        # An instrument that answers at all answers *OPC? after *CLS at once: wait no longer than
+        # for an ordinary reply, so a dead link is reported after one timeout, not after opc_timeout.
+        ordinary = getattr(self.transport, "timeout_ms", None)
+        self._sync(min(self.opc_timeout_ms, ordinary) if ordinary else self.opc_timeout_ms)
         self._out_of_step = False
 
     # -- wire ------------------------------------------------------------------------------------
@@ -294,7 +303,10 @@ class ScpiSession:
     def _ask(self, command: str, timeout_ms: int | None = None) -> str:
         with self._timeout(timeout_ms):
             self._send(command)
-            return self.transport.read().decode("ascii", "replace").strip()
+            try:
+                return self.transport.read().decode("ascii", "replace").strip()
+            except TransportError as exc:
+                raise exc.with_command(command) from exc
 
     def _sync(self, timeout_ms: int) -> None:
         reply = self._ask(self.opc_query, timeout_ms)
@@ -326,6 +338,12 @@ class ScpiSession:
         )
 
     def _ask_block(self, command: str, timeout_ms: int | None) -> bytes:
+        try:
+            return self._read_block_reply(command, timeout_ms)
+        except TransportError as exc:
+            raise exc.with_command(command) from exc
+
+    def _read_block_reply(self, command: str, timeout_ms: int | None) -> bytes:
         with self._timeout(timeout_ms):
             self._send(command)
             head = self.transport.read_bytes(2)

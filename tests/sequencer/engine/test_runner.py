@@ -238,11 +238,6 @@ def test_safety_events_are_not_emitted_without_bias_steps():
     assert not [e for e in events if isinstance(e, SafetyEvent)]
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="drivers: InstrumentTimeout from a read carries no command "
-    "(ScpiSession._ask should attach it); reported to the coordinator",
-)
 def test_timeout_reason_names_the_command():
     state = BenchState()
     state.faults = [{"role": "pulser", "after_commands": 2, "kind": "no_reply"}]
