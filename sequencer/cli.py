@@ -278,14 +278,15 @@ def sim(board_path: str, host: str, port_base: int, bench_out: str | None) -> No
           on_ready=None)
 
 
-def _add_report_commands() -> None:
-    from sequencer import cli_reports, cli_results
+def attach_commands() -> None:
+    """Attach the commands that live in their own modules (store-only reports; batch and demo)."""
+    from sequencer import cli_batch, cli_results
 
-    for command in (*cli_results.COMMANDS, *cli_reports.COMMANDS):
+    for command in (*cli_results.COMMANDS, cli_batch.batch, cli_batch.demo):
         cli.add_command(command)
 
 
 def main() -> None:
     """Entry point of the ``benchwright`` command."""
-    _add_report_commands()
+    attach_commands()
     cli()

@@ -14,7 +14,7 @@ import jsonschema
 import pytest
 from click.testing import CliRunner
 
-from sequencer.cli import _add_report_commands, cli
+from sequencer.cli import attach_commands, cli
 
 ROOT = Path(__file__).resolve().parents[2]
 QUICK = ROOT / "procedures" / "examples" / "quick-gain.yaml"
@@ -28,7 +28,7 @@ EXPORT_COLUMNS = [
 ]
 LOCATED = re.compile(r"^(?P<file>[^:]+):(?P<line>\d+):(?P<col>\d+): .+$")
 
-_add_report_commands()
+attach_commands()
 
 
 def invoke(*args: str) -> tuple[int, str, str]:

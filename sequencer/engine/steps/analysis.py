@@ -87,6 +87,19 @@ def _n_baseline(step: PlannedStep, items: list[Any]) -> int:
         raise AnalysisInputError(f"traces {items[0].name!r}: {exc}") from None
 
 
+MIN_PULSE_SNR = 10.0
+"""A pulse to be timed, or to drive crosstalk, stands this many baseline RMS above its baseline."""
+
+
+def _has_pulse(rows: np.ndarray, n_baseline: int) -> bool:
+    """True when the mean of ``rows`` peaks more than ``MIN_PULSE_SNR`` baseline RMS above its
+    baseline: a dead channel's noise does not have a rise time, a peak, or crosstalk to give."""
+    mean = rows.mean(axis=0)
+    base = mean[:n_baseline]
+    height = float(mean.max() - base.mean())
+    return height > 0.0 and height > MIN_PULSE_SNR * float(base.std())
+
+
 def analyse_transfer(ctx: RunContext, step: PlannedStep) -> StepResult:
     a = step.args
     items = _traces(ctx, step, a["traces"])
@@ -134,6 +147,8 @@ def analyse_crosstalk(ctx: RunContext, step: PlannedStep) -> StepResult:
         raise AnalysisInputError(f"{len(agg)} aggressor traces but {len(vic)} victim traces")
     arows, dt = _stack_mV(agg)
     vrows, _ = _stack_mV(vic)
+    if not _has_pulse(arows, _n_baseline(step, agg)):  # dead aggressor: nothing to measure
+        return StepResult(results={"pairs": len(agg), "skipped": "the aggressor shows no pulse"})
     pct, err = _mean_err(an.crosstalk_percent(arows, vrows, dt, _n_baseline(step, agg)))
     m = measure(
         ctx,
@@ -190,6 +205,8 @@ def analyse_peaking(ctx: RunContext, step: PlannedStep) -> StepResult:
     items = _traces(ctx, step, step.args["traces"])
     rows, dt = _stack_mV(items)
     starts = np.array([-t.trace.t0_ns for t in items])
+    if not _has_pulse(rows, _n_baseline(step, items)):
+        raise AnalysisInputError("no pulse above the noise: nothing to time")
     value, err = _mean_err(an.peaking_time(rows, dt, starts))
     results: dict[str, Any] = {"traces": len(items)}
     try:
@@ -210,6 +227,8 @@ def analyse_peaking(ctx: RunContext, step: PlannedStep) -> StepResult:
 def analyse_rise(ctx: RunContext, step: PlannedStep) -> StepResult:
     items = _traces(ctx, step, step.args["traces"])
     rows, dt = _stack_mV(items)
+    if not _has_pulse(rows, _n_baseline(step, items)):
+        raise AnalysisInputError("no pulse above the noise: nothing to time")
     value, err = _mean_err(an.rise_time(rows, dt, _n_baseline(step, items)))
     return StepResult(
         results={"traces": len(items)},

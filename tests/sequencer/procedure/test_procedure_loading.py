@@ -24,7 +24,7 @@ from sequencer.procedure.kinds import KINDS
 ROOT = Path(__file__).resolve().parents[3]
 PROCEDURES = ROOT / "procedures"
 DATA = Path(__file__).parent / "data"
-NON_PROCEDURES = {"boards", "limits"}
+NON_PROCEDURES = {"boards", "limits", "parts"}
 
 
 def shipped_procedures() -> list[Path]:

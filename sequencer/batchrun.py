@@ -1,0 +1,250 @@
+"""The batch workflow: qualify the boards of a batch file in turn, with a running yield.
+
+For each board of the batch (``sequencer.procedure.batch``), in file order:
+
+1. skip it when it already has a *completed* run in this batch (unless ``requalify``);
+2. ask the operator to mount it (``mount`` callback; not asked when unattended);
+3. plan the batch's procedure for its serial and board type and run it, on the bench file or on a
+   simulated bench started for it (``sim_dir``: the entry's ``sim_board`` if given, else
+   ``DIR/<serial>.yaml``), recorded with the batch name;
+4. report the board's channels passed and the running yield over the batch so far.
+
+A channel passes when its run completed and none of its values - nor the board's own values
+(``channel`` empty, e.g. ``leakage_nA``) - failed: the definition of
+``sequencer.reports.batch_summary``, which gives the closing summary.  A run aborted by an instrument
+fault marks that board aborted and the batch goes on; an abort by the operator or a signal stops the
+batch (the boards done so far stay in the store and in the summary).
+"""
+
+from __future__ import annotations
+
+import contextlib
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Any, Literal
+
+from drivers.bench import BenchSpec, load_bench
+from sequencer import compose
+from sequencer.errors import ConfigError, Location, Problem, RunAborted
+from sequencer.procedure import (
+    Batch,
+    BatchBoard,
+    Plan,
+    Procedure,
+    board_info,
+    build_plan,
+    load_board_type,
+    load_procedure,
+)
+
+Mount = Literal["go", "skip", "stop"]
+BoardStatus = Literal["passed", "failed", "aborted", "skipped", "not run"]
+STOPPING_CAUSES = frozenset({"operator", "signal"})
+
+
+@dataclass(frozen=True, kw_only=True)
+class BatchOptions:
+    """How to run a batch: on a bench file or simulated boards, attended or not."""
+
+    bench_path: str | None = None
+    sim_dir: str | None = None
+    unattended: bool = False
+    requalify: bool = False
+    progress: bool = False
+    mount: Callable[[BatchBoard, int, int], Mount] | None = None  # (board, index from 1, count)
+    acknowledge: Callable[[Any], bool] | None = None
+    prompt: Callable[[str, bool], str] | None = None
+    echo: Callable[[str], None] = print
+    handle_signals: bool = True
+    overrides: Mapping[str, Any] = field(default_factory=dict)  # procedure parameters
+
+
+@dataclass(frozen=True, kw_only=True)
+class BoardOutcome:
+    """What became of one board of the batch."""
+
+    serial: str
+    status: BoardStatus
+    run_id: int | None = None
+    channels: int = 0
+    passed: int = 0
+    note: str = ""
+
+
+@dataclass(frozen=True, kw_only=True)
+class BatchOutcome:
+    """Every board's outcome, in batch order, and whether the batch was stopped."""
+
+    batch: str
+    boards: tuple[BoardOutcome, ...]
+    stopped: bool = False
+
+    @property
+    def channels(self) -> int:
+        return sum(b.channels for b in self.boards)
+
+    @property
+    def passed(self) -> int:
+        return sum(b.passed for b in self.boards)
+
+    @property
+    def run_ids(self) -> list[int]:
+        return [b.run_id for b in self.boards if b.run_id is not None]
+
+    def exit_code(self) -> int:
+        """DESIGN.md: 3 a run aborted (or the batch stopped), 1 a value outside limits, else 0."""
+        if self.stopped or any(b.status == "aborted" for b in self.boards):
+            return 3
+        return 1 if any(b.status == "failed" for b in self.boards) else 0
+
+
+def sim_board_path(board: BatchBoard, sim_dir: str | Path) -> Path:
+    """The simulated board file of ``board``: its ``sim_board`` entry, else ``DIR/<serial>.yaml``."""
+    path = Path(board.sim_board) if board.sim_board else Path(sim_dir) / f"{board.serial}.yaml"
+    if not path.is_file():
+        at = board.location or Location("<batch>", 1, 1)
+        raise ConfigError([Problem(at, f"no simulated board file {path} for {board.serial}")])
+    return path
+
+
+def completed_run(store: Any, batch: str, serial: str) -> int | None:
+    """The latest completed run of ``serial`` in ``batch``, if any."""
+    done = [r for r in store.runs_of_batch(batch) if r.board == serial and r.status == "completed"]
+    return done[-1].id if done else None
+
+
+def channel_tally(store: Any, run_id: int) -> tuple[int, int]:
+    """(channels measured, channels passed) of one run (see the module docstring)."""
+    record = store.get_run(run_id)
+    ms = store.measurements(run_id=run_id)
+    board_failed = any(m.channel is None and m.verdict == "fail" for m in ms)
+    channels = {m.channel for m in ms if m.channel is not None}
+    failed = {m.channel for m in ms if m.channel is not None and m.verdict == "fail"}
+    if board_failed or record.status != "completed":
+        return len(channels), 0
+    return len(channels), len(channels - failed)
+
+
+def _outcome(
+    store: Any, serial: str, run_id: int, status: BoardStatus, note: str = ""
+) -> BoardOutcome:
+    channels, passed = channel_tally(store, run_id)
+    if status == "passed" and passed < channels:
+        status = "failed"
+    return BoardOutcome(
+        serial=serial, status=status, run_id=run_id, channels=channels, passed=passed, note=note
+    )
+
+
+class _BatchRun:
+    def __init__(self, batch: Batch, store: Any, options: BatchOptions) -> None:
+        if bool(options.bench_path) == bool(options.sim_dir):
+            raise ConfigError(
+                [
+                    Problem(
+                        Location("<options>", 1, 1),
+                        "give --bench FILE or --sim-dir DIR (one of them)",
+                    )
+                ]
+            )
+        self.batch = batch
+        self.store = store
+        self.options = options
+        self.procedure: Procedure = load_procedure(batch.procedure)
+        self.bench: BenchSpec | None = (
+            load_bench(options.bench_path) if options.bench_path else None
+        )
+        self.outcomes: list[BoardOutcome] = []
+
+    def run(self) -> BatchOutcome:
+        self.store.mark_stale_runs_interrupted()
+        count = len(self.batch.boards)
+        stopped = False
+        for index, board in enumerate(self.batch.boards, start=1):
+            if stopped:
+                self.outcomes.append(BoardOutcome(serial=board.serial, status="not run"))
+                continue
+            outcome, stopped = self._board(board, index, count)
+            self.outcomes.append(outcome)
+            self._report(index, count, outcome)
+        return BatchOutcome(batch=self.batch.name, boards=tuple(self.outcomes), stopped=stopped)
+
+    def _board(self, board: BatchBoard, index: int, count: int) -> tuple[BoardOutcome, bool]:
+        opts = self.options
+        done = completed_run(self.store, self.batch.name, board.serial)
+        if done is not None and not opts.requalify:
+            outcome = _outcome(self.store, board.serial, done, "passed")
+            return replace(
+                outcome, status="skipped", note=f"already qualified in run {done}"
+            ), False
+        if not opts.unattended and opts.mount is not None:
+            answer = opts.mount(board, index, count)
+            if answer == "stop":
+                return BoardOutcome(
+                    serial=board.serial, status="not run", note="batch stopped"
+                ), True
+            if answer == "skip":
+                return BoardOutcome(
+                    serial=board.serial, status="not run", note="skipped by the operator"
+                ), False
+        plan = self._plan(board)
+        request = compose.RunRequest(
+            operator=board.operator,
+            unattended=opts.unattended,
+            acknowledge=opts.acknowledge,
+            prompt=opts.prompt,
+            batch=self.batch.name,
+            progress=opts.progress,
+            handle_signals=opts.handle_signals,
+            procedure_files=self.procedure.source_files(),
+        )
+        sim = str(sim_board_path(board, opts.sim_dir)) if opts.sim_dir else None
+        try:
+            bench = compose.bench_for(None, sim) if sim else contextlib.nullcontext(self.bench)
+            with bench as spec:
+                result = compose.execute(plan, spec, self.store, request)
+        except RunAborted as exc:
+            run_id = self._aborted_run(board.serial)
+            note = f"aborted: {exc}"
+            if run_id is None:
+                return BoardOutcome(serial=board.serial, status="aborted", note=note), True
+            return _outcome(self.store, board.serial, run_id, "aborted", note), (
+                exc.cause in STOPPING_CAUSES
+            )
+        return _outcome(self.store, board.serial, result.run_id, "passed"), False
+
+    def _plan(self, board: BatchBoard) -> Plan:
+        info = board_info(load_board_type(board.board_type), board.serial)
+        return build_plan(self.procedure, info, overrides=self.options.overrides)
+
+    def _aborted_run(self, serial: str) -> int | None:
+        runs = [r for r in self.store.runs_of_batch(self.batch.name) if r.board == serial]
+        return runs[-1].id if runs else None
+
+    def _report(self, index: int, count: int, outcome: BoardOutcome) -> None:
+        channels, passed = self._yield_so_far()
+        share = f"{100.0 * passed / channels:.1f} %" if channels else "-"
+        run = f"run {outcome.run_id}, " if outcome.run_id is not None else ""
+        detail = f"{outcome.passed}/{outcome.channels} channels passed" if outcome.channels else ""
+        note = "; ".join(x for x in (detail, outcome.note) if x)
+        self.options.echo(
+            f"[{index}/{count}] {outcome.serial}: {outcome.status.upper()} ({run}{note}) "
+            f"- running yield {passed}/{channels} channels ({share})"
+        )
+
+    def _yield_so_far(self) -> tuple[int, int]:
+        return (sum(o.channels for o in self.outcomes), sum(o.passed for o in self.outcomes))
+
+
+def qualify_batch(batch: Batch, store: Any, options: BatchOptions) -> BatchOutcome:
+    """Qualify every board of ``batch`` in turn (module docstring); the outcome of each board."""
+    return _BatchRun(batch, store, options).run()
+
+
+def summary_text(store: Any, batch: str, *, outlier_sigma: float | None = None) -> str:
+    """The batch summary of ``sequencer.reports`` as text."""
+    from sequencer.reports import batch_summary
+
+    kwargs = {} if outlier_sigma is None else {"outlier_sigma": outlier_sigma}
+    return batch_summary(store, batch, **kwargs).to_text()

@@ -1,0 +1,97 @@
+"""Run the demo scenario: the invented batch NR-2026-W14, qualified on simulated boards.
+
+Everything the demo writes goes into one folder (default ``./benchwright-demo``)::
+
+    results.db                 SQLite results store (every step, trace, value, limit, verdict)
+    certificates/              one PDF and one HTML certificate per channel of every board
+    batch-summary.txt          the batch summary as printed
+    batch-report/              the batch report (PDF and HTML)
+
+Running it again qualifies the boards again into the same database (the summary takes each board's
+latest completed run).  The demo always ends normally: some of its boards fail on purpose.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from dataclasses import dataclass
+from pathlib import Path
+
+from sequencer.batchrun import BatchOptions, BatchOutcome, qualify_batch
+from sequencer.procedure import load_batch
+from sequencer.store import Store
+
+DEMO_BATCH = "batch.yaml"
+DEFAULT_OUT = Path("benchwright-demo")
+
+
+def demo_dir() -> Path:
+    """The folder of the scenario's data files (package data)."""
+    return Path(__file__).resolve().parent
+
+
+@dataclass(frozen=True, kw_only=True)
+class DemoResult:
+    """Where the demo put everything, and how the batch went."""
+
+    out_dir: Path
+    db_url: str
+    certificates: tuple[Path, ...]
+    summary_path: Path
+    report: tuple[Path, ...]
+    outcome: BatchOutcome
+    seconds: float
+
+
+def run_demo(
+    out_dir: Path | str = DEFAULT_OUT,
+    *,
+    echo: Callable[[str], None] = print,
+    workers: int | None = None,
+) -> DemoResult:
+    """Qualify the demo batch on the simulator, certify every run, summarise the batch."""
+    from sequencer.reports import batch_report, batch_summary, certify_run
+
+    start = time.perf_counter()
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    batch = load_batch(demo_dir() / DEMO_BATCH)
+    db_url = f"sqlite:///{(out / 'results.db').resolve()}"
+    echo(f"demo: batch {batch.name} ({len(batch.boards)} invented boards) on the simulator")
+    with Store.open(db_url) as store:
+        options = BatchOptions(sim_dir=str(demo_dir()), unattended=True, requalify=True, echo=echo)
+        outcome = qualify_batch(batch, store, options)
+        certificates: list[Path] = []
+        for run_id in outcome.run_ids:
+            certificates += certify_run(store, run_id, out / "certificates", workers=workers)
+        summary = batch_summary(store, batch.name)
+        text = summary.to_text()
+        summary_path = out / "batch-summary.txt"
+        summary_path.write_text(text + "\n", encoding="utf-8")
+        report = batch_report(store, batch.name, out / "batch-report")
+    echo("")
+    echo(text)
+    return DemoResult(
+        out_dir=out,
+        db_url=db_url,
+        certificates=tuple(certificates),
+        summary_path=summary_path,
+        report=tuple(report),
+        outcome=outcome,
+        seconds=time.perf_counter() - start,
+    )
+
+
+def describe(result: DemoResult) -> list[str]:
+    """Lines telling where everything is."""
+    cert_dir = result.out_dir / "certificates"
+    return [
+        f"results database : {result.db_url}",
+        f"certificates     : {cert_dir}/ ({len(result.certificates)} files)",
+        f"batch summary    : {result.summary_path}",
+        f"batch report     : {', '.join(str(p) for p in result.report)}",
+        f"scenario files   : {demo_dir()}/",
+        f"try next         : benchwright runs --db {result.db_url}",
+        f"finished in {result.seconds:.0f} s",
+    ]

@@ -1,0 +1,52 @@
+"""``benchwright demo``: the invented batch qualified end to end on the simulator.
+
+The full demo takes about 75 s on 2 cores (four 8-channel boards with real-time bias ramps and 64
+certificates): marked slow.  The quick test checks the scenario itself: invented serials, one
+fault of each kind, the batch file naming the shipped procedure.
+"""
+
+from __future__ import annotations
+
+import time
+
+import pytest
+import yaml
+from click.testing import CliRunner
+
+from sequencer.cli import attach_commands, cli
+from sequencer.demo import DEMO_BATCH, demo_dir
+from sequencer.procedure import load_batch, load_procedure
+
+
+def test_the_scenario_has_one_fault_of_each_kind():
+    batch = load_batch(demo_dir() / DEMO_BATCH)
+    assert len(batch.boards) == 4
+    assert all(b.serial.startswith("NR-PA8-") for b in batch.boards)
+    assert load_procedure(batch.procedure).name == "qualify-preamp"
+    boards = [yaml.safe_load((demo_dir() / f"{b.serial}.yaml").read_text()) for b in batch.boards]
+    assert all(len(b["channels"]) == 8 for b in boards)
+    dead = [b["serial"] for b in boards if any(c["dead"] for c in b["channels"])]
+    saturating = [
+        b["serial"] for b in boards if any(c["saturation_mV"] < 500 for c in b["channels"])
+    ]
+    crosstalk = [b["serial"] for b in boards if b["crosstalk_pct"] > 2.0]
+    assert len(dead) == len(saturating) == len(crosstalk) == 1
+    assert len({*dead, *saturating, *crosstalk}) == 3  # three different boards, one healthy
+
+
+@pytest.mark.slow
+def test_demo_runs_end_to_end(tmp_path):
+    attach_commands()
+    started = time.perf_counter()
+    result = CliRunner().invoke(cli, ["demo", "--out", str(tmp_path / "demo")])
+    seconds = time.perf_counter() - started
+    assert result.exit_code == 0, result.output  # a demonstration: 0 although boards fail
+    out = tmp_path / "demo"
+    assert (out / "results.db").is_file()
+    assert len(list((out / "certificates").glob("*.pdf"))) == 32  # 4 boards x 8 channels
+    assert len(list((out / "certificates").glob("*.html"))) == 32
+    summary = (out / "batch-summary.txt").read_text()
+    # 8 healthy + 7 (dead channel 5) + 7 (saturating channel 3) + 0 (crosstalk into every channel)
+    assert "32 channels, 22 passed" in summary
+    assert str(out / "certificates") in result.output
+    assert seconds < 120  # the issue's goal
