@@ -233,7 +233,13 @@ def outlier_rows(s: BatchSummary) -> list[tuple[str, ...]]:
 
 
 def failed_rows(s: BatchSummary) -> list[tuple[str, ...]]:
-    return [(f.board, str(f.run_id), str(f.channel), "; ".join(f.reasons)) for f in s.failed]
+    """One row per failing value; board, run and channel only on a channel's first row."""
+    rows: list[tuple[str, ...]] = []
+    for f in s.failed:
+        for i, reason in enumerate(f.reasons or ("",)):
+            who = (f.board, str(f.run_id), str(f.channel)) if i == 0 else ("", "", "")
+            rows.append((*who, reason))
+    return rows
 
 
 def headline(s: BatchSummary) -> str:
@@ -264,9 +270,9 @@ def format_summary(s: BatchSummary) -> str:
 def _text_table(header: tuple[str, ...], rows: list[tuple[str, ...]]) -> list[str]:
     widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(header)]
     fmt = "  ".join(f"{{:<{w}}}" for w in widths)
-    return ["  " + fmt.format(*header), "  " + fmt.format(*("-" * w for w in widths))] + [
-        "  " + fmt.format(*r) for r in rows
-    ]
+    lines = [fmt.format(*header), fmt.format(*("-" * w for w in widths))]
+    lines += [fmt.format(*r) for r in rows]
+    return ["  " + line.rstrip() for line in lines]
 
 
 def batch_report(
