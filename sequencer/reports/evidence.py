@@ -125,20 +125,21 @@ def _transfer(snap: RunSnapshot, path: str, step: Any, mine: list[Any]) -> Itera
     xvar = str(settings.get("x", "amp"))
     for output in sorted({m.output or "" for m in mine}):
         values = {m.quantity: m.value for m in mine if (m.output or "") == output}
-        groups = _traces_by(snap, path, settings.get("traces"), mine[0].channel, output, xvar)
+        # Heights over the whole stack at once, exactly as the engine computed them (the template
+        # method's default template is the mean of every trace of the step), then one mean per x.
+        traces = [
+            t for t in _matching(snap, path, settings.get("traces"), mine[0].channel, output)
+            if _num(dict(t.labels or {}).get(xvar)) is not None
+        ]
         amps, heights = [], []
-        for amp in sorted(groups):
-            stack, dt_ns = _stack(groups[amp])
-            h = pulse_height(
-                stack,
-                dt_ns,
-                pretrigger_baseline(
-                    int(settings.get("n_baseline") or 0), groups[amp][0].t0_s * 1e9, dt_ns
-                ),
-                str(settings.get("method", "peak")),
-            )
-            amps.append(_round(amp))
-            heights.append(_round(float(np.mean(h))))
+        if traces:
+            stack, dt_ns = _stack(traces)
+            n_base = pretrigger_baseline(int(settings.get("n_baseline") or 0), traces[0].t0_s * 1e9, dt_ns)
+            h = np.atleast_1d(pulse_height(stack, dt_ns, n_base, str(settings.get("method", "peak"))))
+            xs = np.array([_num(dict(t.labels or {}).get(xvar)) for t in traces], dtype=float)
+            for amp in sorted(set(xs.tolist())):
+                amps.append(_round(amp))
+                heights.append(_round(float(np.mean(h[xs == amp]))))
         yield TransferCurve(
             output=output,
             amplitudes_mV=tuple(amps),
@@ -279,17 +280,6 @@ def _select(traces: list[Any], name: Any, channel: int | None, output: str) -> l
             continue
         found.append(t)
     return found
-
-
-def _traces_by(
-    snap: RunSnapshot, path: str, name: Any, channel: int | None, output: str, xvar: str
-) -> dict[float, list[Any]]:
-    groups: dict[float, list[Any]] = defaultdict(list)
-    for t in _matching(snap, path, name, channel, output):
-        x = _num(dict(t.labels or {}).get(xvar))
-        if x is not None:
-            groups[x].append(t)
-    return groups
 
 
 def _stack(traces: list[Any]) -> tuple[np.ndarray, float]:
