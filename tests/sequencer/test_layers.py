@@ -1,0 +1,58 @@
+"""Layering of the sequencer packages (DESIGN.md "Layers and who may import whom"): imports point
+down only.  Checked on the absolute import statements of every module (AST, not text search)."""
+
+from __future__ import annotations
+
+import ast
+from pathlib import Path
+
+import pytest
+
+SEQUENCER = Path(__file__).resolve().parents[2] / "sequencer"
+
+# Leaf modules every layer may use (DEVELOPERS.md).
+LEAVES = {"drivers.errors", "drivers.yamlsafe", "sequencer.errors", "sequencer.events"}
+
+# package -> project modules (prefixes) it may import, besides itself and the leaves.
+ALLOWED = {
+    "analysis": set(),
+    "procedure": set(),
+    "store": set(),
+    "engine": {"sequencer.procedure", "sequencer.analysis", "drivers", "sequencer"},
+    "reports": {"sequencer.store", "sequencer.analysis", "sequencer"},
+}
+FORBIDDEN = {
+    "engine": {"sequencer.store", "sequencer.reports", "sequencer.cli", "sequencer.compose"},
+    "reports": {"sequencer.engine", "drivers", "sequencer.cli", "sequencer.compose"},
+}
+
+
+def project_imports(path: Path) -> set[str]:
+    tree = ast.parse(path.read_text(encoding="utf-8"))
+    names: set[str] = set()
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Import):
+            names.update(a.name for a in node.names)
+        elif isinstance(node, ast.ImportFrom) and node.module and node.level == 0:
+            if node.module == "sequencer":
+                names.update(f"sequencer.{a.name}" for a in node.names)
+            else:
+                names.add(node.module)
+    return {n for n in names if n.split(".")[0] in ("sequencer", "drivers")}
+
+
+def _within(name: str, prefixes: set[str]) -> bool:
+    return any(name == p or name.startswith(p + ".") for p in prefixes)
+
+
+@pytest.mark.parametrize("package", sorted(ALLOWED))
+def test_imports_point_down(package: str) -> None:
+    own = f"sequencer.{package}"
+    offenders = []
+    for path in sorted((SEQUENCER / package).rglob("*.py")):
+        for name in project_imports(path):
+            if name in LEAVES or _within(name, {own}) or name == "sequencer":
+                continue
+            if _within(name, FORBIDDEN.get(package, set())) or not _within(name, ALLOWED[package]):
+                offenders.append(f"{path.relative_to(SEQUENCER)} imports {name}")
+    assert offenders == []
