@@ -7,23 +7,9 @@ from typing import Any
 
 from sequencer.events import Measurement
 from sequencer.procedure.plan_model import PlannedStep
+from sequencer.quantities import QUANTITY_UNITS as UNITS
 
 from .context import RunContext
-
-UNITS = {
-    "gain": "V/V",
-    "offset_mV": "mV",
-    "inl_pct": "%",
-    "noise_in_mV": "mV",
-    "crosstalk_pct": "%",
-    "threshold_mV": "mV",
-    "threshold_sigma_mV": "mV",
-    "discriminator_offset_mV": "mV",
-    "peaking_time_ns": "ns",
-    "rise_time_ns": "ns",
-    "leakage_nA": "nA",
-}
-"""Units of the quantities of DESIGN.md."""
 
 DEFAULT_OUTPUT = {
     "analyse.s_curve": "x1",

@@ -22,24 +22,11 @@ from typing import Any
 from drivers.errors import Location, Problem
 from drivers.yamlsafe import YamlMap, YamlSeq, load_yaml
 from sequencer.errors import ProcedureError
+from sequencer.quantities import QUANTITY_UNITS
 
 from .checking import check_keys, require_keys, suggest
 from .plan_model import Limit
 
-#: DESIGN.md quantity names and their units.
-QUANTITY_UNITS: dict[str, str] = {
-    "gain": "V/V",
-    "offset_mV": "mV",
-    "inl_pct": "%",
-    "noise_in_mV": "mV",
-    "crosstalk_pct": "%",
-    "threshold_mV": "mV",
-    "threshold_sigma_mV": "mV",
-    "discriminator_offset_mV": "mV",
-    "peaking_time_ns": "ns",
-    "rise_time_ns": "ns",
-    "leakage_nA": "nA",
-}
 LIMIT_KEYS = ("quantity", "output", "low", "high", "unit", "reason")
 FILE_KEYS = ("board_type", "version", "description", "limits")
 

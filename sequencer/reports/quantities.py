@@ -10,23 +10,11 @@ from __future__ import annotations
 
 import math
 
+from sequencer.quantities import QUANTITY_UNITS as UNITS
+
 VALUE_DIGITS = 5
 UNCERTAINTY_DIGITS = 2
 
-UNITS: dict[str, str] = {
-    "gain": "V/V",
-    "offset_mV": "mV",
-    "inl_pct": "%",
-    "noise_in_mV": "mV",
-    "crosstalk_pct": "%",
-    "threshold_mV": "mV",
-    "threshold_sigma_mV": "mV",
-    "discriminator_offset_mV": "mV",
-    "peaking_time_ns": "ns",
-    "rise_time_ns": "ns",
-    "leakage_nA": "nA",
-}
-"""DESIGN.md quantity names (FIXED) and their units."""
 
 ORDER: tuple[str, ...] = tuple(UNITS)
 """The order in which quantities are listed on a certificate (DESIGN.md table order)."""

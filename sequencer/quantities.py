@@ -1,0 +1,26 @@
+"""The quantity names of DESIGN.md (a fixed interface) and their units.
+
+A leaf module: the procedure layer checks limits against it, the engine labels measurements with it,
+the reports print it.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from types import MappingProxyType
+
+QUANTITY_UNITS: Mapping[str, str] = MappingProxyType(
+    {
+        "gain": "V/V",
+        "offset_mV": "mV",
+        "inl_pct": "%",
+        "noise_in_mV": "mV",
+        "crosstalk_pct": "%",
+        "threshold_mV": "mV",
+        "threshold_sigma_mV": "mV",
+        "discriminator_offset_mV": "mV",
+        "peaking_time_ns": "ns",
+        "rise_time_ns": "ns",
+        "leakage_nA": "nA",
+    }
+)
