@@ -153,10 +153,25 @@ class SimBench:
         """Write :meth:`bench_mapping` as a YAML bench file; returns the path."""
         out = Path(path)
         header = f"# simulated bench for board {self.board.serial} ({self.board.source})\n"
-        out.write_text(
-            header + yaml.safe_dump(self.bench_mapping(), sort_keys=False), encoding="utf-8"
-        )
+        text = yaml.dump(self.bench_mapping(), Dumper=_BenchDumper, sort_keys=False)
+        out.write_text(header + text, encoding="utf-8")
         return out
+
+
+class _BenchDumper(yaml.SafeDumper):
+    """Writes strings with control characters (terminations) as one-line escapes: "\\n";
+    never anchors and aliases, so the file reads plainly."""
+
+    def ignore_aliases(self, data: object) -> bool:
+        return True
+
+
+def _represent_str(dumper: yaml.SafeDumper, value: str) -> yaml.ScalarNode:
+    style = '"' if any(c in value for c in "\r\n\t") else None
+    return dumper.represent_scalar("tag:yaml.org,2002:str", value, style=style)
+
+
+_BenchDumper.add_representer(str, _represent_str)
 
 
 def start_sim_bench(
