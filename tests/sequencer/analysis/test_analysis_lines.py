@@ -9,7 +9,8 @@ import pytest
 
 from sequencer.analysis import fit_line, inl_percent
 
-NORRIS = Path(__file__).resolve().parents[4] / "shared" / "data" / "nist-strd-norris.csv"
+# A copy of the public NIST StRD "Norris" dataset (certified values in its header), kept with the tests.
+NORRIS = Path(__file__).resolve().parents[2] / "data" / "nist-strd-norris.csv"
 
 
 def _norris() -> tuple[np.ndarray, np.ndarray]:
