@@ -9,9 +9,13 @@ option, procedure) · 3 run aborted (instrument fault, interlock, operator, sign
 
 from __future__ import annotations
 
+import contextlib
 import os
+import select
+import signal
 import sys
-from collections.abc import Callable
+import threading
+from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import Any
 
@@ -88,9 +92,52 @@ def _acknowledge_on_terminal() -> Callable[[Any], bool] | None:
 
     def ask(caution: Any) -> bool:
         click.echo(caution.text(), err=True)
-        return click.confirm("Acknowledge and make the voltage live?", default=False, err=True)
+        with _signals_cancel_the_prompt():
+            try:
+                return _confirm("Acknowledge and make the voltage live?")
+            except KeyboardInterrupt:  # Ctrl-C or SIGTERM at the prompt: declined
+                click.echo("", err=True)
+                return False
 
     return ask
+
+
+def _confirm(question: str, *, slice_s: float = 0.2) -> bool:
+    """``question [y/N]`` on the terminal; anything but y/yes declines, end of input too.
+
+    The answer is awaited in slices, never in one blocking read: a signal the kernel hands to
+    another thread would not interrupt that read, and its Python handler would wait for the answer.
+    """
+    click.echo(f"{question} [y/N]: ", nl=False, err=True)
+    while True:
+        ready, _, _ = select.select([sys.stdin], [], [], slice_s)
+        if not ready:
+            continue
+        answer = sys.stdin.readline()
+        if answer.strip().lower() in ("y", "yes"):
+            return True
+        if not answer or answer.strip().lower() in ("", "n", "no"):
+            return False
+        click.echo("Please answer y or n [y/N]: ", nl=False, err=True)
+
+
+@contextlib.contextmanager
+def _signals_cancel_the_prompt() -> Iterator[None]:
+    """While the caution waits for an answer, SIGINT and SIGTERM cancel it (the run's own handlers
+    only set a stop flag, which the prompt would never look at)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+
+    def cancel(_signum: int, _frame: Any) -> None:
+        raise KeyboardInterrupt
+
+    previous = {sig: signal.signal(sig, cancel) for sig in (signal.SIGINT, signal.SIGTERM)}
+    try:
+        yield
+    finally:
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
 
 
 def _prompt_on_terminal() -> Callable[[str, bool], str] | None:
@@ -110,6 +157,8 @@ def _summarise(run_id: int, outcome: Any) -> int:
     verdict = "PASS" if outcome.failed == 0 else f"FAIL ({outcome.failed} value(s) outside limits)"
     click.echo(f"run {run_id} completed: {outcome.measurements} measurement(s), {verdict}")
     return EXIT_OK if outcome.failed == 0 else EXIT_FAIL
+
+
 
 
 @cli.command(epilog=SAFETY_HELP)
@@ -167,7 +216,7 @@ def _warn_identity_change(store: Any, run_id: int, spec: Any) -> None:
             click.echo(f"warning: {role} is {now[role]} now, was {address} in run {run_id}", err=True)
 
 
-@cli.command()
+@cli.command(epilog=SAFETY_HELP)
 @click.argument("run_id", type=int)
 @db_option
 @click.option("--bench", "bench_path", type=click.Path(dir_okay=False), help="Another bench file.")

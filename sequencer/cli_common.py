@@ -25,7 +25,7 @@ from sequencer.errors import (
 EXIT_OK, EXIT_FAIL, EXIT_INPUT, EXIT_ABORT = 0, 1, 2, 3
 
 SAFETY_HELP = (
-    "\b\nCAUTION: bias and high-voltage supplies can hurt people. More than 33 V rms / 46.7 V peak / "
+    "CAUTION: bias and high-voltage supplies can hurt people. More than 33 V rms / 46.7 V peak / "
     "70 V dc counts as hazardous live (IEC 61010-1, from memory; 35 V dc in wet locations). The "
     "software interlock check is no substitute for the hardware interlock on the supply's inhibit "
     "input. Keep the enclosure closed while live; local codes, your lab's safety rules and qualified "

@@ -24,6 +24,7 @@ from sequencer.engine import (
     describe_run,
 )
 from sequencer.engine.log import RunLog
+from sequencer.engine.preflight import hazard_steps
 from sequencer.engine.progress import ProgressDisplay
 from sequencer.errors import ConfigError, Location, Problem, ProcedureError, StoreError
 from sequencer.events import Event, RunFinished
@@ -134,7 +135,7 @@ def execute(
         subscribers: list[Callable[[Event], None]] = [store.subscriber]
         closers: list[Callable[[], None]] = []
         if request.progress:
-            display = ProgressDisplay(plan)
+            display = ProgressDisplay(plan, force_terminal=_plain_progress(plan, request))
             subscribers.append(display)
             closers.append(display.close)
         if request.log_path is not None:
@@ -159,6 +160,19 @@ def execute(
             for close in closers:
                 close()
     return RunResult(run_id=run_id, outcome=outcome)
+
+
+def _plain_progress(plan: Plan, request: RunRequest) -> bool | None:
+    """False (no animated bar) when the operator will be asked on the terminal during the run.
+
+    An animated bar redirects the terminal through its renderer, which redraws over the safety
+    caution and eats text in brackets (the ``[y/N]`` of the prompt); plain progress lines don't.
+    """
+    caution = request.acknowledge is not None and not request.unattended
+    asks = (caution and bool(hazard_steps(plan))) or (
+        request.prompt is not None and any(s.kind == "prompt" for s in plan.steps)
+    )
+    return False if asks else None
 
 
 def _roles_needed(plan: Plan, spec: BenchSpec) -> list[str]:

@@ -35,6 +35,8 @@ from drivers.sim.scpi_parser import (
 #: The invented maker name every simulated instrument reports in ``*IDN?``.
 MAKER = "Larchmoor Test Systems (sim)"
 ERROR_QUEUE_SIZE = 20
+#: How many of the latest program messages an instrument keeps in :attr:`SimInstrument.received`.
+RECEIVED_LOG_SIZE = 10_000
 FIRMWARE = "0.1.0"
 
 Reply = str | bytes | None
@@ -105,6 +107,9 @@ class SimInstrument:
         self.clock = clock
         self.sleep: Callable[[float], None] = time.sleep
         self.errors: deque[tuple[int, str]] = deque()
+        #: The program messages this instrument ran, oldest first (bounded; a read-only record for
+        #: tests and logs, e.g. to prove that a refused run sent nothing).
+        self.received: deque[str] = deque(maxlen=RECEIVED_LOG_SIZE)
         self.big_endian = True
         self._table: tuple[Command, ...] = tuple(self.commands()) + tuple(self._system_commands())
         self._common: dict[str, tuple[Handler | None, Handler | None]] = {
@@ -151,6 +156,7 @@ class SimInstrument:
     # --- message processing --------------------------------------------------------------------
     def process(self, message: str) -> bytes | None:
         """Run one program message; the response message (with ``\\n``) or ``None`` if no query."""
+        self.received.append(message)
         try:
             units = split_units(message)
         except InstrumentError as exc:

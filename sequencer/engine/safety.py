@@ -20,6 +20,9 @@ from .context import RunContext
 from .faults import describe_fault
 from .preflight import build_caution
 
+MANUAL_OFF = "switch the supply's output off by hand and check that it reads 0 V"
+"""What an UNSAFE line asks of the operator when the software could not confirm the safe state."""
+
 
 class BiasGuard:
     """Everything the run does to the bias supply goes through here."""
@@ -35,20 +38,34 @@ class BiasGuard:
         self.live = False  # output may be on above 0 V
         self.touched = False  # any bias step ran in this run
         self.rate: float | None = self.max_rate
+        self.limit_applied = False  # a current limit (trip) was sent to the supply in this run
+        self._stop_recorded = False
+        self._securing = False  # inside make_safe: recording failures do not stop it
+        self.unrecorded: list[str] = []  # safety events a subscriber failed to take, with why
+        self._reconnects_seen = reconnects(self.bias)
         self._watcher: _Watcher | None = None
 
     # -- events -------------------------------------------------------------------------------
     def record(self, kind: str, path: str = "", **detail: Any) -> None:
-        """Emit one SafetyEvent."""
-        self.ctx.emit(
-            SafetyEvent(
-                run_id=self.ctx.run_id,
-                path=path or self.ctx.path,
-                kind=kind,
-                at=self.ctx.clock(),
-                detail=detail,
-            )
+        """Emit one SafetyEvent.
+
+        While the safe state is being reached a subscriber that fails (the database went away) must
+        not stop the ramp-down: its error is kept in ``unrecorded`` and the sequence goes on.
+        """
+        event = SafetyEvent(
+            run_id=self.ctx.run_id,
+            path=path or self.ctx.path,
+            kind=kind,
+            at=self.ctx.clock(),
+            detail=detail,
         )
+        if not self._securing:
+            self.ctx.emit(event)
+            return
+        try:
+            self.ctx.emit(event)
+        except Exception as exc:  # kept in ``unrecorded``: the bias comes first
+            self.unrecorded.append(f"{kind}: {type(exc).__name__}: {exc}")
 
     def _abort(self, cause: str, reason: str) -> RunAborted:
         return RunAborted(reason, cause=cause, step_path=self.ctx.path)
@@ -75,6 +92,7 @@ class BiasGuard:
                 "acknowledgement",
                 operator=opts.operator,
                 mode="unattended",
+                unattended=True,
                 max_volts=caution.max_volts,
                 at=self.ctx.clock().isoformat(),
             )
@@ -89,6 +107,7 @@ class BiasGuard:
                 "acknowledgement",
                 operator=opts.operator,
                 mode="interactive",
+                unattended=False,
                 max_volts=caution.max_volts,
                 at=self.ctx.clock().isoformat(),
             )
@@ -97,19 +116,49 @@ class BiasGuard:
                 "acknowledgement",
                 operator=opts.operator,
                 mode="declined",
+                unattended=False,
                 max_volts=caution.max_volts,
                 at=self.ctx.clock().isoformat(),
             )
             raise self._abort("operator", "the operator declined the caution; no voltage applied")
+        self.ctx.checkpoint()  # a signal while the caution was up wins over the answer
+        self.apply_bench_current_limit()
         self.acknowledged = True
+        self._reconnects_seen = reconnects(self.bias)
         self._watcher = _Watcher(self, opts.interlock_interval_s)
         self._watcher.start()
 
+    def apply_bench_current_limit(self) -> None:
+        """Before anything goes live the supply trips at the bench file's ``max_current_uA``
+        (unless a ``bias.limit`` step already set a limit)."""
+        if self.limit_applied or self.current_limit_uA is None:
+            return
+        self.bias.set_current_limit(self.current_limit_uA)
+        self.limit_applied = True
+        self.record("current_limit", uA=self.current_limit_uA, source="bench file")
+
     def at_step(self) -> None:
-        """Called before every step: while live, the interlock is read."""
-        if self.live and self.bias is not None and not self.bias.interlock_closed():
+        """Called before every step: while live, the interlock and the link are checked."""
+        if self.bias is None:
+            return
+        if not self.live:  # a link drop while nothing is live is the drivers' business only
+            self._reconnects_seen = reconnects(self.bias)
+            return
+        if not self.bias.interlock_closed():
             self.record("interlock", closed=False)
             raise self._abort("interlock", f"bias at {self.address}: interlock opened while live")
+        self.check_link()
+
+    def link_dropped(self) -> bool:
+        """True when the link to the supply was lost (and reopened by the drivers) while live."""
+        return self.live and reconnects(self.bias) != self._reconnects_seen
+
+    def check_link(self) -> None:
+        """Abort when the link dropped while live: the watch was blind for that time."""
+        if self.link_dropped():
+            self._reconnects_seen = reconnects(self.bias)
+            self.record("link_lost", reconnected=True)
+            raise self._abort("instrument", link_drop_reason(self.address))
 
     # -- ramps --------------------------------------------------------------------------------
     def switch_on(self) -> None:
@@ -120,6 +169,7 @@ class BiasGuard:
         if abs(self.bias.setpoint()) > tol:
             self.bias.start_ramp(0.0, self._rate(None))
             self.record("setpoint", volts=0.0, output=False)
+        self._reconnects_seen = reconnects(self.bias)
         self.bias.set_output(True)
         self.live = True
         self.record("output", on=True)
@@ -170,6 +220,7 @@ class BiasGuard:
         self.record("reading", volts=v, current_A=i, interlock_closed=closed, tripped=trip)
         if going_down:
             return v
+        self.check_link()
         if not closed:
             raise self._abort(
                 "interlock", f"bias at {self.address}: interlock opened during a ramp"
@@ -215,6 +266,14 @@ class BiasGuard:
         self.stop_watch()
         if self.bias is None:
             return ""
+        self._securing = True
+        try:
+            return self._make_safe(path)
+        finally:
+            self._securing = False
+
+    def _make_safe(self, path: str) -> str:
+        self._record_stop_request(path)
         try:
             self._bring_down(path)
             return self._verify(path)
@@ -225,7 +284,21 @@ class BiasGuard:
             return self._off_through_reconnect(path)
         except BenchwrightError as exc:
             self.record("unsafe", path, error=str(exc))
-            return f"UNSAFE: bias at {self.address}: output state not confirmed off ({exc})"
+            return (
+                f"UNSAFE: bias at {self.address}: output state not confirmed off ({exc}); "
+                f"{MANUAL_OFF}"
+            )
+
+    def _record_stop_request(self, path: str) -> None:
+        """What the watcher or a signal saw, kept with the run (once)."""
+        stop = self.ctx.stop
+        if not stop.requested or self._stop_recorded:
+            return
+        self._stop_recorded = True
+        if stop.cause == "interlock":
+            self.record("interlock", path, closed=False, reason=stop.reason)
+        else:
+            self.record("stop", path, cause=stop.cause, reason=stop.reason)
 
     def _bring_down(self, path: str) -> None:
         if self.bias.output_on():
@@ -252,7 +325,7 @@ class BiasGuard:
             self.record("unsafe", path, output=on, volts=v)
             return (
                 f"UNSAFE: bias at {self.address} reads output {'on' if on else 'off'} at "
-                f"{v:.3f} V after the safe-state sequence"
+                f"{v:.3f} V after the safe-state sequence; {MANUAL_OFF}"
             )
         self.record("safe_state", path, output=False, volts=v)
         return ""
@@ -267,8 +340,18 @@ class BiasGuard:
             self.record("unsafe", path, error=str(exc))
             return (
                 f"UNSAFE: bias at {self.address}: lost the link and could not confirm the "
-                f"output off ({exc})"
+                f"output off ({exc}); {MANUAL_OFF}"
             )
+
+
+def reconnects(role: Any) -> int:
+    """How often the drivers reopened the link under a role driver (0 when unknown)."""
+    count = getattr(getattr(role, "session", None), "reconnects", 0)
+    return count if isinstance(count, int) else 0
+
+
+def link_drop_reason(address: str) -> str:
+    return f"bias at {address}: the link to the supply dropped while live (reopened by the drivers)"
 
 
 def reconnect(role: Any) -> None:
@@ -307,7 +390,14 @@ class _Watcher:
                     stop.request("interlock", f"bias at {g.address}: interlock opened while live")
                     return
                 if g.bias.tripped():
-                    stop.request("trip", f"bias at {g.address}: the supply tripped while live")
+                    stop.request(
+                        "trip",
+                        f"bias at {g.address}: the supply tripped while live "
+                        "(over-current or over-voltage protection)",
+                    )
+                    return
+                if g.link_dropped():
+                    stop.request("instrument", link_drop_reason(g.address))
                     return
             except BenchwrightError as exc:
                 stop.request("instrument", describe_fault(exc, g.ctx.bench.spec.instruments))

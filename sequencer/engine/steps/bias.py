@@ -14,6 +14,7 @@ def set_limit(ctx: RunContext, step: PlannedStep) -> StepResult:
     ctx.bench.bias.set_current_limit(current)
     guard = ctx.guard
     guard.touched = True
+    guard.limit_applied = True
     bench_max = guard.current_limit_uA
     guard.current_limit_uA = current if bench_max is None else min(current, bench_max)
     guard.record("current_limit", uA=current)
