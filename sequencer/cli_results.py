@@ -76,7 +76,8 @@ def trend(db: str | None, board: str, quantity: str, channel: int | None, output
         except ValueError as exc:
             fail(EXIT_INPUT, f"error: {exc}")
     if fmt == "csv":
-        click.echo(trend_csv(result), nl=False)
+        text = trend_csv(result)
+        click.echo(text, nl=not text.endswith("\n"))
     else:
         where = f"channel {result.channel} " if result.channel is not None else ""
         where += f"output {result.output} " if result.output else ""

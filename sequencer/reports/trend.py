@@ -2,7 +2,9 @@
 
 Control band (Shewhart individuals chart, common practice): centre = mean of the reference points,
 band = centre ± 3 s, s the sample standard deviation (ddof 1) of the first ``reference_runs``
-points; or a band given by the caller.  A point outside the band is flagged.  *Drift warning*: the
+points combined in quadrature with their RMS stated uncertainty (so repeats that agree exactly, as a
+seeded simulator's do, still give a band as wide as the measurement's own precision); or a band given
+by the caller.  A point outside the band is flagged.  *Drift warning*: the
 latest point is outside the band although its verdict is still ``pass`` (it has moved but not yet
 failed).  Needs at least 2 reference points for a computed band.
 """
@@ -85,7 +87,8 @@ def trend(
             f"{quantity} of {board} has {len(keys)} series: choose one ({choices} ...)"
         )
     values = np.asarray([p.value for p in series], dtype=float)
-    centre, lo, hi, source = _band(values, reference_runs, band)
+    errors = np.asarray([p.uncertainty or 0.0 for p in series], dtype=float)
+    centre, lo, hi, source = _band(values, errors, reference_runs, band)
     points = tuple(
         TrendPoint(
             run_id=p.run_id,
@@ -118,7 +121,7 @@ def trend(
 
 
 def _band(
-    values: np.ndarray, reference_runs: int, band: tuple[float, float] | None
+    values: np.ndarray, errors: np.ndarray, reference_runs: int, band: tuple[float, float] | None
 ) -> tuple[float | None, float | None, float | None, str]:
     if band is not None:
         lo, hi = sorted((float(band[0]), float(band[1])))
@@ -126,7 +129,8 @@ def _band(
     ref = values[:reference_runs]
     if ref.size < 2:
         return None, None, None, f"fewer than 2 runs (need {reference_runs} for the band)"
-    centre, s = float(ref.mean()), float(ref.std(ddof=1))
+    stated = float(np.sqrt(np.mean(np.square(errors[:reference_runs]))))
+    centre, s = float(ref.mean()), float(np.hypot(ref.std(ddof=1), stated))
     return centre, centre - BAND_SIGMAS * s, centre + BAND_SIGMAS * s, f"first {ref.size} runs"
 
 

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import csv
 import io
+import math
 import statistics
 from datetime import timedelta
 
@@ -31,7 +32,7 @@ def weekly(tmp_path_factory):
         yield store, values
 
 
-def _weekly(store, board: str, drift: float) -> list[float]:
+def _weekly(store, board: str, drift: float) -> list[tuple[float, float]]:
     """Ten weekly repeats of one board; week-to-week scatter 0.001 V/V, drift in the last."""
     jitter = np.random.default_rng(5).normal(0.0, 0.001, WEEKS)
     jitter[-1] += drift
@@ -46,15 +47,19 @@ def _weekly(store, board: str, drift: float) -> list[float]:
 
         record_run(store, spec, tweak)
     for p in store.quantity_series(board, "gain", channel=1, output="x1"):
-        stored.append(p.value)
+        stored.append((p.value, p.uncertainty or 0.0))
     return stored
 
 
 def test_drift_inside_limits_is_flagged(weekly):
-    store, values = weekly
+    store, stored = weekly
+    values = [v for v, _ in stored]
     r = trend(store, DRIFTING, "gain", channel=1, output="x1", reference_runs=5)
-    # Shewhart individuals band: mean ± 3 s of the first 5 (stdlib statistics as the reference)
-    mean, s = statistics.mean(values[:5]), statistics.stdev(values[:5])
+    # Shewhart individuals band (common practice): mean ± 3 s of the first 5, s the sample standard
+    # deviation (stdlib statistics as the reference) combined in quadrature with the RMS of the
+    # values' stated uncertainties.
+    stated = math.sqrt(statistics.fmean(u * u for _, u in stored[:5]))
+    mean, s = statistics.mean(values[:5]), math.hypot(statistics.stdev(values[:5]), stated)
     assert r.centre == pytest.approx(mean, rel=1e-12)
     assert (r.band_low, r.band_high) == (pytest.approx(mean - 3 * s), pytest.approx(mean + 3 * s))
     assert [p.outside_band for p in r.points] == [
