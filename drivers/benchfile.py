@@ -80,11 +80,15 @@ def load_bench(path: str | Path) -> BenchSpec:
         raise ConfigError(
             [Problem(Location(str(path), 1, 1), f"cannot read bench file: {exc.strerror}")]
         ) from None
-    data = load_yaml(raw, str(path), error=ConfigError)
-    spec = bench_from_mapping(data, source=str(path), base_dir=path.parent)
-    return BenchSpec(
-        name=spec.name, instruments=spec.instruments, source=spec.source, text=raw.decode("utf-8")
-    )
+    return parse_bench_text(raw, str(path), base_dir=path.parent)
+
+
+def parse_bench_text(text: str | bytes, source: str, *, base_dir: Path | None = None) -> BenchSpec:
+    """Check a bench file's text (e.g. the copy recorded with a run)."""
+    data = load_yaml(text, source, error=ConfigError)
+    spec = bench_from_mapping(data, source=source, base_dir=base_dir)
+    raw = text.decode("utf-8") if isinstance(text, bytes) else text
+    return BenchSpec(name=spec.name, instruments=spec.instruments, source=spec.source, text=raw)
 
 
 def bench_from_mapping(

@@ -179,17 +179,18 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
     from sequencer.procedure import load_procedure, load_procedure_text
 
     with compose.open_store(db, env()) as store:
-        if repeat is not None:
-            record = compose.check_store(store, repeat)
+        record = compose.check_store(store, repeat) if repeat is not None else None
+        if record is not None:
             proc = load_procedure_text(record.procedure_text, record.procedure_path or f"run-{repeat}.yaml",
                                        files=getattr(record, "procedure_files", None) or None)
         elif procedure:
             proc = load_procedure(procedure)
         else:
             raise click.UsageError("give PROCEDURE or --repeat RUN_ID")
-        board_type = None
         if serial is None and sim_board:
-            serial, board_type = compose.sim_board_serial(sim_board)
+            serial, _ = compose.sim_board_serial(sim_board)
+        if serial is None and record is not None:
+            serial = record.board
         if not serial:
             raise click.UsageError("give --board SERIAL")
         plan_ = compose.plan_for(proc, serial)
@@ -197,23 +198,16 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
             operator=operator, unattended=yes, acknowledge=_acknowledge_on_terminal(),
             prompt=_prompt_on_terminal(), repeat_of=repeat, progress=True,
             log_path=Path(log_path) if log_path else None, procedure_files=proc.source_files(),
+            previous_instruments=tuple(record.instruments) if record is not None else (),
+            warn=lambda line: click.echo(f"warning: {line}", err=True),
         )
-        del board_type
-        with compose.bench_for(bench_path, sim_board) as spec:
-            if repeat is not None:
-                _warn_identity_change(store, repeat, spec)
+        if record is not None and not (bench_path or sim_board):
+            bench_cm = compose.recorded_bench(record.id, record.bench_text)
+        else:
+            bench_cm = compose.bench_for(bench_path, sim_board)
+        with bench_cm as spec:
             result = compose.execute(plan_, spec, store, request)
     sys.exit(_summarise(result.run_id, result.outcome))
-
-
-def _warn_identity_change(store: Any, run_id: int, spec: Any) -> None:
-    """Warn when the bench's addresses differ from those recorded for the repeated run."""
-    record = store.get_run(run_id)
-    before = {i.role: i.address for i in getattr(record, "instruments", ())}
-    now = {role: s.address for role, s in spec.instruments.items()}
-    for role, address in before.items():
-        if now.get(role) not in (None, address):
-            click.echo(f"warning: {role} is {now[role]} now, was {address} in run {run_id}", err=True)
 
 
 @cli.command(epilog=SAFETY_HELP)
@@ -227,9 +221,8 @@ def _warn_identity_change(store: Any, run_id: int, spec: Any) -> None:
 def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str | None,
            operator: str, yes: bool) -> None:
     """Continue an interrupted or aborted run from its last completed step."""
-    from drivers.bench import bench_from_mapping
     from sequencer import compose
-    from sequencer.procedure import board_info, build_plan, load_board_type, load_procedure_text
+    from sequencer.procedure import load_procedure_text
 
     with compose.open_store(db, env()) as store:
         store.mark_stale_runs_interrupted()
@@ -238,20 +231,13 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
             raise StoreError(f"run {run_id} is completed; a completed run is never resumed (use run --repeat)")
         proc = load_procedure_text(record.procedure_text, record.procedure_path or f"run-{run_id}.yaml",
                                    files=getattr(record, "procedure_files", None) or None)
-        plan_ = build_plan(proc, board_info(load_board_type(record.board_type or proc.board_type), record.board))
+        plan_ = compose.plan_for(proc, record.board, board_type=record.board_type or None)
         request = compose.RunRequest(operator=operator or record.operator, unattended=yes,
                                      acknowledge=_acknowledge_on_terminal(), prompt=_prompt_on_terminal())
         if bench_path or sim_board:
             bench_cm = compose.bench_for(bench_path, sim_board)
         else:
-            import contextlib
-
-            import yaml
-
-            text = getattr(record, "bench_text", "")
-            if not text:
-                raise StoreError(f"run {run_id} kept no bench file; give --bench or --sim")
-            bench_cm = contextlib.nullcontext(bench_from_mapping(yaml.safe_load(text), source=f"<bench of run {run_id}>"))
+            bench_cm = compose.recorded_bench(run_id, record.bench_text)
         with bench_cm as spec:
             result = compose.execute(plan_, spec, store, request, resume_run=run_id)
     sys.exit(_summarise(result.run_id, result.outcome))
@@ -265,15 +251,18 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
 @click.option("--format", "fmt", type=click.Choice(["table", "csv", "json"]), default="table", show_default=True)
 @click.option("--board", default=None)
 @click.option("--procedure", default=None)
+@click.option("--since", type=click.DateTime(), default=None, help="Runs started at or after (UTC).")
+@click.option("--until", type=click.DateTime(), default=None, help="Runs started before (UTC).")
 @handles_errors
-def runs(db: str | None, fmt: str, board: str | None, procedure: str | None) -> None:
+def runs(db: str | None, fmt: str, board: str | None, procedure: str | None,
+         since: Any, until: Any) -> None:
     """Past runs: id, procedure, board, status, start, end."""
     from sequencer import compose
     from sequencer.store import RUN_COLUMNS, format_rows, run_rows
 
     with compose.open_store(db, env()) as store:
         store.mark_stale_runs_interrupted()
-        rows = run_rows(store.list_runs(board=board, procedure=procedure))
+        rows = run_rows(store.list_runs(board=board, procedure=procedure, since=_utc(since), until=_utc(until)))
     click.echo(format_rows(rows, fmt, RUN_COLUMNS), nl=False)
 
 
@@ -282,16 +271,27 @@ def runs(db: str | None, fmt: str, board: str | None, procedure: str | None) -> 
 @click.option("--run", "run_id", type=int, default=None)
 @click.option("--board", default=None)
 @click.option("--procedure", default=None)
+@click.option("--since", type=click.DateTime(), default=None, help="Runs started at or after (UTC).")
+@click.option("--until", type=click.DateTime(), default=None, help="Runs started before (UTC).")
 @click.option("--format", "fmt", type=click.Choice(["csv", "json"]), default="csv", show_default=True)
 @handles_errors
-def export(db: str | None, run_id: int | None, board: str | None, procedure: str | None, fmt: str) -> None:
+def export(db: str | None, run_id: int | None, board: str | None, procedure: str | None,
+           since: Any, until: Any, fmt: str) -> None:
     """Measurements to stdout, one row per value with limits and verdict."""
     from sequencer import compose
     from sequencer.store import EXPORT_COLUMNS, export_rows, format_rows
 
     with compose.open_store(db, env()) as store:
-        rows = export_rows(store, run_id=run_id, board=board, procedure=procedure)
+        rows = export_rows(store, run_id=run_id, board=board, procedure=procedure,
+                           since=_utc(since), until=_utc(until))
     click.echo(format_rows(rows, fmt, EXPORT_COLUMNS), nl=False)
+
+
+def _utc(moment: Any) -> Any:
+    """A naive command-line date-time, read as UTC (the store keeps UTC)."""
+    import datetime as dt
+
+    return None if moment is None else moment.replace(tzinfo=dt.UTC)
 
 
 # -- instruments and the simulator ----------------------------------------------------------------

@@ -47,6 +47,8 @@ class RunRequest:
     handle_signals: bool = True
     extra_subscribers: Sequence[Callable[[Event], None]] = field(default_factory=tuple)
     procedure_files: Mapping[str, str] = field(default_factory=dict)
+    previous_instruments: Sequence[Any] = ()     # of the run being repeated (--repeat)
+    warn: Callable[[str], None] | None = None
 
 
 @dataclass(frozen=True)
@@ -85,7 +87,34 @@ def bench_for(bench_path: str | None, sim_board: str | None) -> Iterator[BenchSp
     from drivers.sim import start_sim_bench
 
     with start_sim_bench(sim_board) as sim:
-        yield bench_from_mapping(sim.bench_mapping(), source=f"<simulated bench for {sim_board}>")
+        spec = bench_from_mapping(sim.bench_mapping(), source=f"<simulated bench for {sim_board}>")
+        yield replace(spec, text=simulated_bench_text(sim_board, sim.bench_mapping()))
+
+
+SIM_MARK = "# benchwright simulated board: "
+
+
+def simulated_bench_text(sim_board: str, mapping: Mapping[str, Any]) -> str:
+    """The bench text recorded for a run on the simulator: the board file it simulated (so resume
+    can start the same simulator again) and the addresses it had."""
+    import yaml
+
+    return f"{SIM_MARK}{Path(sim_board).resolve()}\n" + yaml.safe_dump(dict(mapping), sort_keys=False)
+
+
+def recorded_bench(run_id: int, bench_text: str) -> contextlib.AbstractContextManager[BenchSpec]:
+    """The bench a run was recorded on: its bench file, or the simulator of the same board file."""
+    first = bench_text.splitlines()[0] if bench_text else ""
+    if first.startswith(SIM_MARK):
+        board = first.removeprefix(SIM_MARK).strip()
+        if not Path(board).is_file():
+            raise StoreError(f"run {run_id} ran on a simulator of {board}, which is gone; give --sim or --bench")
+        return bench_for(None, board)
+    if not bench_text:
+        raise StoreError(f"run {run_id} kept no bench file; give --bench or --sim")
+    from drivers.benchfile import parse_bench_text
+
+    return contextlib.nullcontext(parse_bench_text(bench_text, f"<bench of run {run_id}>"))
 
 
 def sim_board_serial(sim_board: str) -> tuple[str, str]:
@@ -127,6 +156,10 @@ def execute(
             )
             if request.procedure_files:
                 info = replace(info, procedure_files=dict(request.procedure_files))
+            info = replace(info, bench_text=spec.text)
+            if request.warn is not None:
+                for line in identity_changes(request.previous_instruments, info.instruments):
+                    request.warn(line)
             run_id = store.create_run(info, started_at=datetime.now(UTC))
         else:
             run_id = resume_run
@@ -160,6 +193,24 @@ def execute(
             for close in closers:
                 close()
     return RunResult(run_id=run_id, outcome=outcome)
+
+
+def identity_changes(before: Sequence[Any], now: Sequence[Any]) -> list[str]:
+    """One line per role whose instrument identity (maker, model, serial) differs from ``before``."""
+    was = {i.role: i for i in before}
+    lines = []
+    for inst in now:
+        old = was.get(inst.role)
+        if old is None:
+            continue
+        a = (old.maker, old.model, old.serial)
+        b = (inst.maker, inst.model, inst.serial)
+        if a != b:
+            lines.append(
+                f"{inst.role} is {' '.join(filter(None, b)) or inst.address} now, "
+                f"was {' '.join(filter(None, a)) or old.address} in the repeated run"
+            )
+    return lines
 
 
 def _plain_progress(plan: Plan, request: RunRequest) -> bool | None:

@@ -153,3 +153,26 @@ def test_unreachable_instrument_aborts_with_exit_3(tmp_path: Path) -> None:
                           "--db", f"sqlite:///{tmp_path / 'r.db'}")
     assert code == 3, err
     assert "aborted" in err and "127.0.0.1::9" in err and "Traceback" not in err
+
+
+def test_resume_restarts_the_recorded_simulator(tmp_path: Path) -> None:
+    """An aborted simulated run resumes on the run's own bench: the simulator of the board file it
+    recorded, started again (DESIGN.md: resume continues "on the run's bench unless another is
+    given"), here after the fault was removed from that file."""
+    board = tmp_path / "board.yaml"
+    healthy = BOARD.read_text(encoding="utf-8")
+    faulty = healthy.replace("faults: []", "faults: [{kind: no_reply, role: scope, after_commands: 60}]")
+    assert faulty != healthy
+    board.write_text(faulty, encoding="utf-8")
+    url = f"sqlite:///{tmp_path / 'r.db'}"
+    code, _, err = invoke("run", str(QUICK), "--sim", str(board), "--db", url, "--yes")
+    assert code == 3 and "scope" in err, err
+    _, listing, _ = invoke("runs", "--db", url, "--format", "json")
+    assert json.loads(listing)[0]["status"] == "aborted"
+    board.write_text(healthy, encoding="utf-8")
+    code, out, err = invoke("resume", "1", "--db", url, "--yes")
+    assert code in (0, 1), err
+    assert "run 1 completed" in out
+    _, text, _ = invoke("export", "--db", url, "--run", "1", "--format", "json")
+    keys = [(r["channel"], r["output"], r["quantity"]) for r in json.loads(text)]
+    assert len(keys) == len(set(keys)) == 8 * 2 * 3    # every channel, output, quantity once
