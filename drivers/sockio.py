@@ -8,7 +8,6 @@ transport maps them to ours with the address attached.  Every wait is bounded by
 
 from __future__ import annotations
 
-import contextlib
 import select
 import socket
 import time
@@ -30,10 +29,16 @@ def peer_closed(sock: socket.socket | None) -> bool:
 
 def send_all(sock: socket.socket, data: bytes, timeout_s: float) -> None:
     """Send every byte of ``data`` or raise ``TimeoutError``."""
-    view = memoryview(data)
     if _DONTWAIT:  # one system call when the send buffer has room (the usual case)
-        with contextlib.suppress(BlockingIOError):
-            view = view[sock.send(view, _DONTWAIT) :]
+        try:
+            sent = sock.send(data, _DONTWAIT)
+        except BlockingIOError:
+            sent = 0
+        if sent == len(data):
+            return
+        view = memoryview(data)[sent:]
+    else:
+        view = memoryview(data)
     deadline = time.monotonic() + timeout_s
     while view:
         _, ready, _ = select.select([], [sock], [], _remaining(deadline))

@@ -31,7 +31,6 @@ import os
 import select
 import socket
 import time
-from collections.abc import Iterator
 from dataclasses import dataclass
 from types import TracebackType
 from typing import Any
@@ -87,6 +86,9 @@ class VisaTransport:
         self._resource: Any = resource
         self._last_command = ""  # attached to errors of the reads that follow it
         self._timeout_ms = int(settings.timeout_ms)
+        self._session_of: tuple[Any, Any] = (None, None)  # (resource, its pyvisa-py session)
+        self._read_term = settings.read_termination.encode("ascii")
+        self._write_term = settings.write_termination
 
     # -- opening -------------------------------------------------------------------------------
     @classmethod
@@ -144,19 +146,21 @@ class VisaTransport:
                 "the instrument closed the link", address=self.address, command=text
             )
         self._last_command = text
-        with self._mapped(text):
+        try:  # not ``with self._mapped(...)``: this runs for every message
             if link is None:
                 resource.write(text)
             else:
-                data = (text + self.settings.write_termination).encode("ascii")
+                data = (text + self._write_term).encode("ascii")
                 sockio.send_all(link[1], data, self._timeout_ms / 1000.0)
+        except _MAPPED_ERRORS as exc:
+            raise self._translate(exc, text) from exc
 
     def read(self) -> bytes:
         """One message up to the read termination, the terminator stripped."""
         resource = self._live()
-        term = self.settings.read_termination.encode("ascii")
+        term = self._read_term
         link = self._fast_link(resource) if term else None  # no terminator: pyvisa reads to END
-        with self._mapped(self._last_command):
+        try:
             if link is None:
                 data = resource.read_raw()
             else:
@@ -164,6 +168,8 @@ class VisaTransport:
                 data = sockio.receive_message(
                     pending, sock, term[-1:], self._timeout_ms / 1000.0, MAX_MESSAGE_BYTES
                 )
+        except _MAPPED_ERRORS as exc:
+            raise self._translate(exc, self._last_command) from exc
         if term and data.endswith(term):
             data = data[: -len(term)]
         return data
@@ -174,11 +180,13 @@ class VisaTransport:
             return b""
         resource = self._live()
         link = self._fast_link(resource)
-        with self._mapped(self._last_command):
+        try:
             if link is not None:
                 pending, sock = link
                 return sockio.receive_exactly(pending, sock, n, self._timeout_ms / 1000.0)  # type: ignore[return-value]
             data = self._pyvisa_read_bytes(resource, n)
+        except _MAPPED_ERRORS as exc:
+            raise self._translate(exc, self._last_command) from exc
         if len(data) != n:
             raise InstrumentTimeout(
                 f"expected {n} bytes, got {len(data)}",
@@ -200,10 +208,12 @@ class VisaTransport:
         """(pending buffer, socket) of a pyvisa-py SOCKET session, when the fast path is on."""
         if not self.settings.socket_fast_path:
             return None
-        session = _pyvisa_py_session(resource)
-        pending = getattr(session, "_pending_buffer", None)
+        if resource is not self._session_of[0]:  # looked up once per opened resource
+            self._session_of = (resource, _pyvisa_py_session(resource))
+        session = self._session_of[1]
+        pending = getattr(session, "_pending_buffer", None)  # pyvisa-py may replace the buffer
         sock = getattr(session, "interface", None)
-        if isinstance(pending, bytearray) and isinstance(sock, socket.socket):
+        if type(pending) is bytearray and isinstance(sock, socket.socket):
             return pending, sock
         return None
 
@@ -278,29 +288,26 @@ class VisaTransport:
             with contextlib.suppress(VisaIOError, InvalidSession, OSError, AttributeError):
                 resource.close()
 
-    @contextlib.contextmanager
-    def _mapped(self, command: str = "") -> Iterator[None]:
+    def _mapped(self, command: str = "") -> _ErrorMap:
         """Translate pyvisa and OS errors into ours, the address and command attached."""
-        try:
-            yield
-        except VisaIOError as exc:
-            raise self._from_visa(exc, command) from exc
-        except InvalidSession as exc:
-            raise ConnectionClosed(
+        return _ErrorMap(self, command)
+
+    def _translate(self, exc: BaseException, command: str) -> TransportError:
+        """Our error for one of ``_MAPPED_ERRORS`` (a pyvisa or OS error), address and command
+        attached."""
+        if isinstance(exc, VisaIOError):
+            return self._from_visa(exc, command)
+        if isinstance(exc, InvalidSession):
+            return ConnectionClosed(
                 "the VISA session is gone", address=self.address, command=command
-            ) from exc
-        except ConnectionRefusedError as exc:
-            raise ConnectionRefused(
+            )
+        if isinstance(exc, ConnectionRefusedError):
+            return ConnectionRefused(
                 f"connection refused ({exc})", address=self.address, command=command
-            ) from exc
-        except TimeoutError as exc:
-            raise InstrumentTimeout(
-                str(exc) or "no reply", address=self.address, command=command
-            ) from exc
-        except OSError as exc:
-            raise ConnectionClosed(
-                f"link failed ({exc})", address=self.address, command=command
-            ) from exc
+            )
+        if isinstance(exc, TimeoutError):
+            return InstrumentTimeout(str(exc) or "no reply", address=self.address, command=command)
+        return ConnectionClosed(f"link failed ({exc})", address=self.address, command=command)
 
     def _from_visa(self, exc: VisaIOError, command: str) -> TransportError:
         code = exc.error_code
@@ -325,6 +332,33 @@ class VisaTransport:
         return TransportError(
             f"VISA error {exc.abbreviation}", address=self.address, command=command
         )
+
+
+#: What ``_translate`` maps (TimeoutError and ConnectionRefusedError are OSErrors).
+_MAPPED_ERRORS = (VisaIOError, InvalidSession, OSError)
+
+
+class _ErrorMap:
+    """``with transport._mapped(command):`` -- a class, not a generator: it wraps every I/O call."""
+
+    __slots__ = ("command", "transport")
+
+    def __init__(self, transport: VisaTransport, command: str) -> None:
+        self.transport = transport
+        self.command = command
+
+    def __enter__(self) -> None:
+        return None
+
+    def __exit__(
+        self,
+        exc_type: type[BaseException] | None,
+        exc: BaseException | None,
+        tb: TracebackType | None,
+    ) -> bool:
+        if not isinstance(exc, _MAPPED_ERRORS):
+            return False
+        raise self.transport._translate(exc, self.command) from exc
 
 
 def _open_resource(address: str, settings: TransportSettings) -> Any:

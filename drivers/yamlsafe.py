@@ -116,15 +116,17 @@ def load_yaml(
         raise error([Problem(start, "file contains a NUL byte: not a text file")])
     try:
         root = _compose(text, limits)
-    except _TooManyAliases as exc:
+    except _Refused as exc:
         raise error([Problem(exc.location(file), str(exc))]) from None
     except yaml.MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
         loc = Location(file, mark.line + 1, mark.column + 1) if mark else start
         message = " ".join(p for p in (exc.context, exc.problem) if p) or "invalid YAML"
         raise error([Problem(loc, f"YAML syntax: {message}")]) from None
+    except yaml.reader.ReaderError as exc:  # a character YAML does not allow: no mark, a position
+        raise error([Problem(_position(text, exc.position, file), _reader_message(exc))]) from None
     except yaml.YAMLError as exc:
-        raise error([Problem(start, f"YAML syntax: {exc}")]) from None
+        raise error([Problem(start, "YAML syntax: " + " ".join(str(exc).split()))]) from None
     if root is None:
         return None
     problems: list[Problem] = []
@@ -140,9 +142,24 @@ def load_yaml(
     return value
 
 
-class _TooManyAliases(yaml.YAMLError):
-    def __init__(self, count: int, mark: Any) -> None:
-        super().__init__(f"more than {count} aliases: refused (alias bomb?)")
+def _position(text: str, index: int, file: str) -> Location:
+    """1-based line and column of character ``index`` of ``text``."""
+    index = max(0, min(index, len(text)))
+    line_start = text.rfind("\n", 0, index) + 1
+    return Location(file, text.count("\n", 0, index) + 1, index - line_start + 1)
+
+
+def _reader_message(exc: yaml.reader.ReaderError) -> str:
+    char = exc.character
+    code = f"#x{char:04x}" if isinstance(char, int) else repr(char)
+    return f"YAML syntax: unacceptable character {code}: {exc.reason}"
+
+
+class _Refused(yaml.YAMLError):
+    """A document refused while composing, before anything is built."""
+
+    def __init__(self, message: str, mark: Any) -> None:
+        super().__init__(message)
         self.mark = mark
 
     def location(self, file: str) -> Location:
@@ -152,22 +169,37 @@ class _TooManyAliases(yaml.YAMLError):
 
 
 class _BoundedLoader(yaml.SafeLoader):
-    """SafeLoader that counts aliases while composing."""
+    """SafeLoader that counts aliases and nesting depth while composing (PyYAML's composer recurses
+    once per level: thousands of ``[`` would otherwise end in a RecursionError)."""
 
     max_aliases = DEFAULT_MAX_ALIASES
+    max_depth = DEFAULT_MAX_DEPTH
     alias_count = 0
+    depth = 0
 
     def compose_node(self, parent: Node | None, index: Any) -> Node | None:  # type: ignore[override]
         if self.check_event(yaml.AliasEvent):
             self.alias_count += 1
             if self.alias_count > self.max_aliases:
-                raise _TooManyAliases(self.max_aliases, self.peek_event().start_mark)
-        return super().compose_node(parent, index)
+                raise _Refused(
+                    f"more than {self.max_aliases} aliases: refused (alias bomb?)",
+                    self.peek_event().start_mark,
+                )
+        self.depth += 1
+        try:
+            if self.depth > self.max_depth:
+                raise _Refused(
+                    f"nesting deeper than {self.max_depth} levels", self.peek_event().start_mark
+                )
+            return super().compose_node(parent, index)
+        finally:
+            self.depth -= 1
 
 
 def _compose(text: str, limits: YamlLimits) -> Node | None:
     loader = _BoundedLoader(text)
     loader.max_aliases = limits.max_aliases
+    loader.max_depth = limits.max_depth
     try:
         return loader.get_single_node()
     finally:

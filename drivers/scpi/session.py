@@ -74,10 +74,16 @@ class Identity:
 
 
 def parse_identity(reply: str) -> Identity:
-    """Split ``maker,model,serial,firmware``; missing fields are empty, extra commas stay in firmware."""
+    """Split ``maker,model,serial,firmware``; missing fields are empty, extra commas stay in firmware.
+
+    A reply holding control characters is not an identity but a garbled reply (identities are
+    plain text fields; common practice): ``ProtocolError``.
+    """
     text = reply.strip()
     if not text:
         raise ProtocolError("empty *IDN? reply")
+    if any((c < " " and c != "\t") or c == "\x7f" for c in text):
+        raise ProtocolError(f"*IDN? reply {text[:40]!r} holds control characters (garbled?)")
     fields = [f.strip() for f in text.split(",", 3)]
     fields += [""] * (4 - len(fields))
     return Identity(
@@ -218,8 +224,18 @@ class ScpiSession:
             return self._call(lambda: self._ask_block(command, timeout_ms), retry=True)
 
     def identify(self) -> Identity:
-        """``*IDN?`` parsed into maker, model, serial and firmware."""
-        return parse_identity(self.query("*IDN?"))
+        """``*IDN?`` parsed into maker, model, serial and firmware; a garbled reply puts the session
+        out of step and is retried once (never taken for the identity)."""
+
+        def once() -> Identity:
+            reply = self._ask("*IDN?")
+            try:
+                return parse_identity(reply)
+            except ProtocolError as exc:
+                raise ProtocolError(str(exc), address=self.address, command="*IDN?") from None
+
+        with self.lock:
+            return self._call(once, retry=True)
 
     def wait_complete(self, timeout_ms: int | None = None) -> None:
         """Block until pending operations finish (``*OPC?``), with its own timeout."""
@@ -253,7 +269,8 @@ class ScpiSession:
 
     # -- recovery --------------------------------------------------------------------------------
     def _call(self, op: Callable[[], T], *, retry: bool) -> T:
-        self._recover_if_needed()
+        if self._link_lost or self._out_of_step:
+            self._recover_if_needed()
         attempts = 1 + (max(0, self.retries) if retry else 0)
         for attempt in range(attempts):
             try:
@@ -301,12 +318,14 @@ class ScpiSession:
         self.transport.write(command)
 
     def _ask(self, command: str, timeout_ms: int | None = None) -> str:
-        with self._timeout(timeout_ms):
-            self._send(command)
-            try:
-                return self.transport.read().decode("ascii", "replace").strip()
-            except TransportError as exc:
-                raise exc.with_command(command) from exc
+        if timeout_ms is not None:
+            with self._timeout(timeout_ms):
+                return self._ask(command)
+        self._send(command)
+        try:
+            return self.transport.read().decode("ascii", "replace").strip()
+        except TransportError as exc:
+            raise exc.with_command(command) from exc
 
     def _sync(self, timeout_ms: int) -> None:
         reply = self._ask(self.opc_query, timeout_ms)

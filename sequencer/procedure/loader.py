@@ -25,7 +25,7 @@ from pathlib import Path
 from typing import Any
 
 from drivers.errors import Location, Problem
-from drivers.yamlsafe import YamlMap, YamlSeq, load_yaml
+from drivers.yamlsafe import DEFAULT_MAX_BYTES, YamlMap, YamlSeq, load_yaml
 from sequencer.errors import ProcedureError
 
 from .boards import shipped_dir
@@ -84,11 +84,23 @@ class _Reader:
             text = self.given[key]
         else:
             try:
-                text = Path(self.display(key)).read_bytes().decode("utf-8")
+                text = _read_bounded(Path(self.display(key))).decode("utf-8")
             except UnicodeDecodeError as exc:
                 raise OSError(f"not UTF-8 text ({exc.reason})") from None
         self.read[key] = text
         return text
+
+
+def _read_bounded(path: Path) -> bytes:
+    """The bytes of a regular file of at most ``DEFAULT_MAX_BYTES``: a named device, FIFO or huge
+    file (``include: /dev/zero``) is refused at once instead of being read forever."""
+    if path.exists() and not path.is_file():
+        raise OSError("not a regular file")
+    with path.open("rb") as f:
+        data = f.read(DEFAULT_MAX_BYTES + 1)
+    if len(data) > DEFAULT_MAX_BYTES:
+        raise OSError(f"larger than the limit of {DEFAULT_MAX_BYTES} bytes")
+    return data
 
 
 def _key_for(target: str, including_key: str) -> str:
