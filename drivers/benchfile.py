@@ -25,7 +25,7 @@ from drivers.dialect import GENERIC, load_dialect, shipped_dialect_path
 from drivers.errors import ConfigError, Location, Problem
 from drivers.scpi.session import Identity
 from drivers.transport import DEFAULT_CHUNK_SIZE, DEFAULT_TIMEOUT_MS, DEFAULT_VISA_LIBRARY
-from drivers.yamlsafe import YamlMap, load_yaml
+from drivers.yamlsafe import YamlMap, load_yaml, read_bounded
 
 ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch")
 _TERMINATIONS = {"LF": "\n", "CR": "\r", "CRLF": "\r\n", "\\n": "\n", "\\r": "\r", "\\r\\n": "\r\n"}
@@ -75,7 +75,7 @@ def load_bench(path: str | Path) -> BenchSpec:
     """Read and check a bench file; every problem is reported as ``file:line:column: message``."""
     path = Path(path)
     try:
-        raw = path.read_bytes()
+        raw = read_bounded(path)
     except OSError as exc:
         raise ConfigError(
             [Problem(Location(str(path), 1, 1), f"cannot read bench file: {exc.strerror}")]

@@ -18,7 +18,7 @@ from pathlib import Path
 from typing import Any
 
 from drivers.errors import ConfigError, Location, Problem
-from drivers.yamlsafe import YamlMap, load_yaml
+from drivers.yamlsafe import YamlMap, load_yaml, read_bounded
 
 #: Reply kinds a query may declare.
 KINDS = ("float", "int", "bool", "str", "csv", "block")
@@ -180,7 +180,7 @@ def load_dialect(name_or_path: str | Path) -> Dialect:
     if path.suffix not in (".yaml", ".yml") and "/" not in text_name and "\\" not in text_name:
         path = shipped_dialect_path(text_name)
     try:
-        text = path.read_bytes()
+        text = read_bounded(path)
     except OSError as exc:
         raise ConfigError(
             [Problem(Location(str(path), 1, 1), f"cannot read dialect file: {exc.strerror}")]

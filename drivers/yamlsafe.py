@@ -13,8 +13,10 @@ This module is a leaf (imports only ``drivers.errors`` and PyYAML); every layer 
 
 from __future__ import annotations
 
+import errno
 from collections.abc import Hashable
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any
 
 import yaml
@@ -280,3 +282,19 @@ class _Builder:
             out.key_locations[key] = location_of(key_node, self.file)
             out.value_locations[key] = location_of(value_node, self.file)
         return out
+
+
+def read_bounded(path: str | Path, *, max_bytes: int = DEFAULT_MAX_BYTES) -> bytes:
+    """The bytes of a regular file of at most ``max_bytes``.
+
+    A device, FIFO or directory (``/dev/zero``, ``/dev/stdin``) or a file over the limit raises
+    ``OSError`` at once instead of being read forever; callers turn it into a located error.
+    """
+    path = Path(path)
+    if path.exists() and not path.is_file():
+        raise OSError(errno.EINVAL, "not a regular file")
+    with path.open("rb") as f:
+        data = f.read(max_bytes + 1)
+    if len(data) > max_bytes:
+        raise OSError(errno.EFBIG, f"larger than the limit of {max_bytes} bytes")
+    return data

@@ -25,7 +25,7 @@ from drivers.sim.board import (
     ShaperSpec,
 )
 from drivers.sim.physics import fast_time_constants
-from drivers.yamlsafe import YamlMap, load_yaml, where
+from drivers.yamlsafe import YamlMap, load_yaml, read_bounded, where
 
 Check = Callable[[Any], Any]
 
@@ -178,7 +178,7 @@ def load_board(path: str | Path) -> BoardSpec:
     """Read a board file; ``ConfigError`` lists every problem as ``file:line:column: message``."""
     source = str(path)
     try:
-        text = Path(path).read_bytes()
+        text = read_bounded(path)
     except OSError as exc:
         raise ConfigError(
             [Problem(where(None, None, source), f"cannot read board file: {exc.strerror}")]

@@ -22,7 +22,7 @@ from pathlib import Path
 from typing import Any
 
 from drivers.errors import Location, Problem
-from drivers.yamlsafe import YamlMap, YamlSeq, load_yaml
+from drivers.yamlsafe import YamlMap, YamlSeq, load_yaml, read_bounded
 from sequencer.errors import ProcedureError
 
 from .checking import check_keys, require_keys
@@ -145,7 +145,7 @@ def parse_batch_text(text: str | bytes, file: str) -> Batch:
 def load_batch(path: str | Path) -> Batch:
     """The batch file at ``path``."""
     try:
-        raw = Path(path).read_bytes()
+        raw = read_bounded(path)
     except OSError as exc:
         raise ProcedureError(
             [Problem(Location(str(path), 1, 1), f"cannot read batch file: {exc.strerror}")]

@@ -23,7 +23,7 @@ from pathlib import Path
 
 import procedures
 from drivers.errors import Location, Problem
-from drivers.yamlsafe import YamlMap, load_yaml
+from drivers.yamlsafe import YamlMap, load_yaml, read_bounded
 from sequencer.errors import ProcedureError
 
 from .checking import check_keys, require_keys
@@ -136,7 +136,7 @@ def load_board_type(name_or_path: str | Path) -> BoardInfo:
     """The board type called ``name_or_path`` (shipped) or in that file; serial left empty."""
     path = board_type_path(name_or_path)
     try:
-        raw = path.read_bytes()
+        raw = read_bounded(path)
     except OSError as exc:
         raise ProcedureError(
             [Problem(Location(str(path), 1, 1), f"cannot read board-type file: {exc.strerror}")]

@@ -20,7 +20,7 @@ from pathlib import Path
 from typing import Any
 
 from drivers.errors import Location, Problem
-from drivers.yamlsafe import YamlMap, YamlSeq, load_yaml
+from drivers.yamlsafe import YamlMap, YamlSeq, load_yaml, read_bounded
 from sequencer.errors import ProcedureError
 from sequencer.quantities import QUANTITY_UNITS
 
@@ -131,7 +131,7 @@ def load_limits(path: str | Path) -> tuple[Limit, ...]:
     """Limits of the file at ``path``."""
     path = Path(path)
     try:
-        raw = path.read_bytes()
+        raw = read_bounded(path)
     except OSError as exc:
         raise ProcedureError(
             [Problem(Location(str(path), 1, 1), f"cannot read limits file: {exc.strerror}")]

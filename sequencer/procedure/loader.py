@@ -25,7 +25,7 @@ from pathlib import Path
 from typing import Any
 
 from drivers.errors import Location, Problem
-from drivers.yamlsafe import DEFAULT_MAX_BYTES, YamlMap, YamlSeq, load_yaml
+from drivers.yamlsafe import YamlMap, YamlSeq, load_yaml, read_bounded
 from sequencer.errors import ProcedureError
 
 from .boards import shipped_dir
@@ -84,23 +84,11 @@ class _Reader:
             text = self.given[key]
         else:
             try:
-                text = _read_bounded(Path(self.display(key))).decode("utf-8")
+                text = read_bounded(self.display(key)).decode("utf-8")
             except UnicodeDecodeError as exc:
                 raise OSError(f"not UTF-8 text ({exc.reason})") from None
         self.read[key] = text
         return text
-
-
-def _read_bounded(path: Path) -> bytes:
-    """The bytes of a regular file of at most ``DEFAULT_MAX_BYTES``: a named device, FIFO or huge
-    file (``include: /dev/zero``) is refused at once instead of being read forever."""
-    if path.exists() and not path.is_file():
-        raise OSError("not a regular file")
-    with path.open("rb") as f:
-        data = f.read(DEFAULT_MAX_BYTES + 1)
-    if len(data) > DEFAULT_MAX_BYTES:
-        raise OSError(f"larger than the limit of {DEFAULT_MAX_BYTES} bytes")
-    return data
 
 
 def _key_for(target: str, including_key: str) -> str:
@@ -341,7 +329,7 @@ def load_procedure_text(
 def load_procedure(path: str | Path) -> Procedure:
     """Load and validate the procedure file at ``path``."""
     try:
-        raw = Path(path).read_bytes()
+        raw = read_bounded(path)
     except OSError as exc:
         raise ProcedureError(
             [Problem(Location(str(path), 1, 1), f"cannot read procedure: {exc.strerror}")]
