@@ -63,6 +63,12 @@ def handles_errors(func: F) -> F:
         except BenchwrightError as exc:
             _debug(debug)
             fail(EXIT_INPUT, f"error: {exc}")
+        except (click.ClickException, click.exceptions.Abort, click.exceptions.Exit):
+            raise  # click's own usage errors and exits
+        except Exception as exc:  # a bug: one line for the operator, the traceback with --debug
+            _debug(debug)
+            fail(EXIT_ABORT, f"internal error: {type(exc).__name__}: {exc} (a bug: please report it; "
+                 "--debug shows the traceback)")
 
     return wrapper  # type: ignore[return-value]
 
