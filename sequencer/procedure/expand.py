@@ -236,16 +236,7 @@ class _Expander:
             "for_channels",
             f"a channel of {self.board.board_type} (1..{self.board.channels})",
         )
-        if values is None:
-            return
-        for channel in values:
-            self.run(
-                step.body,
-                {**env, "channel": channel},
-                {**labels, "channel": channel},
-                (*path, f"ch{channel}"),
-                block,
-            )
+        self._loop(step.body, "channel", values, "ch{}", env, labels, path, block)
 
     def outputs(
         self,
@@ -262,14 +253,26 @@ class _Expander:
             "for_outputs",
             f"an output of {self.board.board_type}",
         )
-        if values is None:
-            return
-        for output in values:
+        self._loop(step.body, "output", values, "{}", env, labels, path, block)
+
+    def _loop(
+        self,
+        body: tuple[Step, ...],
+        name: str,
+        values: list[Any] | None,
+        segment: str,
+        env: dict[str, Any],
+        labels: dict[str, Any],
+        path: tuple[str, ...],
+        block: str,
+    ) -> None:
+        """Expand ``body`` once per value, bound to ``name`` and named by ``segment`` in the path."""
+        for value in values or ():
             self.run(
-                step.body,
-                {**env, "output": output},
-                {**labels, "output": output},
-                (*path, output),
+                body,
+                {**env, name: value},
+                {**labels, name: value},
+                (*path, segment.format(value)),
                 block,
             )
 
