@@ -161,16 +161,7 @@ class Runner:
         ctx.checkpoint()
         ctx.guard.at_step()
         started = self.clock()
-        self.emit(
-            StepStarted(
-                run_id=self.run_id,
-                path=step.path,
-                kind=step.kind,
-                index=index,
-                total=len(self.plan.steps),
-                at=started,
-            )
-        )
+        self._announce(step, index, started)
         done = self.completed.get(step.path)
         if done is not None and not reexecuted_on_resume(step):
             if yields_data(step.kind):
@@ -263,18 +254,14 @@ class Runner:
         ctx.step = None
         return first
 
+    def _announce(self, step: PlannedStep, index: int, at: datetime) -> None:
+        total = len(self.plan.steps)
+        self.emit(StepStarted(run_id=self.run_id, path=step.path, kind=step.kind, index=index,
+                              total=total, at=at))
+
     def _skip(self, step: PlannedStep, index: int, why: str) -> None:
         now = self.clock()
-        self.emit(
-            StepStarted(
-                run_id=self.run_id,
-                path=step.path,
-                kind=step.kind,
-                index=index,
-                total=len(self.plan.steps),
-                at=now,
-            )
-        )
+        self._announce(step, index, now)
         self.emit(
             StepFinished(
                 run_id=self.run_id,
