@@ -249,30 +249,28 @@ class StepParser:
     def _for_channels(
         self, raw: YamlMap, scope: frozenset[str], common: dict[str, Any], depth: int
     ) -> ChannelLoop:
-        if "channel" in scope:
-            self.problems.append(
-                Problem(
-                    raw.where("for_channels", of_key=True),
-                    "for_channels inside for_channels: 'channel' is already bound",
-                )
-            )
-        channels = self._loop_values(raw, "for_channels", scope)
-        body = self._body(raw, scope | {"channel"}, depth)
+        channels, body = self._loop(raw, "for_channels", "channel", scope, depth)
         return ChannelLoop(channels=channels, body=body, **common)
 
     def _for_outputs(
         self, raw: YamlMap, scope: frozenset[str], common: dict[str, Any], depth: int
     ) -> OutputLoop:
-        if "output" in scope:
+        outputs, body = self._loop(raw, "for_outputs", "output", scope, depth)
+        return OutputLoop(outputs=outputs, body=body, **common)
+
+    def _loop(
+        self, raw: YamlMap, key: str, variable: str, scope: frozenset[str], depth: int
+    ) -> tuple[Template | None, tuple[Step, ...]]:
+        """The values and body of a ``for_channels`` / ``for_outputs`` loop binding ``variable``."""
+        if variable in scope:
             self.problems.append(
                 Problem(
-                    raw.where("for_outputs", of_key=True),
-                    "for_outputs inside for_outputs: 'output' is already bound",
+                    raw.where(key, of_key=True),
+                    f"{key} inside {key}: '{variable}' is already bound",
                 )
             )
-        outputs = self._loop_values(raw, "for_outputs", scope)
-        body = self._body(raw, scope | {"output"}, depth)
-        return OutputLoop(outputs=outputs, body=body, **common)
+        values = self._loop_values(raw, key, scope)
+        return values, self._body(raw, scope | {variable}, depth)
 
     def _include(
         self, raw: YamlMap, scope: frozenset[str], common: dict[str, Any], depth: int
