@@ -86,6 +86,7 @@ class VisaTransport:
         self._resource: Any = resource
         self._last_command = ""  # attached to errors of the reads that follow it
         self._timeout_ms = int(settings.timeout_ms)
+        self._resource_timeout_ms = int(settings.timeout_ms)  # what the VISA resource has now
         self._session_of: tuple[Any, Any] = (None, None)  # (resource, its pyvisa-py session)
         self._read_term = settings.read_termination.encode("ascii")
         self._write_term = settings.write_termination
@@ -129,8 +130,16 @@ class VisaTransport:
 
     @timeout_ms.setter
     def timeout_ms(self, value: int) -> None:
-        self._live().timeout = int(value)
+        # Kept here; handed to the VISA resource only before I/O that goes through pyvisa (the
+        # socket fast path applies it itself), so a capture's longer timeout costs no VISA calls.
         self._timeout_ms = int(value)
+
+    def _visa(self, resource: Any) -> Any:
+        """``resource`` with the current timeout applied, for I/O through pyvisa."""
+        if self._resource_timeout_ms != self._timeout_ms:
+            resource.timeout = self._timeout_ms
+            self._resource_timeout_ms = self._timeout_ms
+        return resource
 
     # -- I/O -----------------------------------------------------------------------------------
     def write(self, text: str) -> None:
@@ -148,7 +157,7 @@ class VisaTransport:
         self._last_command = text
         try:  # not ``with self._mapped(...)``: this runs for every message
             if link is None:
-                resource.write(text)
+                self._visa(resource).write(text)
             else:
                 data = (text + self._write_term).encode("ascii")
                 sockio.send_all(link[1], data, self._timeout_ms / 1000.0)
@@ -162,7 +171,7 @@ class VisaTransport:
         link = self._fast_link(resource) if term else None  # no terminator: pyvisa reads to END
         try:
             if link is None:
-                data = resource.read_raw()
+                data = self._visa(resource).read_raw()
             else:
                 pending, sock = link
                 data = sockio.receive_message(
@@ -184,7 +193,7 @@ class VisaTransport:
             if link is not None:
                 pending, sock = link
                 return sockio.receive_exactly(pending, sock, n, self._timeout_ms / 1000.0)  # type: ignore[return-value]
-            data = self._pyvisa_read_bytes(resource, n)
+            data = self._pyvisa_read_bytes(self._visa(resource), n)
         except _MAPPED_ERRORS as exc:
             raise self._translate(exc, self._last_command) from exc
         if len(data) != n:
@@ -236,7 +245,7 @@ class VisaTransport:
         """Discard any input waiting (a late or partial reply), so the next reply is in step."""
         resource = self._live()
         with self._mapped("<clear>"):
-            resource.clear()
+            self._visa(resource).clear()
 
     # -- life cycle ----------------------------------------------------------------------------
     def reconnect(self) -> None:
@@ -249,6 +258,7 @@ class VisaTransport:
             try:
                 self._resource = _open_resource(self.address, self.settings)
                 self._timeout_ms = int(self.settings.timeout_ms)
+                self._resource_timeout_ms = self._timeout_ms
                 return
             except TransportError as exc:
                 last = exc
