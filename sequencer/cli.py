@@ -9,13 +9,8 @@ option, procedure) · 3 run aborted (instrument fault, interlock, operator, sign
 
 from __future__ import annotations
 
-import contextlib
 import os
-import select
-import signal
 import sys
-import threading
-from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import Any
 
@@ -33,6 +28,7 @@ from sequencer.cli_common import (
     fail,
     handles_errors,
 )
+from sequencer.cli_terminal import acknowledge_on_terminal, prompt_on_terminal
 from sequencer.errors import StoreError
 
 
@@ -85,74 +81,6 @@ def schema() -> None:
 # -- running ------------------------------------------------------------------------------------
 
 
-def _acknowledge_on_terminal() -> Callable[[Any], bool] | None:
-    """A terminal prompt for the safety caution, or None when there is no terminal."""
-    if not (sys.stdin.isatty() and sys.stderr.isatty()):
-        return None
-
-    def ask(caution: Any) -> bool:
-        click.echo(caution.text(), err=True)
-        with _signals_cancel_the_prompt():
-            try:
-                return _confirm("Acknowledge and make the voltage live?")
-            except KeyboardInterrupt:  # Ctrl-C or SIGTERM at the prompt: declined
-                click.echo("", err=True)
-                return False
-
-    return ask
-
-
-def _confirm(question: str, *, slice_s: float = 0.2) -> bool:
-    """``question [y/N]`` on the terminal; anything but y/yes declines, end of input too.
-
-    The answer is awaited in slices, never in one blocking read: a signal the kernel hands to
-    another thread would not interrupt that read, and its Python handler would wait for the answer.
-    """
-    click.echo(f"{question} [y/N]: ", nl=False, err=True)
-    while True:
-        ready, _, _ = select.select([sys.stdin], [], [], slice_s)
-        if not ready:
-            continue
-        answer = sys.stdin.readline()
-        if answer.strip().lower() in ("y", "yes"):
-            return True
-        if not answer or answer.strip().lower() in ("", "n", "no"):
-            return False
-        click.echo("Please answer y or n [y/N]: ", nl=False, err=True)
-
-
-@contextlib.contextmanager
-def _signals_cancel_the_prompt() -> Iterator[None]:
-    """While the caution waits for an answer, SIGINT and SIGTERM cancel it (the run's own handlers
-    only set a stop flag, which the prompt would never look at)."""
-    if threading.current_thread() is not threading.main_thread():
-        yield
-        return
-
-    def cancel(_signum: int, _frame: Any) -> None:
-        raise KeyboardInterrupt
-
-    previous = {sig: signal.signal(sig, cancel) for sig in (signal.SIGINT, signal.SIGTERM)}
-    try:
-        yield
-    finally:
-        for sig, handler in previous.items():
-            signal.signal(sig, handler)
-
-
-def _prompt_on_terminal() -> Callable[[str, bool], str] | None:
-    if not sys.stdin.isatty():
-        return None
-
-    def ask(message: str, wants_value: bool) -> str:
-        if wants_value:
-            return str(click.prompt(message, err=True))
-        click.pause(f"{message} — press any key to continue", err=True)
-        return ""
-
-    return ask
-
-
 def _summarise(run_id: int, outcome: Any) -> int:
     verdict = "PASS" if outcome.failed == 0 else f"FAIL ({outcome.failed} value(s) outside limits)"
     click.echo(f"run {run_id} completed: {outcome.measurements} measurement(s), {verdict}")
@@ -195,8 +123,8 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
             raise click.UsageError("give --board SERIAL")
         plan_ = compose.plan_for(proc, serial)
         request = compose.RunRequest(
-            operator=operator, unattended=yes, acknowledge=_acknowledge_on_terminal(),
-            prompt=_prompt_on_terminal(), repeat_of=repeat, progress=True,
+            operator=operator, unattended=yes, acknowledge=acknowledge_on_terminal(),
+            prompt=prompt_on_terminal(), repeat_of=repeat, progress=True,
             log_path=Path(log_path) if log_path else None, procedure_files=proc.source_files(),
             previous_instruments=tuple(record.instruments) if record is not None else (),
             warn=lambda line: click.echo(f"warning: {line}", err=True),
@@ -233,7 +161,7 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
                                    files=getattr(record, "procedure_files", None) or None)
         plan_ = compose.plan_for(proc, record.board, board_type=record.board_type or None)
         request = compose.RunRequest(operator=operator or record.operator, unattended=yes,
-                                     acknowledge=_acknowledge_on_terminal(), prompt=_prompt_on_terminal())
+                                     acknowledge=acknowledge_on_terminal(), prompt=prompt_on_terminal())
         if bench_path or sim_board:
             bench_cm = compose.bench_for(bench_path, sim_board)
         else:

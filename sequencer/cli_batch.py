@@ -80,7 +80,7 @@ def batch(
     """Qualify the boards of a batch file in turn; a running yield, then the batch summary."""
     from sequencer import compose
     from sequencer.batchrun import BatchOptions, qualify_batch, summary_text
-    from sequencer.cli import _acknowledge_on_terminal, _prompt_on_terminal
+    from sequencer.cli_terminal import acknowledge_on_terminal, prompt_on_terminal
     from sequencer.procedure import load_batch
 
     spec = load_batch(batch_file)
@@ -94,8 +94,8 @@ def batch(
         requalify=requalify,
         progress=True,
         mount=_mount_on_terminal(bool(bench_path)) if terminal else None,
-        acknowledge=_acknowledge_on_terminal(),
-        prompt=_prompt_on_terminal(),
+        acknowledge=acknowledge_on_terminal(),
+        prompt=prompt_on_terminal(),
         echo=click.echo,
     )
     with compose.open_store(db, env()) as store:
