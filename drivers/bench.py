@@ -50,6 +50,7 @@ def open_transport(spec: InstrumentSpec) -> Transport:
         read_termination=spec.read_termination,
         write_termination=spec.write_termination,
         chunk_size=spec.chunk_size,
+        busy_poll_us=spec.busy_poll_us,
     )
 
 

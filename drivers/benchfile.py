@@ -7,7 +7,8 @@ instruments:   # roles: pulser, scope, threshold, counter, bias, switch
   bias:   {address: "TCPIP0::127.0.0.1::5029::SOCKET", dialect: generic, max_volts: 60, max_ramp_V_per_s: 5}
 ```
 Per instrument also ``read_termination``, ``write_termination`` (a string, or ``LF``/``CR``/``CRLF``),
-``timeout_ms``, ``chunk_size``, ``visa_library`` (default ``@py``) and, for the bias supply,
+``timeout_ms``, ``chunk_size``, ``visa_library`` (default ``@py``), ``busy_poll_us`` (how long a
+wait for a reply polls before it sleeps, default 200; 0 turns it off) and, for the bias supply,
 ``max_current_uA``.  Unknown keys are located errors with a "did you mean" hint.  A dialect given as a
 path is resolved against the bench file's folder and checked at load.
 """
@@ -24,7 +25,12 @@ from typing import Any
 from drivers.dialect import GENERIC, load_dialect, shipped_dialect_path
 from drivers.errors import ConfigError, Location, Problem
 from drivers.scpi.session import Identity
-from drivers.transport import DEFAULT_CHUNK_SIZE, DEFAULT_TIMEOUT_MS, DEFAULT_VISA_LIBRARY
+from drivers.transport import (
+    DEFAULT_BUSY_POLL_US,
+    DEFAULT_CHUNK_SIZE,
+    DEFAULT_TIMEOUT_MS,
+    DEFAULT_VISA_LIBRARY,
+)
 from drivers.yamlsafe import YamlMap, load_yaml, read_bounded
 
 ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch")
@@ -40,6 +46,7 @@ _KEYS = (
     "read_termination",
     "write_termination",
     "chunk_size",
+    "busy_poll_us",
     *_BIAS_ONLY,
 )
 
@@ -58,6 +65,7 @@ class InstrumentSpec:
     read_termination: str = "\n"
     write_termination: str = "\n"
     chunk_size: int = DEFAULT_CHUNK_SIZE
+    busy_poll_us: int = DEFAULT_BUSY_POLL_US
     max_volts: float | None = None
     max_ramp_V_per_s: float | None = None
     max_current_uA: float | None = None
@@ -187,6 +195,7 @@ def _instrument(
     values["calibration_due"] = check.date("calibration_due")
     values["timeout_ms"] = check.integer("timeout_ms", DEFAULT_TIMEOUT_MS, 1, 3_600_000)
     values["chunk_size"] = check.integer("chunk_size", DEFAULT_CHUNK_SIZE, 1024, 1 << 30)
+    values["busy_poll_us"] = check.integer("busy_poll_us", DEFAULT_BUSY_POLL_US, 0, 100_000)
     values["read_termination"] = check.termination("read_termination")
     values["write_termination"] = check.termination("write_termination")
     values["dialect"] = _dialect(role, entry, problems, source, base_dir)

@@ -4,6 +4,13 @@ Used by :mod:`drivers.transport` for the fast path: the bytes pyvisa-py has alre
 pending buffer, a ``bytearray``) are consumed first and kept consistent, so pyvisa's own reads and these
 can follow each other.  Errors are the built-in ``TimeoutError`` and ``ConnectionResetError``; the
 transport maps them to ours with the address attached.  Every wait is bounded by a deadline.
+
+Busy poll: a wait for a reply first polls the socket without blocking for up to ``poll_s`` (the
+transport's ``busy_poll_us``) and only then sleeps in ``select``.  A reply that comes back within tens
+of microseconds (a simulator, an instrument on a quiet LAN) is then picked up without the thread going
+to sleep: waking a sleeping thread costs more than the reply itself on a virtual machine (measured
+with tests/benchmarks/bench_engine.py, see the README).  The poll releases the interpreter lock at
+every system call, so an instrument simulated in the same process still gets to answer.
 """
 
 from __future__ import annotations
@@ -48,7 +55,12 @@ def send_all(sock: socket.socket, data: bytes, timeout_s: float) -> None:
 
 
 def receive_message(
-    pending: bytearray, sock: socket.socket, term: bytes, timeout_s: float, max_bytes: int
+    pending: bytearray,
+    sock: socket.socket,
+    term: bytes,
+    timeout_s: float,
+    max_bytes: int,
+    poll_s: float = 0.0,
 ) -> bytes:
     """Bytes up to and including the terminator byte ``term``; the rest stays in ``pending``."""
     deadline = time.monotonic() + timeout_s
@@ -62,14 +74,16 @@ def receive_message(
         searched = len(pending)
         if searched > max_bytes:
             raise ConnectionResetError(f"reply longer than {max_bytes} bytes without a terminator")
-        _wait_readable(sock, deadline, timeout_s, f"no reply within {timeout_s * 1000:.0f} ms")
+        _wait_readable(sock, deadline, timeout_s, "no reply", poll_s)
         chunk = sock.recv(RECV_SIZE)
         if not chunk:
             raise ConnectionResetError("the instrument closed the link")
         pending += chunk
 
 
-def receive_exactly(pending: bytearray, sock: socket.socket, n: int, timeout_s: float) -> bytearray:
+def receive_exactly(
+    pending: bytearray, sock: socket.socket, n: int, timeout_s: float, poll_s: float = 0.0
+) -> bytearray:
     """Exactly ``n`` bytes, received straight into one buffer (no termination character)."""
     buffer = bytearray(n)
     view = memoryview(buffer)
@@ -78,7 +92,7 @@ def receive_exactly(pending: bytearray, sock: socket.socket, n: int, timeout_s: 
     del pending[:got]
     deadline = time.monotonic() + timeout_s
     while got < n:
-        _wait_readable(sock, deadline, timeout_s, f"got {got} of {n} bytes")
+        _wait_readable(sock, deadline, timeout_s, f"got {got} of {n} bytes", poll_s)
         count = sock.recv_into(view[got:], n - got)
         if count == 0:
             raise ConnectionResetError(f"the instrument closed the link after {got} of {n} bytes")
@@ -86,12 +100,20 @@ def receive_exactly(pending: bytearray, sock: socket.socket, n: int, timeout_s: 
     return buffer
 
 
-def _wait_readable(sock: socket.socket, deadline: float, timeout_s: float, what: str) -> None:
+def _wait_readable(
+    sock: socket.socket, deadline: float, timeout_s: float, what: str, poll_s: float
+) -> None:
+    """Return once ``sock`` is readable: busy-poll for ``poll_s``, then sleep until ``deadline``."""
+    if poll_s > 0.0:
+        poll_until = min(deadline, time.monotonic() + poll_s)
+        while True:
+            if select.select([sock], [], [], 0)[0]:
+                return
+            if time.monotonic() >= poll_until:
+                break
     ready, _, _ = select.select([sock], [], [], _remaining(deadline))
     if not ready:
-        raise TimeoutError(
-            f"{what} within {timeout_s * 1000:.0f} ms" if "within" not in what else what
-        )
+        raise TimeoutError(f"{what} within {timeout_s * 1000:.0f} ms")
 
 
 def _remaining(deadline: float) -> float:

@@ -47,6 +47,8 @@ DEFAULT_TIMEOUT_MS = 5000
 DEFAULT_CHUNK_SIZE = 1 << 20
 DEFAULT_RECONNECT_ATTEMPTS = 3
 DEFAULT_RECONNECT_BACKOFF_S = 0.2
+#: Fast path: poll for a reply this long before sleeping (see drivers/sockio.py); 0 turns it off.
+DEFAULT_BUSY_POLL_US = 200
 #: A text reply longer than this without its terminator is refused (binary data uses read_bytes).
 MAX_MESSAGE_BYTES = 16 * 1024 * 1024
 
@@ -75,6 +77,8 @@ class TransportSettings:
     reconnect_backoff_s: float = DEFAULT_RECONNECT_BACKOFF_S
     #: On pyvisa-py SOCKET sessions, send and receive on the session's socket directly (see above).
     socket_fast_path: bool = True
+    #: Fast path only: how long a wait for a reply polls before it sleeps (microseconds).
+    busy_poll_us: int = DEFAULT_BUSY_POLL_US
 
 
 class VisaTransport:
@@ -90,6 +94,7 @@ class VisaTransport:
         self._session_of: tuple[Any, Any] = (None, None)  # (resource, its pyvisa-py session)
         self._read_term = settings.read_termination.encode("ascii")
         self._write_term = settings.write_termination
+        self._poll_s = max(0, settings.busy_poll_us) / 1e6
 
     # -- opening -------------------------------------------------------------------------------
     @classmethod
@@ -105,6 +110,7 @@ class VisaTransport:
         reconnect_attempts: int = DEFAULT_RECONNECT_ATTEMPTS,
         reconnect_backoff_s: float = DEFAULT_RECONNECT_BACKOFF_S,
         socket_fast_path: bool = True,
+        busy_poll_us: int = DEFAULT_BUSY_POLL_US,
     ) -> VisaTransport:
         """Open ``address`` (e.g. ``TCPIP0::127.0.0.1::5025::SOCKET``) on ``visa_library``."""
         settings = TransportSettings(
@@ -116,6 +122,7 @@ class VisaTransport:
             reconnect_attempts=reconnect_attempts,
             reconnect_backoff_s=reconnect_backoff_s,
             socket_fast_path=socket_fast_path,
+            busy_poll_us=busy_poll_us,
         )
         return cls(address, settings, _open_resource(address, settings))
 
@@ -175,7 +182,12 @@ class VisaTransport:
             else:
                 pending, sock = link
                 data = sockio.receive_message(
-                    pending, sock, term[-1:], self._timeout_ms / 1000.0, MAX_MESSAGE_BYTES
+                    pending,
+                    sock,
+                    term[-1:],
+                    self._timeout_ms / 1000.0,
+                    MAX_MESSAGE_BYTES,
+                    self._poll_s,
                 )
         except _MAPPED_ERRORS as exc:
             raise self._translate(exc, self._last_command) from exc
@@ -192,7 +204,8 @@ class VisaTransport:
         try:
             if link is not None:
                 pending, sock = link
-                return sockio.receive_exactly(pending, sock, n, self._timeout_ms / 1000.0)  # type: ignore[return-value]
+                timeout_s = self._timeout_ms / 1000.0
+                return sockio.receive_exactly(pending, sock, n, timeout_s, self._poll_s)  # type: ignore[return-value]
             data = self._pyvisa_read_bytes(self._visa(resource), n)
         except _MAPPED_ERRORS as exc:
             raise self._translate(exc, self._last_command) from exc

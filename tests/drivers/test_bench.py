@@ -10,6 +10,7 @@ from drivers.benchfile import instrument_warnings
 from drivers.errors import ConfigError, ConnectionRefused
 from drivers.instruments import describe_bench, format_reports
 from drivers.scpi.session import Identity
+from drivers.transport import DEFAULT_BUSY_POLL_US
 from tests.drivers.scripted import ScriptedTransport, configured
 
 GOOD = """\
@@ -57,14 +58,16 @@ def test_extended_keys(tmp_path):
             bench: b
             instruments:
               scope: {address: "TCPIP0::10.1.2.3::INSTR", read_termination: CRLF, write_termination: "\\n",
-                      timeout_ms: 20000, chunk_size: 4194304, visa_library: "@py"}
+                      timeout_ms: 20000, chunk_size: 4194304, visa_library: "@py",
+                      busy_poll_us: 0}
               bias: {address: "X", max_volts: 70, max_ramp_V_per_s: 10, max_current_uA: 25}
             """,
         )
     )
     scope = spec.instruments["scope"]
     assert (scope.read_termination, scope.write_termination) == ("\r\n", "\n")
-    assert (scope.timeout_ms, scope.chunk_size) == (20000, 4194304)
+    assert (scope.timeout_ms, scope.chunk_size, scope.busy_poll_us) == (20000, 4194304, 0)
+    assert spec.instruments["bias"].busy_poll_us == DEFAULT_BUSY_POLL_US
     assert spec.instruments["bias"].max_current_uA == 25.0
 
 
@@ -101,6 +104,7 @@ def test_bias_needs_its_limits_and_only_bias_has_them(tmp_path):
     ("entry", "message"),
     [
         ('{address: "A", timeout_ms: 0}', "timeout_ms must be an integer"),
+        ('{address: "A", busy_poll_us: -5}', "busy_poll_us must be an integer"),
         ('{address: "A", calibration_due: "next year"}', "calibration_due must be a date"),
         ('{address: "A", read_termination: ""}', "every query times out"),
         ('{address: "A", dialect: no-such}', "dialect 'no-such' not found"),

@@ -1,0 +1,94 @@
+"""The socket fast path's waits (drivers/sockio.py) over a real TCP connection on 127.0.0.1.
+
+What is checked is behaviour a caller relies on, with and without the busy poll: a reply is picked up
+whether it arrives during the poll or long after it; the poll never stretches a wait past its
+timeout; bytes beyond the message stay pending for the next read.  The speed the poll buys is
+measured by tests/benchmarks/bench_engine.py (``engine_overhead_no_poll``), not here.
+"""
+
+from __future__ import annotations
+
+import socket
+import threading
+import time
+from collections.abc import Iterator
+
+import pytest
+
+from drivers import sockio
+
+
+@pytest.fixture
+def pair() -> Iterator[tuple[socket.socket, socket.socket]]:
+    """(ours, peer): two ends of one loopback TCP connection."""
+    with socket.create_server(("127.0.0.1", 0)) as server:
+        ours = socket.create_connection(server.getsockname())
+        peer, _ = server.accept()
+    ours.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+    peer.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+    try:
+        yield ours, peer
+    finally:
+        ours.close()
+        peer.close()
+
+
+def send_later(peer: socket.socket, data: bytes, delay_s: float) -> threading.Thread:
+    def run() -> None:
+        time.sleep(delay_s)
+        peer.sendall(data)
+
+    thread = threading.Thread(target=run, daemon=True)
+    thread.start()
+    return thread
+
+
+polls = pytest.mark.parametrize("poll_s", [0.0, 200e-6, 0.05], ids=["no-poll", "200us", "50ms"])
+
+
+@polls
+def test_reply_arriving_during_or_after_the_poll_is_received(pair, poll_s):
+    ours, peer = pair
+    pending = bytearray()
+    for delay_s in (0.0, 0.03):  # at once (inside any poll), then well after a 200 us poll
+        thread = send_later(peer, b"+1.5E-3\nrest", delay_s)
+        message = sockio.receive_message(pending, ours, b"\n", 2.0, 1 << 20, poll_s)
+        thread.join()
+        assert message == b"+1.5E-3\n"
+        assert bytes(pending) == b"rest"  # what follows the terminator waits for the next read
+        pending.clear()
+
+
+@polls
+def test_exact_read_spanning_two_late_segments(pair, poll_s):
+    ours, peer = pair
+    pending = bytearray(b"ab")
+    first = send_later(peer, b"cd", 0.01)
+    first.join()
+    second = send_later(peer, b"efgh", 0.02)
+    data = sockio.receive_exactly(pending, ours, 6, 2.0, poll_s)
+    second.join()
+    assert bytes(data) == b"abcdef"
+    assert sockio.receive_exactly(pending, ours, 2, 2.0, poll_s) == bytearray(b"gh")
+
+
+def test_poll_longer_than_the_timeout_still_times_out_on_time(pair):
+    ours, _ = pair
+    start = time.monotonic()
+    with pytest.raises(TimeoutError, match="no reply within 50 ms"):
+        sockio.receive_message(bytearray(), ours, b"\n", 0.05, 1 << 20, poll_s=5.0)
+    assert time.monotonic() - start < 1.0  # bounded by the 50 ms deadline, not the 5 s poll
+
+
+def test_exact_read_timeout_says_how_far_it_got(pair):
+    ours, peer = pair
+    peer.sendall(b"xyz")
+    with pytest.raises(TimeoutError, match="got 3 of 10 bytes within 50 ms"):
+        sockio.receive_exactly(bytearray(), ours, 10, 0.05, poll_s=200e-6)
+
+
+def test_peer_closing_during_the_poll_is_end_of_file(pair):
+    ours, peer = pair
+    peer.close()
+    with pytest.raises(ConnectionResetError, match="closed the link"):
+        sockio.receive_message(bytearray(), ours, b"\n", 2.0, 1 << 20, poll_s=0.05)
