@@ -16,6 +16,8 @@ from typing import Any
 
 import click
 
+from sequencer.errors import RunAborted
+
 
 def acknowledge_on_terminal() -> Callable[[Any], bool] | None:
     """A terminal prompt for the safety caution, or None when there is no terminal."""
@@ -42,10 +44,7 @@ def _confirm(question: str, *, slice_s: float = 0.2) -> bool:
     """
     click.echo(f"{question} [y/N]: ", nl=False, err=True)
     while True:
-        ready, _, _ = select.select([sys.stdin], [], [], slice_s)
-        if not ready:
-            continue
-        answer = sys.stdin.readline()
+        answer = _read_line(slice_s=slice_s)
         if answer.strip().lower() in ("y", "yes"):
             return True
         if not answer or answer.strip().lower() in ("", "n", "no"):
@@ -55,14 +54,14 @@ def _confirm(question: str, *, slice_s: float = 0.2) -> bool:
 
 @contextlib.contextmanager
 def _signals_cancel_the_prompt() -> Iterator[None]:
-    """While the caution waits for an answer, SIGINT and SIGTERM cancel it (the run's own handlers
+    """While a prompt waits for an answer, SIGINT and SIGTERM cancel it (the run's own handlers
     only set a stop flag, which the prompt would never look at)."""
     if threading.current_thread() is not threading.main_thread():
         yield
         return
 
-    def cancel(_signum: int, _frame: Any) -> None:
-        raise KeyboardInterrupt
+    def cancel(signum: int, _frame: Any) -> None:
+        raise KeyboardInterrupt(signal.Signals(signum).name)
 
     previous = {sig: signal.signal(sig, cancel) for sig in (signal.SIGINT, signal.SIGTERM)}
     try:
@@ -73,14 +72,49 @@ def _signals_cancel_the_prompt() -> Iterator[None]:
 
 
 def prompt_on_terminal() -> Callable[[str, bool], str] | None:
-    """A terminal prompt for operator-prompt steps, or None when there is no terminal."""
+    """A terminal prompt for operator-prompt steps, or None when there is no terminal.
+
+    The prompt waits like the caution does: in slices, with Ctrl-C and SIGTERM cancelling it.  A
+    cancelled prompt (or the end of input) stops the run as an abort -- cleanup and the bias safe
+    state follow -- instead of waiting for an answer nobody will type.
+    """
     if not sys.stdin.isatty():
         return None
 
     def ask(message: str, wants_value: bool) -> str:
-        if wants_value:
-            return str(click.prompt(message, err=True))
-        click.pause(f"{message} — press any key to continue", err=True)
-        return ""
+        with _signals_cancel_the_prompt():
+            try:
+                if wants_value:
+                    return _enter(message)
+                click.echo(f"{message} — press Enter to continue ", nl=False, err=True)
+                if not _read_line():
+                    raise _end_of_input()
+                return ""
+            except KeyboardInterrupt as exc:
+                click.echo("", err=True)
+                name = exc.args[0] if exc.args else "SIGINT"
+                raise RunAborted(f"stopped by {name} at an operator prompt", cause="signal") from None
 
     return ask
+
+
+def _enter(message: str) -> str:
+    """A typed value (asked again while empty); the end of input stops the run."""
+    while True:
+        click.echo(f"{message}: ", nl=False, err=True)
+        line = _read_line()
+        if not line:
+            raise _end_of_input()
+        if line.strip():
+            return line.strip()
+
+
+def _read_line(*, slice_s: float = 0.2) -> str:
+    """One line of the terminal ('' at the end of input), awaited in slices (see :func:`_confirm`)."""
+    while not select.select([sys.stdin], [], [], slice_s)[0]:
+        pass
+    return sys.stdin.readline()
+
+
+def _end_of_input() -> RunAborted:
+    return RunAborted("the terminal closed while an operator prompt waited", cause="operator")
