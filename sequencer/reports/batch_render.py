@@ -49,7 +49,8 @@ def _histograms(s: BatchSummary) -> list[tuple[str, bytes]]:
     plotter = Plotter()
     out = []
     for q in s.stats:
-        title = f"{q.quantity}" + (f" ({q.output})" if q.output else "") + f": {q.n} values"
+        group = f", {q.group} channels" if q.group else ""
+        title = q.quantity + (f" ({q.output}{group})" if q.output else "") + f": {q.n} values"
         out.append((title, plotter.histogram(q.values, q.low, q.high, title, q.unit)))
     return out
 

@@ -10,6 +10,10 @@ Outliers (robust, also inside the limits): a value is an outlier when
 MAD the median absolute deviation (1.4826 = 1/Φ⁻¹(3/4) makes it estimate σ of a normal distribution;
 P. J. Huber, *Robust Statistics*, 1981, from memory).  ``DEFAULT_OUTLIER_SIGMA`` 3.5 is the cut of
 B. Iglewicz and D. C. Hoaglin, *How to Detect and Handle Outliers*, ASQC 1993 (from memory).
+
+Crosstalk values fall into two populations that must not share one median: into the *adjacent*
+channels of the aggressor (|victim - aggressor| = 1, the coupling being measured) and into a
+*distant* control channel (the floor, about zero).  Each is a group of its own.
 """
 
 from __future__ import annotations
@@ -32,6 +36,7 @@ MAD_TO_SIGMA = 1.4826
 class QuantityStats:
     quantity: str
     output: str | None
+    group: str  # "" or, for crosstalk, "adjacent" / "distant" (module docstring)
     unit: str
     n: int
     median: float
@@ -53,6 +58,7 @@ class Outlier:
     output: str | None
     aggressor: int | None
     quantity: str
+    group: str  # as QuantityStats.group
     value: float
     robust_z: float  # (value - median) / robust sigma
     verdict: str
@@ -92,14 +98,14 @@ def batch_summary(
     if not outlier_sigma > 0:
         raise ValueError(f"outlier_sigma must be > 0, got {outlier_sigma}")
     runs = _latest_runs(store.runs_of_batch(batch))
-    groups: dict[tuple[str, str | None], list[tuple[str, Any]]] = defaultdict(list)
+    groups: dict[tuple[str, str | None, str], list[tuple[str, Any]]] = defaultdict(list)
     failed: list[FailedChannel] = []
     channels = passed = 0
     for run in runs:
         ms = store.measurements(run_id=run.id)
         for m in ms:
             if m.value is not None and math.isfinite(m.value):
-                groups[(m.quantity, m.output)].append((run.board, m))
+                groups[(m.quantity, m.output, value_group(m))].append((run.board, m))
         board_fails = [_reason(m) for m in ms if m.channel is None and m.verdict == "fail"]
         for ch in sorted({m.channel for m in ms if m.channel is not None}):
             channels += 1
@@ -117,7 +123,7 @@ def batch_summary(
             else:
                 passed += 1
     stats, outliers = [], []
-    for key in sorted(groups, key=lambda k: (quantity_rank(k[0]), k[0], k[1] or "")):
+    for key in sorted(groups, key=lambda k: (quantity_rank(k[0]), k[0], k[1] or "", k[2])):
         s, out = _stats(key, groups[key], outlier_sigma)
         stats.append(s)
         outliers += out
@@ -131,6 +137,18 @@ def batch_summary(
         outliers=tuple(outliers),
         failed=tuple(failed),
     )
+
+
+def value_group(m: Any) -> str:
+    """The population a value belongs to within its quantity and output (module docstring)."""
+    if m.aggressor is None or m.channel is None:
+        return ""
+    return "adjacent" if abs(m.channel - m.aggressor) == 1 else "distant"
+
+
+def label(q: QuantityStats) -> str:
+    """``crosstalk_pct (adjacent)``; the plain name for a quantity of one population."""
+    return q.quantity + (f" ({q.group})" if q.group else "")
 
 
 def _latest_runs(runs: list[Any]) -> list[Any]:
@@ -149,9 +167,9 @@ def _reason(m: Any) -> str:
 
 
 def _stats(
-    key: tuple[str, str | None], rows: list[tuple[str, Any]], k: float
+    key: tuple[str, str | None, str], rows: list[tuple[str, Any]], k: float
 ) -> tuple[QuantityStats, list[Outlier]]:
-    quantity, output = key
+    quantity, output, group = key
     x = np.asarray([m.value for _, m in rows], dtype=float)
     median = float(np.median(x))
     robust = MAD_TO_SIGMA * float(np.median(np.abs(x - median)))
@@ -160,6 +178,7 @@ def _stats(
     stats = QuantityStats(
         quantity=quantity,
         output=output,
+        group=group,
         unit=rows[0][1].unit,
         n=int(x.size),
         median=median,
@@ -185,6 +204,7 @@ def _stats(
                         output=m.output,
                         aggressor=m.aggressor,
                         quantity=quantity,
+                        group=group,
                         value=float(m.value),
                         robust_z=z,
                         verdict=m.verdict,
@@ -203,7 +223,7 @@ FAILED_HEADER = ("board", "run", "channel", "why")
 def stats_rows(s: BatchSummary) -> list[tuple[str, ...]]:
     return [
         (
-            q.quantity,
+            label(q),
             q.output or "—",
             str(q.n),
             format_number(q.median),

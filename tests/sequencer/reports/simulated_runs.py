@@ -79,6 +79,7 @@ class RunSpec:
     threshold_mV: float = 8.0
     full: bool = True  # False: only gain of each channel and output (quick weekly repeats)
     status: str = "completed"
+    distant_control: bool = False  # crosstalk also into a far channel (the floor, ~0.02 %)
 
 
 def run_info(spec: RunSpec) -> RunInfo:
@@ -239,7 +240,7 @@ def record_run(
         if spec.full:
             _shape(rec, rng, ch)
             _s_curve(rec, rng, ch, spec.threshold_mV + rng.normal(0, 0.2), fix)
-            _crosstalk(rec, rng, ch, spec.channels)
+            _crosstalk(rec, rng, ch, spec.channels, spec.distant_control)
     if spec.full:
         rec.safety("cleanup/bias", "ramp_start", volts=42.0, target_V=0.0, rate_V_per_s=5.0)
         rec.safety("cleanup/bias", "safe_state", volts=0.0, output="off")
@@ -367,7 +368,9 @@ def _s_curve(rec: _Recorder, rng: np.random.Generator, ch: int, mu: float, fix: 
     )
 
 
-def _crosstalk(rec: _Recorder, rng: np.random.Generator, ch: int, channels: int) -> None:
+def _crosstalk(
+    rec: _Recorder, rng: np.random.Generator, ch: int, channels: int, distant: bool = False
+) -> None:
     rows = tuple(
         judged(
             "crosstalk_pct", 1.0 + rng.normal(0, 0.05), output="x1", channel=victim, aggressor=ch
@@ -375,6 +378,13 @@ def _crosstalk(rec: _Recorder, rng: np.random.Generator, ch: int, channels: int)
         for victim in (ch - 1, ch + 1)
         if 1 <= victim <= channels
     )
+    if distant:  # half the board away, as the shipped crosstalk procedure's control channel
+        far = (ch - 1 + channels // 2) % channels + 1
+        rows += (
+            judged(
+                "crosstalk_pct", 0.02 + rng.normal(0, 0.01), output="x1", channel=far, aggressor=ch
+            ),
+        )
     rec.step(
         f"crosstalk/ch{ch}/analyse",
         "analyse.crosstalk",

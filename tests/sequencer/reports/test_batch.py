@@ -69,7 +69,9 @@ def test_outliers_include_one_inside_its_limits(batch_store):
     assert inside.verdict == "pass" and inside.robust_z > 3.5
     assert found[("NR-PA8-0002", 5, "gain", "x5")].verdict == "fail"
     for o in s.outliers:
-        q = next(q for q in s.stats if (q.quantity, q.output) == (o.quantity, o.output))
+        q = next(
+            q for q in s.stats if (q.quantity, q.output, q.group) == (o.quantity, o.output, o.group)
+        )
         assert abs(o.value - q.median) > 3.5 * q.robust_sigma
     # a wider cut keeps only the gross one
     wide = batch_summary(store, "NR-B07", outlier_sigma=20.0)
@@ -95,3 +97,39 @@ def test_pdf_and_html_report(batch_store, tmp_path):
     page = html.read_text(encoding="utf-8")
     html5lib.HTMLParser(strict=True).parse(page)
     assert page.count("data:image/png;base64,") == 8  # gain/offset/inl/noise x two outputs
+
+
+def test_crosstalk_into_adjacent_and_distant_channels_are_separate_populations(tmp_path):
+    # Adjacent victims read ~1 %, the distant control ~0.02 %: one median over both would sit
+    # between two clusters and flag one of them wholesale.  Each group's figures are checked
+    # against numpy/scipy over that group's own values.
+    with Store.open(f"sqlite:///{tmp_path / 'results.db'}") as store:
+        for i in range(3):
+            record_run(
+                store,
+                RunSpec(
+                    board=f"NR-PA8-00{i + 1:02d}",
+                    seed=20 + i,
+                    distant_control=True,
+                    started_at=T0 + timedelta(hours=i),
+                ),
+            )
+        s = batch_summary(store, "NR-B07")
+        ms = [m for r in store.list_runs() for m in store.measurements(run_id=r.id)]
+    groups = {q.group: q for q in s.stats if q.quantity == "crosstalk_pct"}
+    assert set(groups) == {"adjacent", "distant"}
+    for name, q in groups.items():
+        x = np.asarray(
+            [
+                m.value
+                for m in ms
+                if m.quantity == "crosstalk_pct"
+                and (abs(m.channel - m.aggressor) == 1) == (name == "adjacent")
+            ]
+        )
+        assert q.n == x.size and q.median == np.median(x)
+        assert abs(q.robust_sigma - stats.median_abs_deviation(x, scale="normal")) < 1e-5
+    assert groups["adjacent"].n == 3 * 14 and groups["distant"].n == 3 * 8  # 8 ch: 2·6 + 2·1
+    assert not [o for o in s.outliers if o.quantity == "crosstalk_pct"]  # both clusters tight
+    text = s.to_text()
+    assert "crosstalk_pct (adjacent)" in text and "crosstalk_pct (distant)" in text
