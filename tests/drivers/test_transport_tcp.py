@@ -53,7 +53,7 @@ def test_identify_over_tcp_and_nodelay_is_set(responder, fast):
 
 
 @both_paths
-def test_write_then_query_stays_under_one_millisecond(responder, fast):
+def test_write_then_query_has_no_delayed_ack_stall(responder, fast):
     with open_link(responder, fast=fast) as link:
         times = []
         for i in range(60):
@@ -63,8 +63,9 @@ def test_write_then_query_stays_under_one_millisecond(responder, fast):
             reply = link.read()
             times.append(time.perf_counter() - start)
             assert reply == str(i).encode()
-    # Without TCP_NODELAY this pattern stalls ~40 ms on the delayed ACK (issue measurement).
-    assert statistics.median(times[10:]) < 1e-3
+    # Without TCP_NODELAY this pattern stalls ~40 ms on the delayed ACK (issue measurement); a
+    # loopback exchange takes well under 1 ms.  The latency itself is the query_latency benchmark.
+    assert statistics.median(times[10:]) < 10e-3
 
 
 def test_scope_fetch_of_a_large_block_full_of_newline_bytes():

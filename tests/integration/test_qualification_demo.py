@@ -1,13 +1,12 @@
 """``benchwright demo``: the invented batch qualified end to end on the simulator.
 
 The full demo takes about 75 s on 2 cores (four 8-channel boards with real-time bias ramps and 64
-certificates): marked slow.  The quick test checks the scenario itself: invented serials, one
-fault of each kind, the batch file naming the shipped procedure.
+certificates): marked slow.  Its time goal (under two minutes) is measured by
+tests/benchmarks/bench_demo.py, not asserted here.  The quick test checks the scenario itself:
+invented serials, one fault of each kind, the batch file naming the shipped procedure.
 """
 
 from __future__ import annotations
-
-import time
 
 import pytest
 import yaml
@@ -37,9 +36,7 @@ def test_the_scenario_has_one_fault_of_each_kind():
 @pytest.mark.slow
 def test_demo_runs_end_to_end(tmp_path):
     attach_commands()
-    started = time.perf_counter()
     result = CliRunner().invoke(cli, ["demo", "--out", str(tmp_path / "demo")])
-    seconds = time.perf_counter() - started
     assert result.exit_code == 0, result.output  # a demonstration: 0 although boards fail
     out = tmp_path / "demo"
     assert (out / "results.db").is_file()
@@ -49,4 +46,3 @@ def test_demo_runs_end_to_end(tmp_path):
     # 8 healthy + 7 (dead channel 5) + 7 (saturating channel 3) + 0 (crosstalk into every channel)
     assert "32 channels, 22 passed" in summary
     assert str(out / "certificates") in result.output
-    assert seconds < 120  # the issue's goal

@@ -9,8 +9,6 @@ leakage 5 %) and pass every limit; the dead channel must fail what a lab expects
 
 from __future__ import annotations
 
-import time
-
 import pytest
 import yaml
 from click.testing import CliRunner
@@ -50,7 +48,6 @@ DEAD_FAILS = {  # what a lab expects a dead channel to fail
 @pytest.fixture(scope="module")
 def run(tmp_path_factory):
     db = tmp_path_factory.mktemp("full") / "results.db"
-    started = time.perf_counter()
     result = CliRunner().invoke(
         cli,
         [
@@ -65,23 +62,21 @@ def run(tmp_path_factory):
             "test",
         ],
     )
-    seconds = time.perf_counter() - started
     with Store.open(f"sqlite:///{db}") as store:
         (record,) = store.list_runs()
         ms = store.measurements(run_id=record.id)
-    return result, record, ms, seconds
+    return result, record, ms
 
 
 def test_exit_code_one_and_the_run_is_complete(run):
-    result, record, _, seconds = run
+    result, record, _ = run
     assert result.exit_code == 1, result.output
     assert record.status == "completed" and record.board == "NR-PA8-0102"
-    assert "FAIL" in result.output
-    assert seconds < 60  # the goal for one board
+    assert "FAIL" in result.output  # its time (goal < 60 s) is the qualify_board benchmark
 
 
 def test_every_channel_is_measured_on_every_output(run):
-    _, _, ms, _ = run
+    _, _, ms = run
     expected = {
         ("gain", "x1"),
         ("gain", "x5"),
@@ -105,7 +100,7 @@ def test_every_channel_is_measured_on_every_output(run):
 
 
 def test_healthy_channels_agree_with_the_board_file_and_pass(run):
-    _, _, ms, _ = run
+    _, _, ms = run
     truth = yaml.safe_load(BOARD.read_text())
     by = {(m.quantity, m.channel, m.output, m.aggressor): m for m in ms}
     for ch in set(range(1, 9)) - {DEAD}:
@@ -137,7 +132,7 @@ def test_healthy_channels_agree_with_the_board_file_and_pass(run):
 
 
 def test_dead_channel_fails_what_a_lab_expects(run):
-    _, _, ms, _ = run
+    _, _, ms = run
     failed = {(m.quantity, m.output) for m in ms if m.channel == DEAD and m.verdict == "fail"}
     assert failed == DEAD_FAILS
 

@@ -42,13 +42,11 @@ def run(p, bench, *, options=None, completed=None):
     return outcome, events
 
 
-def test_thousand_noop_steps_under_a_second_and_event_order():
+def test_thousand_noop_steps_and_event_order():
+    # their speed (issue: under a second) is the noop_steps row of tests/benchmarks/bench_engine.py
     bench = scripted_bench(BenchState())
     p = plan([step(f"idle/{i}", "wait", seconds=0.0) for i in range(1000)])
-    t0 = time.perf_counter()
     outcome, events = run(p, bench)
-    elapsed = time.perf_counter() - t0
-    assert elapsed < 1.0  # issue: 1,000 no-op steps in under a second
     assert outcome.status == "completed" and outcome.measurements == 0
     assert isinstance(events[0], RunStarted) and isinstance(events[-1], RunFinished)
     kinds = [type(e) for e in events[1:-1]]
