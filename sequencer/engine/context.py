@@ -131,9 +131,16 @@ class RunContext:
 
     def measured(self, quantity: str, *, channel: int | None, output: str | None) -> float | None:
         """The latest value of ``quantity`` measured in this run for that channel and output."""
+        m = self.measurement(quantity, channel=channel, output=output)
+        return None if m is None else m.value
+
+    def measurement(
+        self, quantity: str, *, channel: int | None, output: str | None
+    ) -> Measurement | None:
+        """The latest measurement of ``quantity`` in this run for that channel and output."""
         for m in reversed(self.measurements):
             if m.quantity == quantity and m.channel == channel and m.output == output:
-                return m.value
+                return m
         return None
 
 

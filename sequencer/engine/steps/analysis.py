@@ -7,6 +7,7 @@ labels (its loop scope), in capture order; sweep values come from each item's la
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping, Sequence
 from dataclasses import replace
 from typing import Any
@@ -66,16 +67,31 @@ def _mean_err(values: Any) -> tuple[float, float | None]:
     return float(arr.mean()), float(arr.std(ddof=1) / np.sqrt(arr.size))
 
 
+GAIN_SIGNIFICANCE = 3.0
+"""A measured gain within this many standard uncertainties of zero is no gain: nothing is referred
+to the input through it (a 3-sigma significance cut, common practice)."""
+
+
 def _gain(ctx: RunContext, step: PlannedStep, output: str | None) -> float:
+    """The gain to refer a figure to the input: the step's ``gain``, else the one measured earlier
+    in the run for this channel and output, which must be distinguishable from zero."""
     given = step.args.get("gain")
     if given is not None:
         return float(given)
-    found = ctx.measured("gain", channel=channel_of(step), output=output)
+    where = f"channel {channel_of(step)} output {output}"
+    found = ctx.measurement("gain", channel=channel_of(step), output=output)
     if found is None:
+        raise AnalysisInputError(f"no gain measured earlier for {where}: give gain:")
+    gain, unc = found.value, found.uncertainty
+    if not math.isfinite(gain) or gain == 0.0 or (
+        unc is not None and abs(gain) <= GAIN_SIGNIFICANCE * unc
+    ):
+        spread = "" if unc is None else f" ± {unc:.2g}"
         raise AnalysisInputError(
-            f"no gain measured earlier for channel {channel_of(step)} output {output}: give gain:"
+            f"the gain measured for {where} ({gain:.3g}{spread} V/V) is not distinguishable "
+            "from zero: nothing can be referred to the input"
         )
-    return found
+    return gain
 
 
 def _n_baseline(step: PlannedStep, items: list[Any]) -> int:

@@ -128,6 +128,43 @@ def test_noise_without_gain_is_an_input_error():
         HANDLERS[s.kind](ctx, s)
 
 
+@pytest.mark.parametrize(
+    ("gain", "uncertainty", "usable"),
+    [
+        (0.002, 0.004, False),  # a dead channel's fit: no gain within its uncertainty
+        (0.03, 0.01, False),  # exactly 3 standard uncertainties: still not significant
+        (float("nan"), None, False),  # the transfer analysis itself failed
+        (0.0, None, False),
+        (0.8, 0.01, True),  # low (a saturating channel) but a real gain: noise is referred
+        (0.05, 0.01, True),  # 5 sigma
+    ],
+)
+def test_noise_is_not_referred_through_a_gain_indistinguishable_from_zero(
+    gain, uncertainty, usable
+):
+    # 3-sigma significance of the measured gain (common practice): below it the input-referred
+    # noise is undefined, and the step fails its figure (NaN) instead of dividing by ~0
+    ctx = make_ctx()
+    ctx.add_measurement(
+        Measurement(
+            quantity="gain", value=gain, unit="V/V", uncertainty=uncertainty, channel=1, output="x1"
+        )
+    )
+    ctx.add_trace(
+        NamedTrace(
+            name="base", trace=pulse_trace(0.0, noise_mV=1.0), labels={"channel": 1, "output": "x1"}
+        )
+    )
+    s = step("n", "analyse.noise", labels={"channel": 1, "output": "x1"}, traces="base")
+    if usable:
+        result = HANDLERS[s.kind](ctx, s)
+        m = result.measurements[0]
+        assert m.value == pytest.approx(result.results["baseline_rms_mV"] / gain)  # RMS / gain
+        return
+    with pytest.raises(AnalysisInputError, match="not distinguishable from zero"):
+        HANDLERS[s.kind](ctx, s)
+
+
 def test_crosstalk_victim_and_aggressor_channels():
     ctx = make_ctx()
     ctx.add_trace(NamedTrace(name="agg", trace=pulse_trace(400.0), labels={"channel": 3}))
