@@ -40,7 +40,8 @@ class BiasGuard:
         self.rate: float | None = self.max_rate
         self.limit_applied = False  # a current limit (trip) was sent to the supply in this run
         self._stop_recorded = False
-        self._securing = False  # inside make_safe: recording failures do not stop it
+        self._securing = False  # inside make_safe: events are held, recorded once it is done
+        self._held: list[SafetyEvent] = []
         self.unrecorded: list[str] = []  # safety events a subscriber failed to take, with why
         self._reconnects_seen = reconnects(self.bias)
         self._watcher: _Watcher | None = None
@@ -49,8 +50,10 @@ class BiasGuard:
     def record(self, kind: str, path: str = "", **detail: Any) -> None:
         """Emit one SafetyEvent.
 
-        While the safe state is being reached a subscriber that fails (the database went away) must
-        not stop the ramp-down: its error is kept in ``unrecorded`` and the sequence goes on.
+        While the safe state is being reached (:meth:`make_safe`) events are held in order, with
+        the time they happened, and emitted once the supply is down: a subscriber that is slow (a
+        results database locked by another writer waits up to its busy timeout) or fails must not
+        delay or stop the ramp-down.  A failure to record is kept in ``unrecorded``.
         """
         event = SafetyEvent(
             run_id=self.ctx.run_id,
@@ -59,13 +62,18 @@ class BiasGuard:
             at=self.ctx.clock(),
             detail=detail,
         )
-        if not self._securing:
+        if self._securing:
+            self._held.append(event)
+        else:
             self.ctx.emit(event)
-            return
-        try:
-            self.ctx.emit(event)
-        except Exception as exc:  # kept in ``unrecorded``: the bias comes first
-            self.unrecorded.append(f"{kind}: {type(exc).__name__}: {exc}")
+
+    def _emit_held(self) -> None:
+        held, self._held = self._held, []
+        for event in held:
+            try:
+                self.ctx.emit(event)
+            except Exception as exc:  # kept in ``unrecorded``: the bias came first
+                self.unrecorded.append(f"{event.kind}: {type(exc).__name__}: {exc}")
 
     def _abort(self, cause: str, reason: str) -> RunAborted:
         return RunAborted(reason, cause=cause, step_path=self.ctx.path)
@@ -271,6 +279,7 @@ class BiasGuard:
             return self._make_safe(path)
         finally:
             self._securing = False
+            self._emit_held()
 
     def _make_safe(self, path: str) -> str:
         self._record_stop_request(path)

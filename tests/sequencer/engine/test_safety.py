@@ -186,3 +186,46 @@ def test_resume_asks_again_before_reapplying_a_ramp():
     ).run()
     assert out.status == "completed" and len(asked) == 1
     assert VOLT + " 5" in state.sent("bias")
+
+
+def test_a_slow_results_database_does_not_delay_the_ramp_down():
+    # A results database locked by another writer holds each write up to its busy timeout.  The
+    # events of the safe-state sequence are therefore recorded after the supply is down: when the
+    # first of them (the start of the ramp to 0 V) reaches a subscriber, the supply has already
+    # been ramped down and switched off.  All of them still arrive, in order.
+    state = BenchState()
+
+    def open_when_soaking(role, text):
+        if role == "bias" and state.bias["setpoint"] == 5.0 and text.startswith("SYSTem:INT"):
+            state.interlock_closed = False
+
+    state.on_query = open_when_soaking
+    seen_at_ramp_down: list[list[str]] = []
+
+    def slow_store(event):
+        down = isinstance(event, SafetyEvent) and event.kind == "ramp_start"
+        if down and event.detail["to_V"] == 0.0:
+            seen_at_ramp_down.append(list(state.sent("bias")))
+
+    bench = scripted_bench(state)
+    safety: list[SafetyEvent] = []
+    options = RunOptions(
+        operator="A. Technician", ramp_poll_s=0.001, interlock_interval_s=0.01, unattended=True
+    )
+    p = hv_plan(extra=[step("hv/soak", "wait", seconds=0.5)])
+    runner = Runner(
+        p,
+        bench,
+        run_id=3,
+        subscribers=[slow_store, lambda e: isinstance(e, SafetyEvent) and safety.append(e)],
+        options=options,
+    )
+    with pytest.raises(RunAborted, match="interlock"):
+        runner.run()
+    (sent,) = seen_at_ramp_down
+    assert "OUTPut:STATe OFF" in sent and sent.index(VOLT + " 0") > sent.index(VOLT + " 5")
+    kinds = [e.kind for e in safety]
+    down = kinds.index("ramp_start", kinds.index("ramp_start") + 1)
+    assert "output" in kinds[down:] and kinds[-1] == "safe_state"
+    stamps = [e.at for e in safety]
+    assert stamps == sorted(stamps)  # each event keeps the time it happened
