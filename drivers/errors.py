@@ -35,14 +35,19 @@ class BenchwrightError(Exception):
 class TransportError(BenchwrightError):
     """The link to an instrument failed."""
 
-    def __init__(self, message: str, *, address: str = "", command: str = "") -> None:
+    def __init__(
+        self, message: str, *, address: str = "", command: str = "", after: str = ""
+    ) -> None:
         self.message = message
         self.address = address
         self.command = command
+        self.after = after  # the configuring command whose error-queue check this was
         parts = [message]
         if address:
             parts.append(f"at {address}")
-        if command:
+        if after:
+            parts.append(f"(checking the error queue after {after!r})")
+        elif command:
             parts.append(f"(sending {command!r})")
         super().__init__(" ".join(parts))
 
@@ -50,7 +55,11 @@ class TransportError(BenchwrightError):
         """The same error naming the command it happened on (kept if one is named already)."""
         if self.command:
             return self
-        return type(self)(self.message, address=self.address, command=command)
+        return type(self)(self.message, address=self.address, command=command, after=self.after)
+
+    def checking_after(self, command: str) -> TransportError:
+        """The same error, named as the error-queue check that followed ``command``."""
+        return type(self)(self.message, address=self.address, command=self.command, after=command)
 
 
 class InstrumentTimeout(TransportError):

@@ -338,7 +338,10 @@ class ScpiSession:
         self._send(command)
         if not self.check_errors:
             return
-        entries = self._drain_errors()
+        try:
+            entries = self._drain_errors()
+        except TransportError as exc:  # the news is the command before the check (INIT, ...)
+            raise exc.checking_after(command) from exc
         if entries:
             code, message = entries[0]
             error = InstrumentError(code, message, address=self.address, command=command)

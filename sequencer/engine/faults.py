@@ -48,16 +48,20 @@ def describe_fault(exc: BaseException, instruments: Mapping[str, Any]) -> str:
     command = getattr(exc, "command", "") or ""
     who = f"{role_of(address, instruments)} at {address}" if address else "instrument"
     cmd = f"{command!r}" if command else "the last command"
+    after = getattr(exc, "after", "") or ""
+    if after:  # the link failed on the error-queue check that follows a configuring command
+        cmd = f"the error-queue check after {after!r}"
+    sending = f"checking the error queue after {after!r}" if after else f"sending {cmd}"
     if isinstance(exc, InstrumentTimeout):
         ms = _timeout_ms(address, instruments)
         within = f" within {ms} ms" if ms else ""
         return f"{who}: no reply to {cmd}{within}"
     if isinstance(exc, ConnectionClosed):
-        return f"{who}: connection closed by the instrument (sending {cmd})"
+        return f"{who}: connection closed by the instrument ({sending})"
     if isinstance(exc, ConnectionRefused):
         return f"{who}: connection refused"
     if isinstance(exc, TransportError):
-        return f"{who}: link failed (sending {cmd}): {exc}"
+        return f"{who}: link failed ({sending}): {exc}"
     if isinstance(exc, ProtocolError):
         return f"{who}: unreadable reply to {cmd}: {_first_line(exc)}"
     if isinstance(exc, InstrumentError):

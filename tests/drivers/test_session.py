@@ -211,3 +211,28 @@ def test_error_queue_that_never_empties_is_a_protocol_error():
 def test_errors_returns_the_drained_queue():
     t = ScriptedTransport().expect((ERRQ, b'-113,"Undefined header"\n'), (ERRQ, OK))
     assert session(t).errors() == [(-113, "Undefined header")]
+
+
+def test_link_lost_on_the_error_check_names_the_command_before_it():
+    # The link drops while the error queue is read after INITiate: the news is the INITiate (an
+    # action, not retried), and the error-queue query is named as the check that failed.
+    t = ScriptedTransport().expect(
+        ("INITiate:IMMediate", None),
+        ("SYSTem:ERRor:NEXT?", ConnectionClosed("peer closed", address="SCRIPT::1")),
+    )
+    s = session(t)
+    with pytest.raises(ConnectionClosed) as caught:
+        s.write("INITiate:IMMediate", reapply=False)
+    err = caught.value
+    assert err.after == "INITiate:IMMediate" and err.address == "SCRIPT::1"
+    assert "checking the error queue after 'INITiate:IMMediate'" in str(err)
+    t.assert_done()
+
+
+def test_no_reply_to_the_error_check_names_the_command_before_it():
+    t = ScriptedTransport().expect(("TRIGger:SEQuence:SOURce EXTernal", None), (ERRQ, None))
+    s = session(t, retries=0)
+    with pytest.raises(InstrumentTimeout) as caught:
+        s.write("TRIGger:SEQuence:SOURce EXTernal")
+    assert caught.value.after == "TRIGger:SEQuence:SOURce EXTernal"
+    assert caught.value.command == ERRQ

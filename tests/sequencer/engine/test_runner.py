@@ -142,7 +142,10 @@ def test_cleanup_runs_after_abort_and_its_error_does_not_hide_the_cause():
     assert "\n" not in text
     assert text.startswith("pulser at TCPIP0::127.0.0.1::")
     # the drivers retry once after reconnecting, so the command named is the one that failed last
-    assert re.search(r"connection closed by the instrument \(sending '[^']+'\)", text)
+    # the link closed on the error-queue check after the amplitude: that command is named
+    assert re.search(
+        r"connection closed by the instrument \(checking the error queue after '[^']+'\)", text
+    )
     assert text.endswith("[step gain/amp]")
     assert "ROUTe:OPEN:ALL" in state.sent("switch")  # cleanup ran
     finished = {e.path: e for e in events if isinstance(e, StepFinished)}
@@ -241,4 +244,7 @@ def test_timeout_reason_names_the_command():
     state.faults = [{"role": "pulser", "after_commands": 2, "kind": "no_reply"}]
     bench = scripted_bench(state)
     exc, _ = run(plan([step("gain/amp", "pulser.amplitude", mV=10.0)]), bench)
-    assert "no reply to 'SYSTem:ERRor:NEXT?' within 5000 ms" in str(exc)
+    assert (
+        "no reply to the error-queue check after "
+        "'SOURce:VOLTage:LEVel:IMMediate:AMPLitude 0.01' within 5000 ms" in str(exc)
+    )

@@ -1,0 +1,37 @@
+"""The one-line abort text for instrument faults (sequencer/engine/faults.py): instrument role and
+address, the command, and -- when the link failed on the error-queue check that follows a
+configuring command -- that command rather than the check."""
+
+from __future__ import annotations
+
+from drivers.benchfile import InstrumentSpec
+from drivers.errors import ConnectionClosed, InstrumentTimeout
+from sequencer.engine.faults import describe_fault
+
+SCOPE = "TCPIP0::127.0.0.1::5026::SOCKET"
+INSTRUMENTS = {"scope": InstrumentSpec(role="scope", address=SCOPE, timeout_ms=5000)}
+
+
+def test_closed_while_sending_names_the_command():
+    exc = ConnectionClosed("peer closed", address=SCOPE, command="TRACe:DATA? CHANnel1")
+    assert describe_fault(exc, INSTRUMENTS) == (
+        f"scope at {SCOPE}: connection closed by the instrument (sending 'TRACe:DATA? CHANnel1')"
+    )
+
+
+def test_closed_on_the_error_check_names_the_command_before_it():
+    exc = ConnectionClosed("peer closed", address=SCOPE, command="SYSTem:ERRor:NEXT?")
+    text = describe_fault(exc.checking_after("INITiate:IMMediate"), INSTRUMENTS)
+    assert text == (
+        f"scope at {SCOPE}: connection closed by the instrument "
+        "(checking the error queue after 'INITiate:IMMediate')"
+    )
+
+
+def test_no_reply_to_the_error_check_names_the_command_before_it():
+    exc = InstrumentTimeout("no reply", address=SCOPE, command="SYSTem:ERRor:NEXT?")
+    text = describe_fault(exc.checking_after("INITiate:IMMediate"), INSTRUMENTS)
+    assert text == (
+        f"scope at {SCOPE}: no reply to the error-queue check after 'INITiate:IMMediate' "
+        "within 5000 ms"
+    )
