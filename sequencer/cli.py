@@ -60,13 +60,37 @@ def validate(procedures: tuple[str, ...]) -> None:
 @click.argument("procedure", type=click.Path(dir_okay=False))
 @click.option("--board", "serial", default="PLAN-ONLY", show_default=True, help="Board serial for the paths.")
 @click.option("--board-type", default=None, help="Board type (default: the procedure's).")
+@click.option("--timing-from", "timing_run", type=int, default=None, metavar="RUN_ID",
+              help="Take each step's duration from that recorded run where it has the same path.")
+@db_option
 @handles_errors
-def plan(procedure: str, serial: str, board_type: str | None) -> None:
-    """Show the expanded step list with paths, counts and an estimated duration."""
+def plan(
+    procedure: str, serial: str, board_type: str | None, timing_run: int | None, db: str | None
+) -> None:
+    """Show the expanded step list with paths, counts and an estimated duration.
+
+    The estimate assumes a LAN bench (about 20 ms per command); --timing-from uses the durations
+    of a run already recorded on your bench instead.
+    """
     from sequencer.compose import plan_for
     from sequencer.procedure import format_plan, load_procedure
 
-    click.echo(format_plan(plan_for(load_procedure(procedure), serial, board_type=board_type)))
+    planned = plan_for(load_procedure(procedure), serial, board_type=board_type)
+    if timing_run is None:
+        click.echo(format_plan(planned))
+        return
+    from sequencer import compose
+    from sequencer.plan_timing import time_by_run
+
+    with compose.open_store(db, env()) as store:
+        planned, timing = time_by_run(planned, store, timing_run)
+    if timing.procedure != planned.meta.name:
+        click.echo(
+            f"warning: run {timing_run} ran procedure {timing.procedure!r}, not "
+            f"{planned.meta.name!r}: only steps with the same path are timed by it",
+            err=True,
+        )
+    click.echo(format_plan(planned) + timing.describe())
 
 
 @cli.command()

@@ -176,3 +176,36 @@ def test_resume_restarts_the_recorded_simulator(tmp_path: Path) -> None:
     _, text, _ = invoke("export", "--db", url, "--run", "1", "--format", "json")
     keys = [(r["channel"], r["output"], r["quantity"]) for r in json.loads(text)]
     assert len(keys) == len(set(keys)) == 8 * 2 * 3    # every channel, output, quantity once
+
+
+def test_plan_takes_durations_from_a_recorded_run(recorded: tuple[str, str, int]) -> None:
+    # The durations come from the steps as the store recorded them (started_at..finished_at of
+    # each completed step), not from the rule of thumb; checked against the store's own records.
+    from sequencer.store import Store
+
+    url, _, _ = recorded
+    code, out, err = invoke("plan", str(QUICK), "--timing-from", "1", "--db", url)
+    assert code == 0, err
+    with Store.open(url) as store:
+        took = {
+            s.path: (s.finished_at - s.started_at).total_seconds()
+            for s in store.steps(1)
+            if s.status == "completed"
+        }
+    rows = {}
+    for line in out.splitlines():
+        parts = line.split()
+        if len(parts) >= 5 and parts[0].isdigit() and parts[4] == "s":  # #, path, kind, est, s
+            rows[parts[1]] = float(parts[3])
+    assert rows and set(rows) == set(took)  # every planned step was completed in that run
+    for path, seconds in rows.items():
+        assert seconds == pytest.approx(took[path], abs=5e-4), path  # printed to 1 ms
+    total = sum(took.values())
+    assert f"durations of {len(took)} of {len(took)} steps from run 1" in out
+    assert "estimated duration" in out and total < 60
+
+
+def test_plan_timing_from_a_missing_run_is_one_line(recorded: tuple[str, str, int]) -> None:
+    url, _, _ = recorded
+    code, _, err = invoke("plan", str(QUICK), "--timing-from", "99", "--db", url)
+    assert code == 2 and "99" in err and "Traceback" not in err
