@@ -106,6 +106,8 @@ def schema() -> None:
 
 
 def _summarise(run_id: int, outcome: Any) -> int:
+    for warning in getattr(outcome, "warnings", ()):
+        click.echo(f"warning: run {run_id}: {warning}", err=True)
     verdict = "PASS" if outcome.failed == 0 else f"FAIL ({outcome.failed} value(s) outside limits)"
     click.echo(f"run {run_id} completed: {outcome.measurements} measurement(s), {verdict}")
     return EXIT_OK if outcome.failed == 0 else EXIT_FAIL

@@ -72,6 +72,7 @@ class RunOutcome:
     status: Literal["completed"]
     failed: int  # measurements with verdict fail
     measurements: int  # all measurements of the run (replayed ones included)
+    warnings: tuple[str, ...] = ()  # e.g. safety events the results database did not take
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -112,8 +112,10 @@ class Runner:
             unsafe = unsafe or guard.make_safe("")
         if failure is None and (cleanup_error or unsafe):
             failure = cleanup_error or RunAborted("bias safe state not confirmed", cause="unsafe")
+        unrecorded = _unrecorded_note(guard.unrecorded)
         if failure is not None:
             reason = str(failure) + (f"; {unsafe}" if unsafe else "")
+            reason += f"; {unrecorded}" if unrecorded else ""
             self.emit(
                 RunFinished(run_id=self.run_id, status="aborted", at=self.clock(), reason=reason)
             )
@@ -123,7 +125,10 @@ class Runner:
         self.emit(RunFinished(run_id=self.run_id, status="completed", at=self.clock()))
         ms = ctx.measurements
         return RunOutcome(
-            status="completed", failed=sum(m.verdict == "fail" for m in ms), measurements=len(ms)
+            status="completed",
+            failed=sum(m.verdict == "fail" for m in ms),
+            measurements=len(ms),
+            warnings=(unrecorded,) if unrecorded else (),
         )
 
     def _preflight(self) -> None:
@@ -288,6 +293,13 @@ class Runner:
         return RunAborted(
             describe_fault(exc, self.bench.spec.instruments), cause=cause, step_path=path
         )
+
+
+def _unrecorded_note(unrecorded: list[str]) -> str:
+    """'' or one line saying which safety events the subscribers (the store) did not take."""
+    if not unrecorded:
+        return ""
+    return f"{len(unrecorded)} safety event(s) not recorded (first: {unrecorded[0]})"
 
 
 def _raises_voltage(step: PlannedStep) -> bool:

@@ -229,3 +229,26 @@ def test_a_slow_results_database_does_not_delay_the_ramp_down():
     assert "output" in kinds[down:] and kinds[-1] == "safe_state"
     stamps = [e.at for e in safety]
     assert stamps == sorted(stamps)  # each event keeps the time it happened
+
+
+def test_safety_events_the_store_refused_are_reported_not_lost_silently():
+    # The store refusing a write during the safe-state sequence must neither stop the sequence
+    # nor vanish: the run ends safe and its outcome says what was not recorded.
+    state = BenchState()
+
+    def refusing_store(event):
+        if isinstance(event, SafetyEvent) and event.kind == "safe_state":
+            raise OSError("database is locked")
+
+    options = RunOptions(
+        operator="A. Technician", ramp_poll_s=0.001, interlock_interval_s=0.01, unattended=True
+    )
+    runner = Runner(
+        hv_plan(), scripted_bench(state), run_id=3, subscribers=[refusing_store], options=options
+    )
+    out = runner.run()
+    assert out.status == "completed"
+    assert state.bias["output"] is False and state.bias["setpoint"] == 0.0
+    (warning,) = out.warnings
+    assert "safety event(s) not recorded" in warning and "safe_state" in warning
+    assert "database is locked" in warning
