@@ -9,6 +9,9 @@ from __future__ import annotations
 
 import contextlib
 import os
+import pty
+import select
+import signal
 import subprocess
 import sys
 import time
@@ -241,3 +244,49 @@ def kinds(events: Sequence[Any]) -> list[str]:
 def last_line(text: str) -> str:
     lines = [line for line in text.splitlines() if line.strip()]
     return lines[-1] if lines else ""
+
+
+def read_until(fd: int, needle: bytes, timeout_s: float) -> bytes:
+    """Read a pseudo-terminal until ``needle`` shows up (bounded)."""
+    seen = b""
+    deadline = time.monotonic() + timeout_s
+    while needle not in seen and time.monotonic() < deadline:
+        ready, _, _ = select.select([fd], [], [], 0.1)
+        if ready:
+            try:
+                seen += os.read(fd, 4096)
+            except OSError:  # the child closed its side
+                break
+    return seen
+
+
+def answer_on_terminal(
+    args: list[str], cwd: Path, prompt: bytes, answer: str, *, linger_s: float = 2.0
+) -> tuple[str, int]:
+    """Run ``args`` on a pseudo-terminal, wait for ``prompt``, then type ``answer`` (or send the
+    signal it names, e.g. ``SIGINT``); (what the terminal showed, exit code).  A child that does
+    not end within 30 s after the answer is killed and the test fails on its exit code."""
+    primary, secondary = pty.openpty()
+    child = subprocess.Popen(
+        args,
+        cwd=cwd,
+        env={**child_env(), "TERM": "dumb"},
+        stdin=secondary,
+        stdout=secondary,
+        stderr=secondary,
+    )
+    os.close(secondary)
+    try:
+        shown = read_until(primary, prompt, 60.0)
+        if answer.startswith("SIG"):
+            child.send_signal(getattr(signal, answer))
+        else:
+            os.write(primary, answer.encode() + b"\n")
+        shown += read_until(primary, b"\x00", linger_s)
+        code = child.wait(timeout=30)
+    finally:
+        if child.poll() is None:
+            child.kill()
+            child.wait()
+        os.close(primary)
+    return shown.decode("utf-8", "replace").replace("\r", ""), code

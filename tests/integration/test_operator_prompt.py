@@ -8,23 +8,17 @@ aborted, and the supply ends switched off at 0 V; a typed value is kept and the 
 
 from __future__ import annotations
 
-import os
-import pty
-import signal
-import subprocess
-
 import pytest
 
 from sequencer.store import Store
 from tests.integration.safety_cli import (
-    child_env,
+    answer_on_terminal,
     run_args,
     sim_bench,
     supply_state,
     the_run,
     write_board,
 )
-from tests.integration.test_safety_refusals import read_until
 
 EXIT_OK, EXIT_ABORT = 0, 3  # DESIGN.md exit codes
 
@@ -51,31 +45,10 @@ def run_on_terminal(tmp_path, answer: str) -> tuple[str, int, dict, str]:
     procedure = tmp_path / "prompt.yaml"
     procedure.write_text(PROCEDURE, encoding="utf-8")
     with sim_bench(tmp_path, write_board(tmp_path)) as (sim, bench):
-        primary, secondary = pty.openpty()
-        child = subprocess.Popen(
-            run_args(procedure, bench, db, "--yes"),
-            cwd=tmp_path,
-            env={**child_env(), "TERM": "dumb"},
-            stdin=secondary,
-            stdout=secondary,
-            stderr=secondary,
-        )
-        os.close(secondary)
-        try:
-            shown = read_until(primary, b"LED", 60.0)
-            if answer.startswith("SIG"):
-                child.send_signal(getattr(signal, answer))
-            else:
-                os.write(primary, answer.encode() + b"\n")
-            code = child.wait(timeout=30)  # a prompt that ignored the signal would hang here
-            shown += read_until(primary, b"\x00", 1.0)
-        finally:
-            if child.poll() is None:
-                child.kill()
-                child.wait()
-            os.close(primary)
+        args = run_args(procedure, bench, db, "--yes")
+        text, code = answer_on_terminal(args, tmp_path, b"LED", answer)
         state = supply_state(sim)
-    return shown.decode("utf-8", "replace").replace("\r", ""), code, state, db
+    return text, code, state, db
 
 
 @pytest.mark.parametrize("sig", ["SIGINT", "SIGTERM"])

@@ -9,19 +9,12 @@ who declines the caution on a real terminal (a pseudo-terminal here); the cautio
 
 from __future__ import annotations
 
-import os
-import pty
-import select
-import signal
-import subprocess
-import time
-
 import pytest
 
 from sequencer.store import Store
 from tests.integration.safety_cli import (
     ADVICE,
-    child_env,
+    answer_on_terminal,
     cli_command,
     kinds,
     last_line,
@@ -126,51 +119,16 @@ def test_interlock_open_before_the_first_ramp_refuses(tmp_path):
     assert "acknowledgement" not in kinds(events)  # asked only once the interlock is closed
 
 
-def read_until(fd: int, needle: bytes, timeout_s: float) -> bytes:
-    """Read a pseudo-terminal until ``needle`` shows up (bounded)."""
-    seen = b""
-    deadline = time.monotonic() + timeout_s
-    while needle not in seen and time.monotonic() < deadline:
-        ready, _, _ = select.select([fd], [], [], 0.1)
-        if ready:
-            try:
-                seen += os.read(fd, 4096)
-            except OSError:  # the child closed its side
-                break
-    return seen
-
-
 def on_terminal(tmp_path, answer: str, *, soak_s: float = 0.3):
     """Run on a pseudo-terminal and answer the caution with ``answer`` (typed text, or the name of
     a signal sent while the prompt waits); (what the terminal showed, exit code, supply state)."""
     db = f"sqlite:///{tmp_path / 'results.db'}"
     with sim_bench(tmp_path, write_board(tmp_path)) as (sim, bench):
         proc = write_procedure(tmp_path, volts=5.0, soak_s=soak_s)
-        primary, secondary = pty.openpty()
-        child = subprocess.Popen(
-            run_args(proc, bench, db, "--operator", "R. Okafor"),
-            cwd=tmp_path,
-            env={**child_env(), "TERM": "dumb"},
-            stdin=secondary,
-            stdout=secondary,
-            stderr=secondary,
-        )
-        os.close(secondary)
-        try:
-            shown = read_until(primary, b"[y/N]", 30.0)
-            if answer.startswith("SIG"):
-                child.send_signal(getattr(signal, answer))
-            else:
-                os.write(primary, answer.encode() + b"\n")
-            shown += read_until(primary, b"\x00", 15.0 if answer == "y" else 2.0)
-            code = child.wait(timeout=30)
-        finally:
-            if child.poll() is None:
-                child.kill()
-                child.wait()
-            os.close(primary)
+        args = run_args(proc, bench, db, "--operator", "R. Okafor")
+        linger = 15.0 if answer == "y" else 2.0
+        text, code = answer_on_terminal(args, tmp_path, b"[y/N]", answer, linger_s=linger)
         state = supply_state(sim)
-    text = shown.decode("utf-8", "replace").replace("\r", "")
     return text, code, state, db
 
 

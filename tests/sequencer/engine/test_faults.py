@@ -4,6 +4,8 @@ configuring command -- that command rather than the check."""
 
 from __future__ import annotations
 
+import pytest
+
 from drivers.benchfile import InstrumentSpec
 from drivers.errors import ConnectionClosed, InstrumentTimeout
 from sequencer.engine.faults import describe_fault
@@ -19,19 +21,16 @@ def test_closed_while_sending_names_the_command():
     )
 
 
-def test_closed_on_the_error_check_names_the_command_before_it():
-    exc = ConnectionClosed("peer closed", address=SCOPE, command="SYSTem:ERRor:NEXT?")
+@pytest.mark.parametrize(
+    ("error", "expected"),
+    [
+        (ConnectionClosed, "connection closed by the instrument (checking the error queue after "
+         "'INITiate:IMMediate')"),
+        (InstrumentTimeout, "no reply to the error-queue check after 'INITiate:IMMediate' within "
+         "5000 ms"),
+    ],
+)
+def test_a_failed_error_check_names_the_command_before_it(error, expected):
+    exc = error("link failed", address=SCOPE, command="SYSTem:ERRor:NEXT?")
     text = describe_fault(exc.checking_after("INITiate:IMMediate"), INSTRUMENTS)
-    assert text == (
-        f"scope at {SCOPE}: connection closed by the instrument "
-        "(checking the error queue after 'INITiate:IMMediate')"
-    )
-
-
-def test_no_reply_to_the_error_check_names_the_command_before_it():
-    exc = InstrumentTimeout("no reply", address=SCOPE, command="SYSTem:ERRor:NEXT?")
-    text = describe_fault(exc.checking_after("INITiate:IMMediate"), INSTRUMENTS)
-    assert text == (
-        f"scope at {SCOPE}: no reply to the error-queue check after 'INITiate:IMMediate' "
-        "within 5000 ms"
-    )
+    assert text == f"scope at {SCOPE}: {expected}"
