@@ -6,10 +6,11 @@ apply to the run's start: ``since`` inclusive, ``until`` exclusive, aware dateti
 
 from __future__ import annotations
 
+import dataclasses
 from collections import defaultdict
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
 from datetime import datetime
-from typing import Any
+from typing import Any, TypeVar
 
 from sqlalchemy import ColumnElement, Connection, Select, select
 
@@ -40,6 +41,14 @@ from sequencer.store.records import (
     SafetyRecord as SafetyRecordOut,
 )
 from sequencer.store.tracecodec import decode_samples
+
+R = TypeVar("R")
+
+
+def _record(cls: type[R], row: Mapping[str, Any], **given: Any) -> R:
+    """A ``cls`` from the columns of ``row`` named as its fields; ``given`` supplies the others."""
+    names = [f.name for f in dataclasses.fields(cls) if f.name not in given]  # type: ignore[arg-type]
+    return cls(**{name: row[name] for name in names}, **given)
 
 
 def run_filters(
@@ -151,18 +160,7 @@ def latest_run(conn: Connection, **filters: Any) -> RunRecord | None:
 def steps(conn: Connection, run_id: int) -> list[StepRecord]:
     """Every finished step of a run (completed, failed, skipped), in the order written."""
     query = select(*Step.__table__.c).where(Step.run_id == run_id).order_by(Step.id)
-    return [
-        StepRecord(
-            path=s["path"],
-            kind=s["kind"],
-            position=s["position"],
-            status=s["status"],
-            started_at=s["started_at"],
-            finished_at=s["finished_at"],
-            error=s["error"],
-        )
-        for s in conn.execute(query).mappings()
-    ]
+    return [_record(StepRecord, s) for s in conn.execute(query).mappings()]
 
 
 def _trace_query(run_id: int) -> Select[Any]:
@@ -175,16 +173,7 @@ def _trace_query(run_id: int) -> Select[Any]:
 
 
 def _stored_trace(t: Any) -> StoredTrace:
-    return StoredTrace(
-        path=t["path"],
-        name=t["name"],
-        samples=decode_samples(t["data"]),
-        dt_s=t["dt_s"],
-        t0_s=t["t0_s"],
-        source=t["source"],
-        averages=t["averages"],
-        labels=t["labels"],
-    )
+    return _record(StoredTrace, t, samples=decode_samples(t["data"]))
 
 
 def traces(conn: Connection, run_id: int, path_prefix: str | None = None) -> list[StoredTrace]:
@@ -206,20 +195,7 @@ def _measurement_query(clauses: Iterable[ColumnElement[bool]]) -> Select[Any]:
 
 
 def _stored_measurement(m: Any) -> StoredMeasurement:
-    return StoredMeasurement(
-        run_id=m["run_id"],
-        path=m["path"],
-        quantity=m["quantity"],
-        value=m["value"],
-        unit=m["unit"],
-        uncertainty=m["uncertainty"],
-        channel=m["channel"],
-        output=m["output"],
-        aggressor=m["aggressor"],
-        low=m["low"],
-        high=m["high"],
-        verdict=m["verdict"],
-    )
+    return _record(StoredMeasurement, m)
 
 
 def measurements(conn: Connection, **filters: Any) -> list[StoredMeasurement]:
@@ -277,20 +253,7 @@ def quantity_series(
         query = query.where(Measurement.channel == channel)
     if output is not None:
         query = query.where(Measurement.output == output)
-    return [
-        SeriesPoint(
-            run_id=m["run_id"],
-            started_at=m["started_at"],
-            value=m["value"],
-            uncertainty=m["uncertainty"],
-            low=m["low"],
-            high=m["high"],
-            verdict=m["verdict"],
-            channel=m["channel"],
-            output=m["output"],
-        )
-        for m in conn.execute(query).mappings()
-    ]
+    return [_record(SeriesPoint, m) for m in conn.execute(query).mappings()]
 
 
 def annotations(
@@ -302,17 +265,7 @@ def annotations(
     )
     if notes_only:
         query = query.where(Annotation.kind == "note")
-    return [
-        AnnotationRecord(
-            run_id=a["run_id"],
-            at=a["at"],
-            kind=a["kind"],
-            author=a["author"],
-            text=a["text"],
-            detail=a["detail"],
-        )
-        for a in conn.execute(query).mappings()
-    ]
+    return [_record(AnnotationRecord, a) for a in conn.execute(query).mappings()]
 
 
 def safety_events(conn: Connection, run_id: int) -> list[SafetyRecordOut]:
@@ -321,9 +274,4 @@ def safety_events(conn: Connection, run_id: int) -> list[SafetyRecordOut]:
         .where(SafetyRecord.run_id == run_id)
         .order_by(SafetyRecord.id)
     )
-    return [
-        SafetyRecordOut(
-            run_id=s["run_id"], path=s["path"], kind=s["kind"], at=s["at"], detail=s["detail"]
-        )
-        for s in conn.execute(query).mappings()
-    ]
+    return [_record(SafetyRecordOut, s) for s in conn.execute(query).mappings()]
