@@ -152,7 +152,7 @@ class Dialect:
         values = {k: _wire_value(k, v) for k, v in fields.items()}
         try:
             return operation.template.format(**values)
-        except (KeyError, IndexError, ValueError) as exc:
+        except (KeyError, IndexError, ValueError, TypeError, AttributeError) as exc:
             problem = f"template {operation.template!r} of {role}.{op} cannot be filled: {exc}"
             raise ConfigError([Problem(operation.location, problem)]) from None
 
@@ -320,6 +320,15 @@ def _check_template(
         return False
     for f in used:
         base = f.split(".")[0].split("[")[0]
+        if base != f:  # {volts.real}, {volts[0]}: attribute and index lookups are not allowed
+            problems.append(
+                Problem(
+                    where,
+                    f"{role}.{name}: field {{{f}}} must be a plain name such as {{{base}}} "
+                    f"(a format spec follows a colon: {{{base}:.9g}})",
+                )
+            )
+            return False
         if base not in spec.fields:
             offer = ", ".join(spec.fields) or "no fields"
             problems.append(
@@ -331,7 +340,7 @@ def _check_template(
             return False
     try:
         template.format(**{k: _SAMPLES[k] for k in spec.fields})
-    except (ValueError, TypeError, KeyError, IndexError) as exc:
+    except (ValueError, TypeError, KeyError, IndexError, AttributeError) as exc:
         problems.append(
             Problem(where, f"{role}.{name}: template {template!r} does not format: {exc}")
         )

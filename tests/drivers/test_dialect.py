@@ -138,3 +138,14 @@ def test_byte_order_follows_the_common_command_without_a_binary_section():
 def test_missing_dialect_file_is_a_config_error(tmp_path):
     with pytest.raises(ConfigError, match="cannot read dialect file"):
         load_dialect(tmp_path / "nope.yaml")
+
+
+@pytest.mark.parametrize("field", ["{volts.9g}", "{volts.real}", "{volts[0]}", "{volts.__class__}"])
+def test_attribute_and_index_lookups_in_a_template_are_refused(field):
+    # found by the structure-aware fuzzer: "{volts.9g}" (a colon lost) crashed the loader with
+    # AttributeError; a lookup on a value is never what a command template means
+    problems = errors_of(
+        f'dialect: lab\nroles:\n  bias:\n    set_voltage: {{write: "VOLT {field}"}}\n'
+    )
+    assert len(problems) == 1 and problems[0].startswith("lab.yaml:4:")
+    assert "must be a plain name such as {volts}" in problems[0]
