@@ -233,6 +233,10 @@ class BiasGuard:
             raise self._abort(
                 "interlock", f"bias at {self.address}: interlock opened during a ramp"
             )
+        if trip and not self.interlock_still_closed():  # opening it tripped the supply
+            raise self._abort(
+                "interlock", f"bias at {self.address}: interlock opened during a ramp"
+            )
         if trip:
             raise self._abort(
                 "trip",
@@ -247,6 +251,11 @@ class BiasGuard:
                 f"{abs(i) * 1e6:.3f} uA above the limit {limit:g} uA at {v:.3f} V",
             )
         return v
+
+    def interlock_still_closed(self) -> bool:
+        """The interlock read again after a trip was seen: an interlock that opened between the
+        two reads trips the supply too, and the interlock is then the cause to report."""
+        return bool(self.bias.interlock_closed())
 
     def _rate(self, rate: float | None) -> float:
         chosen = rate if rate is not None else (self.rate or self.max_rate)
@@ -399,6 +408,11 @@ class _Watcher:
                     stop.request("interlock", f"bias at {g.address}: interlock opened while live")
                     return
                 if g.bias.tripped():
+                    if not g.interlock_still_closed():  # it opened after it was read
+                        stop.request(
+                            "interlock", f"bias at {g.address}: interlock opened while live"
+                        )
+                        return
                     stop.request(
                         "trip",
                         f"bias at {g.address}: the supply tripped while live "

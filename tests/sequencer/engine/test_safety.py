@@ -146,6 +146,28 @@ def test_trip_switches_off_at_once():
     assert state.bias["output"] is False
 
 
+def test_interlock_opening_between_two_reads_is_reported_as_the_interlock():
+    # An opening interlock trips the supply.  When it opens after the interlock was read and
+    # before the trip is, the trip is its consequence: the cause reported must be the interlock
+    # (found by the reliability suite under load, where the window is wider).
+    state = BenchState()
+
+    def open_just_after_it_was_read(role, text):
+        if (
+            role == "bias"
+            and text.startswith("OUTPut:PROTection:TRIPped")
+            and state.bias["setpoint"] == 5.0
+        ):
+            state.interlock_closed = False
+            state.tripped = True
+
+    state.on_query = open_just_after_it_was_read
+    out, _safety, _ = run(hv_plan(), state, unattended=True)
+    assert isinstance(out, RunAborted) and out.cause == "interlock", out
+    assert "interlock opened" in str(out)
+    assert state.bias["output"] is False
+
+
 def test_over_current_aborts():
     state = BenchState()
     state.resistance_ohm = 5.0 / 80e-6  # 80 uA at 5 V, above the 50 uA limit of the plan
