@@ -126,18 +126,24 @@ def test_interlock_opening_while_live_ramps_down_and_verifies():
     assert events[-1].status == "aborted"
 
 
-def test_trip_switches_off_at_once():
-    state = BenchState()
+def at_trip_query_during_ramp(state: BenchState, *, interlock_opens: bool) -> None:
+    """The supply trips (and, if asked, the interlock opens) just before the trip is read."""
 
-    def trip_during_ramp(role, text):
+    def hook(role, text):
         if (
             role == "bias"
             and text.startswith("OUTPut:PROTection:TRIPped")
             and state.bias["setpoint"] == 5.0
         ):
             state.tripped = True
+            state.interlock_closed = state.interlock_closed and not interlock_opens
 
-    state.on_query = trip_during_ramp
+    state.on_query = hook
+
+
+def test_trip_switches_off_at_once():
+    state = BenchState()
+    at_trip_query_during_ramp(state, interlock_opens=False)
     out, safety, _ = run(hv_plan(), state, unattended=True)
     assert isinstance(out, RunAborted) and out.cause == "trip"
     after = [e.kind for e in safety][[e.kind for e in safety].index("reading") :]
@@ -151,17 +157,7 @@ def test_interlock_opening_between_two_reads_is_reported_as_the_interlock():
     # before the trip is, the trip is its consequence: the cause reported must be the interlock
     # (found by the reliability suite under load, where the window is wider).
     state = BenchState()
-
-    def open_just_after_it_was_read(role, text):
-        if (
-            role == "bias"
-            and text.startswith("OUTPut:PROTection:TRIPped")
-            and state.bias["setpoint"] == 5.0
-        ):
-            state.interlock_closed = False
-            state.tripped = True
-
-    state.on_query = open_just_after_it_was_read
+    at_trip_query_during_ramp(state, interlock_opens=True)
     out, _safety, _ = run(hv_plan(), state, unattended=True)
     assert isinstance(out, RunAborted) and out.cause == "interlock", out
     assert "interlock opened" in str(out)
