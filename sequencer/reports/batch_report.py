@@ -242,7 +242,8 @@ def outlier_rows(s: BatchSummary) -> list[tuple[str, ...]]:
         (
             o.board,
             "—" if o.channel is None else str(o.channel),
-            o.quantity + (f" (from ch {o.aggressor})" if o.aggressor is not None else ""),
+            o.quantity
+            + (f" ({o.group}, from ch {o.aggressor})" if o.aggressor is not None else ""),
             o.output or "—",
             format_number(o.value),
             f"{o.robust_z:+.1f}",

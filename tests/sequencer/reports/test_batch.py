@@ -133,3 +133,18 @@ def test_crosstalk_into_adjacent_and_distant_channels_are_separate_populations(t
     assert not [o for o in s.outliers if o.quantity == "crosstalk_pct"]  # both clusters tight
     text = s.to_text()
     assert "crosstalk_pct (adjacent)" in text and "crosstalk_pct (distant)" in text
+
+
+def test_an_outlier_row_names_its_crosstalk_group_and_aggressor():
+    from sequencer.reports.batch_report import BatchSummary, Outlier, outlier_rows
+
+    o = Outlier(
+        board="NR-PA8-0001", channel=3, output="x1", aggressor=2, quantity="crosstalk_pct",
+        group="adjacent", value=0.9, robust_z=5.2, verdict="pass",
+    )
+    s = BatchSummary(
+        batch="B", outlier_sigma=3.5, runs=(), channels=0, passed=0, stats=(), outliers=(o,),
+        failed=(),
+    )
+    (row,) = outlier_rows(s)
+    assert row[2] == "crosstalk_pct (adjacent, from ch 2)"
