@@ -7,6 +7,7 @@ apply to the run's start: ``since`` inclusive, ``until`` exclusive, aware dateti
 from __future__ import annotations
 
 import dataclasses
+import functools
 from collections import defaultdict
 from collections.abc import Iterable, Mapping
 from datetime import datetime
@@ -45,10 +46,15 @@ from sequencer.store.tracecodec import decode_samples
 R = TypeVar("R")
 
 
+@functools.cache
+def _field_names(cls: type) -> tuple[str, ...]:
+    return tuple(f.name for f in dataclasses.fields(cls))
+
+
 def _record(cls: type[R], row: Mapping[str, Any], **given: Any) -> R:
     """A ``cls`` from the columns of ``row`` named as its fields; ``given`` supplies the others."""
-    names = [f.name for f in dataclasses.fields(cls) if f.name not in given]  # type: ignore[arg-type]
-    return cls(**{name: row[name] for name in names}, **given)
+    names = _field_names(cls)
+    return cls(**{name: row[name] for name in names if name not in given}, **given)
 
 
 def run_filters(
