@@ -82,7 +82,7 @@ def plan(
     from sequencer import compose
     from sequencer.plan_timing import time_by_run
 
-    with compose.open_store(db, env()) as store:
+    with compose.open_existing_store(db, env()) as store:
         planned, timing = time_by_run(planned, store, timing_run)
     if timing.procedure != planned.meta.name:
         click.echo(
@@ -132,7 +132,8 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
     from sequencer import compose
     from sequencer.procedure import load_procedure, load_procedure_text
 
-    with compose.open_store(db, env()) as store:
+    opener = compose.open_store if repeat is None else compose.open_existing_store
+    with opener(db, env()) as store:
         record = compose.check_store(store, repeat) if repeat is not None else None
         if record is not None:
             proc = load_procedure_text(record.procedure_text, record.procedure_path or f"run-{repeat}.yaml",
@@ -178,7 +179,7 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
     from sequencer import compose
     from sequencer.procedure import load_procedure_text
 
-    with compose.open_store(db, env()) as store:
+    with compose.open_existing_store(db, env()) as store:
         store.mark_stale_runs_interrupted()
         record = compose.check_store(store, run_id)
         if record.status == "completed":
@@ -214,7 +215,7 @@ def runs(db: str | None, fmt: str, board: str | None, procedure: str | None,
     from sequencer import compose
     from sequencer.store import RUN_COLUMNS, format_rows, run_rows
 
-    with compose.open_store(db, env()) as store:
+    with compose.open_existing_store(db, env()) as store:
         store.mark_stale_runs_interrupted()
         rows = run_rows(store.list_runs(board=board, procedure=procedure, since=_utc(since), until=_utc(until)))
     click.echo(format_rows(rows, fmt, RUN_COLUMNS), nl=False)
@@ -235,7 +236,7 @@ def export(db: str | None, run_id: int | None, board: str | None, procedure: str
     from sequencer import compose
     from sequencer.store import EXPORT_COLUMNS, export_rows, format_rows
 
-    with compose.open_store(db, env()) as store:
+    with compose.open_existing_store(db, env()) as store:
         rows = export_rows(store, run_id=run_id, board=board, procedure=procedure,
                            since=_utc(since), until=_utc(until))
     click.echo(format_rows(rows, fmt, EXPORT_COLUMNS), nl=False)

@@ -22,7 +22,7 @@ def certify(db: str | None, run_id: int, out_dir: str, paper: str) -> None:
     from sequencer import compose
     from sequencer.reports import certify_run
 
-    with compose.open_store(db, env()) as store:
+    with compose.open_existing_store(db, env()) as store:
         compose.check_store(store, run_id)
         paths = certify_run(store, run_id, Path(out_dir), paper=paper)
     pdfs = [p for p in paths if p.suffix == ".pdf"]
@@ -40,7 +40,7 @@ def verify(db: str | None, certificate: str) -> None:
     from sequencer import compose
     from sequencer.reports import verify_certificate
 
-    with compose.open_store(db, env()) as store:
+    with compose.open_existing_store(db, env()) as store:
         result = verify_certificate(store, Path(certificate))
     if result.ok:
         click.echo(f"{certificate}: matches the database (certificate {result.number}, data sha256 {result.data_sha256[:12]})")
@@ -69,7 +69,7 @@ def trend(db: str | None, board: str, quantity: str, channel: int | None, output
     from sequencer.reports import plot_trend, trend_csv
     from sequencer.reports import trend as compute_trend
 
-    with compose.open_store(db, env()) as store:
+    with compose.open_existing_store(db, env()) as store:
         try:
             result = compute_trend(store, board, quantity, channel=channel, output=output,
                                    reference_runs=reference_runs, band=tuple(band) if band else None)
@@ -102,7 +102,7 @@ def report(db: str | None, batch: str, out_dir: str | None) -> None:
     from sequencer import compose
     from sequencer.reports import batch_report, batch_summary
 
-    with compose.open_store(db, env()) as store:
+    with compose.open_existing_store(db, env()) as store:
         click.echo(batch_summary(store, batch).to_text())
         if out_dir:
             for path in batch_report(store, batch, Path(out_dir)):

@@ -64,6 +64,12 @@ def open_store(db: str | None, env: Mapping[str, str]) -> Store:
     return Store.open(db or default_url(env))
 
 
+def open_existing_store(db: str | None, env: Mapping[str, str]) -> Store:
+    """The results store for a command that only reads: a missing database is ``StoreError`` (exit 2,
+    ``no database at URL``) and nothing is created."""
+    return Store.open(db or default_url(env), create=False)
+
+
 def plan_for(procedure: Procedure, serial: str, *, board_type: str | None = None) -> Plan:
     """The plan of ``procedure`` for the board ``serial`` of the procedure's (or the given) type."""
     type_name = board_type or procedure.board_type

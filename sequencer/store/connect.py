@@ -165,6 +165,22 @@ def open_engine(url: str, *, busy_timeout_s: float = DEFAULT_BUSY_TIMEOUT_S) -> 
     return _postgres_engine(parsed)
 
 
+def database_exists(url: str) -> bool:
+    """Whether ``url`` names a database that is already there, without creating anything.
+
+    SQLite: the file exists (an in-memory database never does).  PostgreSQL: the server answers (the
+    database itself must exist to connect); whether it holds benchwright's tables is the schema's
+    question (``migrate.current_revisions``).
+    """
+    parsed = parse_url(url)
+    if parsed.get_backend_name() != "sqlite":
+        return True
+    database = parsed.database or ""
+    if database in ("", ":memory:") or database.startswith("file:"):
+        return False
+    return Path(database).is_file()
+
+
 def writer(engine: Engine) -> Engine:
     """The same engine, but its transactions take the write lock at BEGIN (SQLite)."""
     return engine.execution_options(**{WRITE_OPTION: True})

@@ -20,9 +20,9 @@ from sqlalchemy.exc import SQLAlchemyError
 from sequencer.errors import StoreError
 from sequencer.events import Event, RunInfo
 from sequencer.store import lifecycle, queries
-from sequencer.store.connect import open_engine, writer
+from sequencer.store.connect import database_exists, open_engine, writer
 from sequencer.store.liveness import this_process
-from sequencer.store.migrate import ensure_schema
+from sequencer.store.migrate import current_revisions, ensure_schema
 from sequencer.store.recording import Recorder
 from sequencer.store.records import (
     Annotation,
@@ -59,12 +59,22 @@ class Store:
         self._recorder = Recorder(engine)
 
     @classmethod
-    def open(cls, url: str) -> Store:
-        """Connect, create or upgrade the schema; ``StoreError`` if unreachable or newer."""
+    def open(cls, url: str, *, create: bool = True) -> Store:
+        """Connect, create or upgrade the schema; ``StoreError`` if unreachable or newer.
+
+        ``create=False`` (the read-only commands) refuses, with ``no database at URL``, a database that
+        is not there or holds no benchwright schema, and creates no file on the way.
+        """
+        if not create and not database_exists(url):
+            raise StoreError(f"no database at {url}")
         engine = open_engine(url)
         where = engine.url.render_as_string(hide_password=True)
         try:
             with _as_store_error(f"cannot open the results database {where}"):
+                if not create:
+                    with engine.connect() as conn:
+                        if not current_revisions(conn):
+                            raise StoreError(f"no database at {url} (no benchwright tables there)")
                 ensure_schema(engine)
         except BaseException:
             engine.dispose()
