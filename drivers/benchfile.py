@@ -11,13 +11,19 @@ Per instrument also ``read_termination``, ``write_termination`` (a string, or ``
 wait for a reply polls before it sleeps, default 200; 0 turns it off) and, for the bias supply,
 ``max_current_uA``.  Unknown keys are located errors with a "did you mean" hint.  A dialect given as a
 path is resolved against the bench file's folder and checked at load.
+
+``visa_library`` names a pyvisa backend (``@py``, ``@ivi``, ``@sim``).  A path to a VISA library is
+native code that pyvisa would load into this process, so a file alone never chooses one: the path
+must also be allowed by whoever runs the command (``allowed_visa_libraries``, from the command
+line's ``--allow-visa-library PATH``).  Text values (address, expect_id, visa_library) may hold no
+control characters: a newline in an address would end the VISA resource string early.
 """
 
 from __future__ import annotations
 
 import datetime as dt
 import difflib
-from collections.abc import Mapping
+from collections.abc import Collection, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -35,6 +41,8 @@ from drivers.yamlsafe import YamlMap, load_yaml, read_bounded
 
 ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch")
 _TERMINATIONS = {"LF": "\n", "CR": "\r", "CRLF": "\r\n", "\\n": "\n", "\\r": "\r", "\\r\\n": "\r\n"}
+#: The pyvisa backends a bench file may name by itself (no native code chosen by a file).
+NAMED_VISA_BACKENDS = ("@py", "@ivi", "@sim")
 _BIAS_ONLY = ("max_volts", "max_ramp_V_per_s", "max_current_uA")
 _KEYS = (
     "address",
@@ -79,8 +87,11 @@ class BenchSpec:
     text: str = field(default="", repr=False)  # the file as read, for provenance
 
 
-def load_bench(path: str | Path) -> BenchSpec:
-    """Read and check a bench file; every problem is reported as ``file:line:column: message``."""
+def load_bench(path: str | Path, *, allowed_visa_libraries: Collection[str] = ()) -> BenchSpec:
+    """Read and check a bench file; every problem is reported as ``file:line:column: message``.
+
+    ``allowed_visa_libraries``: VISA library paths the caller allows besides the named backends.
+    """
     path = Path(path)
     try:
         raw = read_bounded(path)
@@ -88,19 +99,33 @@ def load_bench(path: str | Path) -> BenchSpec:
         raise ConfigError(
             [Problem(Location(str(path), 1, 1), f"cannot read bench file: {exc.strerror}")]
         ) from None
-    return parse_bench_text(raw, str(path), base_dir=path.parent)
+    return parse_bench_text(
+        raw, str(path), base_dir=path.parent, allowed_visa_libraries=allowed_visa_libraries
+    )
 
 
-def parse_bench_text(text: str | bytes, source: str, *, base_dir: Path | None = None) -> BenchSpec:
+def parse_bench_text(
+    text: str | bytes,
+    source: str,
+    *,
+    base_dir: Path | None = None,
+    allowed_visa_libraries: Collection[str] = (),
+) -> BenchSpec:
     """Check a bench file's text (e.g. the copy recorded with a run)."""
     data = load_yaml(text, source, error=ConfigError)
-    spec = bench_from_mapping(data, source=source, base_dir=base_dir)
+    spec = bench_from_mapping(
+        data, source=source, base_dir=base_dir, allowed_visa_libraries=allowed_visa_libraries
+    )
     raw = text.decode("utf-8") if isinstance(text, bytes) else text
     return BenchSpec(name=spec.name, instruments=spec.instruments, source=spec.source, text=raw)
 
 
 def bench_from_mapping(
-    data: Any, source: str = "<bench>", *, base_dir: Path | None = None
+    data: Any,
+    source: str = "<bench>",
+    *,
+    base_dir: Path | None = None,
+    allowed_visa_libraries: Collection[str] = (),
 ) -> BenchSpec:
     """Check a bench mapping (from :func:`drivers.yamlsafe.load_yaml` for located errors)."""
     problems: list[Problem] = []
@@ -132,6 +157,10 @@ def bench_from_mapping(
         for role in ROLES:
             if role in entries:
                 spec = _instrument(role, entries[role], entries, problems, source, base_dir)
+                if spec is not None and not _visa_library_allowed(
+                    spec, entries[role], allowed_visa_libraries, problems, source
+                ):
+                    spec = None
                 if spec is not None:
                     instruments[role] = spec
     if problems:
@@ -207,6 +236,37 @@ def _instrument(
     return InstrumentSpec(**values)
 
 
+def _visa_library_allowed(
+    spec: InstrumentSpec,
+    entry: Mapping,
+    allowed: Collection[str],
+    problems: list[Problem],
+    source: str,
+) -> bool:
+    """A named backend, or a library path the command line allowed (never the file alone)."""
+    library = spec.visa_library
+    if library in NAMED_VISA_BACKENDS:
+        return True
+    path, at, backend = library.rpartition("@")
+    if not (at and path and f"@{backend}" in NAMED_VISA_BACKENDS):
+        path = library  # a bare path
+    if _resolved(path) in {_resolved(a) for a in allowed}:
+        return True
+    problems.append(
+        Problem(
+            _where(entry, "visa_library", source),
+            f"{spec.role}: visa_library {library!r} is not a named backend "
+            f"({', '.join(NAMED_VISA_BACKENDS)}); a library path loads native code and must be "
+            f"allowed on the command line: --allow-visa-library {path}",
+        )
+    )
+    return False
+
+
+def _resolved(path: str) -> str:
+    return str(Path(path).expanduser().resolve())
+
+
 def _dialect(
     role: str, entry: Mapping, problems: list[Problem], source: str, base_dir: Path | None
 ) -> str:
@@ -256,6 +316,10 @@ class _Checker:
             return ""
         if not isinstance(value, str) or (not allow_empty and not value.strip()):
             self._bad(key, "must be a non-empty string" if not allow_empty else "must be a string")
+            return default
+        control = _first_control(value.strip())
+        if control is not None:
+            self._bad(key, f"holds the control character {control!r} (one line of printable text is expected)")
             return default
         return value.strip()
 
@@ -309,6 +373,15 @@ class _Checker:
             )
             return "\n"
         return value
+
+
+def _first_control(text: str) -> str | None:
+    """The first control character (C0, DEL, C1) or lone surrogate in ``text``, else ``None``."""
+    for char in text:
+        code = ord(char)
+        if code < 0x20 or 0x7F <= code < 0xA0 or 0xD800 <= code < 0xE000:
+            return char
+    return None
 
 
 def _where(data: Any, key: Any, source: str, *, of_key: bool = False) -> Location:

@@ -48,6 +48,7 @@ class BatchOptions:
     """How to run a batch: on a bench file or simulated boards, attended or not."""
 
     bench_path: str | None = None
+    allowed_visa_libraries: tuple[str, ...] = ()  # library paths allowed on the command line
     sim_dir: str | None = None
     unattended: bool = False
     requalify: bool = False
@@ -153,7 +154,9 @@ class _BatchRun:
         self.options = options
         self.procedure: Procedure = load_procedure(batch.procedure)
         self.bench: BenchSpec | None = (
-            load_bench(options.bench_path) if options.bench_path else None
+            load_bench(options.bench_path, allowed_visa_libraries=options.allowed_visa_libraries)
+            if options.bench_path
+            else None
         )
         self.outcomes: list[BoardOutcome] = []
 

@@ -27,6 +27,7 @@ from sequencer.cli_common import (
     env,
     fail,
     handles_errors,
+    visa_library_option,
 )
 from sequencer.cli_terminal import acknowledge_on_terminal, prompt_on_terminal
 from sequencer.errors import StoreError
@@ -125,9 +126,11 @@ def _summarise(run_id: int, outcome: Any) -> int:
 @click.option("--yes", is_flag=True, help="Unattended: acknowledge the safety caution (recorded as such).")
 @click.option("--repeat", "repeat", type=int, default=None, metavar="RUN_ID", help="Rerun the procedure text stored for that run.")
 @click.option("--log", "log_path", type=click.Path(dir_okay=False), default=None, help="Append a plain-text event log here.")
+@visa_library_option
 @handles_errors
 def run(procedure: str | None, bench_path: str | None, sim_board: str | None, serial: str | None,
-        db: str | None, operator: str, yes: bool, repeat: int | None, log_path: str | None) -> None:
+        db: str | None, operator: str, yes: bool, repeat: int | None, log_path: str | None,
+        allow_visa_library: tuple[str, ...]) -> None:
     """Run a procedure on a bench (or the simulator) for one board and record everything."""
     from sequencer import compose
     from sequencer.procedure import load_procedure, load_procedure_text
@@ -157,9 +160,10 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
             warn=lambda line: click.echo(f"warning: {line}", err=True),
         )
         if record is not None and not (bench_path or sim_board):
-            bench_cm = compose.recorded_bench(record.id, record.bench_text)
+            bench_cm = compose.recorded_bench(record.id, record.bench_text,
+                                              allowed_visa_libraries=allow_visa_library)
         else:
-            bench_cm = compose.bench_for(bench_path, sim_board)
+            bench_cm = compose.bench_for(bench_path, sim_board, allowed_visa_libraries=allow_visa_library)
         with bench_cm as spec:
             result = compose.execute(plan_, spec, store, request)
     sys.exit(_summarise(result.run_id, result.outcome))
@@ -172,9 +176,10 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
 @click.option("--sim", "sim_board", type=click.Path(dir_okay=False), help="Continue on a simulated bench.")
 @click.option("--operator", default=lambda: os.environ.get("USER", ""))
 @click.option("--yes", is_flag=True, help="Unattended: acknowledge the safety caution.")
+@visa_library_option
 @handles_errors
 def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str | None,
-           operator: str, yes: bool) -> None:
+           operator: str, yes: bool, allow_visa_library: tuple[str, ...]) -> None:
     """Continue an interrupted or aborted run from its last completed step."""
     from sequencer import compose
     from sequencer.procedure import load_procedure_text
@@ -190,9 +195,10 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
         request = compose.RunRequest(operator=operator or record.operator, unattended=yes,
                                      acknowledge=acknowledge_on_terminal(), prompt=prompt_on_terminal())
         if bench_path or sim_board:
-            bench_cm = compose.bench_for(bench_path, sim_board)
+            bench_cm = compose.bench_for(bench_path, sim_board, allowed_visa_libraries=allow_visa_library)
         else:
-            bench_cm = compose.recorded_bench(run_id, record.bench_text)
+            bench_cm = compose.recorded_bench(run_id, record.bench_text,
+                                              allowed_visa_libraries=allow_visa_library)
         with bench_cm as spec:
             result = compose.execute(plan_, spec, store, request, resume_run=run_id)
     sys.exit(_summarise(result.run_id, result.outcome))
@@ -254,15 +260,17 @@ def _utc(moment: Any) -> Any:
 
 @cli.command()
 @click.option("--bench", "bench_path", required=True, type=click.Path(dir_okay=False))
+@visa_library_option
 @handles_errors
-def instruments(bench_path: str) -> None:
+def instruments(bench_path: str, allow_visa_library: tuple[str, ...]) -> None:
     """Identify each instrument; warn on identity mismatch or calibration past due."""
     import datetime as dt
 
     from drivers.bench import load_bench
     from drivers.instruments import describe_bench, format_reports
 
-    reports = describe_bench(load_bench(bench_path), dt.date.today())
+    spec = load_bench(bench_path, allowed_visa_libraries=allow_visa_library)
+    reports = describe_bench(spec, dt.date.today())
     click.echo("\n".join(format_reports(reports)))
     if any(getattr(r, "error", "") for r in reports):
         sys.exit(EXIT_ABORT)

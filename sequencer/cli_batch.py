@@ -8,7 +8,14 @@ from typing import Any
 
 import click
 
-from sequencer.cli_common import EXIT_OK, SAFETY_HELP, db_option, env, handles_errors
+from sequencer.cli_common import (
+    EXIT_OK,
+    SAFETY_HELP,
+    db_option,
+    env,
+    handles_errors,
+    visa_library_option,
+)
 
 
 def _mount_on_terminal(bench: bool) -> Any:
@@ -66,6 +73,7 @@ def _mount_on_terminal(bench: bool) -> Any:
     help="Also write the batch report (PDF, HTML) here.",
 )
 @db_option
+@visa_library_option
 @handles_errors
 def batch(
     batch_file: str,
@@ -76,6 +84,7 @@ def batch(
     outlier_sigma: float | None,
     report_dir: str | None,
     db: str | None,
+    allow_visa_library: tuple[str, ...],
 ) -> None:
     """Qualify the boards of a batch file in turn; a running yield, then the batch summary."""
     from sequencer import compose
@@ -89,6 +98,7 @@ def batch(
         raise click.UsageError("a bench batch needs a terminal to prompt for each board, or --yes")
     options = BatchOptions(
         bench_path=bench_path,
+        allowed_visa_libraries=allow_visa_library,
         sim_dir=sim_dir,
         unattended=yes,
         requalify=requalify,

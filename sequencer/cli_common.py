@@ -86,3 +86,9 @@ db_option = click.option(
     "--db", default=None, metavar="URL",
     help="SQLAlchemy URL of the results database (default: $BENCHWRIGHT_DB or sqlite:///benchwright.db).",
 )
+
+visa_library_option = click.option(
+    "--allow-visa-library", "allow_visa_library", multiple=True, metavar="PATH",
+    help="Allow the bench file to load this VISA library (native code; a file alone never can). "
+    "Repeatable. Without it only the backends @py, @ivi and @sim are accepted.",
+)

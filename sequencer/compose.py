@@ -81,12 +81,17 @@ def plan_for(procedure: Procedure, serial: str, *, board_type: str | None = None
 
 
 @contextlib.contextmanager
-def bench_for(bench_path: str | None, sim_board: str | None) -> Iterator[BenchSpec]:
-    """The bench spec from a bench file, or a simulated bench started in-process for the run."""
+def bench_for(
+    bench_path: str | None, sim_board: str | None, *, allowed_visa_libraries: Sequence[str] = ()
+) -> Iterator[BenchSpec]:
+    """The bench spec from a bench file, or a simulated bench started in-process for the run.
+
+    ``allowed_visa_libraries``: library paths allowed on the command line (see drivers.benchfile).
+    """
     if bench_path and sim_board:
         raise ConfigError([Problem(Location("<options>", 1, 1), "give --bench or --sim, not both")])
     if bench_path:
-        yield load_bench(bench_path)
+        yield load_bench(bench_path, allowed_visa_libraries=allowed_visa_libraries)
         return
     if not sim_board:
         raise ConfigError([Problem(Location("<options>", 1, 1), "give --bench FILE or --sim BOARD.yaml")])
@@ -108,8 +113,13 @@ def simulated_bench_text(sim_board: str, mapping: Mapping[str, Any]) -> str:
     return f"{SIM_MARK}{Path(sim_board).resolve()}\n" + yaml.safe_dump(dict(mapping), sort_keys=False)
 
 
-def recorded_bench(run_id: int, bench_text: str) -> contextlib.AbstractContextManager[BenchSpec]:
-    """The bench a run was recorded on: its bench file, or the simulator of the same board file."""
+def recorded_bench(
+    run_id: int, bench_text: str, *, allowed_visa_libraries: Sequence[str] = ()
+) -> contextlib.AbstractContextManager[BenchSpec]:
+    """The bench a run was recorded on: its bench file, or the simulator of the same board file.
+
+    The recorded text is checked like a file: a VISA library path in it needs the same permission.
+    """
     first = bench_text.splitlines()[0] if bench_text else ""
     if first.startswith(SIM_MARK):
         board = first.removeprefix(SIM_MARK).strip()
@@ -120,7 +130,11 @@ def recorded_bench(run_id: int, bench_text: str) -> contextlib.AbstractContextMa
         raise StoreError(f"run {run_id} kept no bench file; give --bench or --sim")
     from drivers.benchfile import parse_bench_text
 
-    return contextlib.nullcontext(parse_bench_text(bench_text, f"<bench of run {run_id}>"))
+    return contextlib.nullcontext(
+        parse_bench_text(
+            bench_text, f"<bench of run {run_id}>", allowed_visa_libraries=allowed_visa_libraries
+        )
+    )
 
 
 def sim_board_serial(sim_board: str) -> tuple[str, str]:

@@ -228,3 +228,43 @@ def test_describe_bench_reports_each_instrument_even_when_one_fails(tmp_path):
     lines = format_reports(reports)
     assert lines[0].startswith("pulser  TCPIP0::127.0.0.1::5025::SOCKET  Nordlicht PG-7")
     assert any(line.startswith("warning: bias: not reachable") for line in lines)
+
+
+# -- visa_library: named backends only, a library path needs the command line's permission -----
+# (issue 19 item 4: a bench file alone must never choose native code for pyvisa to load)
+
+
+@pytest.mark.parametrize("backend", ["@py", "@ivi", "@sim"])
+def test_named_visa_backends_are_accepted(tmp_path, backend):
+    spec = load_bench(write(tmp_path, f'bench: b\ninstruments:\n  pulser: {{address: "A", visa_library: "{backend}"}}\n'))
+    assert spec.instruments["pulser"].visa_library == backend
+
+
+@pytest.mark.parametrize("library", ["/tmp/evil.so", "./libvisa.so", "/opt/visa/libvisa.so@ivi", "py"])
+def test_visa_library_path_from_the_file_alone_is_refused_located(tmp_path, library):
+    found = problems(
+        tmp_path, f'bench: b\ninstruments:\n  pulser: {{address: "A", visa_library: "{library}"}}\n'
+    )
+    assert len(found) == 1, found
+    assert found[0].startswith("bench.yaml:3:40: pulser: visa_library ")
+    assert "not a named backend" in found[0] and "--allow-visa-library" in found[0]
+
+
+def test_visa_library_path_allowed_by_the_caller_is_kept(tmp_path):
+    lib = tmp_path / "lib" / "libvisa.so"
+    text = f'bench: b\ninstruments:\n  pulser: {{address: "A", visa_library: "{lib}@ivi"}}\n'
+    spec = load_bench(write(tmp_path, text), allowed_visa_libraries=[str(lib)])
+    assert spec.instruments["pulser"].visa_library == f"{lib}@ivi"
+    # allowing another library does not allow this one
+    with pytest.raises(ConfigError):
+        load_bench(write(tmp_path, text), allowed_visa_libraries=[str(tmp_path / "other.so")])
+
+
+@pytest.mark.parametrize(
+    ("value", "char"),
+    [("TCPIP0::127.0.0.1::5025::SOCKET\\n*RST", "\\n"), ("A\\x00B", "\\x00"), ("A\\u0085B", "\\x85")],
+)
+def test_control_characters_in_an_address_are_refused_located(tmp_path, value, char):
+    found = problems(tmp_path, f'bench: b\ninstruments:\n  pulser: {{address: "{value}"}}\n')
+    assert len(found) == 1 and found[0].startswith("bench.yaml:3:21: pulser: address holds the control")
+    assert repr(char.encode().decode("unicode_escape")) in found[0]
