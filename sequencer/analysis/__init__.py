@@ -8,30 +8,62 @@ raise ValueError with a message that names the argument.
 from __future__ import annotations
 
 from .crosstalk import crosstalk_db, crosstalk_peak_percent, crosstalk_percent
+from .fingers import FingerFit, fit_finger_spectrum
+from .landau import LANDAU_MODE, LandauFit, fit_landau_gauss, landau_gauss_pdf
 from .lines import LineFit, fit_line, inl_percent
 from .noise import ELEMENTARY_CHARGE_C, TraceAverage, average_traces, enc_electrons
+from .photoelectrons import (
+    MeanPhotoelectrons,
+    crosstalk_lambda,
+    crosstalk_probability,
+    generalised_poisson_pmf,
+    mean_photoelectrons,
+)
 from .pulses import baseline_rms, pretrigger_baseline, pulse_height
 from .scurves import SCurveFit, fit_s_curve
+from .sipm import (
+    BreakdownFit,
+    Staircase,
+    breakdown_at_reference,
+    breakdown_voltage,
+    dark_count_staircase,
+)
 from .thresholds import ThresholdCalibration, noise_rate, rice_nu0, threshold_calibration
 from .timing import peaking_time, rise_time, zero_crossing_time
 from .transfer import TransferFit, transfer_curve
 
 __all__ = [
     "ELEMENTARY_CHARGE_C",
+    "LANDAU_MODE",
+    "BreakdownFit",
+    "FingerFit",
+    "LandauFit",
     "LineFit",
+    "MeanPhotoelectrons",
     "SCurveFit",
+    "Staircase",
     "ThresholdCalibration",
     "TraceAverage",
     "TransferFit",
     "average_traces",
     "baseline_rms",
+    "breakdown_at_reference",
+    "breakdown_voltage",
     "crosstalk_db",
+    "crosstalk_lambda",
     "crosstalk_peak_percent",
     "crosstalk_percent",
+    "crosstalk_probability",
+    "dark_count_staircase",
     "enc_electrons",
+    "fit_finger_spectrum",
+    "fit_landau_gauss",
     "fit_line",
     "fit_s_curve",
+    "generalised_poisson_pmf",
     "inl_percent",
+    "landau_gauss_pdf",
+    "mean_photoelectrons",
     "noise_rate",
     "peaking_time",
     "pretrigger_baseline",
