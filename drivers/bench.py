@@ -22,7 +22,16 @@ from drivers.benchfile import (
 )
 from drivers.dialect import Dialect, load_dialect
 from drivers.errors import BenchwrightError, ConfigError, Location, Problem
-from drivers.roles import ROLE_CLASSES, BiasSupply, Counter, Pulser, Scope, Switch, ThresholdDac
+from drivers.roles import (
+    ROLE_CLASSES,
+    BiasSupply,
+    CoincidenceUnit,
+    Counter,
+    Pulser,
+    Scope,
+    Switch,
+    ThresholdDac,
+)
 from drivers.scpi.session import Identity, ScpiSession, Transport
 from drivers.transport import VisaTransport
 
@@ -105,6 +114,10 @@ class Bench:
     @property
     def switch(self) -> Switch | None:
         return self._drivers.get("switch")
+
+    @property
+    def coincidence(self) -> CoincidenceUnit | None:
+        return self._drivers.get("coincidence")
 
     def role(self, name: str) -> Any:
         return self._drivers.get(name)

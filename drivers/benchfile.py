@@ -2,7 +2,7 @@
 
 ```yaml
 bench: bench-2
-instruments:   # roles: pulser, scope, threshold, counter, bias, switch
+instruments:   # roles: pulser, scope, threshold, counter, bias, switch, coincidence
   pulser: {address: "TCPIP0::127.0.0.1::5025::SOCKET", dialect: generic, expect_id: "", calibration_due: 2027-06-30}
   bias:   {address: "TCPIP0::127.0.0.1::5029::SOCKET", dialect: generic, max_volts: 60, max_ramp_V_per_s: 5}
 ```
@@ -39,7 +39,7 @@ from drivers.transport import (
 )
 from drivers.yamlsafe import YamlMap, load_yaml, read_bounded
 
-ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch")
+ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch", "coincidence")
 _TERMINATIONS = {"LF": "\n", "CR": "\r", "CRLF": "\r\n", "\\n": "\n", "\\r": "\r", "\\r\\n": "\r\n"}
 #: The pyvisa backends a bench file may name by itself (no native code chosen by a file).
 NAMED_VISA_BACKENDS = ("@py", "@ivi", "@sim")

@@ -78,6 +78,12 @@ OPERATIONS: dict[str, dict[str, OpSpec]] = {
         "close": _w("channels"), "open": _w("channels"), "open_all": _w(),
         "is_closed": _q("csv", "channels"),
     },
+    "coincidence": {
+        "set_window": _w("seconds"), "get_window": _q("float"), "set_delay": _w("input", "seconds"),
+        "get_delay": _q("float", "input"), "set_threshold": _w("input", "volts"),
+        "set_gate_time": _w("seconds"), "get_gate_time": _q("float"), "start": _w(),
+        "counts": _q("csv"),
+    },
 }
 # fmt: on
 

@@ -1,6 +1,7 @@
 """One driver per bench role, each over a :class:`drivers.scpi.session.ScpiSession` and a dialect."""
 
 from drivers.roles.bias import BiasSupply
+from drivers.roles.coincidence import CoincidenceCounts, CoincidenceUnit
 from drivers.roles.counter import Counter
 from drivers.roles.pulser import Pulser
 from drivers.roles.scope import Scope
@@ -15,6 +16,17 @@ ROLE_CLASSES = {
     "counter": Counter,
     "bias": BiasSupply,
     "switch": Switch,
+    "coincidence": CoincidenceUnit,
 }
 
-__all__ = ["ROLE_CLASSES", "BiasSupply", "Counter", "Pulser", "Scope", "Switch", "ThresholdDac"]
+__all__ = [
+    "ROLE_CLASSES",
+    "BiasSupply",
+    "CoincidenceCounts",
+    "CoincidenceUnit",
+    "Counter",
+    "Pulser",
+    "Scope",
+    "Switch",
+    "ThresholdDac",
+]

@@ -1,8 +1,8 @@
-"""The simulated bench: a board model and six SCPI instruments served over TCP on 127.0.0.1.
+"""The simulated bench: a board model and seven SCPI instruments served over TCP on 127.0.0.1.
 
 Imports only ``drivers.scpi.blocks``, ``drivers.errors`` and ``drivers.yamlsafe`` from the project
 (never pyvisa).  See ``bench`` (start/serve), ``board`` (board file keys), ``response`` and
-``physics`` (what the board does), ``digitizer``, ``counter``, ``bias`` (the instruments), ``faults``.
+``physics`` (what the board does), ``digitizer``, ``counter``, ``bias``, ``coincidence`` (the instruments), ``faults``.
 """
 
 from drivers.sim.bench import SimBench, serve, start_sim_bench

@@ -1,8 +1,8 @@
-"""Start the six simulated instruments of a bench, describe them as a bench file, serve until stopped.
+"""Start the seven simulated instruments of a bench, describe them as a bench file, serve until stopped.
 
-``start_sim_bench`` wires one board to a pulser, scope, threshold DAC, counter, bias supply and channel
-switch, each a real TCP server on ``host`` (ports ``port_base + 0..5`` in :data:`ROLES` order, or free
-ephemeral ports with ``port_base=0``).  ``serve`` is what ``benchwright sim`` runs.
+``start_sim_bench`` wires one board to a pulser, scope, threshold DAC, counter, bias supply, channel
+switch and coincidence unit, each a real TCP server on ``host`` (ports ``port_base + 0..6`` in
+:data:`ROLES` order, or free ephemeral ports with ``port_base=0``).  ``serve`` is what ``benchwright sim`` runs.
 """
 
 from __future__ import annotations
@@ -23,6 +23,7 @@ from drivers.errors import TransportError
 from drivers.sim.bias import BiasSupply
 from drivers.sim.board import ROLES, BoardSpec
 from drivers.sim.board_loader import load_board
+from drivers.sim.coincidence import CoincidenceUnit
 from drivers.sim.counter import Counter
 from drivers.sim.digitizer import Digitizer
 from drivers.sim.faults import FaultRunner
@@ -36,7 +37,7 @@ DEFAULT_TIMEOUT_MS = 5000
 
 
 def _instruments(board: BoardSpec, clock: Callable[[], float]) -> dict[str, SimInstrument]:
-    """The six instruments, cross-wired to the board and to each other."""
+    """The seven instruments, cross-wired to the board and to each other."""
 
     def common(role: str) -> dict[str, Any]:
         ident = ROLES.index(role) + 1
@@ -55,11 +56,18 @@ def _instruments(board: BoardSpec, clock: Callable[[], float]) -> dict[str, SimI
         ),
         "bias": BiasSupply(board=board, **common("bias")),
         "switch": switch,
+        "coincidence": CoincidenceUnit(
+            spec=board.coincidence,
+            pulser=pulser,
+            seed=board.seed,
+            time_scale=board.time_scale,
+            **common("coincidence"),
+        ),
     }
 
 
 class SimBench:
-    """A running simulated bench: six instrument servers sharing one board and one lock."""
+    """A running simulated bench: seven instrument servers sharing one board and one lock."""
 
     def __init__(
         self,

@@ -24,6 +24,22 @@ key                           default    meaning
 ``bias_current_offset_nA``    0.02       offset of the bias supply's current meter
 ``bias_current_noise_nA``     0.002      RMS noise of the current meter
 ``bias_voltage_noise_mV``     1.0        RMS noise of the voltage meter
+``coincidence.*``             (below)    the coincidence unit (:mod:`drivers.sim.coincidence`)
+============================  =========  ===========================================================
+
+Section ``coincidence`` (every key optional):
+
+============================  =========  ===========================================================
+``singles1_hz``               0.0        independent Poisson pulses at input 1 (Hz)
+``singles2_hz``               0.0        independent Poisson pulses at input 2 (Hz)
+``correlated_hz``             0.0        Poisson events seen by both inputs (a source), Hz
+``height_mV``                 100.0      height of those pulses at the inputs (mV, positive)
+``noise_mV``                  1.0        RMS noise at each input threshold (mV)
+``jitter_ns``                 0.5        RMS timing jitter of each input (ns)
+``skew_ns``                   0.0        fixed extra delay of input 2 (a cable), ns
+``resolving_extra_ns``        0.0        true resolving time minus the set window (ns; a fault)
+``efficiency1``               1.0        probability input 1 fires on a pulse above threshold
+``efficiency2``               1.0        the same for input 2
 ============================  =========  ===========================================================
 
 Channel defaults: gain_x1 1.0, gain_x5 5.0, baseline_mV 0, noise_in_mV 0.3, saturation_mV 1500,
@@ -37,7 +53,7 @@ from dataclasses import dataclass, field
 from types import MappingProxyType
 
 #: The instrument roles, in port order (port_base + index).
-ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch")
+ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch", "coincidence")
 #: Board outputs and the digit k of the switch route numbers.
 OUTPUT_INDEX = MappingProxyType({"x1": 1, "x5": 2, "shaped": 3})
 FAULT_KINDS = ("interlock_open", "no_reply", "disconnect", "garbled_reply", "scpi_error")
@@ -78,6 +94,22 @@ class PulseSpec:
 
 
 @dataclass(frozen=True, kw_only=True)
+class CoincidenceSpec:
+    """The simulated coincidence unit's inputs and imperfections (keys in the table above)."""
+
+    singles1_hz: float = 0.0
+    singles2_hz: float = 0.0
+    correlated_hz: float = 0.0
+    height_mV: float = 100.0
+    noise_mV: float = 1.0
+    jitter_ns: float = 0.5
+    skew_ns: float = 0.0
+    resolving_extra_ns: float = 0.0
+    efficiency1: float = 1.0
+    efficiency2: float = 1.0
+
+
+@dataclass(frozen=True, kw_only=True)
 class FaultSpec:
     """One injected fault; exactly one of ``after_s`` / ``after_commands`` is set."""
 
@@ -101,6 +133,7 @@ class BoardSpec:
     )
     shaper: ShaperSpec = field(default_factory=ShaperSpec)
     pulse: PulseSpec = field(default_factory=PulseSpec)
+    coincidence: CoincidenceSpec = field(default_factory=CoincidenceSpec)
     crosstalk_pct: float = 0.0
     bias_resistance_Mohm: float = 5000.0
     seed: int = 0

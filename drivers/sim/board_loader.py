@@ -20,6 +20,7 @@ from drivers.sim.board import (
     ROLES,
     BoardSpec,
     ChannelSpec,
+    CoincidenceSpec,
     FaultSpec,
     PulseSpec,
     ShaperSpec,
@@ -141,6 +142,18 @@ _SHAPER = {
     "gain": _number(0.0, 1e4, above=True),
 }
 _PULSE = {"rise_ns": _number(0.0, 1e5, above=True), "decay_ns": _number(0.0, 1e6, above=True)}
+_COINCIDENCE = {
+    "singles1_hz": _number(0.0, 1e8),
+    "singles2_hz": _number(0.0, 1e8),
+    "correlated_hz": _number(0.0, 1e8),
+    "height_mV": _number(0.0, 1e5),
+    "noise_mV": _number(0.0, 1e4),
+    "jitter_ns": _number(0.0, 1e4),
+    "skew_ns": _number(-500.0, 500.0),
+    "resolving_extra_ns": _number(-1000.0, 1e4),
+    "efficiency1": _number(0.0, 1.0),
+    "efficiency2": _number(0.0, 1.0),
+}
 _FAULT = {
     "kind": _choice(*FAULT_KINDS),
     "role": _choice(*ROLES),
@@ -155,6 +168,7 @@ _TOP: dict[str, Check] = {
     "outputs": lambda v: v,
     "shaper": lambda v: v,
     "pulse": lambda v: v,
+    "coincidence": lambda v: v,
     "faults": lambda v: v,
     "channels": lambda v: v,
     "crosstalk_pct": _number(0.0, 100.0),
@@ -198,6 +212,11 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
         else ShaperSpec()
     )
     pulse = _pulse(reader, data, top.get("pulse"))
+    coincidence = (
+        CoincidenceSpec(**reader.mapping(top["coincidence"], _COINCIDENCE, "coincidence"))
+        if "coincidence" in top
+        else CoincidenceSpec()
+    )
     outputs = _outputs(reader, data, top.get("outputs"))
     faults = _faults(reader, data, top.get("faults"))
     if problems:
@@ -205,12 +224,13 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
     extras = {
         k: v
         for k, v in top.items()
-        if k not in ("channels", "shaper", "pulse", "outputs", "faults")
+        if k not in ("channels", "shaper", "pulse", "coincidence", "outputs", "faults")
     }
     return BoardSpec(
         channels=channels,
         shaper=shaper,
         pulse=pulse,
+        coincidence=coincidence,
         outputs=outputs,
         faults=faults,
         source=source,

@@ -7,6 +7,13 @@ raise ValueError with a message that names the argument.
 
 from __future__ import annotations
 
+from .coincidence import (
+    DelayCurve,
+    Efficiency,
+    accidental_rate_hz,
+    coincidence_efficiency,
+    fit_delay_curve,
+)
 from .crosstalk import crosstalk_db, crosstalk_peak_percent, crosstalk_percent
 from .fingers import FingerFit, fit_finger_spectrum
 from .landau import LANDAU_MODE, LandauFit, fit_landau_gauss, landau_gauss_pdf
@@ -36,6 +43,8 @@ __all__ = [
     "ELEMENTARY_CHARGE_C",
     "LANDAU_MODE",
     "BreakdownFit",
+    "DelayCurve",
+    "Efficiency",
     "FingerFit",
     "LandauFit",
     "LineFit",
@@ -45,10 +54,12 @@ __all__ = [
     "ThresholdCalibration",
     "TraceAverage",
     "TransferFit",
+    "accidental_rate_hz",
     "average_traces",
     "baseline_rms",
     "breakdown_at_reference",
     "breakdown_voltage",
+    "coincidence_efficiency",
     "crosstalk_db",
     "crosstalk_lambda",
     "crosstalk_peak_percent",
@@ -56,6 +67,7 @@ __all__ = [
     "crosstalk_probability",
     "dark_count_staircase",
     "enc_electrons",
+    "fit_delay_curve",
     "fit_finger_spectrum",
     "fit_landau_gauss",
     "fit_line",

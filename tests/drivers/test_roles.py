@@ -10,7 +10,15 @@ import pytest
 from drivers.bench import InstrumentSpec
 from drivers.dialect import load_dialect, parse_dialect, shipped_dialect_path
 from drivers.errors import ProtocolError, SafetyLimitError
-from drivers.roles import BiasSupply, Counter, Pulser, Scope, Switch, ThresholdDac
+from drivers.roles import (
+    BiasSupply,
+    CoincidenceUnit,
+    Counter,
+    Pulser,
+    Scope,
+    Switch,
+    ThresholdDac,
+)
 from drivers.roles.switch import injection_number, parse_channel_list, route_number
 from drivers.scpi.session import ScpiSession
 from tests.drivers.scripted import ScriptedTransport, configured
@@ -301,3 +309,62 @@ def test_channel_list_numbers_follow_the_dialect_header():
     assert parse_channel_list("(@1:4,7)") == [1, 2, 3, 4, 7]
     with pytest.raises(ValueError):
         parse_channel_list("1,2")
+
+
+# -- coincidence ----------------------------------------------------------------------------------
+def test_coincidence_window_delays_thresholds_and_one_gate():
+    t = ScriptedTransport(timeout_ms=1000).expect(
+        configured("SENSe:COINcidence:WINDow 5e-08"),
+        configured("INPut1:DELay 0"),
+        configured("INPut2:DELay 1.25e-08"),
+        configured("INPut1:DELay 3e-09"),
+        configured("INPut2:DELay 0"),
+        configured("INPut2:THReshold -0.03"),
+        configured("SENSe:GATE:TIME 2"),
+        configured("INITiate:IMMediate"),
+        ("FETCh:COINcidence?", b"17,1000,2003\n"),
+    )
+    unit = build(CoincidenceUnit, t)
+    unit.set_window(50.0)
+    unit.set_relative_delay(12.5)  # input 2 later by 12.5 ns
+    unit.set_relative_delay(-3.0)  # input 1 later by 3 ns
+    unit.set_threshold(2, -30.0)
+    unit.set_gate(2.0)
+    counts = unit.count()
+    assert (counts.coincidences, counts.singles, counts.gate_s) == (17, (1000, 2003), 2.0)
+    assert counts.coincidence_rate_hz == pytest.approx(8.5)
+    assert counts.singles_rate_hz == pytest.approx((500.0, 1001.5))
+    fetch_timeout = t.timeouts_at_write[t.writes.index("FETCh:COINcidence?")]
+    assert fetch_timeout > 2000  # the fetch waits for the gate
+
+
+@pytest.mark.parametrize(
+    "reply", [b"1,2\n", b"5,3,10\n", b"1.5,10,10\n", b"-1,10,10\n", b"9.91E+37,10,10\n"]
+)
+def test_coincidence_refuses_short_or_inconsistent_counts(reply):
+    t = ScriptedTransport().expect(
+        ("SENSe:GATE:TIME?", b"1\n"),
+        configured("INITiate:IMMediate"),
+        ("FETCh:COINcidence?", reply),
+    )
+    with pytest.raises(ProtocolError):
+        build(CoincidenceUnit, t).count()
+
+
+def test_coincidence_without_thresholds_refuses_set_threshold_and_checks_ranges():
+    text = GENERIC_TEXT.replace(
+        '    set_threshold: {write: "INPut{input:d}:THReshold {volts:.9g}"}', ""
+    )
+    assert text != GENERIC_TEXT
+    dialect = parse_dialect(text, "no-thresholds.yaml")
+    t = ScriptedTransport()
+    unit = CoincidenceUnit(ScpiSession(t), dialect, None)
+    with pytest.raises(ValueError, match="no input thresholds"):
+        unit.set_threshold(1, 10.0)
+    with pytest.raises(ValueError, match="input"):
+        unit.set_delay(3, 1.0)
+    with pytest.raises(ValueError):
+        unit.set_window(0.0)
+    with pytest.raises(ValueError):
+        unit.set_delay(1, 2000.0)
+    assert t.writes == []

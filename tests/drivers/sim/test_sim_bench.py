@@ -76,7 +76,7 @@ def test_bench_mapping_and_file(tmp_path):
         )
 
 
-def free_port_base(span: int = 6) -> int:
+def free_port_base(span: int = len(ROLES)) -> int:
     for _ in range(50):
         with socket.socket() as probe:
             probe.bind(("127.0.0.1", 0))
