@@ -12,6 +12,7 @@ the errors that belong above the instrument layer.
     │   ├── ConnectionRefused             nothing listens at the address / host unreachable
     │   └── ConnectionClosed              the peer closed the link
     ├── ProtocolError                     a reply that cannot be parsed (malformed block, garbled number)
+    │   └── ImplausibleReading            a parsed reading no instrument could mean (NaN, 9.91E+37, overrange)
     ├── InstrumentError                   the instrument reported an error (SYSTem:ERRor? gave a code)
     ├── ConfigError                       a bench, dialect or board file is wrong (file:line:column)
     ├── SafetyLimitError                  a bias request above the bench limits (refused before sending)
@@ -86,6 +87,12 @@ class ProtocolError(BenchwrightError):
         if command:
             suffix += f" (after {command!r})"
         super().__init__(message + suffix)
+
+
+class ImplausibleReading(ProtocolError):
+    """A reading parsed as a number but cannot be true: NaN, infinite, SCPI's not-a-number
+    ``9.91E+37`` (or overrange ``9.9E+37``), or beyond what the bench file allows by a margin.
+    A safety decision never rests on such a value."""
 
 
 class InstrumentError(BenchwrightError):

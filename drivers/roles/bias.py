@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING
 from drivers.dialect import Dialect
 from drivers.errors import SafetyLimitError
 from drivers.roles.base import RoleDriver, check_finite
+from drivers.roles.readings import check_reading, plausible_volts
 from drivers.scpi.session import ScpiSession
 
 if TYPE_CHECKING:
@@ -54,19 +55,35 @@ class BiasSupply(RoleDriver):
             self._write("set_voltage", volts=target)
 
     def setpoint(self) -> float:
-        """The programmed voltage in V."""
-        return float(self._query("get_voltage_setpoint"))
+        """The programmed voltage in V (checked: see :meth:`voltage`)."""
+        return self._reading("get_voltage_setpoint", "set point", "V", self._plausible_V)
 
     def ramp_rate(self) -> float:
-        return float(self._query("get_ramp_rate"))
+        return self._reading("get_ramp_rate", "ramp rate", "V/s", None)
 
     def voltage(self) -> float:
-        """The measured output voltage in V."""
-        return float(self._query("measure_voltage"))
+        """The measured output voltage in V; NaN, infinity, SCPI's 9.91E+37 or a value beyond the
+        bench's ``max_volts`` plus a margin raise ``ImplausibleReading``."""
+        return self._reading("measure_voltage", "voltage", "V", self._plausible_V)
 
     def current_A(self) -> float:
-        """The measured output current in A."""
-        return float(self._query("measure_current"))
+        """The measured output current in A; NaN, infinity or 9.91E+37 raise ``ImplausibleReading``."""
+        return self._reading("measure_current", "current", "A", None)
+
+    @property
+    def _plausible_V(self) -> float:
+        assert self.max_volts is not None
+        return plausible_volts(self.max_volts)
+
+    def _reading(self, op: str, what: str, unit: str, bound: float | None) -> float:
+        return check_reading(
+            f"bias {what}",
+            self._query(op),
+            bound=bound,
+            unit=unit,
+            address=self.address,
+            command=self._command(op),
+        )
 
     def set_current_limit(self, uA: float) -> None:
         limit = check_finite("uA", uA)

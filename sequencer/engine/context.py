@@ -45,9 +45,11 @@ class StopFlag:
         self._event = threading.Event()
         self.cause = ""
         self.reason = ""
+        self.requests = 0  # every request counts (a second signal cuts a ramp-down short)
 
     def request(self, cause: str, reason: str) -> None:
-        """Ask the run to stop; the first request wins."""
+        """Ask the run to stop; the first request gives the cause, every one is counted."""
+        self.requests += 1
         if not self._event.is_set():
             self.cause, self.reason = cause, reason
             self._event.set()

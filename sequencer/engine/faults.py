@@ -12,6 +12,7 @@ from drivers.errors import (
     BenchwrightError,
     ConnectionClosed,
     ConnectionRefused,
+    ImplausibleReading,
     InstrumentError,
     InstrumentTimeout,
     ProtocolError,
@@ -62,6 +63,8 @@ def describe_fault(exc: BaseException, instruments: Mapping[str, Any]) -> str:
         return f"{who}: connection refused"
     if isinstance(exc, TransportError):
         return f"{who}: link failed ({sending}): {exc}"
+    if isinstance(exc, ImplausibleReading):
+        return f"{who}: implausible reply to {cmd}: {_first_line(exc)}"
     if isinstance(exc, ProtocolError):
         return f"{who}: unreadable reply to {cmd}: {_first_line(exc)}"
     if isinstance(exc, InstrumentError):

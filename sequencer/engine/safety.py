@@ -4,6 +4,12 @@ Voltages are never stepped: every change is a ramp that polls the measured volta
 within tolerance, checking interlock, trip and current on every poll.  On any abort the guard ramps
 the bias down at the permitted rate (or switches the output off at once after a trip), verifies 0 V
 and output off by reading back, and records every event as a ``SafetyEvent``.
+
+Readings are never trusted: the role driver refuses NaN, infinity, SCPI's 9.91E+37 and values beyond
+the bench limits (``ImplausibleReading``), which aborts a run like any instrument fault; during the
+ramp-down such a reading switches the output off at once.  A ramp's deadline comes from the commanded
+voltages and the permitted rate, never from a reading.  A stop request that arrives while the bias is
+being ramped down (a second Ctrl-C) cuts the ramp short: output off at once.
 """
 
 from __future__ import annotations
@@ -12,7 +18,7 @@ import threading
 import time
 from typing import Any
 
-from drivers.errors import BenchwrightError, ProtocolError, TransportError
+from drivers.errors import BenchwrightError, ImplausibleReading, ProtocolError, TransportError
 from sequencer.errors import RunAborted
 from sequencer.events import SafetyEvent
 
@@ -22,6 +28,10 @@ from .preflight import build_caution
 
 MANUAL_OFF = "switch the supply's output off by hand and check that it reads 0 V"
 """What an UNSAFE line asks of the operator when the software could not confirm the safe state."""
+
+RAMP_TIME_FACTOR = 1.5
+"""A ramp may take this many times |commanded distance| / rate (plus the margin) before it counts as
+stuck (common practice: a supply's slew is within tens of per cent of what was programmed)."""
 
 
 class BiasGuard:
@@ -33,6 +43,9 @@ class BiasGuard:
         spec = ctx.bench.spec.instruments.get("bias")
         self.address = getattr(spec, "address", "")
         self.max_rate = getattr(spec, "max_ramp_V_per_s", None)
+        self.max_volts: float | None = getattr(spec, "max_volts", None)
+        self.bench_source = str(getattr(ctx.bench.spec, "source", "") or "")
+        self.commanded: float | None = None  # the set point last sent (None: not known)
         self.current_limit_uA: float | None = getattr(spec, "max_current_uA", None)
         self.acknowledged = False
         self.live = False  # output may be on above 0 V
@@ -179,6 +192,7 @@ class BiasGuard:
             self.record("setpoint", volts=0.0, output=False)
         self._reconnects_seen = reconnects(self.bias)
         self.bias.set_output(True)
+        self.commanded = 0.0  # from output off the supply starts at 0 V
         self.live = True
         self.record("output", on=True)
 
@@ -196,11 +210,14 @@ class BiasGuard:
         rate_v = self._rate(rate)
         start = self.bias.voltage()
         self.record("ramp_start", from_V=start, to_V=volts, rate_V_per_s=rate_v)
+        allowed_s = self.ramp_time_s(volts, rate_v)
+        requests = self.ctx.stop.requests
         self.bias.start_ramp(volts, rate_v)
+        self.commanded = volts
         self.record("setpoint", volts=volts)
         if volts != 0.0:
             self.live = True
-        deadline = time.monotonic() + abs(volts - start) / rate_v * 1.5 + opts.ramp_margin_s
+        deadline = time.monotonic() + allowed_s
         while True:
             measured = self.poll(going_down=going_down)
             if abs(measured - volts) <= opts.ramp_tolerance_V:
@@ -209,25 +226,51 @@ class BiasGuard:
                 raise self._abort(
                     "instrument",
                     f"bias at {self.address}: measured {measured:.3f} V "
-                    f"did not reach {volts:g} V within the expected ramp time",
+                    f"did not reach {volts:g} V within the expected ramp time ({allowed_s:.1f} s)",
                 )
-            if going_down:
-                time.sleep(opts.ramp_poll_s)
-            else:
-                self.ctx.checkpoint()
-                self.ctx.stop.wait(opts.ramp_poll_s)
+            self._pause(going_down=going_down, requests=requests)
         self.record("ramp_end", volts=measured)
         return measured
 
+    def ramp_time_s(self, volts: float, rate: float) -> float:
+        """How long a ramp to ``volts`` at ``rate`` may take: the distance from the set point last
+        commanded (or, when none is known, the bench's whole ``max_volts`` range) over the rate,
+        times ``RAMP_TIME_FACTOR``, plus the margin.  Never from a reading."""
+        if self.commanded is not None:
+            distance = abs(volts - self.commanded)
+        elif self.max_volts is not None:
+            distance = abs(self.max_volts) + abs(volts)
+        else:  # the role refuses a bench without max_volts; kept finite all the same
+            distance = abs(volts)
+        return distance / rate * RAMP_TIME_FACTOR + self.ctx.options.ramp_margin_s
+
+    def _pause(self, *, going_down: bool, requests: int) -> None:
+        """Wait one poll interval of a ramp.  Going up: a stop request aborts at once.  Going down
+        (the safe state): the ramp goes on, unless a further stop request arrived since it began."""
+        opts = self.ctx.options
+        if going_down:
+            if self.ctx.stop.requests > requests:
+                raise self._abort(
+                    "signal", f"bias at {self.address}: ramp-down cut short by a stop request"
+                )
+            time.sleep(opts.ramp_poll_s)
+        elif self.ctx.stop.requested:  # in cleanup the ramp runs to its end (bounded above)
+            self.ctx.checkpoint()
+            time.sleep(opts.ramp_poll_s)
+        else:
+            self.ctx.stop.wait(opts.ramp_poll_s)
+
     def poll(self, *, going_down: bool = False) -> float:
-        """Read voltage, current, interlock and trip; abort on a bad one unless going down."""
+        """Read voltage, current, interlock and trip; abort on a bad one.  Going down only the
+        voltage is read (it decides when the ramp is done)."""
         v = self.bias.voltage()
+        if going_down:
+            self.record("reading", volts=v)
+            return v
         i = self.bias.current_A()
         closed = self.bias.interlock_closed()
         trip = self.bias.tripped()
         self.record("reading", volts=v, current_A=i, interlock_closed=closed, tripped=trip)
-        if going_down:
-            return v
         self.check_link()
         if not closed:
             raise self._abort(
@@ -295,6 +338,9 @@ class BiasGuard:
         try:
             self._bring_down(path)
             return self._verify(path)
+        except ImplausibleReading as exc:  # the link works but the supply's readings lie
+            self.record("implausible", path, error=str(exc))
+            return self._off_at_once(path, exc)
         except (TransportError, ProtocolError) as exc:
             self.record(
                 "link_lost", path, error=describe_fault(exc, self.ctx.bench.spec.instruments)
@@ -304,7 +350,7 @@ class BiasGuard:
             self.record("unsafe", path, error=str(exc))
             return (
                 f"UNSAFE: bias at {self.address}: output state not confirmed off ({exc}); "
-                f"{MANUAL_OFF}"
+                f"{self.remedy()}"
             )
 
     def _record_stop_request(self, path: str) -> None:
@@ -319,18 +365,20 @@ class BiasGuard:
             self.record("stop", path, cause=stop.cause, reason=stop.reason)
 
     def _bring_down(self, path: str) -> None:
-        if self.bias.output_on():
-            if self.bias.tripped():
-                self.bias.set_output(False)
-                self.record("output", path, on=False, why="trip")
-            else:
-                if abs(self.bias.voltage()) > self.ctx.options.ramp_tolerance_V:
-                    try:
-                        self.ramp(0.0, None, going_down=True)
-                    except RunAborted as exc:  # stuck ramp: off at once
-                        self.record("ramp_stuck", path, error=str(exc))
-                self.bias.set_output(False)
-                self.record("output", path, on=False)
+        tol = self.ctx.options.ramp_tolerance_V
+        on = self.bias.output_on()
+        if on and self.bias.tripped():
+            self.bias.set_output(False)
+            self.record("output", path, on=False, why="trip")
+        elif on or abs(self.bias.voltage()) > tol:  # "off" at a voltage: the state lies, go down
+            if abs(self.bias.voltage()) > tol:
+                try:
+                    self.ramp(0.0, None, going_down=True)
+                except RunAborted as exc:  # stuck or cut short: off at once
+                    kind = "ramp_cut" if exc.cause == "signal" else "ramp_stuck"
+                    self.record(kind, path, error=str(exc))
+            self.bias.set_output(False)
+            self.record("output", path, on=False)
         if abs(self.bias.setpoint()) > self.ctx.options.ramp_tolerance_V:
             self.bias.start_ramp(0.0, self._rate(None))  # output is off: nothing moves
             self.record("setpoint", path, volts=0.0, output=False)
@@ -343,7 +391,7 @@ class BiasGuard:
             self.record("unsafe", path, output=on, volts=v)
             return (
                 f"UNSAFE: bias at {self.address} reads output {'on' if on else 'off'} at "
-                f"{v:.3f} V after the safe-state sequence; {MANUAL_OFF}"
+                f"{v:.3f} V after the safe-state sequence; {self.remedy()}"
             )
         self.record("safe_state", path, output=False, volts=v)
         return ""
@@ -358,8 +406,32 @@ class BiasGuard:
             self.record("unsafe", path, error=str(exc))
             return (
                 f"UNSAFE: bias at {self.address}: lost the link and could not confirm the "
-                f"output off ({exc}); {MANUAL_OFF}"
+                f"output off ({exc}); {self.remedy()}"
             )
+
+    def _off_at_once(self, path: str, cause: ImplausibleReading) -> str:
+        """After an implausible reading: output off without a ramp (nothing it reads can steer
+        one), then read back."""
+        try:
+            self.bias.set_output(False)
+            self.record("output", path, on=False, why="implausible reading")
+            return self._verify(path)
+        except BenchwrightError as exc:
+            self.record("unsafe", path, error=str(exc))
+            return (
+                f"UNSAFE: bias at {self.address}: output off sent after an implausible reading "
+                f"({cause}) but the safe state is not confirmed ({exc}); {self.remedy()}"
+            )
+
+    def remedy(self) -> str:
+        """What the operator should do when the safe state is not confirmed."""
+        return f"{MANUAL_OFF}, or run `{safe_command(self.bench_source)}`"
+
+
+def safe_command(bench_source: str) -> str:
+    """The command that brings the bench's supplies to 0 V and off (``benchwright safe``)."""
+    bench = bench_source if bench_source and not bench_source.startswith("<") else "BENCH.yaml"
+    return f"benchwright safe --bench {bench}"
 
 
 def reconnects(role: Any) -> int:

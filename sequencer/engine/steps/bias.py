@@ -29,9 +29,12 @@ def ramp(ctx: RunContext, step: PlannedStep) -> StepResult:
     volts = float(step.args["volts"])
     rate = step.args.get("rate")
     rate = None if rate is None else float(rate)
-    if volts == 0.0:  # going down is always allowed, and a no-op with the output off
-        if not ctx.bench.bias.output_on():
-            return StepResult(results={"measured_V": ctx.bench.bias.voltage(), "output": False})
+    if volts == 0.0:  # going down is always allowed, and a no-op with the output off at 0 V
+        bias = ctx.bench.bias
+        if not bias.output_on():
+            measured = bias.voltage()  # an output that reads off at a voltage is not believed
+            if abs(measured) <= ctx.options.ramp_tolerance_V:
+                return StepResult(results={"measured_V": measured, "output": False})
         return StepResult(results={"measured_V": guard.ramp(0.0, rate)})
     guard.arm()
     guard.switch_on()

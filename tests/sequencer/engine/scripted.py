@@ -77,6 +77,7 @@ class BenchState:
         self.dead: set[str] = set()
         self.reconnects = 0
         self.on_query: Callable[[str, str], None] | None = None
+        self.lies: dict[str, str] = {}  # bias query header (upper case) -> the reply it gets instead
         self._measured = 0.0
         self._lag = 0
         self._counts: dict[str, int] = {}
@@ -109,6 +110,8 @@ class BenchState:
         return None
 
     def _bias(self, head: str, value: str) -> str | None:
+        if head in self.lies:
+            return self.lies[head]
         b = self.bias
         if head == "SOURCE:VOLTAGE:LEVEL:IMMEDIATE:AMPLITUDE":
             b["setpoint"] = float(value)
