@@ -227,27 +227,6 @@ def runs(db: str | None, fmt: str, board: str | None, procedure: str | None,
     click.echo(format_rows(rows, fmt, RUN_COLUMNS), nl=False)
 
 
-@cli.command()
-@db_option
-@click.option("--run", "run_id", type=int, default=None)
-@click.option("--board", default=None)
-@click.option("--procedure", default=None)
-@click.option("--since", type=click.DateTime(), default=None, help="Runs started at or after (UTC).")
-@click.option("--until", type=click.DateTime(), default=None, help="Runs started before (UTC).")
-@click.option("--format", "fmt", type=click.Choice(["csv", "json"]), default="csv", show_default=True)
-@handles_errors
-def export(db: str | None, run_id: int | None, board: str | None, procedure: str | None,
-           since: Any, until: Any, fmt: str) -> None:
-    """Measurements to stdout, one row per value with limits and verdict."""
-    from sequencer import compose
-    from sequencer.store import EXPORT_COLUMNS, export_rows, format_rows
-
-    with compose.open_existing_store(db, env()) as store:
-        rows = export_rows(store, run_id=run_id, board=board, procedure=procedure,
-                           since=_utc(since), until=_utc(until))
-    click.echo(format_rows(rows, fmt, EXPORT_COLUMNS), nl=False)
-
-
 def _utc(moment: Any) -> Any:
     """A naive command-line date-time, read as UTC (the store keeps UTC)."""
     import datetime as dt
@@ -292,9 +271,9 @@ def sim(board_path: str, host: str, port_base: int, bench_out: str | None) -> No
 
 def attach_commands() -> None:
     """Attach the commands that live in their own modules (store-only reports; batch and demo)."""
-    from sequencer import cli_batch, cli_results
+    from sequencer import cli_batch, cli_export, cli_results
 
-    for command in (*cli_results.COMMANDS, cli_batch.batch, cli_batch.demo):
+    for command in (*cli_results.COMMANDS, cli_batch.batch, cli_batch.demo, cli_export.export):
         cli.add_command(command)
 
 

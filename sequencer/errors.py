@@ -26,6 +26,7 @@ __all__ = [
     "InstrumentTimeout",
     "LocatedError",
     "Location",
+    "MissingExtra",
     "Problem",
     "ProcedureError",
     "ProtocolError",
@@ -57,3 +58,16 @@ class RunAborted(BenchwrightError):
         self.step_path = step_path
         text = reason if not step_path else f"{reason} [step {step_path}]"
         super().__init__(text)
+
+
+class MissingExtra(BenchwrightError):
+    """An optional part (Parquet, ROOT, pandas, the web view) needs a package that is not installed;
+    the message names the extra to install."""
+
+    def __init__(self, package: str, extra: str, purpose: str) -> None:
+        self.package = package
+        self.extra = extra
+        super().__init__(
+            f"{purpose} needs the Python package {package!r}: "
+            f"pip install 'benchwright[{extra}]'"
+        )

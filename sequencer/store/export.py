@@ -52,10 +52,13 @@ def export_rows(
     procedure: str | None = None,
     since: datetime | None = None,
     until: datetime | None = None,
+    batch: str | None = None,
 ) -> list[dict[str, Any]]:
     """Measurements of the matching runs as dicts keyed exactly by ``EXPORT_COLUMNS`` (in order),
     by run, then in the order they were recorded."""
-    clauses = run_filters(run_id=run_id, board=board, procedure=procedure, since=since, until=until)
+    clauses = run_filters(
+        run_id=run_id, board=board, procedure=procedure, since=since, until=until, batch=batch
+    )
     query = select(*_MEASUREMENT_PART).order_by(Measurement.run_id, Measurement.id)
     if run_id is not None and len(clauses) == 1:
         query = query.where(Measurement.run_id == run_id)

@@ -22,10 +22,14 @@ ALLOWED = {
     "store": set(),
     "engine": {"sequencer.procedure", "sequencer.analysis", "drivers", "sequencer"},
     "reports": {"sequencer.store", "sequencer.analysis", "sequencer"},
+    "results": {"sequencer.store", "sequencer.reports", "sequencer"},
+    "web": {"sequencer.store", "sequencer.reports", "sequencer.results", "sequencer.procedure", "sequencer"},
 }
 FORBIDDEN = {
     "engine": {"sequencer.store", "sequencer.reports", "sequencer.cli", "sequencer.compose"},
     "reports": {"sequencer.engine", "drivers", "sequencer.cli", "sequencer.compose"},
+    "results": {"sequencer.engine", "drivers", "sequencer.cli", "sequencer.compose", "sequencer.web"},
+    "web": {"sequencer.engine", "drivers", "sequencer.cli", "sequencer.compose"},
 }
 
 

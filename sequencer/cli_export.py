@@ -1,0 +1,86 @@
+"""``benchwright export``: runs, measurements, series or traces in CSV, JSON, Parquet or ROOT.
+
+CSV and JSON go to stdout (or ``--out``); Parquet and ROOT are files and need ``--out``.  The
+measurement columns are DESIGN.md's, in order; the other tables are described in
+``sequencer.results.tables``.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import click
+
+from sequencer.cli_common import EXIT_INPUT, db_option, env, fail, handles_errors
+
+FORMATS = ("csv", "json", "parquet", "root")
+BINARY = ("parquet", "root")
+
+
+def _utc(moment: Any) -> Any:
+    """A naive command-line date-time, read as UTC (the store keeps UTC)."""
+    import datetime as dt
+
+    return None if moment is None else moment.replace(tzinfo=dt.UTC)
+
+
+def _text(store: Any, what: str, fmt: str, sel: Any) -> str:
+    from sequencer.results.tables import read_table
+    from sequencer.store import EXPORT_COLUMNS, export_rows, format_rows
+
+    if what == "measurements":  # the fixed export (ISO times, repr floats)
+        rows = export_rows(store, run_id=sel.run_id, **sel.run_filters())
+        return format_rows(rows, fmt, EXPORT_COLUMNS)
+    if what == "traces" and fmt == "csv":
+        fail(EXIT_INPUT, "error: traces carry a sample array per row: use --format json, parquet or root")
+    table = read_table(store, what, sel)
+    rows = [
+        {k: (v.tolist() if hasattr(v, "tolist") else v) for k, v in row.items()} for row in table.rows
+    ]
+    return format_rows(rows, fmt, table.names)
+
+
+@click.command()
+@db_option
+@click.option("--what", type=click.Choice(["measurements", "series", "traces", "runs"]),
+              default="measurements", show_default=True,
+              help="Judged values; transfer-curve and S-curve points; captured traces; or runs.")
+@click.option("--run", "run_id", type=int, default=None)
+@click.option("--board", default=None)
+@click.option("--procedure", default=None)
+@click.option("--batch", default=None, help="Only the runs of this batch.")
+@click.option("--since", type=click.DateTime(), default=None, help="Runs started at or after (UTC).")
+@click.option("--until", type=click.DateTime(), default=None, help="Runs started before (UTC).")
+@click.option("--format", "fmt", type=click.Choice(FORMATS), default="csv", show_default=True)
+@click.option("--out", "out_file", type=click.Path(dir_okay=False), default=None,
+              help="Write to this file (needed for parquet and root; else stdout).")
+@handles_errors
+def export(db: str | None, what: str, run_id: int | None, board: str | None,
+           procedure: str | None, batch: str | None, since: Any, until: Any, fmt: str,
+           out_file: str | None) -> None:
+    """Results in open formats: one row per value (or curve point, trace, run) with its keys."""
+    from sequencer import compose
+    from sequencer.results.tables import Selection, read_table
+
+    if fmt in BINARY and not out_file:
+        raise click.UsageError(f"--format {fmt} writes a file: give --out FILE")
+    sel = Selection(run_id=run_id, board=board, procedure=procedure, batch=batch,
+                    since=_utc(since), until=_utc(until))
+    with compose.open_existing_store(db, env()) as store:
+        if fmt in BINARY:
+            from sequencer.results.formats import write_parquet, write_root
+
+            table = read_table(store, what, sel)
+            path = Path(out_file or "")
+            if fmt == "parquet":
+                write_parquet(table, path)
+            else:
+                write_root([table], path)
+            click.echo(f"{len(table.rows)} {what} row(s) written to {path}", err=True)
+            return
+        text = _text(store, what, fmt, sel)
+    if out_file:
+        Path(out_file).write_text(text, encoding="utf-8")
+    else:
+        click.echo(text, nl=False)

@@ -1,0 +1,158 @@
+"""Round trips: every open format read back with its own reference reader (pyarrow, pandas,
+uproot) and compared with what the store hands back, value for value."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+from scipy import optimize, stats
+
+from sequencer import results
+from sequencer.cli import attach_commands, cli
+from sequencer.errors import MissingExtra
+from sequencer.results.formats import need, read_root, write_parquet, write_root
+from sequencer.results.tables import Selection, read_table
+from sequencer.store import EXPORT_COLUMNS, export_rows
+
+pa = pytest.importorskip("pyarrow")
+pq = pytest.importorskip("pyarrow.parquet")
+pd = pytest.importorskip("pandas")
+uproot = pytest.importorskip("uproot")
+
+
+def _same(a, b) -> bool:
+    """Equal, NaN/None as missing on both sides, floats to the last bit."""
+    missing = lambda v: v is None or (isinstance(v, float) and math.isnan(v))  # noqa: E731
+    if missing(a) or missing(b):
+        return missing(a) and missing(b)
+    if isinstance(a, float) or isinstance(b, float):
+        return float(a).hex() == float(b).hex()
+    return a == b
+
+
+def _invoke(*args: str):
+    attach_commands()
+    return CliRunner().invoke(cli, list(args))
+
+
+def test_parquet_measurements_equal_the_store(recorded, out: Path) -> None:
+    url, store = recorded
+    path = out / "m.parquet"
+    result = _invoke("export", "--db", url, "--format", "parquet", "--out", str(path))
+    assert result.exit_code == 0, result.output
+    table = pq.read_table(path)  # reference reader: pyarrow
+    assert table.column_names == list(EXPORT_COLUMNS)  # DESIGN.md export columns, in order
+    assert table.schema.field("procedure_version").type == pa.string()  # versions stay text
+    assert str(table.schema.field("started_at").type) == "timestamp[us, tz=UTC]"
+    got = table.to_pylist()
+    want = export_rows(store)
+    assert len(got) == len(want) > 0
+    for g, w in zip(got, want, strict=True):
+        for col in EXPORT_COLUMNS:
+            if col == "started_at":
+                assert g[col].isoformat() == w[col]
+            else:
+                assert _same(g[col], w[col]), (col, g[col], w[col])
+
+
+def test_pandas_api_loads_a_batch_in_one_line(recorded) -> None:
+    url, store = recorded
+    df = results.measurements(url, batch="NR-B07")
+    runs_of_batch = {r.id for r in store.list_runs(batch="NR-B07")}
+    assert set(df["run_id"]) == runs_of_batch and len(runs_of_batch) == 2
+    want = [m for m in store.measurements() if m.run_id in runs_of_batch]
+    assert len(df) == len(want)
+    assert [float(v) if v == v else None for v in df["value"]] == [m.value for m in want]
+    assert df["procedure_version"].map(type).eq(str).all()
+    runs = results.runs(url)
+    verdicts = dict(zip(runs["board"], runs["verdict"], strict=True))
+    # NR-PA8-0002 channel 2 was recorded with a gain 30 % high: outside 0.9 … 1.1
+    assert verdicts == {"NR-PA8-0001": "pass", "NR-PA8-0002": "fail", "NR-PA8-0003": "pass"}
+    assert str(runs["started_at"].dtype).startswith("datetime64")
+
+
+def test_traces_round_trip_through_parquet_and_root(recorded, out: Path) -> None:
+    url, store = recorded
+    table = read_table(store, "traces", Selection(board="NR-PA8-0001"))
+    stored = store.traces(table.rows[0]["run_id"])
+    assert len(table.rows) == len(stored) > 0
+    write_parquet(table, out / "t.parquet")
+    write_root([table], out / "t.root")
+    back = pq.read_table(out / "t.parquet").to_pylist()
+    root = read_root(out / "t.root", "traces")
+    for i, t in enumerate(stored):
+        want = np.asarray(t.samples, dtype=np.float64)
+        assert np.array_equal(np.asarray(back[i]["samples_V"]), want)
+        assert np.array_equal(root["samples_V"][i], want)
+        assert back[i]["step"] == root["step"][i] == t.path
+        assert root["dt_s"][i] == t.dt_s and back[i]["n_samples"] == want.size
+        assert root["channel"][i] == back[i]["channel"] == t.labels.get("channel")
+
+
+def test_root_measurements_are_ttrees_equal_to_the_store(recorded, out: Path) -> None:
+    url, store = recorded
+    path = out / "m.root"
+    result = _invoke("export", "--db", url, "--run", "2", "--format", "root", "--out", str(path))
+    assert result.exit_code == 0, result.output
+    with uproot.open(path) as f:  # reference reader: uproot
+        assert f.classnames()["measurements;1"] == "TTree"
+    got = read_root(path, "measurements")
+    want = export_rows(store, run_id=2)
+    assert len(got["run_id"]) == len(want) > 0
+    for i, w in enumerate(want):
+        for col in EXPORT_COLUMNS:
+            g = got[col][i]
+            if col == "started_at":
+                assert g.isoformat() == w[col]
+            else:
+                assert _same(g, w[col]), (col, g, w[col])
+
+
+def test_exported_transfer_points_give_the_stored_gain(recorded) -> None:
+    """The series are the points the stored fit was made on: numpy's least-squares line through
+    the exported (amplitude, height) points reproduces the stored gain (numpy.polyfit as the
+    reference; the engine's fit is the same ordinary least squares)."""
+    url, store = recorded
+    df = results.series(url, run=1)
+    gains = {(m.channel, m.output): m.value for m in store.measurements(run_id=1) if m.quantity == "gain"}
+    transfer = df[df["series"] == "transfer"]
+    assert set(zip(transfer["channel"], transfer["output"], strict=True)) == set(gains)
+    for (ch, output), curve in transfer.groupby(["channel", "output"]):
+        slope, _ = np.polyfit(curve["x"].to_numpy(float), curve["y"].to_numpy(float), 1)
+        assert slope == pytest.approx(gains[(ch, output)], rel=1e-6)
+
+
+def test_exported_s_curve_points_give_the_stored_threshold(recorded) -> None:
+    """S-curve counts fitted with ε(thr) = norm.sf(thr, μ, σ) (REFERENCES.md "Threshold scans",
+    scipy as the reference) give back the stored 50 % threshold within a tenth of σ."""
+    url, store = recorded
+    df = results.series(url, run=1)
+    thresholds = {m.channel: m.value for m in store.measurements(run_id=1) if m.quantity == "threshold_mV"}
+    s_curves = df[df["series"] == "s_curve"]
+    assert set(s_curves["channel"]) == set(thresholds)
+    for ch, curve in s_curves.groupby("channel"):
+        x, k, n = curve["x"].to_numpy(float), curve["y"].to_numpy(float), int(curve["trials"].iloc[0])
+        assert ((k >= 0) & (k <= n)).all()
+        (mu, sigma), _ = optimize.curve_fit(lambda t, m, s: stats.norm.sf(t, m, s), x, k / n, p0=(x.mean(), 1.0))
+        assert mu == pytest.approx(thresholds[ch], abs=0.1 * abs(sigma))
+
+
+def test_export_filters_and_refusals(recorded, out: Path) -> None:
+    url, _ = recorded
+    text = _invoke("export", "--db", url, "--batch", "NR-B08").output
+    assert {line.split(",")[6] for line in text.splitlines()[1:]} == {"NR-PA8-0003"}
+    no_out = _invoke("export", "--db", url, "--format", "parquet")
+    assert no_out.exit_code == 2 and "--out" in no_out.output
+    csv_traces = _invoke("export", "--db", url, "--what", "traces", "--format", "csv")
+    assert csv_traces.exit_code == 2 and "sample array" in csv_traces.output
+    missing = _invoke("export", "--db", url, "--what", "series", "--run", "99")
+    assert missing.exit_code == 2 and "no run 99" in missing.output
+
+
+def test_a_missing_library_names_the_extra() -> None:
+    with pytest.raises(MissingExtra, match=r"pip install 'benchwright\[data\]'"):
+        need("benchwright_no_such_module", "data", "Parquet export")
