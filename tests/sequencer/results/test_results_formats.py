@@ -76,7 +76,7 @@ def test_pandas_api_loads_a_batch_in_one_line(recorded) -> None:
 
 
 def test_traces_round_trip_through_parquet_and_root(recorded, out: Path) -> None:
-    url, store = recorded
+    _url, store = recorded
     table = read_table(store, "traces", Selection(board="NR-PA8-0001"))
     stored = store.traces(table.rows[0]["run_id"])
     assert len(table.rows) == len(stored) > 0
