@@ -7,6 +7,7 @@ raise ValueError with a message that names the argument.
 
 from __future__ import annotations
 
+from .codedensity import CodeDensity, code_density, dnl_from_transitions
 from .coincidence import (
     DelayCurve,
     Efficiency,
@@ -28,6 +29,7 @@ from .photoelectrons import (
 )
 from .pulses import baseline_rms, pretrigger_baseline, pulse_height
 from .scurves import SCurveFit, fit_s_curve
+from .sinefit import SineFit, enob, estimate_frequency, fit_sine_3, fit_sine_4, sinad_db
 from .sipm import (
     BreakdownFit,
     Staircase,
@@ -43,6 +45,7 @@ __all__ = [
     "ELEMENTARY_CHARGE_C",
     "LANDAU_MODE",
     "BreakdownFit",
+    "CodeDensity",
     "DelayCurve",
     "Efficiency",
     "FingerFit",
@@ -50,6 +53,7 @@ __all__ = [
     "LineFit",
     "MeanPhotoelectrons",
     "SCurveFit",
+    "SineFit",
     "Staircase",
     "ThresholdCalibration",
     "TraceAverage",
@@ -59,6 +63,7 @@ __all__ = [
     "baseline_rms",
     "breakdown_at_reference",
     "breakdown_voltage",
+    "code_density",
     "coincidence_efficiency",
     "crosstalk_db",
     "crosstalk_lambda",
@@ -66,12 +71,17 @@ __all__ = [
     "crosstalk_percent",
     "crosstalk_probability",
     "dark_count_staircase",
+    "dnl_from_transitions",
     "enc_electrons",
+    "enob",
+    "estimate_frequency",
     "fit_delay_curve",
     "fit_finger_spectrum",
     "fit_landau_gauss",
     "fit_line",
     "fit_s_curve",
+    "fit_sine_3",
+    "fit_sine_4",
     "generalised_poisson_pmf",
     "inl_percent",
     "landau_gauss_pdf",
@@ -82,6 +92,7 @@ __all__ = [
     "pulse_height",
     "rice_nu0",
     "rise_time",
+    "sinad_db",
     "threshold_calibration",
     "transfer_curve",
     "zero_crossing_time",

@@ -68,8 +68,13 @@ def fit_finger_spectrum(
     upper = np.r_[edges[-1], 5.0 * gain0, gain0, gain0, np.full(npeaks, 2.0 * amp.size)]
     theta0 = np.clip(theta0, lower + 1e-12, upper - 1e-12)
     res = optimize.least_squares(
-        _deviance_residuals, theta0, bounds=(lower, upper), args=(edges, counts, npeaks),
-        jac=_deviance_jacobian, x_scale="jac", method="trf",
+        _deviance_residuals,
+        theta0,
+        bounds=(lower, upper),
+        args=(edges, counts, npeaks),
+        jac=_deviance_jacobian,
+        x_scale="jac",
+        method="trf",
     )
     theta = res.x
     model = _model(theta, edges, npeaks)
@@ -93,9 +98,19 @@ def fit_finger_spectrum(
     for arr in (areas, edges, counts, model):
         arr.setflags(write=False)
     return FingerFit(
-        gain=gain, gain_err=float(err[1]), pedestal=ped, pedestal_err=float(err[0]),
-        sigma0=s0, sigma1=s1, mu=mean.mu, mu_err=mu_err,
-        areas=areas, edges=edges, counts=counts, model=model, chi2_ndf=chi2 / ndf,
+        gain=gain,
+        gain_err=float(err[1]),
+        pedestal=ped,
+        pedestal_err=float(err[0]),
+        sigma0=s0,
+        sigma1=s1,
+        mu=mean.mu,
+        mu_err=mu_err,
+        areas=areas,
+        edges=edges,
+        counts=counts,
+        model=model,
+        chi2_ndf=chi2 / ndf,
     )
 
 
@@ -126,8 +141,13 @@ def _start(
 
 
 def _initial(
-    amp: np.ndarray, counts: np.ndarray, edges: np.ndarray, ped: float, gain: float,
-    sigma: float, npeaks: int,
+    amp: np.ndarray,
+    counts: np.ndarray,
+    edges: np.ndarray,
+    ped: float,
+    gain: float,
+    sigma: float,
+    npeaks: int,
 ) -> np.ndarray:
     k = np.floor((amp - ped) / gain + 0.5).clip(0, npeaks - 1).astype(int)
     areas = np.bincount(k, minlength=npeaks).astype(np.float64) + 1.0

@@ -64,8 +64,11 @@ def fit_landau_gauss(
     lower = np.array([lo - span, 1e-3 * width, 1e-3 * width, 0.1 * total])
     upper = np.array([hi + span, span, span, 10.0 * total])
     res = optimize.least_squares(
-        _residuals, np.clip(theta0, lower * 1.0001, upper * 0.9999), bounds=(lower, upper),
-        args=(edges, counts), x_scale="jac",
+        _residuals,
+        np.clip(theta0, lower * 1.0001, upper * 0.9999),
+        bounds=(lower, upper),
+        args=(edges, counts),
+        x_scale="jac",
     )
     theta = res.x
     model = _model(theta, edges)
@@ -78,8 +81,15 @@ def fit_landau_gauss(
     for arr in (edges, counts, model):
         arr.setflags(write=False)
     return LandauFit(
-        mpv=mpv, mpv_err=float(np.sqrt(max(mpv_var, 0.0))), scale=scale, scale_err=float(err[1]),
-        sigma=sigma, sigma_err=float(err[2]), edges=edges, counts=counts, model=model,
+        mpv=mpv,
+        mpv_err=float(np.sqrt(max(mpv_var, 0.0))),
+        scale=scale,
+        scale_err=float(err[1]),
+        sigma=sigma,
+        sigma_err=float(err[2]),
+        edges=edges,
+        counts=counts,
+        model=model,
         chi2_ndf=chi2 / max(counts.size - theta.size, 1),
     )
 

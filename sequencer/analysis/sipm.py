@@ -58,8 +58,12 @@ def breakdown_voltage(
     v_bd = -b / a
     var = (fit.intercept_err**2 + v_bd**2 * fit.slope_err**2 + 2.0 * v_bd * fit.covariance) / a**2
     return BreakdownFit(
-        v_bd=float(v_bd), v_bd_err=float(np.sqrt(max(var, 0.0))), slope=float(a),
-        slope_err=fit.slope_err, intercept=float(b), chi2_ndf=fit.chi2_ndf,
+        v_bd=float(v_bd),
+        v_bd_err=float(np.sqrt(max(var, 0.0))),
+        slope=float(a),
+        slope_err=fit.slope_err,
+        intercept=float(b),
+        chi2_ndf=fit.chi2_ndf,
     )
 
 
@@ -88,7 +92,11 @@ class Staircase:
 
 
 def dark_count_staircase(
-    thresholds_mV: ArrayLike, counts: ArrayLike, gate_s: float, *, gain_mV: float,
+    thresholds_mV: ArrayLike,
+    counts: ArrayLike,
+    gate_s: float,
+    *,
+    gain_mV: float,
     baseline_mV: float = 0.0,
 ) -> Staircase:
     """Rates at 0.5 and 1.5 p.e. from ``counts`` in ``gate_s`` seconds at each threshold.
@@ -117,8 +125,11 @@ def dark_count_staircase(
     ratio = three / half
     rel = np.sqrt(half_var / half**2 + three_var / three**2)
     return Staircase(
-        dcr_half=half, dcr_half_err=float(np.sqrt(half_var)), dcr_three_halves=three,
-        dcr_three_halves_err=float(np.sqrt(three_var)), crosstalk=float(ratio),
+        dcr_half=half,
+        dcr_half_err=float(np.sqrt(half_var)),
+        dcr_three_halves=three,
+        dcr_three_halves_err=float(np.sqrt(three_var)),
+        crosstalk=float(ratio),
         crosstalk_err=float(ratio * rel),
     )
 
