@@ -61,7 +61,7 @@ def test_ideal_converter_without_overdrive_has_flat_dnl():
 
 
 def test_refusals():
-    with pytest.raises(ValueError, match="0..255"):
+    with pytest.raises(ValueError, match=r"0\.\.255"):
         code_density(np.array([0, 5, 256]), 8)
     with pytest.raises(ValueError, match="integers"):
         code_density(np.array([0.0, 1.0]), 8)
