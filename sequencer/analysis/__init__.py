@@ -15,9 +15,10 @@ from .coincidence import (
     coincidence_efficiency,
     fit_delay_curve,
 )
-from .crosstalk import crosstalk_db, crosstalk_peak_percent, crosstalk_percent
+from .crosstalk import crosstalk_db, crosstalk_peak_percent, crosstalk_percent, crosstalk_reasons
 from .fingers import FingerFit, fit_finger_spectrum
 from .landau import LANDAU_MODE, LandauFit, fit_landau_gauss, landau_gauss_pdf
+from .levels import state_levels
 from .lines import LineFit, fit_line, inl_percent
 from .noise import ELEMENTARY_CHARGE_C, TraceAverage, average_traces, enc_electrons
 from .photoelectrons import (
@@ -27,7 +28,8 @@ from .photoelectrons import (
     generalised_poisson_pmf,
     mean_photoelectrons,
 )
-from .pulses import baseline_rms, pretrigger_baseline, pulse_height
+from .pulses import baseline_level, baseline_rms, pretrigger_baseline, pulse_height
+from .refusals import Measured, pulse_reasons, summarise
 from .scurves import SCurveFit, fit_s_curve
 from .sinefit import SineFit, enob, estimate_frequency, fit_sine_3, fit_sine_4, sinad_db
 from .sipm import (
@@ -38,7 +40,7 @@ from .sipm import (
     dark_count_staircase,
 )
 from .thresholds import ThresholdCalibration, noise_rate, rice_nu0, threshold_calibration
-from .timing import peaking_time, rise_time, zero_crossing_time
+from .timing import peaking_time, pulse_onset, rise_time, zero_crossing_time
 from .transfer import TransferFit, transfer_curve
 
 __all__ = [
@@ -52,6 +54,7 @@ __all__ = [
     "LandauFit",
     "LineFit",
     "MeanPhotoelectrons",
+    "Measured",
     "SCurveFit",
     "SineFit",
     "Staircase",
@@ -60,6 +63,7 @@ __all__ = [
     "TransferFit",
     "accidental_rate_hz",
     "average_traces",
+    "baseline_level",
     "baseline_rms",
     "breakdown_at_reference",
     "breakdown_voltage",
@@ -70,6 +74,7 @@ __all__ = [
     "crosstalk_peak_percent",
     "crosstalk_percent",
     "crosstalk_probability",
+    "crosstalk_reasons",
     "dark_count_staircase",
     "dnl_from_transitions",
     "enc_electrons",
@@ -90,9 +95,13 @@ __all__ = [
     "peaking_time",
     "pretrigger_baseline",
     "pulse_height",
+    "pulse_onset",
+    "pulse_reasons",
     "rice_nu0",
     "rise_time",
     "sinad_db",
+    "state_levels",
+    "summarise",
     "threshold_calibration",
     "transfer_curve",
     "zero_crossing_time",

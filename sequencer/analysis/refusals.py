@@ -1,0 +1,194 @@
+"""Refusing what cannot be measured: the reasons, the per-row checks and the ``Measured`` result.
+
+STYLE.md rule 20: a function that cannot measure returns NaN with a reason, never a plausible
+number.  The pulse functions of this package return NaN for the rows they refuse; the checks here
+say why, in words the verdict and the certificate print:
+
+* ``no pulse above N σ of the baseline noise`` — the excursion in the output's direction is not
+  larger than ``min_snr`` baseline RMS (a dead channel, an output not connected);
+* ``pulse of the wrong polarity`` — the largest excursion goes the other way (a negative-going
+  output analysed as positive, or the reverse): never reported as a dead channel;
+* ``clipped: N % of samples at the rail`` — samples sit at the digitizer's range limits, so neither
+  a height nor an RMS is the signal's (needs the rails, i.e. the input's range and offset);
+* ``flat-topped pulse`` — the top of the pulse is cut flat (saturated before the digitizer, or
+  clipped at a rail not given here): its height and the time of its peak are not the pulse's.
+
+Polarity is +1 for a positive-going output and -1 for a negative-going one (the board type declares
+it per output).  Signed analyses work on ``polarity · (trace - baseline)`` and give heights with the
+output's sign.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike
+
+DEFAULT_MIN_SNR = 5.0
+"""A pulse stands at least this many baseline RMS above its baseline.  The largest of 1000 samples
+of Gaussian noise exceeds 5 σ with probability ~6e-4 (normal tail 2.9e-7 per sample, standard)."""
+
+RAIL_TOLERANCE = 1e-3
+"""A sample within this fraction of the full-scale range of a rail counts as at the rail (a 10-bit
+step; a 12-bit converter's last codes fall inside it)."""
+
+MAX_CLIPPED_FRACTION = 0.0
+"""Any sample at a rail refuses the capture: a clipped sample has lost its value."""
+
+FLAT_TOP_MIN_SAMPLES = 5
+"""A top flat for at least this many samples, and for ``FLAT_TOP_MIN_FRACTION`` of the pulse's
+width above half height, is cut off (a smooth peak quantised by an averaging scope is flat over a
+few samples, a clipped one over a large part of its width)."""
+
+FLAT_TOP_MIN_FRACTION = 0.1
+
+WRONG_POLARITY = "pulse of the wrong polarity"
+FLAT_TOP = "flat-topped pulse (its top is cut off: saturated or clipped)"
+NON_FINITE = "NaN or inf samples in the trace"
+
+
+def no_pulse(min_snr: float = DEFAULT_MIN_SNR) -> str:
+    """The reason for a trace without a pulse above ``min_snr`` σ of its baseline noise."""
+    return f"no pulse above {min_snr:g} σ of the baseline noise"
+
+
+def clipped(fraction: float) -> str:
+    """The reason for a capture with ``fraction`` (0..1) of its samples at a rail."""
+    return f"clipped: {100.0 * fraction:.3g} % of samples at the rail"
+
+
+@dataclass(frozen=True)
+class Measured:
+    """A figure with its one-sigma uncertainty, or NaN and the reason it could not be measured.
+
+    ``reason`` is empty for a measured value.  ``uncertainty`` is None when unknown.
+    """
+
+    value: float
+    uncertainty: float | None = None
+    reason: str = ""
+
+    @property
+    def measured(self) -> bool:
+        return not self.reason and bool(np.isfinite(self.value))
+
+    @classmethod
+    def refused(cls, reason: str) -> Measured:
+        return cls(value=float("nan"), uncertainty=None, reason=reason)
+
+
+def check_polarity(polarity: object) -> int:
+    """``polarity`` as +1 or -1; ValueError otherwise."""
+    if isinstance(polarity, bool) or polarity not in (1, -1):
+        raise ValueError(
+            f"polarity must be +1 (positive-going) or -1 (negative-going), got {polarity!r}"
+        )
+    return int(polarity)  # type: ignore[call-overload]
+
+
+def check_rails(rails_mV: ArrayLike | None) -> tuple[float, float] | None:
+    """``(low, high)`` rails of the digitizer in mV, or None."""
+    if rails_mV is None:
+        return None
+    lo, hi = (float(v) for v in np.asarray(rails_mV, dtype=np.float64).reshape(2))
+    if not (np.isfinite(lo) and np.isfinite(hi) and lo < hi):
+        raise ValueError(f"rails_mV must be two finite numbers, low < high, got {rails_mV!r}")
+    return lo, hi
+
+
+def clipped_fraction(arr: np.ndarray, rails_mV: tuple[float, float]) -> np.ndarray:
+    """Per row, the fraction of samples within ``RAIL_TOLERANCE`` of full scale of either rail."""
+    lo, hi = rails_mV
+    tol = RAIL_TOLERANCE * (hi - lo)
+    at_rail = (arr <= lo + tol) | (arr >= hi - tol)
+    return at_rail.mean(axis=1, dtype=np.float64)
+
+
+def clipping_reasons(arr: np.ndarray, rails_mV: tuple[float, float] | None) -> list[str]:
+    """Per row: the clipping reason, or "" (no rails known: nothing to check)."""
+    if rails_mV is None:
+        return [""] * arr.shape[0]
+    frac = clipped_fraction(arr, rails_mV)
+    return [clipped(f) if f > MAX_CLIPPED_FRACTION else "" for f in frac]
+
+
+def pulse_reasons(
+    arr: np.ndarray,
+    n_baseline: int,
+    *,
+    polarity: int = 1,
+    min_snr: float = DEFAULT_MIN_SNR,
+    rails_mV: tuple[float, float] | None = None,
+    flat_top: bool = True,
+) -> list[str]:
+    """Per row of ``arr`` (2-D, mV): why no pulse can be measured on it, or "" when one can.
+
+    Checks in order: non-finite samples, clipping at the rails, the size and direction of the
+    largest excursion from the mean of the first ``n_baseline`` samples (against ``min_snr`` times
+    their RMS; a noise-free baseline accepts any excursion), then (``flat_top``) a flat top.  A
+    step's plateau is flat by nature: transition durations pass ``flat_top=False``.
+    """
+    if not min_snr >= 0.0:
+        raise ValueError(f"min_snr must be a number >= 0, got {min_snr!r}")
+    reasons = clipping_reasons(arr, rails_mV)
+    base = arr[:, :n_baseline].mean(axis=1, dtype=np.float64)
+    sigma = arr[:, :n_baseline].std(axis=1, dtype=np.float64)
+    signed = polarity * (arr - base[:, None])
+    up = signed.max(axis=1)
+    down = (-signed).max(axis=1)
+    scale = np.maximum(np.abs(up), np.abs(down))
+    floor = np.maximum(min_snr * sigma, 1e-9 * scale)
+    out = []
+    for i, clip in enumerate(reasons):
+        if not (np.isfinite(up[i]) and np.isfinite(down[i])):
+            out.append(NON_FINITE)
+        elif clip:
+            out.append(clip)
+        elif down[i] > floor[i] and down[i] > up[i]:
+            out.append(WRONG_POLARITY)
+        elif not up[i] > floor[i] or up[i] <= 0.0:
+            out.append(no_pulse(min_snr))
+        elif flat_top and _flat_top(signed[i], up[i]):
+            out.append(FLAT_TOP)
+        else:
+            out.append("")
+    return out
+
+
+def _flat_top(signed: np.ndarray, top: float) -> bool:
+    """True when the samples at the top (within 1e-6 of it) run for a large part of the pulse."""
+    at_top = signed >= top - 1e-6 * abs(top)
+    run = _longest_run(at_top)
+    width = int(np.count_nonzero(signed >= 0.5 * top))
+    return run >= max(FLAT_TOP_MIN_SAMPLES, FLAT_TOP_MIN_FRACTION * width)
+
+
+def _longest_run(mask: np.ndarray) -> int:
+    if not mask.any():
+        return 0
+    padded = np.concatenate(([False], mask, [False])).astype(np.int8)
+    edges = np.flatnonzero(np.diff(padded))
+    return int(np.max(edges[1::2] - edges[::2]))
+
+
+def summarise(values: ArrayLike, reasons: Sequence[str]) -> Measured:
+    """The mean of the rows measured and its standard error; NaN with the commonest reason when
+    no row was measured.  One measured row gives no uncertainty."""
+    vals = np.atleast_1d(np.asarray(values, dtype=np.float64))
+    ok = np.array([not r for r in reasons], dtype=bool) & np.isfinite(vals)
+    if not ok.any():
+        why = Counter(r for r in reasons if r).most_common(1)
+        return Measured.refused(why[0][0] if why else NON_FINITE)
+    good = vals[ok]
+    err = float(good.std(ddof=1) / np.sqrt(good.size)) if good.size > 1 else None
+    return Measured(value=float(good.mean()), uncertainty=err)
+
+
+def refuse_rows(values: np.ndarray, reasons: Sequence[str]) -> np.ndarray:
+    """``values`` (float64, one per row) with NaN where a row was refused."""
+    out = np.array(values, dtype=np.float64)
+    out[[bool(r) for r in reasons]] = np.nan
+    return out
