@@ -39,7 +39,9 @@ from drivers.transport import (
 )
 from drivers.yamlsafe import YamlMap, load_yaml, read_bounded
 
-ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch", "coincidence")
+ROLES = (
+    "pulser", "scope", "threshold", "counter", "bias", "switch", "coincidence", "mca", "temperature",
+)
 _TERMINATIONS = {"LF": "\n", "CR": "\r", "CRLF": "\r\n", "\\n": "\n", "\\r": "\r", "\\r\\n": "\r\n"}
 #: The pyvisa backends a bench file may name by itself (no native code chosen by a file).
 NAMED_VISA_BACKENDS = ("@py", "@ivi", "@sim")

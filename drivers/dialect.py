@@ -84,6 +84,13 @@ OPERATIONS: dict[str, dict[str, OpSpec]] = {
         "set_gate_time": _w("seconds"), "get_gate_time": _q("float"), "start": _w(),
         "counts": _q("csv"),
     },
+    "mca": {
+        "set_lower": _w("volts"), "get_lower": _q("float"), "set_upper": _w("volts"),
+        "get_upper": _q("float"), "set_bins": _w("count"), "set_events": _w("count"),
+        "set_channel": _w("channel"), "set_trigger_source": _w("source"), "start": _w(),
+        "fetch": _q("csv"), "outside": _q("csv"),
+    },
+    "temperature": {"measure": _q("float")},
 }
 # fmt: on
 

@@ -138,10 +138,10 @@ def recorded_bench(
 
 
 def sim_board_serial(sim_board: str) -> tuple[str, str]:
-    """(serial, board_type) written in a simulated board file."""
-    from drivers.sim import load_board
+    """(serial, board_type) written in a simulated board (or sensor) file."""
+    from drivers.sim import load_sim_file
 
-    board = load_board(sim_board)
+    board = load_sim_file(sim_board)
     return board.serial, getattr(board, "board_type", "")
 
 

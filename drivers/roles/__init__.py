@@ -3,9 +3,11 @@
 from drivers.roles.bias import BiasSupply
 from drivers.roles.coincidence import CoincidenceCounts, CoincidenceUnit
 from drivers.roles.counter import Counter
+from drivers.roles.mca import Mca
 from drivers.roles.pulser import Pulser
 from drivers.roles.scope import Scope
 from drivers.roles.switch import Switch
+from drivers.roles.temperature import Thermometer
 from drivers.roles.threshold import ThresholdDac
 
 #: Role name (as in the bench file) -> driver class.
@@ -17,6 +19,8 @@ ROLE_CLASSES = {
     "bias": BiasSupply,
     "switch": Switch,
     "coincidence": CoincidenceUnit,
+    "mca": Mca,
+    "temperature": Thermometer,
 }
 
 __all__ = [
@@ -25,8 +29,10 @@ __all__ = [
     "CoincidenceCounts",
     "CoincidenceUnit",
     "Counter",
+    "Mca",
     "Pulser",
     "Scope",
     "Switch",
+    "Thermometer",
     "ThresholdDac",
 ]

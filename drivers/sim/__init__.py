@@ -8,6 +8,7 @@ Imports only ``drivers.scpi.blocks``, ``drivers.errors`` and ``drivers.yamlsafe`
 from drivers.sim.bench import SimBench, serve, start_sim_bench
 from drivers.sim.board import ROLES, BoardSpec, ChannelSpec, FaultSpec, PulseSpec, ShaperSpec
 from drivers.sim.board_loader import board_from_mapping, load_board
+from drivers.sim.files import load_sim_file
 from drivers.sim.instrument import MAKER
 
 __all__ = [
@@ -21,6 +22,7 @@ __all__ = [
     "SimBench",
     "board_from_mapping",
     "load_board",
+    "load_sim_file",
     "serve",
     "start_sim_bench",
 ]

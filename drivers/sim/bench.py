@@ -22,13 +22,14 @@ import yaml
 from drivers.errors import TransportError
 from drivers.sim.bias import BiasSupply
 from drivers.sim.board import ROLES, BoardSpec
-from drivers.sim.board_loader import load_board
 from drivers.sim.coincidence import CoincidenceUnit
 from drivers.sim.counter import Counter
 from drivers.sim.digitizer import Digitizer
 from drivers.sim.faults import FaultRunner
+from drivers.sim.files import load_sim_file
 from drivers.sim.instrument import MAKER, SimInstrument
 from drivers.sim.pulser import Pulser
+from drivers.sim.sensor import SensorSpec
 from drivers.sim.server import InstrumentServer
 from drivers.sim.switch import Switch
 from drivers.sim.threshold import ThresholdDac
@@ -89,11 +90,11 @@ class SimBench:
             "max_ramp_V_per_s": max_ramp_V_per_s,
             "max_current_uA": max_current_uA,
         }
-        self.instruments = _instruments(board, clock)
+        self.instruments = self.make_instruments(board, clock)
         lock = threading.Lock()
         self._servers: dict[str, InstrumentServer] = {}
         try:
-            for index, role in enumerate(ROLES):
+            for index, role in enumerate(self.instruments):
                 port = port_base + index if port_base else 0
                 try:
                     server = InstrumentServer(
@@ -113,6 +114,12 @@ class SimBench:
         except BaseException:
             self.stop()
             raise
+
+    def make_instruments(
+        self, board: BoardSpec, clock: Callable[[], float]
+    ) -> dict[str, SimInstrument]:
+        """role -> instrument, in port order (a sensor bench plays other roles)."""
+        return _instruments(board, clock)
 
     @property
     def ports(self) -> dict[str, int]:
@@ -183,7 +190,7 @@ _BenchDumper.add_representer(str, _represent_str)
 
 
 def start_sim_bench(
-    board: BoardSpec | str | Path,
+    board: BoardSpec | SensorSpec | str | Path,
     *,
     host: str = "127.0.0.1",
     port_base: int = 0,
@@ -193,9 +200,13 @@ def start_sim_bench(
     max_current_uA: float = 100.0,
     clock: Callable[[], float] = time.monotonic,
 ) -> SimBench:
-    """Start the simulated instruments of ``board`` (a spec or a board file) in background threads."""
-    spec = board if isinstance(board, BoardSpec) else load_board(board)
-    return SimBench(
+    """Start the simulated instruments of ``board`` (a spec, a board file or a sensor file) in
+    background threads."""
+    spec = board if isinstance(board, BoardSpec | SensorSpec) else load_sim_file(board)
+    from drivers.sim.sensor_bench import SensorBench  # it builds on SimBench
+
+    kind = SensorBench if isinstance(spec, SensorSpec) else SimBench
+    return kind(
         spec,
         host=host,
         port_base=port_base,
@@ -236,7 +247,7 @@ def serve(
             if bench_out is not None:
                 bench.write_bench(bench_out)
             print(f"simulated bench for board {bench.board.serial}:")
-            for role in ROLES:
+            for role in bench.ports:
                 print(f"  {role:<9} {bench.address(role)}")
             if bench_out is not None:
                 print(f"bench file: {bench_out}")

@@ -16,8 +16,14 @@ from .coincidence import (
     fit_delay_curve,
 )
 from .crosstalk import crosstalk_db, crosstalk_peak_percent, crosstalk_percent, crosstalk_reasons
-from .fingers import FingerFit, fit_finger_spectrum
-from .landau import LANDAU_MODE, LandauFit, fit_landau_gauss, landau_gauss_pdf
+from .fingers import FingerFit, fit_finger_histogram, fit_finger_spectrum
+from .landau import (
+    LANDAU_MODE,
+    LandauFit,
+    fit_landau_gauss,
+    fit_landau_histogram,
+    landau_gauss_pdf,
+)
 from .levels import state_levels
 from .lines import LineFit, fit_line, inl_percent
 from .noise import ELEMENTARY_CHARGE_C, TraceAverage, average_traces, enc_electrons
@@ -81,8 +87,10 @@ __all__ = [
     "enob",
     "estimate_frequency",
     "fit_delay_curve",
+    "fit_finger_histogram",
     "fit_finger_spectrum",
     "fit_landau_gauss",
+    "fit_landau_histogram",
     "fit_line",
     "fit_s_curve",
     "fit_sine_3",

@@ -21,11 +21,15 @@ from .photoelectrons import mean_photoelectrons
 
 MIN_PULSES = 200
 MAX_PEAKS = 16
+MODEL_FLOOR = 1e-9
+"""Expected counts per bin below this are taken as this (an empty gap between peaks): the deviance
+and its slope stay finite."""
 
 
 @dataclass(frozen=True, eq=False)
 class FingerFit:
-    """Gain per photoelectron (input units per p.e., e.g. mV) and μ with one-sigma errors.
+    """Gain per photoelectron (input units per p.e., e.g. mV) and μ with one-sigma errors;
+    ``pedestal`` is the zero peak's position.
 
     ``areas`` are the fitted peak areas (pulses) from the zero peak up; ``edges``/``counts`` the
     histogram fitted and ``model`` the fitted counts per bin, for plots.
@@ -51,21 +55,53 @@ def fit_finger_spectrum(
 ) -> FingerFit:
     """Fit the finger spectrum of per-pulse ``amplitudes`` (one value per light pulse).
 
-    ``gain_guess`` (same units) seeds the peak spacing; without it the spacing is found from the
-    histogram's peaks.  Refuses a spectrum whose peaks cannot be resolved (fewer than two peaks, or
-    peaks closer than about two widths) instead of returning a spacing of noise.
+    Histograms them (``bins``, default about 2√N between 60 and 400) and calls
+    :func:`fit_finger_histogram`.
     """
     amp = as_points(amplitudes, "amplitudes", min_len=MIN_PULSES)
     nbins = int(bins) if bins is not None else int(np.clip(np.sqrt(amp.size) * 2, 60, 400))
     counts, edges = np.histogram(amp, bins=nbins)
-    counts = counts.astype(np.float64)
-    ped0, gain0, width0 = _start(amp, counts, edges, gain_guess)
-    npeaks = int(min(MAX_PEAKS, np.floor((amp.max() - ped0) / gain0 + 0.5) + 1))
+    return fit_finger_histogram(edges, counts, gain_guess=gain_guess)
+
+
+def fit_finger_histogram(
+    edges: ArrayLike,
+    counts: ArrayLike,
+    *,
+    gain_guess: float | None = None,
+    total: float | None = None,
+) -> FingerFit:
+    """Fit the finger spectrum histogrammed as ``counts`` between ``edges`` (a pulse-height
+    analyser's output).  ``total`` is the number of light pulses (default: the sum of counts; give it
+    when some pulses fell outside the histogram, since μ = -ln(N₀/N) needs every pulse).
+
+    ``gain_guess`` (same units as the edges) seeds the peak spacing; without it the spacing is found
+    from the histogram's peaks.  Refuses a spectrum whose peaks cannot be resolved (fewer than two
+    peaks, or peaks closer than about two widths) instead of returning a spacing of noise.
+    """
+    edges_v = as_points(edges, "edges", min_len=17)
+    counts_v = as_points(counts, "counts", min_len=16)
+    if edges_v.size != counts_v.size + 1 or np.any(np.diff(edges_v) <= 0):
+        raise ValueError("edges must rise and be one longer than counts")
+    if np.any(counts_v < 0):
+        raise ValueError("counts must be >= 0")
+    n_pulses = float(counts_v.sum()) if total is None else float(total)
+    if counts_v.sum() < MIN_PULSES or n_pulses < counts_v.sum():
+        raise ValueError(f"need at least {MIN_PULSES} pulses in the histogram and total >= its sum")
+    return _fit(edges_v, counts_v, n_pulses, gain_guess)
+
+
+def _fit(
+    edges: np.ndarray, counts: np.ndarray, n_pulses: float, gain_guess: float | None
+) -> FingerFit:
+    ped0, gain0, width0 = _start(counts, edges, gain_guess)
+    top = float(edges[np.flatnonzero(counts)[-1] + 1])
+    npeaks = int(min(MAX_PEAKS, np.floor((top - ped0) / gain0 + 0.5) + 1))
     if npeaks < 2:
         raise ValueError("only the zero peak is present: no photoelectron peak to measure the gain")
-    theta0 = _initial(amp, counts, edges, ped0, gain0, width0, npeaks)
+    theta0 = _initial(counts, edges, ped0, gain0, width0, npeaks)
     lower = np.r_[edges[0] - gain0, 0.2 * gain0, 1e-6 * gain0, 0.0, np.zeros(npeaks)]
-    upper = np.r_[edges[-1], 5.0 * gain0, gain0, gain0, np.full(npeaks, 2.0 * amp.size)]
+    upper = np.r_[edges[-1], 5.0 * gain0, gain0, gain0, np.full(npeaks, 2.0 * n_pulses)]
     theta0 = np.clip(theta0, lower + 1e-12, upper - 1e-12)
     res = optimize.least_squares(
         _deviance_residuals,
@@ -87,7 +123,7 @@ def fit_finger_spectrum(
             "the spacing; raise the bias or average less noise)"
         )
     areas = theta[4:].copy()
-    mean = mean_photoelectrons(areas[0], amp.size)
+    mean = mean_photoelectrons(areas[0], n_pulses)
     # The fitted area's variance is its Poisson part (A₀, already in the binomial error, with N
     # fixed) plus what the overlap with peak 1 adds: keep the binomial error and add the excess.
     excess = max(float(cov[4, 4]) - float(areas[0]), 0.0) / float(areas[0]) ** 2
@@ -95,6 +131,7 @@ def fit_finger_spectrum(
     used = model > 0
     chi2 = float(np.sum(_deviance_residuals(theta, edges, counts, npeaks) ** 2))
     ndf = max(int(np.count_nonzero(used)) - theta.size, 1)
+    edges, counts = edges.copy(), counts.copy()
     for arr in (areas, edges, counts, model):
         arr.setflags(write=False)
     return FingerFit(
@@ -115,7 +152,7 @@ def fit_finger_spectrum(
 
 
 def _start(
-    amp: np.ndarray, counts: np.ndarray, edges: np.ndarray, gain_guess: float | None
+    counts: np.ndarray, edges: np.ndarray, gain_guess: float | None
 ) -> tuple[float, float, float]:
     width = edges[1] - edges[0]
     centres = 0.5 * (edges[1:] + edges[:-1])
@@ -135,22 +172,22 @@ def _start(
                 "(raise the light, the bias, or give gain_guess)"
             )
         gain = float(np.median(np.diff(centres[peaks[: min(peaks.size, 6)]])))
-    core = np.abs(amp - ped) < 0.3 * gain
-    sigma = float(np.std(amp[core])) if np.count_nonzero(core) > 10 else 0.15 * gain
+    core = np.abs(centres - ped) < 0.3 * gain
+    weight = counts[core]
+    if weight.sum() > 10:
+        mean = float(weight @ centres[core]) / float(weight.sum())
+        sigma = float(np.sqrt(weight @ (centres[core] - mean) ** 2 / weight.sum()))
+    else:
+        sigma = 0.15 * gain
     return ped, gain, max(sigma, width)
 
 
 def _initial(
-    amp: np.ndarray,
-    counts: np.ndarray,
-    edges: np.ndarray,
-    ped: float,
-    gain: float,
-    sigma: float,
-    npeaks: int,
+    counts: np.ndarray, edges: np.ndarray, ped: float, gain: float, sigma: float, npeaks: int
 ) -> np.ndarray:
-    k = np.floor((amp - ped) / gain + 0.5).clip(0, npeaks - 1).astype(int)
-    areas = np.bincount(k, minlength=npeaks).astype(np.float64) + 1.0
+    centres = 0.5 * (edges[1:] + edges[:-1])
+    k = np.floor((centres - ped) / gain + 0.5).clip(0, npeaks - 1).astype(int)
+    areas = np.bincount(k, weights=counts, minlength=npeaks) + 1.0
     return np.r_[ped, gain, sigma, 0.3 * sigma, areas]
 
 
@@ -190,7 +227,7 @@ def _deviance_residuals(
 ) -> np.ndarray:
     """Signed square roots of the Poisson deviance per bin: ½Σr² is the negative log-likelihood
     up to a constant, so least squares on r is the maximum-likelihood fit."""
-    m = np.maximum(_model(theta, edges, npeaks), 1e-300)
+    m = np.maximum(_model(theta, edges, npeaks), MODEL_FLOOR)
     return _signed_root(counts, m)[0]
 
 
@@ -198,11 +235,13 @@ def _deviance_jacobian(
     theta: np.ndarray, edges: np.ndarray, counts: np.ndarray, npeaks: int
 ) -> np.ndarray:
     model, jac = _model_and_jacobian(theta, edges, npeaks)
-    m = np.maximum(model, 1e-300)
+    m = np.maximum(model, MODEL_FLOOR)
     r, dev = _signed_root(counts, m)
-    # dr/dm = (1 - n/m)/r; where the deviance vanishes its limit is -1/√m.
+    # dr/dm = (1 - n/m)/r; where the deviance vanishes its limit is -1/√m.  Where the model sits on
+    # its floor (empty gaps between well-separated peaks) it does not move with the parameters.
     small = dev < 1e-12
     drdm = np.where(small, -1.0 / np.sqrt(m), (1.0 - counts / m) / np.where(small, 1.0, r))
+    drdm[model <= MODEL_FLOOR] = 0.0
     return jac * drdm[:, None]
 
 

@@ -48,24 +48,35 @@ def fit_landau_gauss(
 ) -> LandauFit:
     """Fit Landau ⊗ Gauss to per-event ``values`` (charges, amplitudes) inside ``value_range``
     (default: 1st to 97th percentile, so a threshold edge and the long tail's sparse end are left
-    out).  Refuses fewer than 100 events in range."""
+    out); histograms them and calls :func:`fit_landau_histogram`."""
     v = as_points(values, "values", min_len=MIN_EVENTS)
     lo, hi = value_range if value_range is not None else tuple(np.percentile(v, [1.0, 97.0]))
     if not (np.isfinite(lo) and np.isfinite(hi)) or hi <= lo:
         raise ValueError(f"value_range must be finite with low < high, got {(lo, hi)}")
     counts, edges = np.histogram(v, bins=int(bins), range=(float(lo), float(hi)))
-    counts = counts.astype(np.float64)
+    return fit_landau_histogram(edges, counts)
+
+
+def fit_landau_histogram(edges: ArrayLike, counts: ArrayLike) -> LandauFit:
+    """Fit Landau ⊗ Gauss to a histogram (``counts`` between ``edges``), normalised over its range
+    (so a threshold below it or a tail beyond it does not bias the shape).  Refuses fewer than 100
+    events."""
+    edges = as_points(edges, "edges", min_len=6).copy()
+    counts = as_points(counts, "counts", min_len=5).copy()
+    if edges.size != counts.size + 1 or np.any(np.diff(edges) <= 0) or np.any(counts < 0):
+        raise ValueError("edges must rise and be one longer than counts; counts must be >= 0")
+    lo, hi = float(edges[0]), float(edges[-1])
     total = float(counts.sum())
     if total < MIN_EVENTS:
         raise ValueError(f"only {int(total)} events inside {lo:g}..{hi:g}; need {MIN_EVENTS}")
-    theta0 = _start(v[(v >= lo) & (v <= hi)], edges, counts)
+    theta0 = _start(edges, counts)
     width = float(edges[1] - edges[0])
     span = float(hi - lo)
     lower = np.array([lo - span, 1e-3 * width, 1e-3 * width, 0.1 * total])
     upper = np.array([hi + span, span, span, 10.0 * total])
     res = optimize.least_squares(
         _residuals,
-        np.clip(theta0, lower * 1.0001, upper * 0.9999),
+        np.clip(theta0, lower + 1e-6 * (upper - lower), upper - 1e-6 * (upper - lower)),
         bounds=(lower, upper),
         args=(edges, counts),
         x_scale="jac",
@@ -131,10 +142,11 @@ def _residuals(theta: np.ndarray, edges: np.ndarray, counts: np.ndarray) -> np.n
     return np.sign(counts - m) * np.sqrt(np.maximum(dev, 0.0))
 
 
-def _start(v: np.ndarray, edges: np.ndarray, counts: np.ndarray) -> np.ndarray:
+def _start(edges: np.ndarray, counts: np.ndarray) -> np.ndarray:
     centres = 0.5 * (edges[1:] + edges[:-1])
     peak = float(centres[int(np.argmax(np.convolve(counts, np.ones(3) / 3, mode="same")))])
-    q25, q50 = np.percentile(v, [25.0, 50.0])
+    cdf = np.concatenate([[0.0], np.cumsum(counts)]) / counts.sum()
+    q25, q50 = np.interp([0.25, 0.5], cdf, edges)
     scale = max(float(q50 - q25) / 1.5, edges[1] - edges[0])
     return np.array([peak - scale * LANDAU_MODE, scale, 0.5 * scale, float(counts.sum())])
 

@@ -24,8 +24,15 @@ def branch_cells(rng: np.random.Generator, seeds: np.ndarray, lam: float) -> np.
 
 
 def finger_amplitudes(
-    rng: np.random.Generator, *, n: int = 2000, mu: float = 1.2, gain: float = 10.0,
-    pedestal: float = 0.5, sigma0: float = 1.2, sigma1: float = 0.6, lam: float = 0.1,
+    rng: np.random.Generator,
+    *,
+    n: int = 2000,
+    mu: float = 1.2,
+    gain: float = 10.0,
+    pedestal: float = 0.5,
+    sigma0: float = 1.2,
+    sigma1: float = 0.6,
+    lam: float = 0.1,
 ) -> np.ndarray:
     k = fired_cells(rng, n, mu, lam)
     return pedestal + k * gain + rng.normal(0.0, np.sqrt(sigma0**2 + k * sigma1**2))
