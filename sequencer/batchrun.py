@@ -33,10 +33,12 @@ from sequencer.procedure import (
     Plan,
     Procedure,
     board_info,
+    board_type_input,
+    board_type_of_input,
     build_plan,
-    load_board_type,
     load_procedure,
 )
+from sequencer.procedure.boards import board_type_path
 
 Mount = Literal["go", "skip", "stop"]
 BoardStatus = Literal["passed", "failed", "aborted", "skipped", "not run"]
@@ -200,7 +202,6 @@ class _BatchRun:
             batch=self.batch.name,
             progress=opts.progress,
             handle_signals=opts.handle_signals,
-            procedure_files=self.procedure.source_files(),
         )
         sim = str(sim_board_path(board, opts.sim_dir)) if opts.sim_dir else None
         try:
@@ -218,8 +219,9 @@ class _BatchRun:
         return _outcome(self.store, board.serial, result.run_id, "passed"), False
 
     def _plan(self, board: BatchBoard) -> Plan:
-        info = board_info(load_board_type(board.board_type), board.serial)
-        return build_plan(self.procedure, info, overrides=self.options.overrides)
+        board_in = board_type_input(board.board_type)
+        info = board_info(board_type_of_input(board_in, file=str(board_type_path(board.board_type))), board.serial)
+        return build_plan(self.procedure, info, overrides=self.options.overrides, board_input=board_in)
 
     def _aborted_run(self, serial: str) -> int | None:
         runs = [r for r in self.store.runs_of_batch(self.batch.name) if r.board == serial]

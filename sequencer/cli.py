@@ -133,14 +133,18 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
         allow_visa_library: tuple[str, ...]) -> None:
     """Run a procedure on a bench (or the simulator) for one board and record everything."""
     from sequencer import compose
-    from sequencer.procedure import load_procedure, load_procedure_text
+    from sequencer.procedure import load_procedure
 
+    if procedure and repeat is not None:
+        raise click.UsageError("give PROCEDURE or --repeat RUN_ID, not both: --repeat runs the texts "
+                               "stored with that run")
+    warn = lambda line: click.echo(f"warning: {line}", err=True)  # noqa: E731
     opener = compose.open_store if repeat is None else compose.open_existing_store
     with opener(db, env()) as store:
         record = compose.check_store(store, repeat) if repeat is not None else None
+        stored = store.run_inputs(repeat) if repeat is not None else ()
         if record is not None:
-            proc = load_procedure_text(record.procedure_text, record.procedure_path or f"run-{repeat}.yaml",
-                                       files=getattr(record, "procedure_files", None) or None)
+            proc = compose.stored_procedure(record, stored, warn)
         elif procedure:
             proc = load_procedure(procedure)
         else:
@@ -151,13 +155,13 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
             serial = record.board
         if not serial:
             raise click.UsageError("give --board SERIAL")
-        plan_ = compose.plan_for(proc, serial)
+        plan_ = compose.plan_for(proc, serial, stored=stored)
         request = compose.RunRequest(
             operator=operator, unattended=yes, acknowledge=acknowledge_on_terminal(),
             prompt=prompt_on_terminal(), repeat_of=repeat, progress=True,
-            log_path=Path(log_path) if log_path else None, procedure_files=proc.source_files(),
+            log_path=Path(log_path) if log_path else None,
             previous_instruments=tuple(record.instruments) if record is not None else (),
-            warn=lambda line: click.echo(f"warning: {line}", err=True),
+            warn=warn,
         )
         if record is not None and not (bench_path or sim_board):
             bench_cm = compose.recorded_bench(record.id, record.bench_text,
@@ -182,16 +186,15 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
            operator: str, yes: bool, allow_visa_library: tuple[str, ...]) -> None:
     """Continue an interrupted or aborted run from its last completed step."""
     from sequencer import compose
-    from sequencer.procedure import load_procedure_text
 
     with compose.open_existing_store(db, env()) as store:
         store.mark_stale_runs_interrupted()
         record = compose.check_store(store, run_id)
         if record.status == "completed":
             raise StoreError(f"run {run_id} is completed; a completed run is never resumed (use run --repeat)")
-        proc = load_procedure_text(record.procedure_text, record.procedure_path or f"run-{run_id}.yaml",
-                                   files=getattr(record, "procedure_files", None) or None)
-        plan_ = compose.plan_for(proc, record.board, board_type=record.board_type or None)
+        stored = store.run_inputs(run_id)
+        proc = compose.stored_procedure(record, stored, lambda line: click.echo(f"warning: {line}", err=True))
+        plan_ = compose.plan_for(proc, record.board, board_type=record.board_type or None, stored=stored)
         request = compose.RunRequest(operator=operator or record.operator, unattended=yes,
                                      acknowledge=acknowledge_on_terminal(), prompt=prompt_on_terminal())
         if bench_path or sim_board:

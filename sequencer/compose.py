@@ -15,6 +15,7 @@ from pathlib import Path
 from typing import Any
 
 from drivers.bench import BenchSpec, bench_from_mapping, load_bench, open_bench
+from drivers.dialect import shipped_dialect_path
 from sequencer.engine import (
     Caution,
     Runner,
@@ -28,7 +29,17 @@ from sequencer.engine.preflight import hazard_steps
 from sequencer.engine.progress import ProgressDisplay
 from sequencer.errors import ConfigError, Location, Problem, ProcedureError, StoreError
 from sequencer.events import Event, RunFinished
-from sequencer.procedure import Plan, Procedure, board_info, build_plan, load_board_type
+from sequencer.inputs import RunInput, is_released, loader_files, of_kind, text_digest
+from sequencer.procedure import (
+    Plan,
+    Procedure,
+    board_info,
+    board_type_input,
+    board_type_of_input,
+    build_plan,
+    load_procedure_text,
+)
+from sequencer.procedure.boards import board_type_path
 from sequencer.store import Store, default_url
 
 
@@ -46,7 +57,6 @@ class RunRequest:
     log_path: Path | None = None
     handle_signals: bool = True
     extra_subscribers: Sequence[Callable[[Event], None]] = field(default_factory=tuple)
-    procedure_files: Mapping[str, str] = field(default_factory=dict)
     previous_instruments: Sequence[Any] = ()     # of the run being repeated (--repeat)
     warn: Callable[[str], None] | None = None
 
@@ -70,14 +80,88 @@ def open_existing_store(db: str | None, env: Mapping[str, str]) -> Store:
     return Store.open(db or default_url(env), create=False)
 
 
-def plan_for(procedure: Procedure, serial: str, *, board_type: str | None = None) -> Plan:
-    """The plan of ``procedure`` for the board ``serial`` of the procedure's (or the given) type."""
-    type_name = board_type or procedure.board_type
-    if not type_name:
-        raise ProcedureError(
-            [Problem(procedure.location, "the procedure names no board_type; cannot plan")]
-        )
-    return build_plan(procedure, board_info(load_board_type(type_name), serial))
+def plan_for(
+    procedure: Procedure,
+    serial: str,
+    *,
+    board_type: str | None = None,
+    stored: Sequence[RunInput] = (),
+) -> Plan:
+    """The plan of ``procedure`` for the board ``serial`` of the procedure's (or the given) type.
+
+    ``stored`` are the inputs of a recorded run (``--repeat``, ``resume``): its board-type text is
+    used instead of today's file.
+    """
+    kept = of_kind(stored, "board_type")
+    if kept:
+        board_in = kept[0]
+        template = board_type_of_input(board_in)
+    else:
+        type_name = board_type or procedure.board_type
+        if not type_name:
+            raise ProcedureError(
+                [Problem(procedure.location, "the procedure names no board_type; cannot plan")]
+            )
+        board_in = board_type_input(type_name)
+        template = board_type_of_input(board_in, file=str(board_type_path(type_name)))
+    return build_plan(procedure, board_info(template, serial), board_input=board_in)
+
+
+def stored_procedure(record: Any, inputs: Sequence[RunInput], warn: Callable[[str], None] | None) -> Procedure:
+    """The procedure exactly as a recorded run used it: its text, fragments and limit set as stored.
+
+    A run recorded before the inputs were kept (schema 0003) stored only the procedure file; its
+    fragments and limits are read from today's disk, with a warning.
+    """
+    path = record.procedure_path or f"run-{record.id}.yaml"
+    if not inputs:
+        if warn is not None:
+            warn(f"run {record.id} was recorded without its fragments and limit set: they are read "
+                 "from today's files, so the rerun may differ")
+        return load_procedure_text(record.procedure_text, path)
+    return load_procedure_text(record.procedure_text, path, files=loader_files(inputs))
+
+
+def bench_inputs(spec: BenchSpec) -> tuple[RunInput, ...]:
+    """The bench file (as read, or the text recorded for a simulated bench) and each role's dialect."""
+    found: list[RunInput] = []
+    if spec.text:
+        found.append(RunInput("bench", "bench", spec.text))
+    for role, inst in sorted(spec.instruments.items()):
+        name = str(inst.dialect)
+        is_path = name.endswith((".yaml", ".yml")) or "/" in name or "\\" in name
+        path = Path(name) if is_path else shipped_dialect_path(name)
+        try:
+            text = path.read_text(encoding="utf-8")
+        except (OSError, UnicodeDecodeError) as exc:
+            raise ConfigError(
+                [Problem(Location(spec.source or "<bench>", 1, 1), f"{role}: cannot read dialect {path}: {exc}")]
+            ) from None
+        found.append(RunInput("dialect", role, text))
+    return tuple(found)
+
+
+def check_text_unchanged(store: Store, plan: Plan) -> str:
+    """Compare the procedure's text with the texts stored under its name and version.
+
+    Same text, or none stored: "" (nothing to say).  Another text under a released version
+    (``sequencer.inputs.is_released``): refused, bump the version.  Under a draft version: the caveat
+    to record with the run.
+    """
+    known = store.text_digests(plan.meta.name, plan.meta.version)
+    digest = text_digest(plan.inputs)
+    if not known or digest in known:
+        return ""
+    first = min(known.values())
+    name, version = plan.meta.name, plan.meta.version
+    if is_released(version):
+        at = Location(plan.source_path or "<procedure>", 1, 1)
+        raise ProcedureError([Problem(at, (
+            f"procedure {name} version {version} differs from the text stored with run {first} "
+            "(the file or an included fragment changed): bump the version"
+        ))])
+    return (f"procedure {name} version {version} (a draft) differs from the text stored with run "
+            f"{first} under the same name and version")
 
 
 @contextlib.contextmanager
@@ -174,9 +258,11 @@ def execute(
             info = describe_run(
                 plan, bench, operator=request.operator, batch=request.batch, repeat_of=request.repeat_of
             )
-            if request.procedure_files:
-                info = replace(info, procedure_files=dict(request.procedure_files))
-            info = replace(info, bench_text=spec.text)
+            caveat = check_text_unchanged(store, plan)
+            if caveat and request.warn is not None:
+                request.warn(caveat)
+            info = replace(info, bench_text=spec.text, inputs=plan.inputs + bench_inputs(spec),
+                           caveats=info.caveats + ((caveat,) if caveat else ()))
             if request.warn is not None:
                 for line in identity_changes(request.previous_instruments, info.instruments):
                     request.warn(line)

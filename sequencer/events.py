@@ -23,6 +23,8 @@ from typing import Any, Literal
 
 import numpy as np
 
+from sequencer.inputs import RunInput
+
 Verdict = Literal["pass", "fail", "info"]
 StepStatus = Literal["completed", "failed", "skipped", "replayed"]
 RunStatus = Literal["running", "completed", "aborted", "interrupted"]
@@ -58,7 +60,8 @@ class RunInfo:
     instruments: tuple[InstrumentInfo, ...] = ()
     parameters: Mapping[str, Any] = field(default_factory=dict)
     bench_text: str = ""
-    procedure_files: Mapping[str, str] = field(default_factory=dict)   # included files: relative path -> text
+    inputs: tuple[RunInput, ...] = ()   # every text the run used (sequencer.inputs), stored with it
+    caveats: tuple[str, ...] = ()       # printed on every certificate of the run (changed text, overrides)
     batch: str = ""
     repeat_of: int | None = None
 

@@ -50,4 +50,5 @@ def describe_run(
         parameters=dict(plan.parameters),
         batch=batch,
         repeat_of=repeat_of,
+        inputs=plan.inputs,
     )

@@ -23,7 +23,7 @@ from drivers.errors import Problem
 from sequencer.errors import ProcedureError
 
 from .batch import Batch, BatchBoard, load_batch
-from .boards import board_info, load_board_type
+from .boards import board_info, board_type_input, board_type_of_input, load_board_type
 from .expand import build_plan
 from .formatting import format_plan
 from .limits import QUANTITY_UNITS, load_limits
@@ -75,6 +75,8 @@ __all__ = [
     "Quantity",
     "UnitError",
     "board_info",
+    "board_type_input",
+    "board_type_of_input",
     "build_plan",
     "format_plan",
     "load_batch",

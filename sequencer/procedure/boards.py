@@ -25,6 +25,7 @@ import procedures
 from drivers.errors import Location, Problem
 from drivers.yamlsafe import YamlMap, load_yaml, read_bounded
 from sequencer.errors import ProcedureError
+from sequencer.inputs import RunInput
 
 from .checking import check_keys, require_keys
 from .plan_model import BoardInfo
@@ -148,3 +149,26 @@ def board_info(board_type: BoardInfo | str | Path, serial: str) -> BoardInfo:
     """The board under test: its type (a template, a name or a file) with ``serial`` filled in."""
     template = board_type if isinstance(board_type, BoardInfo) else load_board_type(board_type)
     return dataclasses.replace(template, serial=serial)
+
+
+def board_type_input(name_or_path: str | Path) -> RunInput:
+    """The board-type file's text as a run input (kind ``board_type``, named by the type as given)."""
+    path = board_type_path(name_or_path)
+    try:
+        raw = read_bounded(path)
+    except OSError as exc:
+        raise ProcedureError(
+            [Problem(Location(str(path), 1, 1), f"cannot read board-type file: {exc.strerror}")]
+        ) from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise ProcedureError(
+            [Problem(Location(str(path), 1, 1), f"board-type file is not UTF-8 ({exc.reason})")]
+        ) from None
+    return RunInput("board_type", str(name_or_path), text)
+
+
+def board_type_of_input(given: RunInput, *, file: str | None = None) -> BoardInfo:
+    """The :class:`BoardInfo` template of a board-type text (read once, or as a run stored it)."""
+    return parse_board_type(given.text, file or f"<board type {given.name} as stored>")

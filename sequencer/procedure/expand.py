@@ -9,13 +9,13 @@ second unnamed capture in the same list).  A duplicate path is a located error.
 from __future__ import annotations
 
 import dataclasses
-import hashlib
 import itertools
 from collections.abc import Mapping
 from typing import Any
 
 from drivers.errors import Problem
 from sequencer.errors import ProcedureError
+from sequencer.inputs import RunInput, procedure_digest
 
 from .checking import suggest
 from .convert import ConversionError, convert_arg
@@ -327,9 +327,17 @@ def _parameters(
 
 
 def build_plan(
-    procedure: Procedure, board: BoardInfo, *, overrides: Mapping[str, Any] | None = None
+    procedure: Procedure,
+    board: BoardInfo,
+    *,
+    overrides: Mapping[str, Any] | None = None,
+    board_input: RunInput | None = None,
 ) -> Plan:
-    """The ordered, fully resolved steps of ``procedure`` for ``board``; :class:`ProcedureError` if not."""
+    """The ordered, fully resolved steps of ``procedure`` for ``board``; :class:`ProcedureError` if not.
+
+    ``board_input`` is the board-type file's text (kind ``board_type``): it joins the procedure's
+    files in the plan's inputs and in ``sha256`` (``sequencer.inputs.procedure_digest``).
+    """
     problems: list[Problem] = []
     given = {}
     for key, value in (overrides or {}).items():
@@ -375,6 +383,7 @@ def build_plan(
         max_ramp_V_per_s=max((a.get("rate", 0.0) for a in ramps), default=0.0),
     )
     parameters = {p.name: _plain(env[p.name]) for p in procedure.parameters} if env else {}
+    inputs = procedure.inputs() + ((board_input,) if board_input is not None else ())
     return Plan(
         meta=meta,
         board=board,
@@ -383,7 +392,8 @@ def build_plan(
         parameters=parameters,
         source_text=procedure.source_text,
         source_path=procedure.source_path,
-        sha256=hashlib.sha256(procedure.source_text.encode("utf-8")).hexdigest(),
+        sha256=procedure_digest(inputs),
+        inputs=inputs,
     )
 
 

@@ -68,6 +68,7 @@ class _Reader:
         self.root_dir = posixpath.dirname(root_path.replace("\\", "/"))
         self.given = files
         self.read: dict[str, str] = {}
+        self.limits_keys: set[str] = set()
 
     def display(self, key: str) -> str:
         if key.startswith(LIMITS_BY_NAME):
@@ -259,6 +260,7 @@ class _Loader:
         by_name = not ref.endswith((".yaml", ".yml")) and "/" not in ref
         key = f"{LIMITS_BY_NAME}{ref}.yaml" if by_name else _key_for(ref, including_key)
         file = self.reader.display(key)
+        self.reader.limits_keys.add(key)
         try:
             return parse_limits_text(self.reader.text(key), file)
         except OSError as exc:
@@ -322,7 +324,11 @@ def load_procedure_text(
     if problems:
         raise ProcedureError(sorted(dict.fromkeys(problems), key=_order))
     return dataclasses.replace(
-        procedure, source_text=text, source_path=path, files=dict(reader.read)
+        procedure,
+        source_text=text,
+        source_path=path,
+        files=dict(reader.read),
+        limits_files=tuple(sorted(reader.limits_keys & set(reader.read))),
     )
 
 

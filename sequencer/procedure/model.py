@@ -20,6 +20,7 @@ from dataclasses import dataclass, field
 from typing import Literal as TypingLiteral
 
 from drivers.errors import Location
+from sequencer.inputs import RunInput, from_files
 
 from .plan_model import Limit
 from .values import Expr, Template
@@ -100,10 +101,16 @@ class Procedure:
     location: Location = field(default_factory=lambda: Location("<input>", 1, 1))
     board_type_location: Location | None = None
     files: Mapping[str, str] = field(default_factory=dict)
+    limits_files: tuple[str, ...] = ()  # the keys of ``files`` read as limit sets
 
     def source_files(self) -> dict[str, str]:
         """Relative path -> text of every other file this procedure read (includes, limits)."""
         return dict(self.files)
+
+    def inputs(self) -> tuple[RunInput, ...]:
+        """The procedure file, its fragments and its limit set as run inputs (``sequencer.inputs``)."""
+        main = RunInput("procedure", self.name, self.source_text)  # its own name: not the file's
+        return (main, *from_files(self.files, self.limits_files))
 
     def parameter(self, name: str) -> Parameter | None:
         """The parameter called ``name``."""

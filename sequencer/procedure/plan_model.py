@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 from typing import Any, Literal
 
 from drivers.errors import Location
+from sequencer.inputs import RunInput
 
 Block = Literal["setup", "main", "cleanup"]
 
@@ -88,7 +89,8 @@ class Plan:
     parameters: Mapping[str, Any] = field(default_factory=dict)
     source_text: str = ""                    # the procedure YAML text as read (stored with the run)
     source_path: str = ""
-    sha256: str = ""                         # of source_text (utf-8), hex
+    sha256: str = ""                         # sequencer.inputs.procedure_digest(inputs), hex
+    inputs: tuple[RunInput, ...] = ()        # every text the plan was built from (stored with the run)
 
     def limit_for(self, quantity: str, output: str | None) -> Limit | None:
         """The limit of ``quantity`` for ``output`` (an output-specific one wins over a general one)."""

@@ -19,6 +19,7 @@ from sequencer.errors import StoreError
 from sequencer.events import RunInfo
 from sequencer.store.liveness import ProcessIdentity, process_alive
 from sequencer.store.models import Annotation, Document, Instrument, Run, Step
+from sequencer.store.models import RunInput as RunInputRow
 
 SYSTEM_AUTHOR = "benchwright"
 FINAL_STATUSES = ("completed", "aborted", "interrupted")
@@ -85,6 +86,16 @@ def insert_run(conn: Connection, info: RunInfo, started_at: datetime, me: Proces
         )
     )
     run_id = int(result.inserted_primary_key[0])
+    if info.inputs:
+        conn.execute(
+            insert(RunInputRow),
+            [
+                {"run_id": run_id, "kind": i.kind, "name": i.name, "document": _store_document(conn, i.text)}
+                for i in info.inputs
+            ],
+        )
+    for caveat in info.caveats:
+        annotate(conn, run_id, kind="caveat", text=caveat, at=started_at)
     if info.instruments:
         conn.execute(
             insert(Instrument),

@@ -12,6 +12,8 @@ the two.  Layout::
     measurements  judged values of a completed step (DESIGN.md quantity names)
     safety_events bias / HV events, written the moment they happen
     annotations   notes and the audit trail (status changes, resumes); added in revision 0002
+    run_inputs    every text a run used (procedure, fragments, limits, board type, bench, dialects),
+                  each a document; added in revision 0003
 
 Everything but ``runs`` is append-only; revision 0002 adds triggers that refuse UPDATE and DELETE.
 """
@@ -34,6 +36,7 @@ from sqlalchemy import (
     LargeBinary,
     String,
     Text,
+    UniqueConstraint,
     text,
 )
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
@@ -232,3 +235,18 @@ class Annotation(Base):
     author: Mapped[str] = mapped_column(String(200))
     text: Mapped[str] = mapped_column(Text)
     detail: Mapped[dict[str, Any]]
+
+
+class RunInput(Base):
+    """One text a run used (``sequencer.inputs``): its kind, name and document."""
+
+    __tablename__ = "run_inputs"
+    __table_args__ = (
+        UniqueConstraint("run_id", "kind", "name", name="uq_run_inputs_run_kind_name"),
+    )
+
+    id: Mapped[int] = mapped_column(BigId, primary_key=True)
+    run_id: Mapped[int] = mapped_column(ForeignKey("runs.id"))
+    kind: Mapped[str] = mapped_column(String(20))
+    name: Mapped[str] = mapped_column(Text)
+    document: Mapped[str] = mapped_column(ForeignKey("documents.sha256"))

@@ -17,6 +17,7 @@ from sqlalchemy import ColumnElement, Connection, Select, select
 
 from sequencer.errors import StoreError
 from sequencer.events import InstrumentInfo
+from sequencer.inputs import TEXT_KINDS, RunInput, manifest_digest
 from sequencer.store.models import (
     Annotation,
     Document,
@@ -27,6 +28,7 @@ from sequencer.store.models import (
     Step,
     Trace,
 )
+from sequencer.store.models import RunInput as RunInputRow
 from sequencer.store.records import (
     Annotation as AnnotationRecord,
 )
@@ -281,3 +283,36 @@ def safety_events(conn: Connection, run_id: int) -> list[SafetyRecordOut]:
         .order_by(SafetyRecord.id)
     )
     return [_record(SafetyRecordOut, s) for s in conn.execute(query).mappings()]
+
+
+def run_inputs(conn: Connection, run_id: int) -> tuple[RunInput, ...]:
+    """Every text the run used, in the order stored (none for runs recorded before revision 0003)."""
+    rows = conn.execute(
+        select(RunInputRow.kind, RunInputRow.name, Document.text)
+        .join(Document, Document.sha256 == RunInputRow.document)
+        .where(RunInputRow.run_id == run_id)
+        .order_by(RunInputRow.id)
+    ).all()
+    return tuple(RunInput(kind, name, text) for kind, name, text in rows)
+
+
+def text_digests(conn: Connection, procedure: str, version: str) -> dict[str, int]:
+    """``sequencer.inputs.text_digest`` of the stored runs of ``procedure`` ``version`` -> the first
+    run with that text (runs recorded before revision 0003 stored no fragments and are left out)."""
+    rows = conn.execute(
+        select(RunInputRow.run_id, RunInputRow.kind, RunInputRow.name, RunInputRow.document)
+        .join(Run, Run.id == RunInputRow.run_id)
+        .where(
+            Run.procedure == procedure,
+            Run.procedure_version == version,
+            RunInputRow.kind.in_(sorted(TEXT_KINDS)),
+        )
+        .order_by(RunInputRow.run_id)
+    ).all()
+    entries: dict[int, list[tuple[str, str, str]]] = defaultdict(list)
+    for run_id, kind, name, document in rows:  # a document's key is the SHA-256 of its text
+        entries[run_id].append((kind, name, document))
+    found: dict[str, int] = {}
+    for run_id, of_run in entries.items():
+        found.setdefault(manifest_digest(of_run), run_id)
+    return found

@@ -19,6 +19,7 @@ from sqlalchemy.exc import SQLAlchemyError
 
 from sequencer.errors import StoreError
 from sequencer.events import Event, RunInfo
+from sequencer.inputs import RunInput
 from sequencer.store import lifecycle, queries
 from sequencer.store.connect import database_exists, open_engine, writer
 from sequencer.store.liveness import this_process
@@ -223,6 +224,22 @@ class Store:
         """Notes and status changes (finished, resumed, interrupted) of a run, oldest first."""
         with self._read(f"cannot read the audit trail of run {run_id}") as conn:
             return queries.annotations(conn, run_id)
+
+    def caveats(self, run_id: int) -> list[str]:
+        """What a certificate of the run must say about how it was run (changed text, overrides)."""
+        with self._read(f"cannot read the caveats of run {run_id}") as conn:
+            return [a.text for a in queries.annotations(conn, run_id) if a.kind == "caveat"]
+
+    def run_inputs(self, run_id: int) -> tuple[RunInput, ...]:
+        """Every text the run used (``sequencer.inputs``); empty for runs recorded before 0003."""
+        with self._read(f"cannot read the inputs of run {run_id}") as conn:
+            queries.get_run(conn, run_id)
+            return queries.run_inputs(conn, run_id)
+
+    def text_digests(self, procedure: str, version: str) -> dict[str, int]:
+        """Text digest (``sequencer.inputs.text_digest``) -> first run, for a procedure and version."""
+        with self._read(f"cannot read the runs of {procedure} {version}") as conn:
+            return queries.text_digests(conn, procedure, version)
 
     def safety_events(self, run_id: int) -> list[SafetyRecord]:
         with self._read(f"cannot read safety events of run {run_id}") as conn:

@@ -100,7 +100,6 @@ def run_shipped(
         unattended=True,
         progress=False,
         handle_signals=False,
-        procedure_files=procedure.source_files(),
     )
     with Store.open(url) as store:
         with compose.bench_for(None, str(board_file)) as spec:

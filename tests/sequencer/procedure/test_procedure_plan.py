@@ -153,5 +153,13 @@ def test_plan_carries_source_and_limits():
     import hashlib
 
     assert plan.source_text == path.read_text()
-    assert plan.sha256 == hashlib.sha256(path.read_bytes()).hexdigest()
+    # README "what procedure_sha256 means": SHA-256 of the sorted "<kind> <name> <sha256>\n" lines
+    # of the procedure, its fragments and limit set (no board-type text given here); hashlib is the
+    # reference
+    limits = (ROOT / "procedures/limits/PA8.yaml").read_bytes()
+    lines = sorted([
+        f"procedure quick-gain {hashlib.sha256(path.read_bytes()).hexdigest()}\n",
+        f"limits @limits/PA8.yaml {hashlib.sha256(limits).hexdigest()}\n",
+    ])
+    assert plan.sha256 == hashlib.sha256("".join(lines).encode()).hexdigest()
     assert plan.limit_for("gain", "x5").low == 4.75

@@ -28,8 +28,8 @@ def test_default_url_from_environment():
 
 
 def test_at_least_two_revisions_are_shipped_in_the_package():
-    assert {"0001", "0002"} <= known_revisions()
-    assert head_revision() == "0002"
+    assert {"0001", "0002", "0003"} <= known_revisions()
+    assert head_revision() not in ("0001", "0002")
     import sequencer.store
 
     assert (Path(sequencer.store.__file__).parent / "migrations" / "versions").is_dir()
@@ -155,7 +155,7 @@ def test_downgrade_to_the_first_revision_then_upgrade_again(db_url):
             assert not sa.inspect(conn).has_table("annotations")
         upgrade_to(engine)
         with engine.connect() as conn:
-            assert current_revisions(conn) == ("0002",)
+            assert current_revisions(conn) == (head_revision(),)
     finally:
         engine.dispose()
 
