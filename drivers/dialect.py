@@ -9,16 +9,17 @@ against sample values -- and reports each problem as ``file:line:column: message
 
 from __future__ import annotations
 
-import difflib
-import string
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from importlib import resources
 from pathlib import Path
 from typing import Any
 
+from drivers.dialect_ops import Operation, Reader, check_template, hint, map_value, read_value_maps
+from drivers.dialect_waveform import WaveformSpec, read_waveform
 from drivers.errors import ConfigError, Location, Problem
-from drivers.yamlsafe import YamlMap, load_yaml, read_bounded
+from drivers.scpi.templates import ExpressionError, Template
+from drivers.yamlsafe import YamlMap, YamlSeq, load_yaml, read_bounded
 
 #: Reply kinds a query may declare.
 KINDS = ("float", "int", "bool", "str", "csv", "block")
@@ -97,17 +98,13 @@ OPERATIONS: dict[str, dict[str, OpSpec]] = {
 #: Name -> integer tables a role may carry (the switch's board-output digits).
 TABLES: dict[str, tuple[str, ...]] = {"switch": ("outputs",)}
 
-# fmt: off
-_SAMPLES: dict[str, Any] = {
-    "volts": 1.25, "seconds": 1e-6, "hertz": 1e3, "amps": 1e-6, "volts_per_s": 5.0,
-    "input": 1, "channel": 3, "count": 10, "output_index": 2,
-    "state": "ON", "source": "EXTernal", "kind": "INTeger,16", "channels": "1203,1204",
-}
-# fmt: on
-_TOP_KEYS = ("dialect", "version", "common", "roles", "binary")
-_OP_KEYS = ("write", "query", "returns")
+_TOP_KEYS_1 = ("dialect", "version", "common", "roles", "binary")
+_TOP_KEYS_2 = ("dialect", "format", "version", "check_errors", "common", "roles")
+_ROLE_KEYS_2 = ("at_open", "values", "waveform")
 _BINARY_KEYS = ("data_format", "kind", "byte_order")
 GENERIC = "generic"
+#: The newest dialect format this loader reads.
+FORMAT = 2
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -119,17 +116,15 @@ class BinaryFormat:
     big_endian: bool = True  # FORMat:BORDer NORMal, the SCPI default
 
 
-@dataclass(frozen=True, kw_only=True)
-class Operation:
-    role: str
-    name: str
-    template: str
-    returns: str | None
-    location: Location
+def settings_of(role: str) -> set[str]:
+    """The role's current settings a template may read: ``set_points`` -> ``points`` (the value of
+    the last ``set_points`` sent; see :class:`drivers.roles.base.RoleDriver`)."""
+    return {op[4:] for op in OPERATIONS.get(role, {}) if op.startswith("set_")}
 
-    @property
-    def is_query(self) -> bool:
-        return self.returns is not None
+
+def names_for(role: str, op: str) -> set[str]:
+    """The names the templates of ``role.op`` may use: its fields and the role's settings."""
+    return set(OPERATIONS[role][op].fields) | settings_of(role)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -139,34 +134,56 @@ class Dialect:
     name: str
     source: str
     version: int = 1
+    format: int = 1
+    check_errors: bool = True
     operations: Mapping[tuple[str, str], Operation] = field(default_factory=dict)
     tables: Mapping[tuple[str, str], Mapping[str, int]] = field(default_factory=dict)
     binary: BinaryFormat = BinaryFormat()
+    open_commands: Mapping[str, tuple[Template, ...]] = field(default_factory=dict)
+    waveform: WaveformSpec | None = None
+    roles: tuple[str, ...] = ()  # the roles the file describes
 
     def has(self, role: str, op: str) -> bool:
+        """True when ``role.op`` can be done (declared and not declared absent)."""
+        found = self.operations.get((role, op))
+        return found is not None and not found.absent
+
+    def declares(self, role: str, op: str) -> bool:
+        """True when the file says anything about ``role.op``, present or absent."""
         return (role, op) in self.operations
 
     def operation(self, role: str, op: str) -> Operation:
-        try:
-            return self.operations[(role, op)]
-        except KeyError:
-            loc = Location(self.source, 1, 1)
+        found = self.operations.get((role, op))
+        if found is None or found.absent:
+            loc = found.location if found else Location(self.source, 1, 1)
+            why = f" (declared absent: {found.absent})" if found else ""
             raise ConfigError(
-                [Problem(loc, f"dialect {self.name!r} has no operation {role}.{op}")]
+                [Problem(loc, f"dialect {self.name!r} has no operation {role}.{op}{why}")]
             ) from None
+        return found
 
     def returns(self, role: str, op: str) -> str:
         """The reply kind of a query (``float``, ``csv``, ``block``...); ``""`` for a write."""
         return self.operation(role, op).returns or ""
 
     def command(self, role: str, op: str, **fields: Any) -> str:
-        """The command text for ``role.op``; booleans go out as ON/OFF."""
+        """The command text of a plain (one-step) operation; booleans go out as ON/OFF."""
         operation = self.operation(role, op)
-        values = {k: _wire_value(k, v) for k, v in fields.items()}
+        step = operation.single
+        if step is None or step.template is None:
+            raise ConfigError([Problem(operation.location,
+                                       f"{role}.{op} is a sequence, not one command")])  # fmt: skip
+        return self.render(operation, step.template, fields)
+
+    def render(self, operation: Operation, template: Template, values: Mapping[str, Any]) -> str:
+        """``template`` filled from ``values`` after the operation's value maps."""
+        wire = {
+            k: _wire_value(k, map_value(k, v, operation.values.get(k))) for k, v in values.items()
+        }
         try:
-            return operation.template.format(**values)
-        except (KeyError, IndexError, ValueError, TypeError, AttributeError) as exc:
-            problem = f"template {operation.template!r} of {role}.{op} cannot be filled: {exc}"
+            return template.render(wire)
+        except ExpressionError as exc:
+            problem = f"{operation.role}.{operation.name} cannot be filled: {exc}"
             raise ConfigError([Problem(operation.location, problem)]) from None
 
     def table(self, role: str, name: str) -> Mapping[str, int]:
@@ -174,8 +191,7 @@ class Dialect:
 
 
 def _wire_value(name: str, value: Any) -> Any:
-    if isinstance(value, bool):
-        return "ON" if value else "OFF"
+    """``value`` unchanged, unless it is text that would smuggle a second command (``ValueError``)."""
     if isinstance(value, str) and any(c in value for c in "\r\n;"):
         raise ValueError(f"{name}={value!r}: a command argument may not hold a newline or ';'")
     return value
@@ -202,19 +218,17 @@ def load_dialect(name_or_path: str | Path) -> Dialect:
 
 
 def parse_dialect(text: str | bytes, source: str) -> Dialect:
-    """Parse and check a dialect document; every problem found is reported at once."""
+    """Parse and check a dialect document (format 1 or 2); every problem is reported at once."""
     data = load_yaml(text, source, error=ConfigError)
     problems: list[Problem] = []
     if not isinstance(data, YamlMap):
-        raise ConfigError(
-            [
-                Problem(
-                    Location(source, 1, 1),
-                    "a dialect file is a mapping with 'dialect:' and 'roles:'",
-                )
-            ]
-        )
-    _unknown_keys(data, _TOP_KEYS, "top-level key", problems)
+        raise ConfigError([Problem(Location(source, 1, 1),
+                                   "a dialect file is a mapping with 'dialect:' and 'roles:'")])  # fmt: skip
+    fmt = data.get("format", 1)
+    if fmt not in (1, FORMAT) or isinstance(fmt, bool):
+        problems.append(Problem(data.where("format"), f"'format:' must be 1 or {FORMAT}"))
+        fmt = FORMAT
+    _unknown_keys(data, _TOP_KEYS_2 if fmt >= 2 else _TOP_KEYS_1, "top-level key", problems)
     name = data.get("dialect")
     if not isinstance(name, str) or not name:
         problems.append(Problem(data.where("dialect"), "'dialect:' must name the dialect"))
@@ -223,11 +237,16 @@ def parse_dialect(text: str | bytes, source: str) -> Dialect:
     if not isinstance(version, int) or isinstance(version, bool):
         problems.append(Problem(data.where("version"), "'version:' must be an integer"))
         version = 1
-    operations: dict[tuple[str, str], Operation] = {}
-    tables: dict[tuple[str, str], Mapping[str, int]] = {}
+    check = data.get("check_errors", True)
+    if not isinstance(check, bool):
+        problems.append(
+            Problem(data.where("check_errors"), "'check_errors:' must be true or false")
+        )
+        check = True
+    parts = _Parts()
     common = data.get("common", YamlMap())
     if _is_map(common, data, "common", problems):
-        _read_role("common", common, operations, tables, problems)
+        _read_role("common", common, fmt, parts, problems)
     roles = data.get("roles")
     if roles is None:
         problems.append(Problem(data.where(), "missing 'roles:'"))
@@ -236,132 +255,87 @@ def parse_dialect(text: str | bytes, source: str) -> Dialect:
         _unknown_keys(roles, role_names, "role", problems)
         for role in role_names:
             if role in roles and _is_map(roles[role], roles, role, problems):
-                _read_role(role, roles[role], operations, tables, problems)
-    binary = _read_binary(data, problems, operations.get(("common", "byte_order")))
+                _read_role(role, roles[role], fmt, parts, problems)
+    if parts.waveform is not None:
+        _check_byte_order(parts, problems)
+    binary = BinaryFormat()
+    if fmt < 2:
+        binary = _read_binary(data, problems, parts.operations.get(("common", "byte_order")))
     if problems:
         raise ConfigError(problems)
-    return Dialect(
-        name=name,
-        source=source,
-        version=version,
-        operations=operations,
-        tables=tables,
-        binary=binary,
-    )
+    return Dialect(name=name, source=source, version=version, format=fmt, check_errors=check,
+                   operations=parts.operations, tables=parts.tables, binary=binary,
+                   open_commands=parts.open_commands, waveform=parts.waveform,
+                   roles=tuple(r for r in OPERATIONS if r != "common" and r in (roles or {})))  # fmt: skip
 
 
-def _read_role(
-    role: str, ops: YamlMap, operations: dict, tables: dict, problems: list[Problem]
-) -> None:
+@dataclass
+class _Parts:
+    operations: dict[tuple[str, str], Operation] = field(default_factory=dict)
+    tables: dict[tuple[str, str], Mapping[str, int]] = field(default_factory=dict)
+    open_commands: dict[str, tuple[Template, ...]] = field(default_factory=dict)
+    waveform: WaveformSpec | None = None
+
+
+def _read_role(role: str, ops: YamlMap, fmt: int, parts: _Parts, problems: list[Problem]) -> None:
     known = OPERATIONS[role]
     table_names = TABLES.get(role, ())
-    _unknown_keys(ops, [*known, *table_names], f"{role} operation", problems)
+    extra = _ROLE_KEYS_2 if fmt >= 2 else ()
+    _unknown_keys(ops, [*known, *table_names, *extra], f"{role} operation", problems)
     for name in table_names:
         if name in ops:
             table = _read_table(role, name, ops, problems)
             if table is not None:
-                tables[(role, name)] = table
+                parts.tables[(role, name)] = table
+    role_names = set().union(*(names_for(role, op) for op in known)) if known else set()
+    role_values = read_value_maps(ops, role, role_names, problems) if fmt >= 2 else {}
+    reader = Reader(role=role, format=fmt, problems=problems, role_values=role_values)
     for name, spec in known.items():
         if name in ops:
-            op = _read_operation(role, name, spec, ops, problems)
+            op = reader.operation(name, spec.returns, names_for(role, name), ops)
             if op is not None:
-                operations[(role, name)] = op
+                parts.operations[(role, name)] = op
+    if "at_open" in ops and fmt >= 2:
+        parts.open_commands[role] = _read_open(role, ops, problems)
+    if "waveform" in ops:
+        if role != "scope":
+            problems.append(Problem(ops.where("waveform", of_key=True),
+                                    "'waveform:' belongs to the scope role"))  # fmt: skip
+        else:
+            parts.waveform = read_waveform(ops["waveform"], ops.where("waveform"), problems)
 
 
-def _read_operation(
-    role: str, name: str, spec: OpSpec, ops: YamlMap, problems: list[Problem]
-) -> Operation | None:
-    entry = ops[name]
-    where = ops.where(name)
-    if not isinstance(entry, YamlMap):
-        problems.append(
-            Problem(
-                where,
-                f"{role}.{name} must be a mapping such as {{write: TEMPLATE}} or {{query: TEMPLATE, returns: KIND}}",
-            )
-        )
-        return None
-    _unknown_keys(entry, _OP_KEYS, f"key of {role}.{name}", problems)
-    want = "query" if spec.returns else "write"
-    other = "write" if spec.returns else "query"
-    if other in entry:
-        problems.append(
-            Problem(entry.where(other, of_key=True), f"{role}.{name} is a {want}, not a {other}")
-        )
-        return None
-    template = entry.get(want)
-    if not isinstance(template, str) or not template.strip():
-        problems.append(
-            Problem(
-                entry.where(want) if want in entry else where,
-                f"{role}.{name} needs a '{want}:' command template",
-            )
-        )
-        return None
-    returns = None
-    if spec.returns:
-        returns = entry.get("returns")
-        if returns != spec.returns:
-            loc = entry.where("returns") if "returns" in entry else where
-            problems.append(
-                Problem(
-                    loc,
-                    f"{role}.{name} must declare 'returns: {spec.returns}' (got {returns!r}; kinds: {', '.join(KINDS)})",
-                )
-            )
-            return None
-    elif "returns" in entry:
-        problems.append(
-            Problem(
-                entry.where("returns", of_key=True),
-                f"{role}.{name} is a write: 'returns:' does not apply",
-            )
-        )
-    location = entry.where(want)
-    if not _check_template(role, name, template, spec, location, problems):
-        return None
-    return Operation(role=role, name=name, template=template, returns=returns, location=location)
+def _check_byte_order(parts: _Parts, problems: list[Problem]) -> None:
+    """A scope told ``FORMat:BORDer SWAPped`` at open but declared big-endian data (or the other
+    way round) would read every code byte-swapped: refused, at the data declaration."""
+    wave = parts.waveform
+    assert wave is not None
+    for template in parts.open_commands.get("scope", ()):
+        text = template.text.upper()
+        if "BORD" not in text:
+            continue
+        swapped = "SWAP" in text
+        if swapped == wave.data.big_endian:
+            said = "SWAPped (little-endian)" if swapped else "NORMal (big-endian)"
+            problems.append(Problem(wave.location, f"waveform data byte_order disagrees with "
+                                                   f"{template.text!r} sent at open ({said})"))  # fmt: skip
 
 
-def _check_template(
-    role: str, name: str, template: str, spec: OpSpec, where: Location, problems: list[Problem]
-) -> bool:
-    try:
-        used = [f for _, f, _, _ in string.Formatter().parse(template) if f is not None]
-    except ValueError as exc:
-        problems.append(Problem(where, f"{role}.{name}: bad template {template!r}: {exc}"))
-        return False
-    for f in used:
-        base = f.split(".")[0].split("[")[0]
-        if base != f:  # {volts.real}, {volts[0]}: attribute and index lookups are not allowed
-            problems.append(
-                Problem(
-                    where,
-                    f"{role}.{name}: field {{{f}}} must be a plain name such as {{{base}}} "
-                    f"(a format spec follows a colon: {{{base}:.9g}})",
-                )
-            )
-            return False
-        if base not in spec.fields:
-            offer = ", ".join(spec.fields) or "no fields"
-            problems.append(
-                Problem(
-                    where,
-                    f"{role}.{name}: unknown field {{{f}}}{_hint(base, spec.fields)}; the driver supplies: {offer}",
-                )
-            )
-            return False
-    try:
-        template.format(**{k: _SAMPLES[k] for k in spec.fields})
-    except (ValueError, TypeError, KeyError, IndexError, AttributeError) as exc:
-        problems.append(
-            Problem(where, f"{role}.{name}: template {template!r} does not format: {exc}")
-        )
-        return False
-    if any(c in template for c in "\r\n"):
-        problems.append(Problem(where, f"{role}.{name}: a template may not contain a line break"))
-        return False
-    return True
+def _read_open(role: str, ops: YamlMap, problems: list[Problem]) -> tuple[Template, ...]:
+    """``at_open: [CMD, ...]``: configuring commands sent once when the role is opened."""
+    items = ops["at_open"]
+    if not isinstance(items, YamlSeq):
+        problems.append(Problem(ops.where("at_open"), f"{role}.at_open is a list of commands"))
+        return ()
+    out = []
+    for index, text in enumerate(items):
+        if not isinstance(text, str) or not text.strip():
+            problems.append(Problem(items.where(index), f"{role}.at_open: a command, as text"))
+            continue
+        t = check_template(text, f"{role}.at_open", set(), items.where(index), problems)
+        if t is not None:
+            out.append(t)
+    return tuple(out)
 
 
 def _read_table(
@@ -428,12 +402,6 @@ def _unknown_keys(data: YamlMap, allowed: Any, what: str, problems: list[Problem
         if key not in allowed:
             problems.append(
                 Problem(
-                    data.where(key, of_key=True),
-                    f"unknown {what} {key!r}{_hint(str(key), allowed)}",
+                    data.where(key, of_key=True), f"unknown {what} {key!r}{hint(str(key), allowed)}"
                 )
             )
-
-
-def _hint(word: str, choices: Any) -> str:
-    close = difflib.get_close_matches(word, [str(c) for c in choices], n=1)
-    return f" (did you mean {close[0]!r}?)" if close else ""

@@ -6,6 +6,7 @@ import math
 from typing import TYPE_CHECKING, Any
 
 from drivers.dialect import Dialect
+from drivers.roles.perform import perform
 from drivers.scpi.session import ScpiSession
 
 if TYPE_CHECKING:
@@ -13,7 +14,12 @@ if TYPE_CHECKING:
 
 
 class RoleDriver:
-    """Base of the role drivers: ``Role(session, dialect, spec)``."""
+    """Base of the role drivers: ``Role(session, dialect, spec)``.
+
+    Opening a role sends the dialect's ``at_open`` commands for it.  ``settings`` holds the last
+    value of each ``set_*`` operation sent (``set_points`` -> ``settings["points"]``), so a template
+    may compute with the role's current settings (``{points / sample_rate / 10:.6g}``).
+    """
 
     role = ""
 
@@ -23,6 +29,9 @@ class RoleDriver:
         self.session = session
         self.dialect = dialect
         self.spec = spec
+        self.settings: dict[str, Any] = {}
+        for template in dialect.open_commands.get(self.role, ()):
+            session.write(template.render({}))
 
     @property
     def address(self) -> str:
@@ -32,9 +41,20 @@ class RoleDriver:
         return self.dialect.command(self.role, op, **fields)
 
     def _write(
-        self, op: str, *, reapply: bool = True, key: str | None = None, **fields: Any
+        self,
+        op: str,
+        *,
+        reapply: bool = True,
+        key: str | None = None,
+        timeout_ms: int | None = None,
+        **fields: Any,
     ) -> None:
-        self.session.write(self._command(op, **fields), reapply=reapply, key=key)
+        operation = self.dialect.operation(self.role, op)
+        values = {**self.settings, **fields}
+        perform(self.session, self.dialect, operation, values, reapply=reapply, key=key,
+                timeout_ms=timeout_ms)  # fmt: skip
+        if op.startswith("set_") and fields:
+            self.settings[op[4:]] = list(fields.values())[-1]
 
     def _set_output(self, on: bool) -> None:
         """Output on/off.  OFF is cached (re-applied after a reconnect, fail-safe); ON never is."""
@@ -46,24 +66,16 @@ class RoleDriver:
             self._write("set_output", key=key, state=False)
 
     def _query(self, op: str, *, timeout_ms: int | None = None, **fields: Any) -> Any:
-        """Send a query and parse its reply by the kind the dialect declares."""
-        command = self._command(op, **fields)
-        kind = self.dialect.returns(self.role, op)
-        s = self.session
-        if kind == "float":
-            return s.query_float(command, timeout_ms=timeout_ms)
-        if kind == "int":
-            return s.query_int(command, timeout_ms=timeout_ms)
-        if kind == "bool":
-            return s.query_bool(command, timeout_ms=timeout_ms)
-        if kind == "csv":
-            return s.query_csv(command, timeout_ms=timeout_ms)
-        if kind == "block":
+        """Send a query and parse its reply by the kind and rule the dialect declares."""
+        operation = self.dialect.operation(self.role, op)
+        if operation.returns == "block":
             b = self.dialect.binary
-            return s.query_block(
-                command, kind=b.kind, big_endian=b.big_endian, timeout_ms=timeout_ms
-            )
-        return s.query(command, timeout_ms=timeout_ms)
+            return self.session.query_block(
+                self._command(op, **fields), kind=b.kind, big_endian=b.big_endian,
+                timeout_ms=timeout_ms,
+            )  # fmt: skip
+        values = {**self.settings, **fields}
+        return perform(self.session, self.dialect, operation, values, timeout_ms=timeout_ms)
 
 
 def check_finite(name: str, value: float) -> float:

@@ -1,6 +1,7 @@
 """Oscilloscope / digitizer: input ranges, time base, trigger, averaging, calibrated traces.
 
-Traces travel as binary blocks (``FORMat:DATA INTeger,16`` with ``FORMat:BORDer NORMal``, sent once
+A format-2 dialect declares how a record is selected, calibrated and fetched in its ``waveform:``
+section (:mod:`drivers.roles.waveform`).  Format-1 dialects: traces travel as binary blocks (``FORMat:DATA INTeger,16`` with ``FORMat:BORDer NORMal``, sent once
 when the scope is opened) and are calibrated with ``TRACe:PREamble?``:
 ``x_increment_s, x_origin_s, y_increment_V, y_origin_V, points, averages``;
 ``volts = code * y_increment + y_origin``, ``t = x_origin + i * x_increment``.
@@ -16,6 +17,7 @@ import numpy as np
 from drivers.dialect import Dialect
 from drivers.errors import ProtocolError
 from drivers.roles.base import RoleDriver, check_finite, check_range, check_word
+from drivers.roles.waveform import fetch_waveform
 from drivers.scpi.blocks import numpy_dtype
 from drivers.scpi.session import ScpiSession
 from drivers.trace import Trace
@@ -43,9 +45,10 @@ class Scope(RoleDriver):
         self, session: ScpiSession, dialect: Dialect, spec: InstrumentSpec | None = None
     ) -> None:
         super().__init__(session, dialect, spec)
-        if dialect.has("common", "byte_order"):
-            session.write(dialect.command("common", "byte_order"))
-        self._write("set_data_format", kind=dialect.binary.data_format)
+        if dialect.format < 2:  # format 1: byte order and data format were operations
+            if dialect.has("common", "byte_order"):
+                session.write(dialect.command("common", "byte_order"))
+            self._write("set_data_format", kind=dialect.binary.data_format)
 
     def set_input(self, input: int, *, range_mV: float, offset_mV: float = 0.0) -> None:
         """Full-scale range (±range/2) and offset of one input, in mV."""
@@ -89,12 +92,16 @@ class Scope(RoleDriver):
     def acquire(self) -> None:
         """Start one acquisition (with its averages) and wait until it is complete (``*OPC?``)."""
         with self.session.lock:
-            self._write("acquire", reapply=False)
+            # the error check after INIT may wait for the acquisition: the OPC timeout, not the
+            # ordinary one (a 7 s acquisition must not fail on a 5 s link timeout)
+            self._write("acquire", reapply=False, timeout_ms=self.session.opc_timeout_ms)
             self.session.wait_complete()
 
     def fetch(self, input: int) -> Trace:
         """The last record of ``input`` as a calibrated trace in volts."""
         n = _input(input)
+        if self.dialect.waveform is not None:
+            return fetch_waveform(self.session, self.dialect.waveform, n)
         binary = self.dialect.binary
         with self.session.lock:
             pre = self._query("preamble", input=n)

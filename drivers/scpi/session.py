@@ -145,14 +145,25 @@ class ScpiSession:
         return self.transport.address
 
     # -- public verbs ----------------------------------------------------------------------------
-    def write(self, command: str, *, reapply: bool = True, key: str | None = None) -> None:
+    def write(
+        self,
+        command: str,
+        *,
+        reapply: bool = True,
+        key: str | None = None,
+        check: bool | None = None,
+        timeout_ms: int | None = None,
+    ) -> None:
         """Send a configuring command, then check the error queue.
 
         ``reapply``: remember it (under ``key``, default its header) to re-send after a reconnect, and
         retry it once after a link failure; pass ``False`` for actions (``*TRG``, ``INIT``, output on).
+        ``check``: whether the error queue is read after it (default: the session's
+        ``check_errors``); ``timeout_ms``: how long that check may wait (an acquisition's error
+        check waits for the acquisition on many instruments: pass the operation-complete timeout).
         """
         with self.lock:
-            self._call(lambda: self._write_checked(command), retry=reapply)
+            self._call(lambda: self._write_checked(command, check, timeout_ms), retry=reapply)
             if reapply:
                 self._settings[key or header_of(command)] = command
 
@@ -334,12 +345,15 @@ class ScpiSession:
                 f"{self.opc_query} replied {reply!r}, expected 1", address=self.address
             )
 
-    def _write_checked(self, command: str) -> None:
+    def _write_checked(
+        self, command: str, check: bool | None = None, timeout_ms: int | None = None
+    ) -> None:
         self._send(command)
-        if not self.check_errors:
+        if not (self.check_errors if check is None else check):
             return
         try:
-            entries = self._drain_errors()
+            with self._timeout(timeout_ms):
+                entries = self._drain_errors()
         except TransportError as exc:  # the news is the command before the check (INIT, ...)
             raise exc.checking_after(command) from exc
         if entries:

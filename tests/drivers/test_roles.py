@@ -139,6 +139,7 @@ def test_scope_capture_acquires_once_then_fetches_each_input():
 
 def test_scope_fetch_follows_a_swapped_byte_order_dialect():
     text = GENERIC_TEXT.replace("FORMat:BORDer NORMal", "FORMat:BORDer SWAPped")
+    text = text.replace("kind: int16, byte_order: big", "kind: int16, byte_order: little")
     dialect = parse_dialect(text, "swapped.yaml")
     codes = np.array([1, 256, -300], dtype="<i2")  # little-endian on the wire (SWAPped)
     t = ScriptedTransport().expect(
