@@ -130,7 +130,15 @@ def read_word(text: str, words: Mapping[str, Any]) -> Any:
 
 
 def parse_number(text: str, unit: str = "") -> float:
-    """A finite number, optionally with an SI-prefixed ``unit`` (``200mV``, ``1.5E+00 V``)."""
+    """A number, optionally with an SI-prefixed ``unit`` (``200mV``, ``1.5E+00 V``).
+
+    ``NAN``/``INF`` words and SCPI's 9.91E+37 pass through as the numbers they are: whether such a
+    reading may be used is the caller's decision (the bias role refuses it as implausible; the
+    waveform rules refuse it with :func:`refuse_codes`).
+    """
+    word = text.strip().upper().lstrip("+")
+    if word in _SPECIAL:
+        return _SPECIAL[word]
     match = _NUMBER.match(text)
     if match is None:
         raise ValueError(f"{text!r} is not a number")
@@ -138,9 +146,17 @@ def parse_number(text: str, unit: str = "") -> float:
     value = float(digits)
     if suffix:
         value *= _unit_factor(suffix, unit, text)
-    if not math.isfinite(value) or abs(value) >= OVERRANGE:
-        raise ValueError(f"{text!r} is not a measurement (NaN, overrange or infinite)")
     return value
+
+
+def refuse_codes(value: float, what: str) -> float:
+    """``value`` unless it is NaN, infinite or SCPI's not-a-number/overrange code (``ValueError``)."""
+    if not math.isfinite(value) or abs(value) >= OVERRANGE:
+        raise ValueError(f"{what} {value!r} is not a measurement (NaN, overrange or infinite)")
+    return value
+
+
+_SPECIAL = {"NAN": math.nan, "INF": math.inf, "-INF": -math.inf, "INFINITY": math.inf}
 
 
 def _unit_factor(suffix: str, unit: str, text: str) -> float:

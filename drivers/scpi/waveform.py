@@ -13,14 +13,13 @@ Pure functions, no I/O: the scope driver and the tests use them.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 
 from drivers.scpi.blocks import numpy_dtype
-from drivers.scpi.replies import parse_number
+from drivers.scpi.replies import parse_number, refuse_codes
 
 #: Preamble values a dialect may declare (``points`` and ``averages`` are optional).
 PREAMBLE_NAMES = (
@@ -57,10 +56,9 @@ def preamble_from(values: Mapping[str, float]) -> Preamble:
     for name in REQUIRED:
         if name not in values:
             raise ValueError(f"the preamble has no {name}")
-    checked = {k: float(v) for k, v in values.items() if k in PREAMBLE_NAMES}
-    for name, value in checked.items():
-        if not math.isfinite(value):
-            raise ValueError(f"preamble {name}={value!r} is not finite")
+    checked = {
+        k: refuse_codes(float(v), f"preamble {k}") for k, v in values.items() if k in PREAMBLE_NAMES
+    }
     if not checked["x_increment"] > 0:
         raise ValueError(f"preamble x_increment {checked['x_increment']!r} is not positive")
     if checked["y_increment"] == 0:
@@ -107,7 +105,7 @@ def decode_codes(payload: bytes, fmt: DataFormat) -> np.ndarray:
         if not text:
             return np.zeros(0)
         parts = [p for p in text.split(fmt.separator)]
-        return np.array([parse_number(p) for p in parts], dtype=np.float64)
+        return np.array([refuse_codes(parse_number(p), "code") for p in parts], dtype=np.float64)
     dtype = numpy_dtype(fmt.kind, fmt.big_endian)
     if len(payload) % dtype.itemsize:
         raise ValueError(f"{len(payload)} bytes is not a whole number of {fmt.kind} elements")

@@ -1,8 +1,10 @@
 """Reply rules (drivers.scpi.replies) over literal reply texts, one test per rule."""
 
+import math
+
 import pytest
 
-from drivers.scpi.replies import ReplyRule, parse_number, parse_reply
+from drivers.scpi.replies import ReplyRule, parse_number, parse_reply, refuse_codes
 
 
 def test_header_is_stripped():
@@ -23,15 +25,17 @@ def test_field_by_position_and_by_name_with_either_separator():
         parse_reply(line, "float", ReplyRule(field=4))
 
 
-def test_overrange_and_nan_are_refused_as_numbers():
-    # SCPI-1999 vol. 1 §7.2.1 (from memory): 9.91E+37 = NaN, 9.9E+37 = infinity
+def test_overrange_and_nan_pass_through_for_the_caller_to_refuse():
+    # SCPI-1999 vol. 1 §7.2.1 (from memory): 9.91E+37 = NaN, 9.9E+37 = infinity; the reply rule
+    # reads them as the numbers they are, the role (bias readings) or the waveform rule refuses them
     line = "+1.000000E+01,+2.500000E-06,+9.910000E+37"
+    assert parse_reply(line, "float", ReplyRule(field=3)) == 9.91e37
+    assert math.isnan(parse_number("NAN")) and parse_number("-INF") == -math.inf
     with pytest.raises(ValueError, match="not a measurement"):
-        parse_reply(line, "float", ReplyRule(field=3))
-    with pytest.raises(ValueError):
-        parse_number("nan")
-    with pytest.raises(ValueError):
-        parse_number("-9.9E+37")
+        refuse_codes(parse_number("-9.9E+37"), "reading")
+    with pytest.raises(ValueError, match="not a measurement"):
+        refuse_codes(parse_number("nan"), "reading")
+    assert refuse_codes(1.5, "reading") == 1.5
 
 
 def test_pattern_capture():
