@@ -40,16 +40,23 @@ class PlanOutline:
         return len(self.paths) if not self.problem else None
 
 
-def outline_run(run: Any) -> PlanOutline:
-    """Expand the run's stored procedure text for its board again (no instruments touched)."""
+def outline_run(store: Any, run: Any) -> PlanOutline:
+    """Expand the run's stored procedure for its board again, from the texts stored with the run
+    (fragments, limit set, board type) where it has them, else today's files (no instruments)."""
+    from sequencer.inputs import loader_files, of_kind
     from sequencer.procedure import board_info, build_plan, load_board_type, load_procedure_text
+    from sequencer.procedure.boards import board_type_of_input
 
     try:
-        files = getattr(run, "procedure_files", None) or None
-        proc = load_procedure_text(run.procedure_text, run.procedure_path or f"run-{run.id}.yaml",
-                                   files=files)  # fmt: skip
-        type_name = run.board_type or proc.board_type
-        plan = build_plan(proc, board_info(load_board_type(type_name), run.board))
+        inputs = tuple(store.run_inputs(run.id))
+        path = run.procedure_path or f"run-{run.id}.yaml"
+        proc = load_procedure_text(run.procedure_text, path, files=loader_files(inputs) or None)
+        kept = of_kind(inputs, "board_type")
+        if kept:
+            template = board_type_of_input(kept[0])
+        else:
+            template = load_board_type(run.board_type or proc.board_type)
+        plan = build_plan(proc, board_info(template, run.board))
     except (BenchwrightError, OSError, ValueError, KeyError) as exc:
         return PlanOutline(paths=(), channels=0, problem=f"no plan for this run here: {exc}")
     return PlanOutline(paths=tuple(s.path for s in plan.steps), channels=int(plan.board.channels))
@@ -61,9 +68,9 @@ class Outlines:
     def __init__(self) -> None:
         self._known: dict[int, PlanOutline] = {}
 
-    def of(self, run: Any) -> PlanOutline:
+    def of(self, store: Any, run: Any) -> PlanOutline:
         if run.id not in self._known:
-            self._known[run.id] = outline_run(run)
+            self._known[run.id] = outline_run(store, run)
         return self._known[run.id]
 
 
@@ -114,7 +121,7 @@ def _trace_json(trace: Any) -> dict[str, Any] | None:
 def live_snapshot(store: Any, run_id: int, outlines: Outlines, now: datetime | None = None) -> dict[str, Any]:
     """Everything the live view of run ``run_id`` shows, as JSON-able values."""
     run = store.get_run(run_id)
-    outline = outlines.of(run)
+    outline = outlines.of(store, run)
     with store.engine.connect() as conn:
         counts = run_counts(conn, [run_id])[run_id]
         position = last_position(conn, run_id)

@@ -34,7 +34,7 @@ from selenium.webdriver.support.ui import WebDriverWait  # noqa: E402
 
 from sequencer import compose  # noqa: E402
 from sequencer.events import StepFinished  # noqa: E402
-from sequencer.procedure import board_info, build_plan, load_board_type, load_procedure  # noqa: E402
+from sequencer.procedure import load_procedure  # noqa: E402
 from sequencer.store import Store  # noqa: E402
 from sequencer.web.app import create_app  # noqa: E402
 from sequencer.web.settings import ServeSettings  # noqa: E402
@@ -171,10 +171,10 @@ class Gate:
 def test_a_run_on_the_simulated_bench_fills_the_live_grid(site, browser) -> None:
     url, store, base, db_url = site
     procedure = load_procedure(_short_procedure(base))
-    plan = build_plan(procedure, board_info(load_board_type("PA8"), "NR-PA8-0104"))
+    plan = compose.plan_for(procedure, "NR-PA8-0104")
     gate = Gate(stops=2)
     request = compose.RunRequest(operator="a.berg", unattended=True, progress=False,
-                                 handle_signals=False, procedure_files=procedure.source_files(),
+                                 handle_signals=False,
                                  extra_subscribers=(gate,))  # fmt: skip
     outcome: dict[str, Any] = {}
 
