@@ -22,5 +22,9 @@ QUANTITY_UNITS: Mapping[str, str] = MappingProxyType(
         "peaking_time_ns": "ns",
         "rise_time_ns": "ns",
         "leakage_nA": "nA",
+        "resolving_time_ns": "ns",
+        "coincidence_plateau_hz": "Hz",
+        "coincidence_efficiency_pct": "%",
+        "accidental_ratio": "1",
     }
 )

@@ -49,6 +49,7 @@ class _Bench:
     averages: int = 1
     pulse_rate: float = 1e3
     gate: float = 1.0
+    coincidence_gate: float = 0.1
     bias_volts: float = 0.0
 
 
@@ -89,6 +90,8 @@ _RULES: dict[str, Callable[[EstimateSettings, _Bench, dict[str, Any]], float]] =
     "pulser.rate": _track("hz", "pulse_rate"),
     "counter.gate": _track("seconds", "gate"),
     "counter.count": lambda s, b, a: b.gate + s.command_s,
+    "coincidence.gate": _track("seconds", "coincidence_gate"),
+    "coincidence.count": lambda s, b, a: b.coincidence_gate + s.command_s,
     "bias.ramp": _ramp,
     "bias.read": lambda s, b, a: 2 * s.command_s,
     "wait": lambda s, b, a: float(a["seconds"]),

@@ -73,6 +73,11 @@ class PulseShape:
     samples_mV: tuple[float, ...] = field(default=(), metadata={"hashed": False}, repr=False)
 
 
+#: The certificate "channel" of a run whose measurements all belong to the module as a whole (a
+#: coincidence unit, a digitizer's converter): numbered ``CH00``.
+MODULE_CHANNEL = 0
+
+
 class RunSnapshot:
     """One run read from the store: record, measurements, completed steps (with their traces),
     safety events."""
@@ -85,6 +90,8 @@ class RunSnapshot:
         self.steps: Mapping[str, Any] = dict(store.completed_steps(run_id))
         self.safety_events = tuple(store.safety_events(run_id))
         self.channels = sorted({int(m.channel) for m in self.measurements if m.channel is not None})
+        if not self.channels and self.measurements:
+            self.channels = [MODULE_CHANNEL]  # a module measured as a whole: one certificate
         self._traces = [t for path in sorted(self.steps) for t in self.steps[path].traces]
 
     def traces_under(self, prefix: str) -> list[Any]:
