@@ -45,7 +45,6 @@ def run_module(board_file: Path, db: Path) -> tuple[int, dict[str, object], str]
         unattended=True,
         progress=False,
         handle_signals=False,
-        procedure_files=procedure.source_files(),
     )
     with Store.open(url) as store:
         with compose.bench_for(None, str(board_file)) as spec:
