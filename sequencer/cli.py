@@ -207,36 +207,6 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
     sys.exit(_summarise(result.run_id, result.outcome))
 
 
-# -- results ------------------------------------------------------------------------------------
-
-
-@cli.command()
-@db_option
-@click.option("--format", "fmt", type=click.Choice(["table", "csv", "json"]), default="table", show_default=True)
-@click.option("--board", default=None)
-@click.option("--procedure", default=None)
-@click.option("--since", type=click.DateTime(), default=None, help="Runs started at or after (UTC).")
-@click.option("--until", type=click.DateTime(), default=None, help="Runs started before (UTC).")
-@handles_errors
-def runs(db: str | None, fmt: str, board: str | None, procedure: str | None,
-         since: Any, until: Any) -> None:
-    """Past runs: id, procedure, board, status, start, end."""
-    from sequencer import compose
-    from sequencer.store import RUN_COLUMNS, format_rows, run_rows
-
-    with compose.open_existing_store(db, env()) as store:
-        store.mark_stale_runs_interrupted()
-        rows = run_rows(store.list_runs(board=board, procedure=procedure, since=_utc(since), until=_utc(until)))
-    click.echo(format_rows(rows, fmt, RUN_COLUMNS), nl=False)
-
-
-def _utc(moment: Any) -> Any:
-    """A naive command-line date-time, read as UTC (the store keeps UTC)."""
-    import datetime as dt
-
-    return None if moment is None else moment.replace(tzinfo=dt.UTC)
-
-
 # -- instruments and the simulator ----------------------------------------------------------------
 
 
@@ -274,10 +244,10 @@ def sim(board_path: str, host: str, port_base: int, bench_out: str | None) -> No
 
 def attach_commands() -> None:
     """Attach the commands that live in their own modules (store-only reports; batch and demo)."""
-    from sequencer import cli_batch, cli_export, cli_results, cli_serve
+    from sequencer import cli_batch, cli_export, cli_lists, cli_results, cli_serve
 
     for command in (*cli_results.COMMANDS, cli_batch.batch, cli_batch.demo, cli_export.export,
-                    cli_serve.serve):
+                    cli_serve.serve, cli_lists.runs, cli_lists.batches):
         cli.add_command(command)
 
 

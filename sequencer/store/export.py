@@ -19,7 +19,6 @@ from sqlalchemy import select
 
 from sequencer.store.models import Measurement, Run
 from sequencer.store.queries import run_filters
-from sequencer.store.records import RunRecord
 
 if TYPE_CHECKING:
     from sequencer.store.store import Store
@@ -29,7 +28,9 @@ EXPORT_COLUMNS: tuple[str, ...] = (
     "channel", "output", "aggressor", "quantity", "value", "uncertainty", "unit", "low", "high",
     "verdict",
 )  # fmt: skip
-RUN_COLUMNS: tuple[str, ...] = ("id", "procedure", "board", "status", "start", "end")
+RUN_COLUMNS: tuple[str, ...] = (
+    "id", "procedure", "board", "status", "start", "end", "verdict", "operator", "batch",
+)  # DESIGN.md's six, then the verdict (pass / fail / empty while not judged), operator, batch  # fmt: skip
 Format = Literal["csv", "json", "table"]
 
 _RUN_PART = (Run.id, Run.started_at, Run.procedure, Run.procedure_version, Run.procedure_sha256,
@@ -75,8 +76,10 @@ def export_rows(
         ]
 
 
-def run_rows(runs: Iterable[RunRecord]) -> list[dict[str, Any]]:
-    """One dict per run keyed by ``RUN_COLUMNS`` (for ``benchwright runs``)."""
+def run_rows(runs: Iterable[Any], verdicts: Mapping[int, str] | None = None) -> list[dict[str, Any]]:
+    """One dict per run keyed by ``RUN_COLUMNS`` (for ``benchwright runs``); ``verdicts`` maps run
+    id to its verdict (``store.overview.RunCounts.verdict``), empty where not given."""
+    given = verdicts or {}
     return [
         {
             "id": r.id,
@@ -85,6 +88,9 @@ def run_rows(runs: Iterable[RunRecord]) -> list[dict[str, Any]]:
             "status": r.status,
             "start": iso_utc(r.started_at),
             "end": iso_utc(r.ended_at),
+            "verdict": given.get(r.id, ""),
+            "operator": r.operator,
+            "batch": r.batch,
         }
         for r in runs
     ]

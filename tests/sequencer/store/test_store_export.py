@@ -54,7 +54,8 @@ def _run_with(
 
 def test_export_columns_are_exactly_those_of_design_md():
     assert list(EXPORT_COLUMNS) == DESIGN_COLUMNS
-    assert RUN_COLUMNS == ("id", "procedure", "board", "status", "start", "end")
+    # DESIGN.md's six, in order, then what `runs` adds (issue 20): verdict, operator, batch
+    assert RUN_COLUMNS == ("id", "procedure", "board", "status", "start", "end", "verdict", "operator", "batch")
 
 
 def test_export_rows_carry_the_run_and_the_measurement(store):

@@ -1,0 +1,78 @@
+"""``benchwright runs`` and ``benchwright batches``: what the database holds, one line each
+(attached to the command group by ``cli.py``)."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import click
+
+from sequencer.cli_common import db_option, env, handles_errors
+
+FORMATS = ["table", "csv", "json"]
+BATCH_COLUMNS = ("batch", "boards", "runs", "running", "passed", "failed", "first", "last")
+
+
+def _utc(moment: Any) -> Any:
+    """A naive command-line date-time, read as UTC (the store keeps UTC)."""
+    import datetime as dt
+
+    return None if moment is None else moment.replace(tzinfo=dt.UTC)
+
+
+@click.command()
+@db_option
+@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+@click.option("--board", default=None)
+@click.option("--procedure", default=None)
+@click.option("--batch", default=None)
+@click.option("--operator", default=None)
+@click.option("--status", type=click.Choice(["running", "completed", "aborted", "interrupted"]), default=None)
+@click.option("--verdict", type=click.Choice(["pass", "fail", "open"]), default=None,
+              help="open: not judged yet (no value out of limits, run not completed).")
+@click.option("--since", type=click.DateTime(), default=None, help="Runs started at or after (UTC).")
+@click.option("--until", type=click.DateTime(), default=None, help="Runs started before (UTC).")
+@handles_errors
+def runs(db: str | None, fmt: str, board: str | None, procedure: str | None, batch: str | None,
+         operator: str | None, status: str | None, verdict: str | None, since: Any, until: Any) -> None:
+    """Past runs: id, procedure, board, status, start, end, verdict, operator, batch."""
+    from sequencer import compose
+    from sequencer.store import RUN_COLUMNS, format_rows, run_rows
+    from sequencer.store.overview import run_counts, run_lines
+
+    with compose.open_existing_store(db, env()) as store:
+        store.mark_stale_runs_interrupted()
+        with store.engine.connect() as conn:
+            lines = run_lines(conn, newest_first=False, board=board, procedure=procedure, batch=batch,
+                              operator=operator, status=status, since=_utc(since), until=_utc(until))  # fmt: skip
+            counts = run_counts(conn, [r.id for r in lines])
+    verdicts = {r.id: counts[r.id].verdict(r.status) for r in lines}
+    if verdict is not None:
+        wanted = "" if verdict == "open" else verdict
+        lines = [r for r in lines if verdicts[r.id] == wanted]
+    click.echo(format_rows(run_rows(lines, verdicts), fmt, RUN_COLUMNS), nl=False)
+
+
+@click.command()
+@db_option
+@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+@handles_errors
+def batches(db: str | None, fmt: str) -> None:
+    """Batches in the database: boards, runs, how many pass or fail, first and last run."""
+    from sequencer import compose
+    from sequencer.store import format_rows
+    from sequencer.store.export import iso_utc
+    from sequencer.store.overview import batch_lines, run_counts, run_lines
+
+    rows = []
+    with compose.open_existing_store(db, env()) as store, store.engine.connect() as conn:
+        for b in batch_lines(conn):
+            lines = run_lines(conn, batch=b.batch)
+            counts = run_counts(conn, [r.id for r in lines])
+            verdicts = [counts[r.id].verdict(r.status) for r in lines]
+            rows.append({
+                "batch": b.batch, "boards": b.boards, "runs": b.runs, "running": b.running,
+                "passed": verdicts.count("pass"), "failed": verdicts.count("fail"),
+                "first": iso_utc(b.first_started), "last": iso_utc(b.last_started),
+            })  # fmt: skip
+    click.echo(format_rows(rows, fmt, BATCH_COLUMNS), nl=False)
