@@ -122,6 +122,12 @@ class Bench:
     def role(self, name: str) -> Any:
         return self._drivers.get(name)
 
+    def watch_stop(self, check: Callable[[], bool] | None) -> None:
+        """Hand ``check`` (True when the run must stop) to every session: long reads (binary
+        blocks) look at it between chunks.  ``None`` removes it."""
+        for driver in self._drivers.values():
+            driver.session.stop_check = check
+
     def identities(self) -> dict[str, Identity]:
         """``*IDN?`` of each opened role, read when the bench was opened."""
         return dict(self._identities)

@@ -10,7 +10,8 @@ the errors that belong above the instrument layer.
     ├── TransportError                    the link failed (address attached)
     │   ├── InstrumentTimeout             no reply within the timeout
     │   ├── ConnectionRefused             nothing listens at the address / host unreachable
-    │   └── ConnectionClosed              the peer closed the link
+    │   ├── ConnectionClosed              the peer closed the link
+    │   └── ReadStopped                   a long read given up because the run was asked to stop
     ├── ProtocolError                     a reply that cannot be parsed (malformed block, garbled number)
     │   └── ImplausibleReading            a parsed reading no instrument could mean (NaN, 9.91E+37, overrange)
     ├── InstrumentError                   the instrument reported an error (SYSTem:ERRor? gave a code)
@@ -73,6 +74,11 @@ class ConnectionRefused(TransportError):
 
 class ConnectionClosed(TransportError):
     """The instrument closed the link."""
+
+
+class ReadStopped(TransportError):
+    """A read (a binary block, chunk by chunk) was given up because a stop was requested; the
+    link is out of step and is resynchronised before its next use.  Never retried."""
 
 
 class ProtocolError(BenchwrightError):

@@ -100,6 +100,21 @@ def receive_exactly(
     return buffer
 
 
+def discard_input(sock: socket.socket, timeout_s: float, quiet_s: float = 0.1) -> None:
+    """Read and drop whatever arrives until the link has been quiet for ``quiet_s`` (the rule
+    pyvisa-py's ``clear`` uses), giving up with ``ConnectionResetError`` after ``timeout_s`` of
+    input that never stops, or at end-of-file."""
+    deadline = time.monotonic() + timeout_s
+    while select.select([sock], [], [], quiet_s)[0]:
+        if not sock.recv(RECV_SIZE):
+            raise ConnectionResetError("the instrument closed the link")
+        if time.monotonic() > deadline:
+            raise ConnectionResetError(
+                f"the instrument kept sending for {timeout_s * 1000:.0f} ms (a flood); "
+                "the link is reopened"
+            )
+
+
 def _wait_readable(
     sock: socket.socket, deadline: float, timeout_s: float, what: str, poll_s: float
 ) -> None:

@@ -255,10 +255,26 @@ class VisaTransport:
             return False
 
     def drain(self) -> None:
-        """Discard any input waiting (a late or partial reply), so the next reply is in step."""
+        """Discard any input waiting (a late or partial reply), so the next reply is in step.
+
+        On a pyvisa-py SOCKET session the socket is drained here, bounded by the timeout:
+        pyvisa-py's own ``clear`` reads until the link has been quiet for 0.1 s, which never
+        happens while an instrument floods it (an endless ``#0`` block).  An instrument still
+        sending after the timeout is reported as :class:`ConnectionClosed`, so the session reopens
+        the link (dropping the flood) before its next use."""
         resource = self._live()
-        with self._mapped("<clear>"):
-            self._visa(resource).clear()
+        sock = _socket_of(resource)
+        if sock is None:
+            with self._mapped("<clear>"):
+                self._visa(resource).clear()
+            return
+        pending = getattr(_pyvisa_py_session(resource), "_pending_buffer", None)
+        if isinstance(pending, bytearray):
+            pending.clear()
+        try:
+            sockio.discard_input(sock, self._timeout_ms / 1000.0)
+        except _MAPPED_ERRORS as exc:
+            raise self._translate(exc, "<clear>") from exc
 
     # -- life cycle ----------------------------------------------------------------------------
     def reconnect(self) -> None:

@@ -9,6 +9,7 @@ when the scope is opened) and are calibrated with ``TRACe:PREamble?``:
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from typing import TYPE_CHECKING
 
@@ -105,8 +106,10 @@ class Scope(RoleDriver):
         binary = self.dialect.binary
         with self.session.lock:
             pre = self._query("preamble", input=n)
-            payload = self.session.query_block_bytes(self._command("fetch", input=n))
-        dtype = numpy_dtype(binary.kind, binary.big_endian)
+            dtype = numpy_dtype(binary.kind, binary.big_endian)
+            payload = self.session.query_block_bytes(
+                self._command("fetch", input=n), expected_bytes=expected_bytes(pre, dtype.itemsize)
+            )
         if len(payload) % dtype.itemsize:
             raise ProtocolError(
                 f"CHAN{n}: block of {len(payload)} bytes is not a whole number of {binary.kind}",
@@ -141,6 +144,17 @@ def calibrated_trace(codes: np.ndarray, preamble: Sequence[float], *, source: st
     volts *= dy
     volts += y0
     return Trace(volts=volts, dt_s=dx, t0_s=x0, source=source, averages=max(1, int(averages)))
+
+
+def expected_bytes(preamble: Sequence[float], itemsize: int) -> int | None:
+    """The size of the record the preamble announces (points x sample width), or None when the
+    preamble gives no usable point count (the block read then falls back to its hard cap)."""
+    if len(preamble) < len(PREAMBLE_FIELDS):
+        return None
+    points = float(preamble[PREAMBLE_FIELDS.index("points")])
+    if not math.isfinite(points) or points < 1 or points > 1 << 32:
+        return None
+    return int(points) * itemsize
 
 
 def _input(input: int) -> int:

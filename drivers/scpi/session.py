@@ -30,9 +30,17 @@ from drivers.errors import (
     InstrumentError,
     InstrumentTimeout,
     ProtocolError,
+    ReadStopped,
     TransportError,
 )
-from drivers.scpi.blocks import MAX_BLOCK_BYTES, decode_payload, parse_block_header
+from drivers.scpi.blockread import (
+    DEFAULT_BLOCK_CHUNK,
+    DEFAULT_MIN_TRANSFER_BPS,
+    BlockBounds,
+    StopCheck,
+    read_block,
+)
+from drivers.scpi.blocks import MAX_BLOCK_BYTES, decode_payload
 
 DEFAULT_OPC_TIMEOUT_MS = 10_000
 DEFAULT_RETRIES = 1
@@ -123,6 +131,8 @@ class ScpiSession:
         clear_command: str = "*CLS",
         opc_query: str = "*OPC?",
         max_block_bytes: int = MAX_BLOCK_BYTES,
+        min_transfer_Bps: float = DEFAULT_MIN_TRANSFER_BPS,
+        block_chunk_bytes: int = DEFAULT_BLOCK_CHUNK,
     ) -> None:
         self.transport = transport
         self.check_errors = check_errors
@@ -132,6 +142,11 @@ class ScpiSession:
         self.clear_command = clear_command
         self.opc_query = opc_query
         self.max_block_bytes = max_block_bytes
+        self.min_transfer_Bps = min_transfer_Bps
+        self.block_chunk_bytes = block_chunk_bytes
+        #: Looked at between the chunks of a block read (the engine hands the run's stop flag down
+        #: through ``Bench.watch_stop``); True gives the read up with ``ReadStopped``.
+        self.stop_check: StopCheck | None = None
         self.lock = threading.RLock()
         self._settings: dict[str, str] = {}
         self._out_of_step = False
@@ -220,19 +235,31 @@ class ScpiSession:
         kind: str = "int16",
         big_endian: bool = True,
         timeout_ms: int | None = None,
+        expected_bytes: int | None = None,
     ) -> np.ndarray:
         """Query an IEEE 488.2 binary block (``#<n><len>`` or ``#0``) straight into a numpy array
-        (native byte order)."""
-        payload = self.query_block_bytes(command, timeout_ms=timeout_ms)
+        (native byte order).  ``expected_bytes``: see :meth:`query_block_bytes`."""
+        payload = self.query_block_bytes(
+            command, timeout_ms=timeout_ms, expected_bytes=expected_bytes
+        )
         try:
             return decode_payload(payload, kind=kind, big_endian=big_endian)
         except ProtocolError as exc:
             raise ProtocolError(str(exc), address=self.address, command=command) from None
 
-    def query_block_bytes(self, command: str, *, timeout_ms: int | None = None) -> bytes:
-        """The data bytes of a binary block reply (header and terminator consumed), undecoded."""
+    def query_block_bytes(
+        self, command: str, *, timeout_ms: int | None = None, expected_bytes: int | None = None
+    ) -> bytes:
+        """The data bytes of a binary block reply (header and terminator consumed), undecoded.
+
+        Bounded (see :mod:`drivers.scpi.blockread`): at most ``expected_bytes`` plus a margin when
+        given (the record's points x sample width), else ``max_block_bytes``; done within the
+        timeout plus the size over ``min_transfer_Bps``; given up when ``stop_check`` says so.
+        """
         with self.lock:
-            return self._call(lambda: self._ask_block(command, timeout_ms), retry=True)
+            return self._call(
+                lambda: self._ask_block(command, timeout_ms, expected_bytes), retry=True
+            )
 
     def identify(self) -> Identity:
         """``*IDN?`` parsed into maker, model, serial and firmware; a garbled reply puts the session
@@ -286,6 +313,9 @@ class ScpiSession:
         for attempt in range(attempts):
             try:
                 return op()
+            except ReadStopped:  # the rest of the reply is still coming: resync before next use
+                self._out_of_step = True
+                raise
             except (InstrumentTimeout, ProtocolError) as exc:
                 self._out_of_step = True
                 if attempt == attempts - 1:
@@ -303,6 +333,12 @@ class ScpiSession:
         raise AssertionError("unreachable")  # pragma: no cover
 
     def _recover_if_needed(self) -> None:
+        if self._out_of_step and not self._link_lost:
+            try:
+                self._resync()
+                return
+            except ConnectionClosed:  # a flood that never stops, or a closed peer: reopen
+                self._link_lost = True
         if self._link_lost:
             self.transport.reconnect()
             self.reconnects += 1
@@ -311,8 +347,6 @@ class ScpiSession:
             self._resync()
             for command in list(self._settings.values()):
                 self._write_checked(command)
-        elif self._out_of_step:
-            self._resync()
 
     def _resync(self) -> None:
         self.resyncs += 1
@@ -373,59 +407,24 @@ class ScpiSession:
             f"error queue still not empty after {MAX_ERROR_ENTRIES} reads", address=self.address
         )
 
-    def _ask_block(self, command: str, timeout_ms: int | None) -> bytes:
+    def _ask_block(
+        self, command: str, timeout_ms: int | None, expected_bytes: int | None
+    ) -> bytes:
         try:
-            return self._read_block_reply(command, timeout_ms)
+            with self._timeout(timeout_ms):
+                self._send(command)
+                bounds = BlockBounds(
+                    cap_bytes=self.max_block_bytes,
+                    timeout_s=self.transport.timeout_ms / 1000.0,
+                    min_transfer_Bps=self.min_transfer_Bps,
+                    chunk_bytes=self.block_chunk_bytes,
+                    stop=self.stop_check,
+                )
+                return read_block(
+                    self.transport, bounds, command=command, expected_bytes=expected_bytes
+                )
         except TransportError as exc:
             raise exc.with_command(command) from exc
-
-    def _read_block_reply(self, command: str, timeout_ms: int | None) -> bytes:
-        with self._timeout(timeout_ms):
-            self._send(command)
-            head = self.transport.read_bytes(2)
-            for _ in range(8):  # tolerate a little whitespace before '#'
-                if head[:1] not in (b" ", b"\r", b"\n", b"\t"):
-                    break
-                head = head[1:] + self.transport.read_bytes(1)
-            if head[:1] != b"#" or not head[1:2].isdigit():
-                raise ProtocolError(
-                    f"binary block must start with '#<digit>', got {head!r}",
-                    address=self.address,
-                    command=command,
-                )
-            ndigits = int(head[1:2])
-            if ndigits == 0:
-                return self._read_indefinite(command)
-            header = head + self.transport.read_bytes(ndigits)
-            try:
-                _, length = parse_block_header(header, max_bytes=self.max_block_bytes)
-            except ProtocolError as exc:
-                raise ProtocolError(str(exc), address=self.address, command=command) from None
-            assert length is not None
-            payload = self.transport.read_bytes(length)
-            rest = self.transport.read()
-            if rest.strip(b"\r\n"):
-                raise ProtocolError(
-                    f"{len(rest)} unexpected bytes after the binary block",
-                    address=self.address,
-                    command=command,
-                )
-            return payload
-
-    def _read_indefinite(self, command: str) -> bytes:
-        """``#0`` data runs to the message terminator; a terminator byte followed at once by more
-        data is part of the data (a real instrument sends the block in one go)."""
-        term = self.transport.read_termination.encode("ascii")
-        data = bytearray(self.transport.read())
-        while self.transport.more_pending():
-            data += term + self.transport.read()
-            if len(data) > self.max_block_bytes:
-                raise ProtocolError(
-                    f"indefinite block above the cap of {self.max_block_bytes} bytes",
-                    address=self.address,
-                    command=command,
-                )
-        return bytes(data)
 
     @contextlib.contextmanager
     def _timeout(self, timeout_ms: int | None) -> Iterator[None]:

@@ -12,7 +12,7 @@ from collections.abc import Callable, Mapping, Sequence
 from datetime import UTC, datetime
 from typing import Any
 
-from drivers.errors import BenchwrightError
+from drivers.errors import BenchwrightError, ReadStopped
 from sequencer.errors import RunAborted
 from sequencer.events import (
     Event,
@@ -69,6 +69,7 @@ class Runner:
         self.info = info
         self.handlers = handler_table()
         self.stop = StopFlag()
+        self._ctx: RunContext | None = None
 
     # -- events -------------------------------------------------------------------------------
     def emit(self, event: Event) -> None:
@@ -80,7 +81,16 @@ class Runner:
         """Execute the plan; ``RunOutcome`` at the normal end, else ``RunAborted`` (after cleanup
         and the bias safe state)."""
         with stop_on_signals(self.stop, enabled=self.options.handle_signals):
-            return self._run()
+            self.bench.watch_stop(self._read_should_stop)
+            try:
+                return self._run()
+            finally:
+                self.bench.watch_stop(None)
+
+    def _read_should_stop(self) -> bool:
+        """Long reads (binary blocks) give up when a stop was requested, except in the cleanup
+        block, which runs to its end."""
+        return self.stop.requested and not (self._ctx is not None and self._ctx.in_cleanup)
 
     def _run(self) -> RunOutcome:
         ctx = RunContext(
@@ -93,6 +103,7 @@ class Runner:
             stop=self.stop,
         )
         ctx.guard = guard = BiasGuard(ctx)
+        self._ctx = ctx
         info = self.info or describe_run(self.plan, self.bench, operator=self.options.operator)
         self.emit(RunStarted(run_id=self.run_id, info=info, at=self.clock()))
         failure: RunAborted | None = None
@@ -289,6 +300,8 @@ class Runner:
             )
         if isinstance(exc, KeyboardInterrupt):
             return RunAborted("stopped by SIGINT", cause="signal", step_path=path)
+        if isinstance(exc, ReadStopped) and self.stop.requested:  # the stop is the news
+            return RunAborted(self.stop.reason, cause=self.stop.cause, step_path=path)
         cause = "instrument" if isinstance(exc, FAULTS) else "error"
         return RunAborted(
             describe_fault(exc, self.bench.spec.instruments), cause=cause, step_path=path

@@ -415,6 +415,8 @@ class BiasGuard:
         try:
             self.bias.set_output(False)
             self.record("output", path, on=False, why="implausible reading")
+            self.bias.start_ramp(0.0, self._rate(None))  # output off: nothing moves
+            self.record("setpoint", path, volts=0.0, output=False)
             return self._verify(path)
         except BenchwrightError as exc:
             self.record("unsafe", path, error=str(exc))

@@ -48,7 +48,7 @@ def test_an_implausible_voltage_aborts_and_switches_off_at_once(reply):
     assert "implausible" in str(out)
     assert "implausible" in kinds(safety)
     off = [e for e in safety if e.kind == "output" and e.detail.get("why") == "implausible reading"]
-    assert len(off) == 1 and state.bias["output"] is False
+    assert len(off) == 1 and state.bias["output"] is False and state.bias["setpoint"] == 0.0
     # the read-back still lies, so the safe state cannot be confirmed: UNSAFE, with the remedy
     assert "UNSAFE" in str(out) and "benchwright safe --bench" in str(out)
     assert events[-1].status == "aborted"
