@@ -14,6 +14,7 @@ import numpy as np
 
 from drivers.dialect_waveform import WaveformSpec
 from drivers.errors import ConfigError, Problem, ProtocolError
+from drivers.scpi.blocks import numpy_dtype
 from drivers.scpi.replies import parse_number, split_fields
 from drivers.scpi.session import ScpiSession
 from drivers.scpi.templates import ExpressionError, Template
@@ -70,13 +71,13 @@ def read_preamble(session: ScpiSession, spec: WaveformSpec, input: int) -> Pream
 def read_codes(session: ScpiSession, spec: WaveformSpec, input: int, pre: Preamble) -> np.ndarray:
     command = _fill(spec, spec.data_query, input=input)
     if spec.chunk_range is None or spec.max_points is None or pre.points is None:
-        return _one(session, spec, command)
+        return _one(session, spec, command, pre.points)
     parts = []
     for first, count in chunk_ranges(pre.points, spec.max_points):
         fields = {"input": input, "start": first + 1, "stop": first + count, "offset": first,
                   "count": count}  # fmt: skip
         session.write(_fill(spec, spec.chunk_range, **fields), reapply=False)
-        part = _one(session, spec, command)
+        part = _one(session, spec, command, count)
         if len(part) != count:
             raise ProtocolError(
                 f"chunk at point {first + 1}: asked for {count} points, got {len(part)}",
@@ -87,12 +88,16 @@ def read_codes(session: ScpiSession, spec: WaveformSpec, input: int, pre: Preamb
     return np.concatenate(parts) if parts else np.zeros(0)
 
 
-def _one(session: ScpiSession, spec: WaveformSpec, command: str) -> np.ndarray:
+def _one(
+    session: ScpiSession, spec: WaveformSpec, command: str, points: int | None = None
+) -> np.ndarray:
     if spec.data.ascii:
         text = session.query(command)
         payload = _strip_block_header(text).encode("ascii")
-    else:
-        payload = session.query_block_bytes(command)
+    else:  # the block read is capped at the record the preamble announced (plus a margin)
+        width = numpy_dtype(spec.data.kind, spec.data.big_endian).itemsize
+        expected = int(points) * width if points is not None and points > 0 else None
+        payload = session.query_block_bytes(command, expected_bytes=expected)
     try:
         return decode_codes(payload, spec.data)
     except (ValueError, UnicodeDecodeError) as exc:
