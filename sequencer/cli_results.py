@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import sys
 from pathlib import Path
+from typing import Any
 
 import click
 
@@ -55,41 +56,76 @@ def verify(db: str | None, certificate: str) -> None:
 @db_option
 @click.option("--board", required=True, help="Board serial.")
 @click.option("--quantity", required=True, help="Quantity name, e.g. gain or noise_in_mV.")
-@click.option("--channel", type=int, default=None)
+@click.option("--channel", type=int, default=None, help="One channel (default: every channel, as small multiples).")
 @click.option("--output", default=None, help="Output name (x1, x5, shaped).")
+@click.option("--procedure", default=None, help="Only runs of this procedure.")
 @click.option("--reference-runs", type=int, default=5, show_default=True, help="Runs that define the control band.")
 @click.option("--band", nargs=2, type=float, default=None, metavar="LOW HIGH", help="Give the control band instead.")
 @click.option("--out", "out_file", type=click.Path(dir_okay=False), default=None, help="Write the plot (PNG).")
 @click.option("--format", "fmt", type=click.Choice(["text", "csv"]), default="text", show_default=True)
 @handles_errors
 def trend(db: str | None, board: str, quantity: str, channel: int | None, output: str | None,
-          reference_runs: int, band: tuple[float, float] | None, out_file: str | None, fmt: str) -> None:
-    """The quantity over past runs of a board, with a control band; warns on drift."""
-    from sequencer import compose
-    from sequencer.reports import plot_trend, trend_csv
-    from sequencer.reports import trend as compute_trend
+          procedure: str | None, reference_runs: int, band: tuple[float, float] | None,
+          out_file: str | None, fmt: str) -> None:
+    """The quantity over past runs of a board, with a control band; warns on drift.
 
+    Without --channel a quantity measured on several channels is shown for all of them: one
+    section per channel in the text, small multiples in the PNG."""
+    from sequencer import compose
+    from sequencer.reports import plot_trend, plot_trends, trend_csv, trends
+    from sequencer.reports import trend as compute_trend
+    from sequencer.reports.trend import series_keys
+
+    kwargs = dict(reference_runs=reference_runs, band=tuple(band) if band else None, procedure=procedure)
     with compose.open_existing_store(db, env()) as store:
         try:
-            result = compute_trend(store, board, quantity, channel=channel, output=output,
-                                   reference_runs=reference_runs, band=tuple(band) if band else None)
+            keys = [] if channel is not None else series_keys(store, board, quantity, output=output, procedure=procedure)
+            if len(keys) > 1:
+                results = trends(store, board, quantity, output=output, **kwargs)
+            else:
+                results = [compute_trend(store, board, quantity, channel=channel, output=output, **kwargs)]
         except ValueError as exc:
             fail(EXIT_INPUT, f"error: {exc}")
+    several = len(results) > 1
     if fmt == "csv":
-        text = trend_csv(result)
-        click.echo(text, nl=not text.endswith("\n"))
+        click.echo(_trends_csv(results, trend_csv) if several else trend_csv(results[0]), nl=False)
     else:
-        where = f"channel {result.channel} " if result.channel is not None else ""
-        where += f"output {result.output} " if result.output else ""
-        click.echo(f"{result.quantity} of {result.board} {where}over {len(result.points)} run(s)")
-        if result.band_low is not None:
-            click.echo(f"control band {result.band_low:.6g} … {result.band_high:.6g} {result.unit} ({result.band_source})")
-        for p in result.flagged:
-            click.echo(f"  outside the band: run {p.run_id} value {p.value:.6g}")
+        for result in results:
+            _echo_trend(result)
     if out_file:
-        click.echo(f"plot: {plot_trend(result, Path(out_file))}")
-    if result.warning:
-        click.echo(f"warning: {result.warning}", err=True)
+        path = plot_trends(results, Path(out_file)) if several else plot_trend(results[0], Path(out_file))
+        click.echo(f"plot: {path}")
+    for result in results:
+        if result.warning:
+            where = f"{_where(result)}: " if several else ""
+            click.echo(f"warning: {where}{result.warning}", err=True)
+
+
+def _where(result: Any) -> str:
+    where = f"channel {result.channel} " if result.channel is not None else ""
+    return (where + (f"output {result.output} " if result.output else "")).strip()
+
+
+def _echo_trend(result: Any) -> None:
+    where = _where(result)
+    runs = " ".join(str(p.run_id) for p in result.points)
+    click.echo(f"{result.quantity} of {result.board} {where + ' ' if where else ''}over {len(result.points)} run(s): {runs}")
+    if result.band_low is not None:
+        click.echo(f"  control band {result.band_low:.6g} … {result.band_high:.6g} {result.unit} ({result.band_source})")
+    for p in result.flagged:
+        click.echo(f"  outside the band: run {p.run_id} value {p.value:.6g}")
+
+
+def _trends_csv(results: list[Any], one: Any) -> str:
+    """Several series in one CSV: ``channel,output`` in front of the one-series columns."""
+    lines: list[str] = []
+    for result in results:
+        body = one(result).splitlines()
+        if not lines:
+            lines.append("channel,output," + body[0])
+        prefix = f"{'' if result.channel is None else result.channel},{result.output or ''},"
+        lines += [prefix + row for row in body[1:]]
+    return "\n".join(lines) + "\n"
 
 
 @click.command()

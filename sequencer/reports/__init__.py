@@ -15,7 +15,7 @@ Plotting (matplotlib, Agg) and PDF (fpdf2) are imported only where used.
 from .batch_report import BatchSummary, batch_report, batch_summary, format_summary
 from .certificate_data import CertificateData, certificate_number, gather_certificates
 from .certify import certify_run
-from .trend import TrendResult, plot_trend, trend, trend_csv
+from .trend import TrendResult, plot_trend, plot_trends, trend, trend_csv, trends
 from .verify import VerifyResult, verify_certificate
 
 __all__ = [
@@ -30,7 +30,9 @@ __all__ = [
     "format_summary",
     "gather_certificates",
     "plot_trend",
+    "plot_trends",
     "trend",
     "trend_csv",
+    "trends",
     "verify_certificate",
 ]

@@ -67,6 +67,7 @@ def trend(
     output: str | None = None,
     reference_runs: int = DEFAULT_REFERENCE_RUNS,
     band: tuple[float, float] | None = None,
+    procedure: str | None = None,
 ) -> TrendResult:
     """The trend of ``quantity`` on ``board`` (module docstring).
 
@@ -77,7 +78,7 @@ def trend(
         raise ValueError(f"reference_runs must be >= 2 to compute a band, got {reference_runs}")
     series = [
         p
-        for p in store.quantity_series(board, quantity, channel=channel, output=output)
+        for p in store.quantity_series(board, quantity, channel=channel, output=output, procedure=procedure)
         if p.value is not None and math.isfinite(p.value)
     ]
     keys = sorted({(p.channel, p.output) for p in series}, key=lambda k: (k[0] or 0, k[1] or ""))
@@ -103,6 +104,11 @@ def trend(
         for p in series
     )
     drift, warning = _drift(points, lo, hi, source, quantity)
+    n_ref = min(len(points), reference_runs)
+    if band is None and lo is not None and n_ref < reference_runs:
+        thin = (f"the control band rests on {n_ref} run(s), fewer than the {reference_runs} asked "
+                "for: it is uncertain itself")  # fmt: skip
+        warning = f"{warning}; {thin}" if warning else thin
     ch, out = keys[0] if keys else (channel, output)
     return TrendResult(
         board=board,
@@ -118,6 +124,33 @@ def trend(
         drift=drift,
         warning=warning,
     )
+
+
+def series_keys(
+    store: Any, board: str, quantity: str, *, output: str | None = None, procedure: str | None = None
+) -> list[tuple[int | None, str | None]]:
+    """The (channel, output) series of ``quantity`` on ``board``, by channel then output."""
+    points = store.quantity_series(board, quantity, output=output, procedure=procedure)
+    keys = {(p.channel, p.output) for p in points if p.value is not None}
+    return sorted(keys, key=lambda k: (k[0] or 0, k[1] or ""))
+
+
+def trends(
+    store: Any,
+    board: str,
+    quantity: str,
+    *,
+    output: str | None = None,
+    reference_runs: int = DEFAULT_REFERENCE_RUNS,
+    band: tuple[float, float] | None = None,
+    procedure: str | None = None,
+) -> list[TrendResult]:
+    """One trend per channel (and output) of ``quantity`` on ``board``: all channels at once."""
+    return [
+        trend(store, board, quantity, channel=ch, output=out, reference_runs=reference_runs,
+              band=band, procedure=procedure)
+        for ch, out in series_keys(store, board, quantity, output=output, procedure=procedure)
+    ]
 
 
 def _band(
@@ -194,27 +227,48 @@ def _cell(v: float | None) -> str:
 
 
 def plot_trend(result: TrendResult, path: Path | str) -> Path:
-    """PNG of the trend: points (flagged ones as open squares), the band, the limits."""
+    """PNG of the trend: points (flagged ones as open squares), the band, the limits; the run ids
+    on the axis (their dates below)."""
     from .plots import new_figure
 
     fig = new_figure(7.4, 3.2)
-    ax = fig.add_axes((0.1, 0.2, 0.86, 0.68))
+    ax = fig.add_axes((0.1, 0.24, 0.86, 0.64))
+    _draw(ax, result, legend=True, dates=True)
+    return _save(fig, path)
+
+
+def plot_trends(results: list[TrendResult], path: Path | str, columns: int = 4) -> Path:
+    """Small multiples: one panel per channel/output series, same layout as ``plot_trend``."""
+    from .plots import new_figure
+
+    if not results:
+        raise ValueError("no series to plot")
+    cols = min(columns, len(results))
+    rows = math.ceil(len(results) / cols)
+    fig = new_figure(2.6 * cols + 0.6, 2.1 * rows + 0.5)
+    axes = fig.subplots(rows, cols, squeeze=False)
+    for ax, result in zip(axes.flat, results, strict=False):
+        _draw(ax, result, legend=False, dates=False)
+    for ax in list(axes.flat)[len(results):]:
+        ax.set_visible(False)
+    first = results[0]
+    fig.suptitle(f"{first.board}: {first.quantity} ({first.unit}) by channel; x: run id", fontsize=9)
+    fig.tight_layout(rect=(0, 0, 1, 0.95))
+    return _save(fig, path)
+
+
+def _draw(ax: Any, result: TrendResult, *, legend: bool, dates: bool) -> None:
     x = np.arange(len(result.points))
     y = np.asarray([p.value for p in result.points], dtype=float)
     ok = np.asarray([not p.outside_band for p in result.points], dtype=bool)
     ax.plot(x, y, color="0.6", lw=0.8)
-    ax.plot(x[ok], y[ok], "o", color="black", ms=5, label="run")
+    ax.plot(x[ok], y[ok], "o", color="black", ms=5 if legend else 3, label="run")
     if (~ok).any():
-        ax.plot(x[~ok], y[~ok], "s", mfc="none", mec="black", ms=9, mew=1.5, label="outside band")
+        ax.plot(x[~ok], y[~ok], "s", mfc="none", mec="black", ms=9 if legend else 6, mew=1.5,
+                label="outside band")  # fmt: skip
     if result.band_low is not None:
-        ax.axhspan(
-            result.band_low,
-            result.band_high,
-            color="0.9",
-            hatch="..",
-            ec="0.6",
-            label=f"control band ({result.band_source})",
-        )
+        ax.axhspan(result.band_low, result.band_high, color="0.9", hatch="..", ec="0.6",
+                   label=f"control band ({result.band_source})")  # fmt: skip
         ax.axhline(result.centre, color="black", lw=0.8, ls=":")
     lows = {p.low for p in result.points if p.low is not None}
     highs = {p.high for p in result.points if p.high is not None}
@@ -222,22 +276,24 @@ def plot_trend(result: TrendResult, path: Path | str) -> Path:
         ax.axhline(v, color="black", lw=1.2, ls="--")
     if lows or highs:
         ax.plot([], [], color="black", lw=1.2, ls="--", label="limits")
-    ax.set_xticks(
-        x, [p.started_at[:10] for p in result.points], rotation=30, ha="right", fontsize=7
-    )
-    where = "".join(
-        [
-            f" ch {result.channel}" if result.channel else "",
-            f" {result.output}" if result.output else "",
-        ]
-    )
-    ax.set_title(
-        f"{result.board}{where}: {result.quantity}" + (" — DRIFT" if result.drift else ""),
-        fontsize=9,
-    )
-    ax.set_ylabel(result.unit, fontsize=8)
-    ax.tick_params(axis="y", labelsize=7)
-    ax.legend(fontsize=7, loc="best")
+    labels = [
+        f"{p.run_id}\n{p.started_at[:10]}" if dates else str(p.run_id) for p in result.points
+    ]
+    ax.set_xticks(x, labels, fontsize=6 if dates else 5, rotation=0 if dates else 90)
+    where = "".join([
+        f" ch {result.channel}" if result.channel else "",
+        f" {result.output}" if result.output else "",
+    ])  # fmt: skip
+    title = f"{result.board}{where}: {result.quantity}" if legend else where.strip() or result.quantity
+    ax.set_title(title + (" — DRIFT" if result.drift else ""), fontsize=9 if legend else 7)
+    if legend:
+        ax.set_ylabel(result.unit, fontsize=8)
+        ax.set_xlabel("run id (date)", fontsize=7)
+        ax.legend(fontsize=7, loc="best")
+    ax.tick_params(axis="y", labelsize=7 if legend else 5)
+
+
+def _save(fig: Any, path: Path | str) -> Path:
     out = Path(path)
     out.parent.mkdir(parents=True, exist_ok=True)
     fig.savefig(out, format="png", dpi=110)

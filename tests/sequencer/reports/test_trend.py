@@ -99,3 +99,27 @@ def test_png(weekly, tmp_path):
     r = trend(store, DRIFTING, "gain", channel=1, output="x1")
     out = plot_trend(r, tmp_path / "trend.png")
     assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (ISO/IEC 15948)
+
+
+def test_all_channels_at_once_and_a_thin_band_warns(weekly):
+    from sequencer.reports import trends
+
+    store, _ = weekly
+    every = trends(store, DRIFTING, "gain")
+    stored_keys = {(m.channel, m.output) for m in store.measurements(board=DRIFTING) if m.quantity == "gain"}
+    assert [(r.channel, r.output) for r in every] == sorted(stored_keys)  # by channel, then output
+    assert all(len(r.points) == WEEKS for r in every)
+    thin = trend(store, DRIFTING, "gain", channel=2, output="x1", reference_runs=WEEKS + 5)
+    assert f"rests on {WEEKS} run(s), fewer than the {WEEKS + 5}" in thin.warning
+    assert "rests on" not in trend(store, STEADY, "gain", channel=2, output="x1").warning
+    assert trend(store, DRIFTING, "gain", channel=1, output="x1", procedure="no-such-procedure").points == ()
+
+
+def test_small_multiples_png(weekly, tmp_path):
+    from sequencer.reports import plot_trends, trends
+
+    store, _ = weekly
+    path = plot_trends(trends(store, STEADY, "gain"), tmp_path / "all.png")
+    assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (ISO/IEC 15948)
+    with pytest.raises(ValueError):
+        plot_trends([], tmp_path / "none.png")

@@ -37,3 +37,21 @@ def test_batches_listing(recorded) -> None:
     b07 = rows["NR-B07"]
     assert (b07["boards"], b07["runs"], b07["passed"], b07["failed"], b07["running"]) == (2, 2, 1, 1, 0)
     assert rows["NR-B08"]["first"] == rows["NR-B08"]["last"]
+
+
+def test_trend_without_a_channel_shows_every_channel(recorded, tmp_path) -> None:
+    url, store = recorded
+    attach_commands()
+    png = tmp_path / "gain.png"
+    result = CliRunner().invoke(cli, ["trend", "--db", url, "--board", "NR-PA8-0002", "--quantity", "gain",
+                                      "--procedure", "pa8-qualify", "--out", str(png)])  # fmt: skip
+    assert result.exit_code == 0, result.output
+    keys = {(m.channel, m.output) for m in store.measurements(board="NR-PA8-0002") if m.quantity == "gain"}
+    assert len(keys) > 1
+    for ch, out in keys:
+        assert f"channel {ch} output {out} over 1 run(s): 2" in result.output  # run ids listed
+    assert png.read_bytes()[:4] == b"\x89PNG"
+    csv_text = CliRunner().invoke(cli, ["trend", "--db", url, "--board", "NR-PA8-0002", "--quantity", "gain",
+                                        "--format", "csv"]).output  # fmt: skip
+    assert csv_text.splitlines()[0].startswith("channel,output,run_id,")
+    assert len([line for line in csv_text.splitlines()[1:] if line[:1].isdigit()]) == len(keys)
