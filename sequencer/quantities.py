@@ -26,5 +26,15 @@ QUANTITY_UNITS: Mapping[str, str] = MappingProxyType(
         "coincidence_plateau_hz": "Hz",
         "coincidence_efficiency_pct": "%",
         "accidental_ratio": "1",
+        # light sensors (SiPM) and scintillator modules
+        "sipm_gain": "1e6",
+        "pe_gain_mV": "mV",
+        "pedestal_mV": "mV",
+        "mean_pe": "p.e.",
+        "breakdown_V": "V",
+        "breakdown_ref_V": "V",
+        "gain_slope": "1e6/V",
+        "dcr_kHz": "kHz",
+        "optical_crosstalk_pct": "%",
     }
 )

@@ -149,7 +149,7 @@ class Runner:
             if (
                 role is not None
                 and role in self.bench.spec.instruments
-                and getattr(self.bench, role, None) is None
+                and self.bench.role(role) is None
             ):
                 problems.append(f"role {role!r} is not open on the bench (step {step.path})")
                 break

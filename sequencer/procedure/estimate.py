@@ -94,6 +94,8 @@ _RULES: dict[str, Callable[[EstimateSettings, _Bench, dict[str, Any]], float]] =
     "coincidence.count": lambda s, b, a: b.coincidence_gate + s.command_s,
     "bias.ramp": _ramp,
     "bias.read": lambda s, b, a: 2 * s.command_s,
+    "mca.acquire": lambda s, b, a: float(a.get("expected") or 0.0) + 6 * s.command_s,
+    "temperature.read": lambda s, b, a: s.command_s,
     "wait": lambda s, b, a: float(a["seconds"]),
     "prompt": lambda s, b, a: s.prompt_s,
 }

@@ -77,6 +77,12 @@ _TRACE_ANALYSIS = (
         doc="samples before the pulse used as baseline; 0 = every pre-trigger sample"),
 )
 
+_SENSOR_ANALYSIS = (
+    Arg("histogram", "name", doc="name given to the pulse-height histograms (mca.acquire into)"),
+    Arg("mV_per_fC", "float", doc="charge gain of the readout channel, from its own qualification"),
+    Arg("polarity", "str", required=False, default="positive", choices=("positive", "negative")),
+)
+
 KINDS: Mapping[str, StepKind] = {k.name: k for k in (
     # -- pulser -----------------------------------------------------------------------------------
     _k("pulser.amplitude", "pulser", "set the test-pulse amplitude",
@@ -134,6 +140,20 @@ KINDS: Mapping[str, StepKind] = {k.name: k for k in (
     _k("switch.inject", "switch", "select the channel that receives the test pulse",
        Arg("channel", "int"), configures=True),
     _k("switch.open_all", "switch", "open every relay", configures=True),
+    # -- light sensors: pulse-height analyser, temperature -----------------------------------------
+    _k("mca.range", "mca", "histogram range and bins of the pulse-height analyser",
+       Arg("lower", "voltage"), Arg("upper", "voltage"), Arg("bins", "int"), configures=True),
+    _k("mca.trigger", "mca", "what triggers the pulse-height analyser",
+       Arg("source", "str", choices=("EXTernal", "COINcidence"),
+           doc="EXTernal: the pulser's sync (one trigger per LED pulse); COINcidence: the module's"),
+       configures=True),
+    _k("mca.acquire", "mca", "histogram the pulse heights of one input over a number of triggers",
+       Arg("channel", "int"), Arg("events", "int"), Arg("into", "name"),
+       Arg("expected", "duration", required=False, default=0.0,
+           doc="how long the triggers take (reply timeout and plan estimate)"),
+       measures=True),
+    _k("temperature.read", "temperature", "read the temperature beside the device (deg C)",
+       Arg("into", "name"), measures=True),
     # -- flow -------------------------------------------------------------------------------------
     _k("wait", None, "settle for a time", Arg("seconds", "duration")),
     _k("prompt", None, "show a message to the operator and wait for acknowledgement or a value",
@@ -182,6 +202,19 @@ KINDS: Mapping[str, StepKind] = {k.name: k for k in (
        Arg("resolving_time", "time", required=False,
            doc="τ; default: the resolving time measured earlier in the run"),
        produces=("accidental_ratio",)),
+    _k("analyse.fingers", None, "finger spectrum: gain per photoelectron and mean photoelectrons",
+       *_SENSOR_ANALYSIS, produces=("sipm_gain", "pe_gain_mV", "mean_pe", "pedestal_mV")),
+    _k("analyse.breakdown", None, "breakdown voltage: zero-gain intercept of the gain over a bias scan",
+       *_SENSOR_ANALYSIS, Arg("x", "name", doc="sweep variable holding the bias voltage"),
+       Arg("temperature", "name", required=False, doc="temperature.read reading"),
+       Arg("reference", "float", required=False, default=25.0, doc="reference temperature, deg C"),
+       Arg("coefficient", "float", required=False,
+           doc="dV_bd/dT in mV/K from the sensor's data (needed with temperature)"),
+       produces=("breakdown_V", "breakdown_ref_V", "gain_slope")),
+    _k("analyse.staircase", None, "dark-count rate at 0.5 and 1.5 p.e. and optical crosstalk",
+       Arg("counts", "name"), Arg("x", "name", doc="sweep variable holding the threshold (mV)"),
+       Arg("gate", "duration"),
+       produces=("dcr_kHz", "optical_crosstalk_pct")),
     _k("analyse.leakage", None, "bias-line current at the test voltage",
        Arg("reading", "name", doc="name given to bias.read"), produces=("leakage_nA",)),
 )}

@@ -11,7 +11,19 @@ from sequencer.procedure.plan_model import PlannedStep
 
 from ..context import RunContext
 from ..records import StepResult
-from . import analysis, bias, coincidence, counter, flow, pulser, scope, switch, threshold
+from . import (
+    analysis,
+    bias,
+    coincidence,
+    counter,
+    flow,
+    pulser,
+    scope,
+    sensor_analysis,
+    sensors,
+    switch,
+    threshold,
+)
 
 Handler = Callable[[RunContext, PlannedStep], StepResult]
 
@@ -19,6 +31,9 @@ Handler = Callable[[RunContext, PlannedStep], StepResult]
 def handler_table() -> Mapping[str, Handler]:
     """Every kind name of ``sequencer.procedure.kinds.KINDS`` mapped to its handler."""
     table: dict[str, Handler] = {}
-    for family in (pulser, scope, threshold, counter, coincidence, bias, switch, flow, analysis):
+    for family in (
+        pulser, scope, threshold, counter, coincidence, bias, switch, flow, analysis, sensors,
+        sensor_analysis,
+    ):
         table.update(family.HANDLERS)
     return table

@@ -80,7 +80,7 @@ def leaf_steps():
         names = [a.name for a in spec.args] + ["bogus"]
         junk = st.dictionaries(st.sampled_from(names), values, max_size=4)
         plausible = st.fixed_dictionaries(
-            {a.name: st.sampled_from(PLAUSIBLE[a.dimension]) for a in spec.args}
+            {a.name: st.sampled_from(list(a.choices) or PLAUSIBLE[a.dimension]) for a in spec.args}
         )
         return st.one_of(values, junk, plausible, plausible).map(lambda args: {kind: args})
 
@@ -156,7 +156,10 @@ def plausible_leaf():
     kinds = sorted(k for k in KINDS if not k.startswith("analyse."))
     return st.sampled_from(kinds).flatmap(
         lambda kind: st.fixed_dictionaries(
-            {a.name: st.sampled_from(PLAUSIBLE[a.dimension]) for a in KINDS[kind].args}
+            {
+                a.name: st.sampled_from(list(a.choices) or PLAUSIBLE[a.dimension])
+                for a in KINDS[kind].args
+            }
         ).map(lambda a: {kind: a})
     )
 
