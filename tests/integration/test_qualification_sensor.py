@@ -56,11 +56,7 @@ def run(sensor: Path, db: Path) -> dict[str, Any]:
     board = dataclasses.replace(load_board_type("SiPM3"), serial=serial)
     plan = build_plan(procedure, board, overrides={"events": 6000})
     request = compose.RunRequest(
-        operator="test",
-        unattended=True,
-        progress=False,
-        handle_signals=False,
-        procedure_files=procedure.source_files(),
+        operator="test", unattended=True, progress=False, handle_signals=False
     )
     with Store.open(f"sqlite:///{db}") as store:
         with compose.bench_for(None, str(sensor)) as spec:
