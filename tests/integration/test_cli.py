@@ -202,7 +202,7 @@ def test_plan_takes_durations_from_a_recorded_run(recorded: tuple[str, str, int]
         assert seconds == pytest.approx(took[path], abs=5e-4), path  # printed to 1 ms
     total = sum(took.values())
     assert f"durations of {len(took)} of {len(took)} steps from run 1" in out
-    assert "estimated duration" in out and total < 60
+    assert "estimated duration" in out and total > 0
 
 
 def test_plan_timing_from_a_missing_run_is_one_line(recorded: tuple[str, str, int]) -> None:

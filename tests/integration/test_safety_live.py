@@ -134,6 +134,15 @@ def test_normal_end_ramps_down_to_zero_and_stores_every_event(tmp_path):
     assert k[-1] == "safe_state" and events[-1].detail["output"] is False
 
 
+def completed_paths(url: str) -> list[str]:
+    """Paths of the completed steps of the only run at ``url`` (order of events, not a clock)."""
+    from sequencer.store import Store
+
+    with Store.open(url) as store:
+        (run,) = store.list_runs()
+        return [s.path for s in store.steps(run.id) if s.status == "completed"]
+
+
 def test_interlock_opening_while_live_brings_the_supply_safe(tmp_path):
     db = f"sqlite:///{tmp_path / 'results.db'}"
     # opens 1.5 s after the output first went on: 0.5 s into a 10 s soak at 5 V
@@ -149,7 +158,8 @@ def test_interlock_opening_while_live_brings_the_supply_safe(tmp_path):
     assert done.code == EXIT_ABORT, done
     line = last_line(done.stderr)
     assert line.startswith("aborted: ") and "interlock" in line and "UNSAFE" not in line, line
-    assert done.seconds < 10.0  # stopped at once, not at the end of the soak
+    paths = completed_paths(db)  # stopped during the 10 s soak, not at its end
+    assert "up" in paths and "soak" not in paths, paths
     assert_off_at_zero(state)
     run, events = the_run(db)
     assert run.status == "aborted" and "interlock" in run.reason

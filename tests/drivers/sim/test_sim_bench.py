@@ -157,10 +157,8 @@ def test_stop_closes_open_client_connections():
     try:
         client.sendall(b"*IDN?\n")
         assert client.recv(256).startswith(MAKER.encode())
-        t = time.perf_counter()
         bench.stop()
-        assert time.perf_counter() - t < 2.0
-        assert client.recv(256) == b""  # the server closed our connection
+        assert client.recv(256) == b""  # the server closed our connection (a hang: timeout error)
     finally:
         client.close()
         bench.stop()  # idempotent
