@@ -19,6 +19,7 @@ batch (the boards done so far stay in the store and in the summary).
 from __future__ import annotations
 
 import contextlib
+import time
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -27,6 +28,7 @@ from typing import Any, Literal
 from drivers.bench import BenchSpec, load_bench
 from sequencer import compose
 from sequencer.errors import ConfigError, Location, Problem, RunAborted
+from sequencer.pace import describe_left, time_left
 from sequencer.procedure import (
     Batch,
     BatchBoard,
@@ -163,6 +165,7 @@ class _BatchRun:
         self.outcomes: list[BoardOutcome] = []
 
     def run(self) -> BatchOutcome:
+        self._t0 = time.monotonic()
         self.store.mark_stale_runs_interrupted()
         count = len(self.batch.boards)
         stopped = False
@@ -233,9 +236,11 @@ class _BatchRun:
         run = f"run {outcome.run_id}, " if outcome.run_id is not None else ""
         detail = f"{outcome.passed}/{outcome.channels} channels passed" if outcome.channels else ""
         note = "; ".join(x for x in (detail, outcome.note) if x)
+        left = describe_left(time_left(index, count, time.monotonic() - self._t0)) if index < count else ""
+        pace = f" - {left} for the batch at the pace so far" if left else ""
         self.options.echo(
             f"[{index}/{count}] {outcome.serial}: {outcome.status.upper()} ({run}{note}) "
-            f"- running yield {passed}/{channels} channels ({share})"
+            f"- running yield {passed}/{channels} channels ({share}){pace}"
         )
 
     def _yield_so_far(self) -> tuple[int, int]:

@@ -21,11 +21,13 @@ from sequencer.cli_common import EXIT_FAIL, EXIT_INPUT, db_option, env, fail, ha
 def certify(db: str | None, run_id: int, out_dir: str, paper: str) -> None:
     """One certificate per channel (PDF and HTML) for a run."""
     from sequencer import compose
+    from sequencer.cli_progress import counting
     from sequencer.reports import certify_run
 
     with compose.open_existing_store(db, env()) as store:
         compose.check_store(store, run_id)
-        paths = certify_run(store, run_id, Path(out_dir), paper=paper)
+        with counting(f"certificates of run {run_id}") as progress:
+            paths = certify_run(store, run_id, Path(out_dir), paper=paper, on_progress=progress)
     pdfs = [p for p in paths if p.suffix == ".pdf"]
     click.echo(f"{len(pdfs)} certificate(s) (PDF and HTML) in {out_dir}")
     for p in pdfs:

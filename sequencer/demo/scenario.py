@@ -19,6 +19,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from sequencer.batchrun import BatchOptions, BatchOutcome, qualify_batch
+from sequencer.pace import describe_left, time_left
 from sequencer.procedure import load_batch
 from sequencer.store import Store
 
@@ -63,8 +64,12 @@ def run_demo(
         options = BatchOptions(sim_dir=str(demo_dir()), unattended=True, requalify=True, echo=echo)
         outcome = qualify_batch(batch, store, options)
         certificates: list[Path] = []
-        for run_id in outcome.run_ids:
+        start_certs = time.perf_counter()
+        for k, run_id in enumerate(outcome.run_ids, start=1):
             certificates += certify_run(store, run_id, out / "certificates", workers=workers)
+            left = describe_left(time_left(k, len(outcome.run_ids), time.perf_counter() - start_certs))
+            echo(f"demo: certificates of run {run_id} written ({k}/{len(outcome.run_ids)} runs"
+                 + (f", {left} at the pace so far)" if left and k < len(outcome.run_ids) else ")"))
         summary = batch_summary(store, batch.name)
         text = summary.to_text()
         summary_path = out / "batch-summary.txt"

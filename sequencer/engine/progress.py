@@ -7,12 +7,14 @@ steps and at the end (``every=0``: nothing at all).
 from __future__ import annotations
 
 import sys
+import time
 from typing import IO, Any
 
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
 from sequencer.events import Event, RunFinished, RunStarted, StepFinished, StepStarted
+from sequencer.pace import describe_left, time_left
 from sequencer.procedure.plan_model import Plan
 
 DEFAULT_EVERY = 100
@@ -35,6 +37,8 @@ class ProgressDisplay:
         self.estimates = {s.path: s.estimate_s for s in plan.steps} if plan else {}
         self.total_estimate = sum(self.estimates.values())
         self.done = 0
+        self.total = 0
+        self._t0 = time.monotonic()
         self._bar: Progress | None = None
         self._task: Any = None
 
@@ -53,6 +57,7 @@ class ProgressDisplay:
             self._finish(event)
 
     def _start(self, event: RunStarted) -> None:
+        self._t0 = time.monotonic()
         if not self.animated:
             return
         self._bar = Progress(
@@ -68,6 +73,7 @@ class ProgressDisplay:
         self._task = self._bar.add_task("run", total=total, path=f"run {event.run_id}")
 
     def _step_started(self, event: StepStarted) -> None:
+        self.total = max(self.total, event.total)
         if self._bar is not None:
             if self.total_estimate == 0:
                 self._bar.update(self._task, total=event.total)
@@ -79,7 +85,15 @@ class ProgressDisplay:
             step = self.estimates.get(event.path, 0.0) if self.total_estimate else 1.0
             self._bar.advance(self._task, step)
         elif self.every and self.done % self.every == 0:
-            print(f"{self.done} steps done, at {event.path}", file=self.stream, flush=True)
+            print(self.plain_line(event.path), file=self.stream, flush=True)
+
+    def plain_line(self, path: str) -> str:
+        """``300 of 840 steps done, about 2 min 10 s left at the pace so far; at PATH``."""
+        if not self.total:
+            return f"{self.done} steps done, at {path}"
+        left = describe_left(time_left(self.done, self.total, time.monotonic() - self._t0))
+        pace = f", {left} at the pace so far" if left else ""
+        return f"{self.done} of {self.total} steps done{pace}; at {path}"
 
     def _finish(self, event: RunFinished) -> None:
         self.close()

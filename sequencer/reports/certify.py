@@ -12,7 +12,8 @@ from __future__ import annotations
 import multiprocessing
 import os
 import re
-from concurrent.futures import ProcessPoolExecutor
+from collections.abc import Callable
+from concurrent.futures import ProcessPoolExecutor, as_completed
 from pathlib import Path
 from typing import Any
 
@@ -30,12 +31,20 @@ def certificate_stem(data: CertificateData) -> str:
 
 
 def certify_run(
-    store: Any, run_id: int, out_dir: Path | str, *, workers: int | None = None, paper: str = "A4"
+    store: Any,
+    run_id: int,
+    out_dir: Path | str,
+    *,
+    workers: int | None = None,
+    paper: str = "A4",
+    on_progress: Callable[[int, int], None] | None = None,
 ) -> list[Path]:
     """Write ``<number>.pdf`` and ``<number>.html`` for every channel of run ``run_id`` into
     ``out_dir``; returns the paths, PDF then HTML per channel, in channel order.
 
     ``workers``: processes to render with (default: the CPU count); 1 renders in this process.
+    ``on_progress(done, total)`` is called as certificates are written (then each worker gets two
+    smaller chunks instead of one, so that progress moves more than once per worker).
     """
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
@@ -43,17 +52,25 @@ def certify_run(
     if not datas:
         return []
     n = max(1, min(workers or os.cpu_count() or 1, len(datas) // MIN_PER_WORKER or 1))
-    if n == 1:
+    report = on_progress or (lambda done, total: None)
+    if n == 1 and on_progress is None:
         return [Path(p) for p in render_certificates(datas, str(out), paper)]
-    chunks = [datas[i::n] for i in range(n)]
+    if n == 1:  # one at a time, so that progress can be told
+        written_here: list[Path] = []
+        for i, data in enumerate(datas, start=1):
+            written_here += [Path(p) for p in render_certificates([data], str(out), paper)]
+            report(i, len(datas))
+        return written_here
+    parts = n if on_progress is None else min(len(datas), 2 * n)
+    chunks = [datas[i::parts] for i in range(parts)]
     methods = multiprocessing.get_all_start_methods()
     context = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
+    written: set[str] = set()
     with ProcessPoolExecutor(max_workers=n, mp_context=context) as pool:
-        written = {
-            p
-            for chunk in pool.map(render_certificates, chunks, [str(out)] * n, [paper] * n)
-            for p in chunk
-        }
+        futures = [pool.submit(render_certificates, chunk, str(out), paper) for chunk in chunks]
+        for future in as_completed(futures):
+            written.update(future.result())
+            report(len(written) // 2, len(datas))
     paths = [out / f"{certificate_stem(d)}{suffix}" for d in datas for suffix in (".pdf", ".html")]
     missing = [p for p in paths if str(p) not in written]
     if missing:

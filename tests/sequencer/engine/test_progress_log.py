@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import io
+import re
 
 from sequencer.engine import Runner, RunOptions
 from sequencer.engine.log import RunLog
@@ -20,12 +21,22 @@ def test_progress_not_a_terminal_prints_a_line_per_n_steps():
         p, scripted_bench(BenchState()), run_id=5, subscribers=[display], options=RunOptions()
     ).run()
     lines = out.getvalue().splitlines()
-    assert lines == [
-        "10 steps done, at s/9",
-        "20 steps done, at s/19",
-        "run 5 completed after 25 steps",
-    ]
+    assert len(lines) == 3 and lines[2] == "run 5 completed after 25 steps"
+    # the time left depends on this machine's pace: its text is checked in test_pace_time_left
+    assert re.fullmatch(r"10 of 25 steps done(, (about|less than) .+ left at the pace so far)?; at s/9", lines[0])
+    assert re.fullmatch(r"20 of 25 steps done(, (about|less than) .+ left at the pace so far)?; at s/19", lines[1])
     assert "\x1b" not in out.getvalue()  # nothing animated
+
+
+def test_pace_time_left():
+    from sequencer.pace import describe_left, time_left
+
+    assert time_left(10, 25, 20.0) == 30.0  # 2 s a step so far, 15 steps left
+    assert time_left(0, 25, 20.0) is None and time_left(30, 25, 5.0) == 0.0
+    assert describe_left(30.0) == "about 30 s left"
+    assert describe_left(190.0) == "about 3 min 10 s left"
+    assert describe_left(3725.0) == "about 1 h 02 min left"
+    assert describe_left(None) == "" and describe_left(0.4) == "less than 1 s left"
 
 
 def test_progress_quiet():
