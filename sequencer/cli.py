@@ -244,10 +244,10 @@ def sim(board_path: str, host: str, port_base: int, bench_out: str | None) -> No
 
 def attach_commands() -> None:
     """Attach the commands that live in their own modules (store-only reports; batch and demo)."""
-    from sequencer import cli_batch, cli_export, cli_lists, cli_results, cli_serve
+    from sequencer import cli_batch, cli_export, cli_lists, cli_results, cli_safe, cli_serve
 
     for command in (*cli_results.COMMANDS, cli_batch.batch, cli_batch.demo, cli_export.export,
-                    cli_serve.serve, cli_lists.runs, cli_lists.batches):
+                    cli_serve.serve, cli_lists.runs, cli_lists.batches, cli_safe.safe):
         cli.add_command(command)
 
 

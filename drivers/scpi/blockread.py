@@ -106,7 +106,7 @@ class BlockReader:
             raise self._protocol(str(exc)) from None
         return length
 
-    def definite(self, length: int) -> bytes:
+    def definite(self, length: int) -> bytes | bytearray:
         """Exactly ``length`` data bytes, chunk by chunk, then the trailing terminator."""
         deadline = self.bounds.deadline(length, self.start)
         data = bytearray()
@@ -119,9 +119,9 @@ class BlockReader:
             rest = self.transport.read()
         if rest.strip(b"\r\n"):
             raise self._protocol(f"{len(rest)} unexpected bytes after the binary block")
-        return bytes(data)
+        return data  # no copy: numpy reads a bytearray as it is
 
-    def indefinite(self) -> bytes:
+    def indefinite(self) -> bytes | bytearray:
         """``#0`` data to the message terminator; a terminator followed at once by more data is part
         of the data (a real instrument sends the block in one go)."""
         cap = self._cap(indefinite=True)
@@ -134,7 +134,7 @@ class BlockReader:
                 raise self._protocol(f"indefinite block above the cap of {cap} bytes")
             self._between_chunks(len(data), None, deadline)
             if not self.transport.more_pending():
-                return bytes(data)
+                return data
             with self._chunk_timeout(deadline):
                 data += term + self.transport.read()
 
@@ -178,7 +178,7 @@ class BlockReader:
 
 def read_block(
     transport: Any, bounds: BlockBounds, *, command: str = "", expected_bytes: int | None = None
-) -> bytes:
+) -> bytes | bytearray:
     """The data bytes of one block reply (header and terminator consumed), within ``bounds``."""
     reader = BlockReader(transport, bounds, command=command, expected_bytes=expected_bytes)
     length = reader.header()

@@ -249,7 +249,7 @@ class ScpiSession:
 
     def query_block_bytes(
         self, command: str, *, timeout_ms: int | None = None, expected_bytes: int | None = None
-    ) -> bytes:
+    ) -> bytes | bytearray:
         """The data bytes of a binary block reply (header and terminator consumed), undecoded.
 
         Bounded (see :mod:`drivers.scpi.blockread`): at most ``expected_bytes`` plus a margin when
@@ -409,7 +409,7 @@ class ScpiSession:
 
     def _ask_block(
         self, command: str, timeout_ms: int | None, expected_bytes: int | None
-    ) -> bytes:
+    ) -> bytes | bytearray:
         try:
             with self._timeout(timeout_ms):
                 self._send(command)
