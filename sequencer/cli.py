@@ -53,7 +53,12 @@ def validate(procedures: tuple[str, ...]) -> None:
     problems = validate_paths(procedures)
     if problems:
         fail(EXIT_INPUT, "\n".join(str(p) for p in problems))
+    from sequencer.compose import plan_for
+    from sequencer.procedure import load_procedure, unjudged_warnings
+
     for path in procedures:
+        for line in unjudged_warnings(plan_for(load_procedure(path), "VALIDATE-ONLY")):
+            click.echo(f"{path}: warning: {line}", err=True)
         click.echo(f"{path}: ok")
 
 
@@ -77,6 +82,10 @@ def plan(
     from sequencer.procedure import format_plan, load_procedure
 
     planned = plan_for(load_procedure(procedure), serial, board_type=board_type)
+    from sequencer.procedure import unjudged_warnings
+
+    for line in unjudged_warnings(planned):
+        click.echo(f"warning: {line}", err=True)
     if timing_run is None:
         click.echo(format_plan(planned))
         return
@@ -106,6 +115,13 @@ def schema() -> None:
 # -- running ------------------------------------------------------------------------------------
 
 
+override_option = click.option(
+    "--override-instrument-checks", is_flag=True,
+    help="Run although an instrument is past its calibration date or answers with another identity "
+         "than the bench file expects; recorded and printed on every certificate of the run.",
+)
+
+
 def _summarise(run_id: int, outcome: Any) -> int:
     for warning in getattr(outcome, "warnings", ()):
         click.echo(f"warning: run {run_id}: {warning}", err=True)
@@ -127,10 +143,11 @@ def _summarise(run_id: int, outcome: Any) -> int:
 @click.option("--repeat", "repeat", type=int, default=None, metavar="RUN_ID", help="Rerun the procedure text stored for that run.")
 @click.option("--log", "log_path", type=click.Path(dir_okay=False), default=None, help="Append a plain-text event log here.")
 @visa_library_option
+@override_option
 @handles_errors
 def run(procedure: str | None, bench_path: str | None, sim_board: str | None, serial: str | None,
         db: str | None, operator: str, yes: bool, repeat: int | None, log_path: str | None,
-        allow_visa_library: tuple[str, ...]) -> None:
+        allow_visa_library: tuple[str, ...], override_instrument_checks: bool) -> None:
     """Run a procedure on a bench (or the simulator) for one board and record everything."""
     from sequencer import compose
     from sequencer.procedure import load_procedure
@@ -161,7 +178,7 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
             prompt=prompt_on_terminal(), repeat_of=repeat, progress=True,
             log_path=Path(log_path) if log_path else None,
             previous_instruments=tuple(record.instruments) if record is not None else (),
-            warn=warn,
+            warn=warn, override_instrument_checks=override_instrument_checks,
         )
         if record is not None and not (bench_path or sim_board):
             bench_cm = compose.recorded_bench(record.id, record.bench_text,
@@ -181,9 +198,11 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
 @click.option("--operator", default=lambda: os.environ.get("USER", ""))
 @click.option("--yes", is_flag=True, help="Unattended: acknowledge the safety caution.")
 @visa_library_option
+@override_option
 @handles_errors
 def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str | None,
-           operator: str, yes: bool, allow_visa_library: tuple[str, ...]) -> None:
+           operator: str, yes: bool, allow_visa_library: tuple[str, ...],
+           override_instrument_checks: bool) -> None:
     """Continue an interrupted or aborted run from its last completed step."""
     from sequencer import compose
 
@@ -196,7 +215,9 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
         proc = compose.stored_procedure(record, stored, lambda line: click.echo(f"warning: {line}", err=True))
         plan_ = compose.plan_for(proc, record.board, board_type=record.board_type or None, stored=stored)
         request = compose.RunRequest(operator=operator or record.operator, unattended=yes,
-                                     acknowledge=acknowledge_on_terminal(), prompt=prompt_on_terminal())
+                                     acknowledge=acknowledge_on_terminal(), prompt=prompt_on_terminal(),
+                                     override_instrument_checks=override_instrument_checks,
+                                     warn=lambda line: click.echo(f"warning: {line}", err=True))
         if bench_path or sim_board:
             bench_cm = compose.bench_for(bench_path, sim_board, allowed_visa_libraries=allow_visa_library)
         else:

@@ -10,7 +10,7 @@ from __future__ import annotations
 import contextlib
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field, replace
-from datetime import UTC, datetime
+from datetime import UTC, date, datetime
 from pathlib import Path
 from typing import Any
 
@@ -38,6 +38,7 @@ from sequencer.procedure import (
     board_type_of_input,
     build_plan,
     load_procedure_text,
+    unjudged_warnings,
 )
 from sequencer.procedure.boards import board_type_path
 from sequencer.store import Store, default_url
@@ -58,6 +59,7 @@ class RunRequest:
     handle_signals: bool = True
     extra_subscribers: Sequence[Callable[[Event], None]] = field(default_factory=tuple)
     previous_instruments: Sequence[Any] = ()     # of the run being repeated (--repeat)
+    override_instrument_checks: bool = False     # run despite calibration past due / wrong identity
     warn: Callable[[str], None] | None = None
 
 
@@ -254,15 +256,17 @@ def execute(
     with open_bench(spec, roles=_roles_needed(plan, spec)) as bench:
         completed = None
         info = None
+        overridden = check_instruments(bench.check(date.today()), spec, request)
         if resume_run is None:
             info = describe_run(
                 plan, bench, operator=request.operator, batch=request.batch, repeat_of=request.repeat_of
             )
             caveat = check_text_unchanged(store, plan)
-            if caveat and request.warn is not None:
-                request.warn(caveat)
+            if request.warn is not None:
+                for line in ([caveat] if caveat else []) + unjudged_warnings(plan):
+                    request.warn(line)
             info = replace(info, bench_text=spec.text, inputs=plan.inputs + bench_inputs(spec),
-                           caveats=info.caveats + ((caveat,) if caveat else ()))
+                           caveats=info.caveats + ((caveat,) if caveat else ()) + overridden)
             if request.warn is not None:
                 for line in identity_changes(request.previous_instruments, info.instruments):
                     request.warn(line)
@@ -271,6 +275,8 @@ def execute(
             run_id = resume_run
             completed = store.completed_steps(run_id)
             store.reopen_run(run_id)
+            for line in overridden:
+                store.add_caveat(run_id, f"on resume: {line}")
         subscribers: list[Callable[[Event], None]] = [store.subscriber]
         closers: list[Callable[[], None]] = []
         if request.progress:
@@ -299,6 +305,26 @@ def execute(
             for close in closers:
                 close()
     return RunResult(run_id=run_id, outcome=outcome)
+
+
+def check_instruments(problems: Sequence[str], spec: BenchSpec, request: RunRequest) -> tuple[str, ...]:
+    """Calibration past due or an identity that does not match ``expect_id`` refuses the run (bad
+    input, exit 2) before any step; with the explicit override, the caveats to record with the run."""
+    if not problems:
+        return ()
+    if not request.override_instrument_checks:
+        at = Location(spec.source or "<bench>", 1, 1)
+        raise ConfigError([
+            Problem(at, f"{p}: refused before the run (fix the bench, or run with "
+                        "--override-instrument-checks, which every certificate of the run will state)")
+            for p in problems
+        ])
+    who = request.operator or "the operator"
+    lines = tuple(f"instrument check overridden by {who}: {p}" for p in problems)
+    if request.warn is not None:
+        for line in lines:
+            request.warn(line)
+    return lines
 
 
 def identity_changes(before: Sequence[Any], now: Sequence[Any]) -> list[str]:

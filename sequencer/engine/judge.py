@@ -6,17 +6,11 @@ import math
 from typing import Any
 
 from sequencer.events import Measurement
+from sequencer.procedure.coverage import DEFAULT_OUTPUT, output_of  # noqa: F401  (re-exported)
 from sequencer.procedure.plan_model import PlannedStep
 from sequencer.quantities import QUANTITY_UNITS as UNITS
 
 from .context import RunContext
-
-DEFAULT_OUTPUT = {
-    "analyse.s_curve": "x1",
-    "analyse.discriminator": "x1",
-    "analyse.peaking": "shaped",
-}
-"""Output a kind's measurements belong to when the step's labels do not name one."""
 
 
 def channel_of(step: PlannedStep) -> int | None:
@@ -24,9 +18,6 @@ def channel_of(step: PlannedStep) -> int | None:
     return None if value is None else int(value)
 
 
-def output_of(step: PlannedStep) -> str | None:
-    value = step.labels.get("output", DEFAULT_OUTPUT.get(step.kind))
-    return None if value is None else str(value)
 
 
 def measure(

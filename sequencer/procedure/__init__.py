@@ -24,6 +24,7 @@ from sequencer.errors import ProcedureError
 
 from .batch import Batch, BatchBoard, load_batch
 from .boards import board_info, board_type_input, board_type_of_input, load_board_type
+from .coverage import unjudged_warnings
 from .expand import build_plan
 from .formatting import format_plan
 from .limits import QUANTITY_UNITS, load_limits
@@ -87,5 +88,6 @@ __all__ = [
     "parse_quantity",
     "procedure_schema",
     "schema_text",
+    "unjudged_warnings",
     "validate_paths",
 ]

@@ -24,7 +24,7 @@ from typing import Any
 from .evidence import PulseShape, RunSnapshot, SCurve, TransferCurve, gather_evidence, snapshot_run
 from .quantities import quantity_rank
 
-SCHEMA = "benchwright-certificate/1"
+SCHEMA = "benchwright-certificate/2"
 HASH_PREFIX_DIGITS = 12
 
 __all__ = [
@@ -106,6 +106,8 @@ class CertificateData:
     transfer: tuple[TransferCurve, ...] = ()
     s_curves: tuple[SCurve, ...] = ()
     pulses: tuple[PulseShape, ...] = ()
+    caveats: tuple[str, ...] = ()  # how the run was run (overrides, changed draft text): printed
+    unjudged: int = 0  # values of quantities the limit set limits that no limit matched
     verdict: str = field(default="INCOMPLETE")
 
     @property
@@ -118,15 +120,26 @@ def certificate_number(run_id: int, serial: str, channel: int) -> str:
     return f"BW-{run_id:06d}-{serial}-CH{channel:02d}"
 
 
-def overall_verdict(quantities: Iterable[QuantityLine], run_status: str) -> str:
+def overall_verdict(quantities: Iterable[QuantityLine], run_status: str, unjudged: int = 0) -> str:
     """FAIL if any value failed; else INCOMPLETE if the run did not complete or nothing was judged
-    pass; else PASS.  A failed value outranks an incomplete run."""
+    pass; else UNJUDGED if a value of a limited quantity went unjudged; else PASS.  A failed value
+    outranks an incomplete run."""
     verdicts = [q.verdict for q in quantities]
     if "fail" in verdicts:
         return "FAIL"
     if run_status != "completed" or "pass" not in verdicts:
         return "INCOMPLETE"
+    if unjudged:
+        return "UNJUDGED"
     return "PASS"
+
+
+def limited_quantities(snap: RunSnapshot) -> frozenset[str]:
+    """Quantities the run's limit set limits: every limit of the stored limit set, and every quantity
+    a stored value was judged against a limit for (runs recorded before the inputs were kept)."""
+    found = {m.quantity for m in snap.measurements if m.low is not None or m.high is not None}
+    found |= set(snap.limit_quantities)
+    return frozenset(found)
 
 
 def gather_certificates(store: Any, run_id: int) -> list[CertificateData]:
@@ -158,6 +171,8 @@ def _certificate(snap: RunSnapshot, channel: int) -> CertificateData:
         )
     )
     transfer, s_curves, pulses = gather_evidence(snap, channel)
+    limited = limited_quantities(snap)
+    unjudged = sum(1 for q in quantities if q.verdict == "info" and q.quantity in limited)
     return CertificateData(
         number=certificate_number(int(run.id), str(run.board), channel),
         run_id=int(run.id),
@@ -182,7 +197,9 @@ def _certificate(snap: RunSnapshot, channel: int) -> CertificateData:
         transfer=transfer,
         s_curves=s_curves,
         pulses=pulses,
-        verdict=overall_verdict(quantities, run.status),
+        caveats=tuple(snap.caveats),
+        unjudged=unjudged,
+        verdict=overall_verdict(quantities, run.status, unjudged),
     )
 
 
@@ -311,7 +328,8 @@ def certificate_from_dict(value: Mapping[str, Any]) -> CertificateData:
     v["quantities"] = rows("quantities", QuantityLine)
     v["crosstalk_out"] = rows("crosstalk_out", QuantityLine)
     v["safety"] = rows("safety", SafetyLine)
-    v["transfer"] = rows("transfer", TransferCurve, ("amplitudes_mV", "heights_mV"))
+    v["transfer"] = rows("transfer", TransferCurve, ("amplitudes_mV", "heights_mV", "residuals_mV"))
     v["s_curves"] = rows("s_curves", SCurve, ("thresholds_mV", "counts"))
     v["pulses"] = rows("pulses", PulseShape)
+    v["caveats"] = tuple(v.get("caveats", ()))
     return CertificateData(**v)

@@ -3,8 +3,9 @@
 Print rules put it on A4 or Letter (``@page`` margins, no page size forced).  For ``verify`` the file
 carries ``<meta name="benchwright-certificate" content="{json}">`` (schema, number, run id, channel,
 data SHA-256), the canonical data in ``<script type="application/json" id="certificate-data">``, and
-every result cell a ``data-field`` attribute (``quantities.<i>.<column>``) so that the visible text
-can be checked against the data.
+every printed field a ``data-field`` attribute (``certificate_view.printed_fields``: header fields,
+verdict, judgement, caveats, the cells of every table, the hash) so that the visible text can be
+checked against the data.
 """
 
 from __future__ import annotations
@@ -17,11 +18,17 @@ from pathlib import Path
 from .certificate_data import CertificateData, canonical_json, data_sha256
 from .certificate_pdf import FIGURE_CAPTIONS, metadata_keywords
 from .certificate_view import (
+    INSTRUMENT_COLUMNS,
     INSTRUMENT_HEADER,
+    QUANTITY_COLUMN_KEYS,
     QUANTITY_HEADER,
+    SAFETY_COLUMNS,
     SAFETY_HEADER,
+    caveat_text,
+    field_slug,
     identity_rows,
     instrument_rows,
+    judgement_text,
     overall_text,
     quantity_rows,
     safety_rows,
@@ -29,7 +36,7 @@ from .certificate_view import (
 
 DATA_SCRIPT_ID = "certificate-data"
 META_NAME = "benchwright-certificate"
-QUANTITY_COLUMNS = ("quantity", "output", "value", "uncertainty", "unit", "limits", "verdict")
+QUANTITY_COLUMNS = QUANTITY_COLUMN_KEYS
 
 _CSS = """
 body{font-family:"DejaVu Sans",Verdana,Arial,sans-serif;font-size:10pt;color:#000;background:#fff;
@@ -38,6 +45,7 @@ h1{font-size:16pt;margin:0}h2{font-size:11pt;border-bottom:1px solid #000;margin
 header{display:flex;justify-content:space-between;align-items:baseline;border-bottom:2px solid #000}
 .number{font-weight:bold;font-family:"DejaVu Sans Mono",monospace}
 dl{display:grid;grid-template-columns:auto 1fr auto 1fr;gap:2px 10px;margin:8px 0}
+dl>div{display:contents}.caveat{border:1.5px solid #000;padding:3px 8px;font-weight:bold}
 dt{font-size:8.5pt}dd{margin:0;font-weight:bold}
 .verdict{border:3px solid #000;padding:6px 10px;font-size:13pt;font-weight:bold;margin:10px 0}
 .verdict.fail,.verdict.incomplete{border-style:double;border-width:6px}
@@ -68,18 +76,24 @@ def render_html(data: CertificateData, images: Mapping[str, bytes | None], path:
         f'<header><h1>Channel test certificate</h1><span class="number">{escape(data.number)}</span>'
         "</header>",
         _identity(data),
-        f'<p class="verdict {verdict}" id="verdict">Overall verdict: {escape(overall_text(data))}</p>',
+        f'<p class="verdict {verdict}" id="verdict" data-field="verdict">Overall verdict: '
+        f"{escape(overall_text(data))}</p>",
+        f'<p data-field="judgement">{escape(judgement_text(data))}</p>',
+        *(
+            f'<p class="caveat" data-field="caveats.{i}">{escape(caveat_text(c))}</p>'
+            for i, c in enumerate(data.caveats)
+        ),
         "<h2>Results</h2>",
         _quantities(data),
         "<h2>Instruments</h2>",
-        _table(INSTRUMENT_HEADER, instrument_rows(data)),
+        _table(INSTRUMENT_HEADER, instrument_rows(data), "instruments", INSTRUMENT_COLUMNS),
         *(_figure(key, images.get(key), caption) for key, caption in FIGURE_CAPTIONS.items()),
         "<h2>Safety events of the run</h2>",
-        _table(SAFETY_HEADER, safety_rows(data))
+        _table(SAFETY_HEADER, safety_rows(data), "safety", SAFETY_COLUMNS)
         if data.safety
         else "<p>No bias or high-voltage event was recorded in this run.</p>",
         "<h2>Data integrity</h2>",
-        f'<p>SHA-256 of the certificate data: <span class="hash" id="data-sha256">{digest}</span></p>',
+        f'<p>SHA-256 of the certificate data: <span class="hash" id="data-sha256" data-field="data_sha256">{digest}</span></p>',
         f"<p>Check with: <code>benchwright verify {escape(data.number)}.html</code></p>",
         f'<script type="application/json" id="{DATA_SCRIPT_ID}">{_script_json(data)}</script>',
         "</body>",
@@ -96,7 +110,10 @@ def _script_json(data: CertificateData) -> str:
 
 
 def _identity(data: CertificateData) -> str:
-    items = "".join(f"<dt>{escape(k)}</dt><dd>{escape(v)}</dd>" for k, v in identity_rows(data))
+    items = "".join(
+        f'<div data-field="header.{field_slug(k)}"><dt>{escape(k)}</dt> <dd>{escape(v)}</dd></div>'
+        for k, v in identity_rows(data)
+    )
     return f"<dl>{items}</dl>"
 
 
@@ -115,9 +132,19 @@ def _quantities(data: CertificateData) -> str:
     return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
-def _table(header: tuple[str, ...], rows: list[tuple[str, ...]]) -> str:
+def _table(
+    header: tuple[str, ...], rows: list[tuple[str, ...]], key: str, columns: tuple[str, ...]
+) -> str:
     head = "".join(f"<th>{escape(h)}</th>" for h in header)
-    body = "".join("<tr>" + "".join(f"<td>{escape(c)}</td>" for c in r) + "</tr>" for r in rows)
+    body = "".join(
+        "<tr>"
+        + "".join(
+            f'<td data-field="{key}.{i}.{col}">{escape(c)}</td>'
+            for col, c in zip(columns, r, strict=True)
+        )
+        + "</tr>"
+        for i, r in enumerate(rows)
+    )
     return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
 
 

@@ -18,11 +18,15 @@ from .certificate_view import (
     INSTRUMENT_HEADER,
     QUANTITY_HEADER,
     SAFETY_HEADER,
+    caveat_text,
     identity_rows,
     instrument_rows,
+    judgement_text,
     overall_text,
+    printed_fields,
     quantity_rows,
     safety_rows,
+    table_fields,
 )
 from .pdf_layout import (
     CONTENT_MM,
@@ -49,10 +53,7 @@ FIGURE_CAPTIONS = {
 
 def needs_unicode_font(data: CertificateData) -> bool:
     """True when a text of the certificate needs DejaVu (see ``pdf_layout``)."""
-    texts = [v for _, v in identity_rows(data)] + [c for r in quantity_rows(data) for c in r.cells]
-    texts += [c for r in instrument_rows(data) for c in r] + [
-        c for r in safety_rows(data) for c in r
-    ]
+    texts = [t for _, t in printed_fields(data)] + [c for _, _, cells in table_fields(data) for c in cells]
     return needs_unicode(texts)
 
 
@@ -84,6 +85,9 @@ def render_pdf(
     pdf.add_page()
     _header(pdf, data)
     _verdict(pdf, data)
+    note(pdf, judgement_text(data))
+    for caveat in data.caveats:
+        _caveat(pdf, caveat_text(caveat))
     section(pdf, "Results")
     _quantities(pdf, data)
     section(pdf, "Instruments")
@@ -138,23 +142,17 @@ def _header(pdf: Any, data: CertificateData) -> None:
     pdf.set_line_width(0.6)
     pdf.line(MARGIN_MM, pdf.get_y(), MARGIN_MM + CONTENT_MM, pdf.get_y())
     pdf.ln(2)
-    rows = identity_rows(data)
-    half = (len(rows) + 1) // 2
-    for left, right in zip(rows[:half], [*rows[half:], ("", "")], strict=True):
-        for label, value in (left, right):
-            pdf.set_font(pdf.family, "", 7.5)
-            pdf.cell(28, 5, label)
-            pdf.set_font(pdf.family, "B", 8)
-            pdf.cell(62, 5, _fit(pdf, value, 61))
-        pdf.ln(5)
+    for label, value in identity_rows(data):  # one line each: nothing printed is cut short
+        pdf.set_font(pdf.family, "", 7.5)
+        pdf.cell(32, 4.6, label)
+        pdf.set_font(pdf.family, "B", 8)
+        pdf.multi_cell(CONTENT_MM - 32, 4.6, value, new_x="LMARGIN", new_y="NEXT")
 
 
-def _fit(pdf: Any, text: str, width: float) -> str:
-    if pdf.get_string_width(text) <= width:
-        return text
-    while text and pdf.get_string_width(text + "…") > width:
-        text = text[:-1]
-    return text + "…"
+def _caveat(pdf: Any, text: str) -> None:
+    pdf.set_font(pdf.family, "B", 8)
+    pdf.set_line_width(0.6)
+    pdf.multi_cell(CONTENT_MM, 5, text, border=1, new_x="LMARGIN", new_y="NEXT")
 
 
 def _verdict(pdf: Any, data: CertificateData) -> None:

@@ -13,6 +13,7 @@ from .certificate_data import CertificateData, QuantityLine
 from .quantities import format_limits, format_measured
 
 QUANTITY_HEADER = ("quantity", "output", "value", "±", "unit", "limits", "verdict")
+QUANTITY_COLUMN_KEYS = ("quantity", "output", "value", "uncertainty", "unit", "limits", "verdict")
 INSTRUMENT_HEADER = ("role", "maker", "model", "serial", "firmware", "calibration due")
 SAFETY_HEADER = ("time (UTC)", "step", "event", "detail")
 VERDICT_TEXT = {"pass": "pass", "fail": "FAIL", "info": "info"}
@@ -20,6 +21,7 @@ OVERALL_TEXT = {
     "PASS": "PASS — every judged value within its limits",
     "FAIL": "FAIL — at least one value outside its limits",
     "INCOMPLETE": "INCOMPLETE — the run did not complete or judged nothing",
+    "UNJUDGED": "NOT PASSED — values of limited quantities went unjudged (no limit matched them)",
 }
 
 
@@ -102,3 +104,47 @@ def safety_rows(d: CertificateData) -> list[tuple[str, ...]]:
 
 def overall_text(d: CertificateData) -> str:
     return OVERALL_TEXT.get(d.verdict, d.verdict)
+
+
+def judgement_text(d: CertificateData) -> str:
+    """How many values were judged, and how many of limited quantities were not."""
+    verdicts = [q.verdict for q in d.quantities]
+    info = verdicts.count("info") - d.unjudged
+    return (f"Judged values: {verdicts.count('pass')} pass, {verdicts.count('fail')} fail · "
+            f"unjudged values of limited quantities: {d.unjudged} · without a limit: {info}")
+
+
+def caveat_text(caveat: str) -> str:
+    return f"Caveat: {caveat}"
+
+
+def field_slug(label: str) -> str:
+    """``Board serial`` -> ``board_serial``: the key of a header field."""
+    return "_".join(label.lower().replace("-", " ").split())
+
+
+INSTRUMENT_COLUMNS = ("role", "maker", "model", "serial", "firmware", "calibration_due")
+SAFETY_COLUMNS = ("at", "path", "kind", "detail")
+
+
+def printed_fields(d: CertificateData) -> list[tuple[str, str]]:
+    """Everything a certificate prints, as ``(field key, text)`` in reading order.
+
+    Both renderers print exactly these texts (the HTML marks each with ``data-field``), and
+    ``verify`` recomputes them from the embedded data: a certificate whose printed text was edited
+    fails, naming the field.  Table fields are whole cells; in the PDF a table row is checked as its
+    cells joined by spaces.
+    """
+    out = [(f"header.{field_slug(label)}", f"{label} {value}") for label, value in identity_rows(d)]
+    out.append(("verdict", f"Overall verdict: {overall_text(d)}"))
+    out.append(("judgement", judgement_text(d)))
+    out += [(f"caveats.{i}", caveat_text(c)) for i, c in enumerate(d.caveats)]
+    return out
+
+
+def table_fields(d: CertificateData) -> list[tuple[str, tuple[str, ...], tuple[str, ...]]]:
+    """The printed tables as ``(row key, column names, cells)``: results, instruments, safety."""
+    rows = [(r.key, QUANTITY_COLUMN_KEYS, r.cells) for r in quantity_rows(d)]
+    rows += [(f"instruments.{i}", INSTRUMENT_COLUMNS, c) for i, c in enumerate(instrument_rows(d))]
+    rows += [(f"safety.{i}", SAFETY_COLUMNS, c) for i, c in enumerate(safety_rows(d))]
+    return rows

@@ -89,6 +89,8 @@ class RunSnapshot:
         self.measurements = tuple(store.measurements(run_id=run_id))
         self.steps: Mapping[str, Any] = dict(store.completed_steps(run_id))
         self.safety_events = tuple(store.safety_events(run_id))
+        self.caveats = tuple(store.caveats(run_id))
+        self.limit_quantities = _limit_quantities(store.run_inputs(run_id))
         self.channels = sorted({int(m.channel) for m in self.measurements if m.channel is not None})
         if not self.channels and self.measurements:
             self.channels = [MODULE_CHANNEL]  # a module measured as a whole: one certificate
@@ -99,6 +101,22 @@ class RunSnapshot:
         if not prefix:
             return self._traces
         return [t for t in self._traces if t.path.startswith(prefix + "/")]
+
+
+def _limit_quantities(inputs: Iterable[Any]) -> frozenset[str]:
+    """Quantities of the stored limit set (none when the run kept no limit set, or it no longer reads)."""
+    from sequencer.errors import ProcedureError
+    from sequencer.procedure.limits import parse_limits_text
+
+    found: set[str] = set()
+    for given in inputs:
+        if given.kind != "limits":
+            continue
+        try:
+            found |= {lim.quantity for lim in parse_limits_text(given.text, given.name)}
+        except ProcedureError:
+            continue  # a text of an older limits format: the judged values still say what was limited
+    return frozenset(found)
 
 
 def snapshot_run(store: Any, run_id: int) -> RunSnapshot:

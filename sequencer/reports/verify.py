@@ -4,8 +4,9 @@ Three checks, every difference reported as one line:
 
 1. the data embedded in the certificate still hashes to the SHA-256 printed on it (the embedded
    data was not edited);
-2. the visible values are those of the embedded data (HTML: each ``data-field`` cell; PDF: each
-   printed value, verdict and the hash are found in the page text);
+2. every printed field is the text the embedded data gives for it (``certificate_view.printed_fields``
+   and the table cells: header, verdict, judgement, caveats, results, instruments, safety events,
+   hash).  HTML: each ``data-field`` element; PDF: each field's text is found in the page text;
 3. the database, gathered again for the certificate's run and channel, gives the same canonical
    data; if not, each field that differs is named with both values.
 
@@ -16,6 +17,7 @@ installed).  HTML needs only the standard library.
 from __future__ import annotations
 
 import json
+import re
 from dataclasses import dataclass, field
 from html.parser import HTMLParser
 from pathlib import Path
@@ -30,9 +32,9 @@ from .certificate_data import (
     data_sha256,
     gather_certificate,
 )
-from .certificate_html import DATA_SCRIPT_ID, META_NAME, QUANTITY_COLUMNS
+from .certificate_html import DATA_SCRIPT_ID, META_NAME
 from .certificate_pdf import ATTACHMENT_NAME, needs_unicode_font, pdf_text
-from .certificate_view import quantity_rows
+from .certificate_view import printed_fields, table_fields
 
 MAX_DIFFERENCES = 50
 
@@ -67,7 +69,7 @@ def verify_certificate(store: Any, path: Path | str) -> VerifyResult:
     problems: list[str] = []
     if data_sha256(embedded.data) != printed:
         problems.append("embedded data does not match the SHA-256 printed on the certificate")
-    problems += _visible_problems(embedded)
+    problems += _visible_problems(embedded, printed)
     try:
         fresh = gather_certificate(store, int(meta["run_id"]), int(meta["channel"]))
     except (StoreError, KeyError) as exc:
@@ -104,34 +106,74 @@ def diff(a: Any, b: Any, where: str = "") -> list[str]:
     return [] if a == b else [f"{where}: {a!r} != {b!r}"]
 
 
-def _visible_problems(e: _Embedded) -> list[str]:
+def _visible_problems(e: _Embedded, printed_digest: str) -> list[str]:
+    """Every printed field (``certificate_view.printed_fields`` and the table cells) against the text
+    the embedded data gives for it; each difference names the field."""
     try:
         data = certificate_from_dict(e.data)
     except (KeyError, TypeError) as exc:
         return [f"embedded data is not a certificate's: {exc}"]
-    rows = quantity_rows(data)
-    problems = []
+    fields = printed_fields(data)
+    tables = table_fields(data)
     if e.visible is not None:
-        expected = {
-            f"{r.key}.{col}": text
-            for r in rows
-            for col, text in zip(QUANTITY_COLUMNS, r.cells, strict=True)
-        }
-        for key, text in expected.items():
-            shown = e.visible.get(key)
-            if shown != text:
-                problems.append(f"printed {key}: {shown!r} but the data says {text!r}")
-        problems += [
+        expected = dict(fields)
+        for key, columns, cells in tables:
+            expected.update({f"{key}.{col}": text for col, text in zip(columns, cells, strict=True)})
+        expected["data_sha256"] = printed_digest
+        problems = [
+            f"printed {key}: {e.visible.get(key)!r} but the data says {text!r}"
+            for key, text in expected.items()
+            if e.visible.get(key) != text
+        ]
+        return problems + [
             f"printed {k} is not in the data" for k in sorted(set(e.visible) - set(expected))
         ]
-    if e.page_text is not None:
-        unicode_font = needs_unicode_font(data)
-        page = " ".join(e.page_text.split())
-        for r in rows:
-            line = " ".join(pdf_text(c, unicode_font) for c in r.cells)
-            if line not in page:
-                problems.append(f"printed {r.key}: {line!r} not found in the PDF text")
+    if e.page_text is None:
+        return []
+    unicode_font = needs_unicode_font(data)
+    page = _squeezed(e.page_text)
+    at = 0
+
+    def find(text: str) -> bool:
+        """Find ``text`` after the previous field (fields are printed in reading order)."""
+        nonlocal at
+        where = page.find(_squeezed(pdf_text(text, unicode_font)), at)
+        if where < 0:
+            return False
+        at = where + len(_squeezed(pdf_text(text, unicode_font)))
+        return True
+
+    problems = [f"printed {key}: {text!r} not found in the PDF text" for key, text in fields if not find(text)]
+    for key, columns, cells in tables:
+        if find(" ".join(cells)):
+            continue
+        gone = _cells_not_found(page, at, columns, cells, unicode_font)
+        problems += [f"printed {key}.{col}: {cell!r} not found in the PDF text" for col, cell in gone]
+        if not gone:
+            problems.append(f"printed {key}: {' '.join(cells)!r} not found in the PDF text")
+    digest_line = f"SHA-256 of the certificate data: {printed_digest}"
+    if not find(digest_line):
+        problems.append(f"printed data_sha256: {digest_line!r} not found in the PDF text")
     return problems
+
+
+def _cells_not_found(
+    page: str, at: int, columns: tuple[str, ...], cells: tuple[str, ...], unicode_font: bool
+) -> list[tuple[str, str]]:
+    """The cell of a row (not found whole) whose text differs: the row is found after ``at`` with
+    that one cell left open, and with no other; [] when no single cell explains it."""
+    texts = [re.escape(_squeezed(pdf_text(c, unicode_font))) for c in cells]
+    explains = [
+        (col, cell)
+        for i, (col, cell) in enumerate(zip(columns, cells, strict=True))
+        if re.compile("".join(texts[:i]) + ".{0,80}?" + "".join(texts[i + 1 :])).search(page, at)
+    ]
+    return explains if len(explains) == 1 else []
+
+
+def _squeezed(text: str) -> str:
+    """Text without any whitespace: a PDF wraps long cells and pypdf puts line breaks there."""
+    return "".join(text.split())
 
 
 def _read_pdf(path: Path) -> _Embedded:
@@ -152,6 +194,8 @@ def _read_pdf(path: Path) -> _Embedded:
 
 
 class _CertificateHTML(HTMLParser):
+    """The meta tag, the embedded data, and the text of every element with a ``data-field``."""
+
     def __init__(self) -> None:
         super().__init__(convert_charrefs=True)
         self.meta: str | None = None
@@ -159,6 +203,8 @@ class _CertificateHTML(HTMLParser):
         self.fields: dict[str, str] = {}
         self._in_data = False
         self._field: str | None = None
+        self._tag = ""
+        self._depth = 0
         self._buf: list[str] = []
 
     def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
@@ -167,15 +213,19 @@ class _CertificateHTML(HTMLParser):
             self.meta = a.get("content") or ""
         elif tag == "script" and a.get("id") == DATA_SCRIPT_ID:
             self._in_data = True
+        elif self._field is not None:
+            self._depth += tag == self._tag
         elif a.get("data-field"):
-            self._field, self._buf = a["data-field"], []
+            self._field, self._tag, self._depth, self._buf = a["data-field"], tag, 1, []
 
     def handle_endtag(self, tag: str) -> None:
         if tag == "script":
             self._in_data = False
-        elif self._field is not None and tag in ("td", "th"):
-            self.fields[self._field] = "".join(self._buf)
-            self._field = None
+        elif self._field is not None and tag == self._tag:
+            self._depth -= 1
+            if self._depth == 0:
+                self.fields[self._field] = "".join(self._buf)
+                self._field = None
 
     def handle_data(self, data: str) -> None:
         if self._in_data:

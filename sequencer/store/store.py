@@ -143,6 +143,12 @@ class Store:
             queries.get_run(conn, run_id)
             lifecycle.annotate(conn, run_id, kind="note", text=text, author=author)
 
+    def add_caveat(self, run_id: int, text: str) -> None:
+        """Append a caveat every certificate of the run must print (e.g. an override on resume)."""
+        with self._write(f"cannot add a caveat to run {run_id}") as conn:
+            queries.get_run(conn, run_id)
+            lifecycle.annotate(conn, run_id, kind="caveat", text=text)
+
     # -- reading -----------------------------------------------------------------------------
     def get_run(self, run_id: int) -> RunRecord:
         with self._read(f"cannot read run {run_id}") as conn:

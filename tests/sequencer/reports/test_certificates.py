@@ -98,7 +98,7 @@ def test_embedded_data_is_the_hashed_canonical_json(certified):
     assert value == canonical_dict(data) and digest == data_sha256(data)
     meta = json.loads(PdfReader(str(paths[0])).metadata["/Keywords"])
     assert meta == {
-        "schema": "benchwright-certificate/1",
+        "schema": "benchwright-certificate/2",
         "number": data.number,
         "run_id": run_id,
         "channel": 1,

@@ -1,0 +1,83 @@
+"""Calibration and identity are checked before the run (issue 16): an instrument past its calibration
+date or answering with another identity than the bench file expects refuses the run (exit 2, nothing
+recorded) unless the operator overrides it explicitly; the override is kept with the run and printed
+on every certificate of it.  Real sockets to the simulator, a real SQLite file."""
+
+from __future__ import annotations
+
+import datetime as dt
+from pathlib import Path
+
+import pytest
+import yaml
+from click.testing import CliRunner
+
+from drivers.sim import start_sim_bench
+from sequencer.cli import attach_commands, cli
+from sequencer.store import Store
+
+attach_commands()
+
+ROOT = Path(__file__).resolve().parents[2]
+QUICK = ROOT / "procedures" / "examples" / "quick-gain.yaml"
+BOARD = ROOT / "drivers" / "sim" / "boards" / "example-pa8.yaml"
+
+
+def _invoke(*args: str) -> tuple[int, str]:
+    result = CliRunner().invoke(cli, list(args), catch_exceptions=False)
+    return result.exit_code, result.stdout + result.stderr
+
+
+@pytest.fixture(scope="module")
+def sim():
+    with start_sim_bench(BOARD) as bench:
+        yield bench.bench_mapping()
+
+
+def _bench(tmp_path: Path, mapping: dict, role: str, **change: object) -> Path:
+    data = {"bench": mapping["bench"], "instruments": {r: dict(e) for r, e in mapping["instruments"].items()}}
+    data["instruments"][role].update(change)
+    path = tmp_path / "bench.yaml"
+    path.write_text(yaml.safe_dump(data, sort_keys=False))
+    return path
+
+
+@pytest.mark.parametrize(
+    ("change", "message"),
+    [
+        ({"calibration_due": dt.date(2020, 1, 31)}, "scope: calibration was due 2020-01-31"),
+        ({"expect_id": "OTHERMAKER,XYZ"}, "scope: identity"),
+    ],
+)
+def test_a_bench_with_a_problem_is_refused_before_the_run(tmp_path, sim, change, message):
+    db = tmp_path / "r.db"
+    bench = _bench(tmp_path, sim, "scope", **change)
+    code, out = _invoke("run", str(QUICK), "--bench", str(bench), "--board", "NR-PA8-0001",
+                        "--db", f"sqlite:///{db}", "--yes")
+    assert code == 2, out
+    assert message in out and "--override-instrument-checks" in out
+    assert "Traceback" not in out
+    with Store.open(f"sqlite:///{db}") as store:
+        assert store.list_runs() == []  # refused before anything was recorded
+
+
+def test_the_override_is_recorded_and_printed_on_every_certificate(tmp_path, sim):
+    db = f"sqlite:///{tmp_path / 'r.db'}"
+    bench = _bench(tmp_path, sim, "scope", calibration_due=dt.date(2020, 1, 31))
+    code, out = _invoke("run", str(QUICK), "--bench", str(bench), "--board", "NR-PA8-0001",
+                        "--db", db, "--yes", "--operator", "k.berg", "--override-instrument-checks")
+    assert code in (0, 1), out
+    assert "instrument check overridden by k.berg" in out
+    with Store.open(db) as store:
+        [caveat] = store.caveats(1)
+    assert caveat.startswith("instrument check overridden by k.berg: scope: calibration was due 2020-01-31")
+    code, out = _invoke("certify", "--db", db, "--run", "1", "--out", str(tmp_path / "certs"))
+    assert code == 0, out
+    htmls = sorted((tmp_path / "certs").glob("*.html"))
+    assert len(htmls) == 8  # one per channel of the board type
+    for html in htmls:
+        text = html.read_text(encoding="utf-8")
+        assert f"Caveat: {caveat}" in text
+        assert "2020-01-31" in text  # the scope's calibration due date in the instruments table
+    code, out = _invoke("verify", "--db", db, str(htmls[0]))
+    assert code == 0, out

@@ -1,0 +1,178 @@
+"""A certificate is verifiable as a whole (issue 16): every printed field of the PDF and the HTML is
+checked against the embedded data (whose SHA-256 is printed) and the data against the database;
+an edit of any printed field fails and names the field.  And no certificate says more than the run
+measured: caveats are printed, unjudged values of limited quantities are counted and keep the
+verdict from reading "every judged value within its limits"."""
+
+from __future__ import annotations
+
+import re
+from dataclasses import replace
+from datetime import timedelta
+from pathlib import Path
+
+import pytest
+from pypdf import PdfReader, PdfWriter
+
+from sequencer.events import Measurement, MeasurementMade, RunFinished, StepFinished, StepStarted
+from sequencer.reports import certify_run, gather_certificates, verify_certificate
+from sequencer.reports.certificate_view import printed_fields, table_fields
+from sequencer.reports.pdf_layout import pdf_text
+from sequencer.store import Store
+
+from .simulated_runs import T0, RunSpec, record_run, run_info
+
+CAVEAT = "instrument check overridden by i.lindqvist: scope: calibration was due 2025-01-01"
+
+
+@pytest.fixture(scope="module")
+def certified(tmp_path_factory: pytest.TempPathFactory):
+    base = tmp_path_factory.mktemp("record")
+    with Store.open(f"sqlite:///{base / 'results.db'}") as store:
+        run_id = record_run(store, RunSpec(channels=2))
+        store.add_caveat(run_id, CAVEAT)
+        pdf, html, *_ = certify_run(store, run_id, base / "certs", workers=1)
+        data = gather_certificates(store, run_id)[0]
+        yield store, data, pdf, html
+
+
+def _keys(data) -> list[str]:
+    """The header fields, verdict, judgement, caveats, hash, and one cell of every table column."""
+    keys = [k for k, _ in printed_fields(data)] + ["data_sha256"]
+    seen: set[tuple[str, str]] = set()
+    for row, columns, _ in table_fields(data):
+        table = row.split(".")[0]
+        for col in columns:
+            if (table, col) not in seen:
+                seen.add((table, col))
+                keys.append(f"{row}.{col}")
+    return keys
+
+
+def test_the_caveat_and_the_judgement_are_printed(certified):
+    store, data, pdf, html = certified
+    assert data.caveats == (CAVEAT,)
+    text = html.read_text(encoding="utf-8")
+    assert f"Caveat: {CAVEAT}" in text
+    page = " ".join(" ".join(p.extract_text() for p in PdfReader(str(pdf)).pages).split())
+    assert f"Caveat: {CAVEAT}" in page
+    assert "unjudged values of limited quantities: 0" in page
+    assert verify_certificate(store, pdf).ok and verify_certificate(store, html).ok
+
+
+def test_every_printed_field_of_the_html_is_marked(certified):
+    _, data, _, html = certified
+    marked = set(re.findall(r'data-field="([^"]+)"', html.read_text(encoding="utf-8")))
+    expected = {k for k, _ in printed_fields(data)} | {"data_sha256"}
+    expected |= {f"{row}.{col}" for row, columns, _ in table_fields(data) for col in columns}
+    assert marked == expected
+    assert {"header.board_serial", "header.operator", "instruments.0.calibration_due",
+            "quantities.0.limits", "quantities.0.uncertainty", "verdict", "caveats.0"} <= marked
+
+
+def test_an_edit_of_each_printed_html_field_is_named(certified, tmp_path: Path):
+    store, data, _, html = certified
+    text = html.read_text(encoding="utf-8")
+    for key in _keys(data):
+        marker = f'data-field="{key}">'
+        at = text.index(marker) + len(marker)
+        while text[at] == "<":  # the field's first text: past any opening tag (<dt>)
+            at = text.index(">", at) + 1
+        forged = tmp_path / "forged.html"
+        forged.write_text(text[:at] + "X" + text[at:], encoding="utf-8")
+        result = verify_certificate(store, forged)
+        assert not result.ok, key
+        assert any(d.startswith(f"printed {key}: ") for d in result.differences), (key, result)
+
+
+def _pdf_literal(text: str) -> bytes:
+    """How fpdf2 shows a Latin-1 text in a content stream with the core font (symbols spelled)."""
+    escaped = pdf_text(text, False).replace("\\", "\\\\").replace("(", "\\(").replace(")", "\\)")
+    return b"(" + escaped.encode("latin-1") + b") Tj"  # PDF 32000-1 7.3.4.2: \( \) \\ in strings
+
+
+def _edit_pdf(pdf: Path, old: str, out: Path) -> bool:
+    """Write ``pdf`` with the last character of the one string ``old`` shown on its pages changed;
+    False when the string is not shown exactly once."""
+    reader = PdfReader(str(pdf))
+    writer = PdfWriter(clone_from=reader)
+    hits = [
+        (page, page.get_contents())
+        for page in writer.pages
+        if _pdf_literal(old) in page.get_contents().get_data()
+    ]
+    total = sum(c.get_data().count(_pdf_literal(old)) for _, c in hits)
+    if total != 1:
+        return False
+    page, contents = hits[0]
+    edited = old[:-1] + ("Y" if old.endswith("X") else "X")
+    contents.set_data(contents.get_data().replace(_pdf_literal(old), _pdf_literal(edited)))
+    page.replace_contents(contents)
+    with out.open("wb") as fh:
+        writer.write(fh)
+    return True
+
+
+def test_an_edit_of_each_printed_pdf_field_is_named(certified, tmp_path: Path):
+    store, data, pdf, _ = certified
+    values = dict(printed_fields(data))
+    shown = {k: v.removeprefix(lbl + " ") for k, v in values.items() for lbl in [_label(k, data)]}
+    digest = verify_certificate(store, pdf).data_sha256
+    shown["data_sha256"] = f"SHA-256 of the certificate data: {digest}"
+    for row, columns, cells in table_fields(data):
+        shown.update({f"{row}.{col}": cell for col, cell in zip(columns, cells, strict=True)})
+    checked = []
+    for key, old in shown.items():
+        forged = tmp_path / "forged.pdf"
+        if not _edit_pdf(pdf, old, forged):
+            continue  # shown more than once (e.g. "pass"), or wrapped over two lines
+        result = verify_certificate(store, forged)
+        assert not result.ok, key
+        assert any(d.startswith(f"printed {key}") for d in result.differences), (key, result)
+        checked.append(key)
+    # every header field (the number is shown twice: title line and header), the verdict, the
+    # caveat, the hash, and cells of each table were edited one at a time
+    assert {k for k in checked if k.startswith("header.")} == {
+        k for k in values if k.startswith("header.")
+    } - {"header.certificate_number"}
+    assert {"verdict", "caveats.0", "data_sha256", "instruments.0.serial",
+            "instruments.0.calibration_due"} <= set(checked)
+    for col in ("value", "uncertainty", "limits"):
+        assert any(k.startswith("quantities.") and k.endswith("." + col) for k in checked), col
+
+
+def _label(key: str, data) -> str:
+    from sequencer.reports.certificate_view import field_slug, identity_rows
+
+    return next((lbl for lbl, _ in identity_rows(data) if f"header.{field_slug(lbl)}" == key), "")
+
+
+def _one_channel_run(store: Store, measurements: list[Measurement]) -> int:
+    run_id = store.create_run(replace(run_info(RunSpec(channels=1))), started_at=T0)
+    store.handle(StepStarted(run_id, "gain/ch1/fit", "analyse.transfer", 0, 1, T0))
+    for m in measurements:
+        store.handle(MeasurementMade(run_id, "gain/ch1/fit", m))
+    end = T0 + timedelta(seconds=1)
+    store.handle(StepFinished(run_id, "gain/ch1/fit", "analyse.transfer", "completed", T0, end))
+    store.handle(RunFinished(run_id, "completed", end))
+    return run_id
+
+
+def test_an_unjudged_value_of_a_limited_quantity_is_counted_and_never_passes(tmp_path: Path):
+    judged = Measurement("gain", 1.01, "V/V", 0.002, 1, "x1", None, 0.95, 1.05, "pass")
+    # the same quantity measured with no output: the limit set limits gain per output only
+    unjudged = Measurement("gain", 5.02, "V/V", 0.01, 1, None, None, None, None, "info")
+    no_limit = Measurement("baseline_mV", 0.2, "mV", None, 1, "x1", None, None, None, "info")
+    with Store.open(f"sqlite:///{tmp_path / 'r.db'}") as store:
+        clean = _one_channel_run(store, [judged, no_limit])
+        flawed = _one_channel_run(store, [judged, unjudged, no_limit])
+        [ok] = gather_certificates(store, clean)
+        [bad] = gather_certificates(store, flawed)
+        _, html = certify_run(store, flawed, tmp_path / "c", workers=1)
+        assert verify_certificate(store, html).ok
+    assert (ok.verdict, ok.unjudged) == ("PASS", 0)
+    assert (bad.verdict, bad.unjudged) == ("UNJUDGED", 1)
+    text = html.read_text(encoding="utf-8")
+    assert "every judged value within its limits" not in text
+    assert "unjudged values of limited quantities: 1" in text
+    assert "Judged values: 1 pass, 0 fail" in text
