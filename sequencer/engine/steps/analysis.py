@@ -21,6 +21,7 @@ from sequencer.procedure.plan_model import PlannedStep
 from ..context import Reading, RunContext
 from ..judge import channel_of, measure, output_of
 from ..records import NamedTrace, StepResult
+from .series import pulse_series, s_curve_series, transfer_series
 
 
 class AnalysisInputError(ValueError):
@@ -121,14 +122,14 @@ def analyse_transfer(ctx: RunContext, step: PlannedStep) -> StepResult:
     items = _traces(ctx, step, a["traces"])
     rows, dt = _stack_mV(items)
     heights = an.pulse_height(rows, dt, _n_baseline(step, items), a.get("method", "peak"))
-    fit = an.transfer_curve(
-        _sweep(items, a["x"]), heights, deviation_pct=float(a.get("deviation", 1.0))
-    )
+    x = _sweep(items, a["x"])
+    fit = an.transfer_curve(x, heights, deviation_pct=float(a.get("deviation", 1.0)))
     return StepResult(
         results={
             "points": len(items),
             "dynamic_range_mV": fit.dynamic_range_mV,
             "chi2_ndf": fit.fit.chi2_ndf,
+            "series": [transfer_series(channel_of(step), output_of(step), x, heights, fit)],
         },
         measurements=[
             measure(ctx, step, "gain", fit.gain, uncertainty=fit.gain_err),
@@ -181,9 +182,11 @@ def analyse_crosstalk(ctx: RunContext, step: PlannedStep) -> StepResult:
 def analyse_s_curve(ctx: RunContext, step: PlannedStep) -> StepResult:
     a = step.args
     items = _readings(ctx, step, a["counts"])
-    fit = an.fit_s_curve(_sweep(items, a["x"]), [float(i.value) for i in items], int(a["trials"]))
+    x, counts = _sweep(items, a["x"]), [float(i.value) for i in items]
+    fit = an.fit_s_curve(x, counts, int(a["trials"]))
+    curve = s_curve_series(channel_of(step), "S-curve", x, counts, int(a["trials"]), fit)
     return StepResult(
-        results={"points": len(items), "chi2_ndf": fit.chi2_ndf},
+        results={"points": len(items), "chi2_ndf": fit.chi2_ndf, "series": [curve]},
         measurements=[
             measure(ctx, step, "threshold_mV", fit.mu, uncertainty=fit.mu_err),
             measure(ctx, step, "threshold_sigma_mV", fit.sigma, uncertainty=fit.sigma_err),
@@ -199,17 +202,19 @@ def analyse_discriminator(ctx: RunContext, step: PlannedStep) -> StepResult:
     for amp, item in zip(_sweep(items, a["amplitude"]), items, strict=True):
         groups.setdefault(float(amp), []).append(item)
     gain = _gain(ctx, step, "x1")
-    mus, errs = [], []
-    for group in groups.values():
-        fit = an.fit_s_curve(
-            _sweep(group, a["x"]), [float(i.value) for i in group], int(a["trials"])
-        )
+    mus, errs, curves = [], [], []
+    for amp, group in groups.items():
+        x, counts = _sweep(group, a["x"]), [float(i.value) for i in group]
+        fit = an.fit_s_curve(x, counts, int(a["trials"]))
         mus.append(fit.mu)
         errs.append(fit.mu_err)
+        label = f"{a['amplitude']} = {amp:g} mV"
+        curves.append(s_curve_series(channel_of(step), label, x, counts, int(a["trials"]), fit))
     heights = gain * np.array(list(groups))
     cal = an.threshold_calibration(heights, mus, errs)
     return StepResult(
-        results={"amplitudes": list(groups), "mu_mV": mus, "slope": cal.slope, "gain": gain},
+        results={"amplitudes": list(groups), "mu_mV": mus, "slope": cal.slope, "gain": gain,
+                 "series": curves},
         measurements=[
             measure(ctx, step, "discriminator_offset_mV", cal.offset_mV, uncertainty=cal.offset_err)
         ],
@@ -225,6 +230,7 @@ def analyse_peaking(ctx: RunContext, step: PlannedStep) -> StepResult:
         raise AnalysisInputError("no pulse above the noise: nothing to time")
     value, err = _mean_err(an.peaking_time(rows, dt, starts))
     results: dict[str, Any] = {"traces": len(items)}
+    results["series"] = [_pulse(step, "peaking_time_ns", value, rows, dt, items)]
     try:
         zc, _ = _mean_err(
             an.zero_crossing_time(
@@ -247,7 +253,7 @@ def analyse_rise(ctx: RunContext, step: PlannedStep) -> StepResult:
         raise AnalysisInputError("no pulse above the noise: nothing to time")
     value, err = _mean_err(an.rise_time(rows, dt, _n_baseline(step, items)))
     return StepResult(
-        results={"traces": len(items)},
+        results={"traces": len(items), "series": [_pulse(step, "rise_time_ns", value, rows, dt, items)]},
         measurements=[measure(ctx, step, "rise_time_ns", value, uncertainty=err)],
     )
 
@@ -259,6 +265,13 @@ def analyse_leakage(ctx: RunContext, step: PlannedStep) -> StepResult:
     current_nA = float(reading["current_A"]) * 1e9
     m = measure(ctx, step, "leakage_nA", current_nA, channel=None, output=None)
     return StepResult(results={"volts": reading.get("volts")}, measurements=[m])
+
+
+def _pulse(step: PlannedStep, quantity: str, value: float, rows: np.ndarray, dt: float,
+           items: list[NamedTrace]) -> dict[str, Any]:
+    t0 = items[0].trace.t0_ns
+    return pulse_series(channel_of(step), output_of(step), quantity, value, rows, dt, t0,
+                        _n_baseline(step, items))
 
 
 HANDLERS = {

@@ -3,7 +3,7 @@ public API: ``Store.create_run`` then the runner's events (``sequencer.events``)
 ``Store.handle``, the way the engine records a run.
 
 The figures stored are computed from the generated traces and counts with ``sequencer.analysis``,
-as the engine's analysis steps do; limits are those of an invented limit set.  Paths follow the
+as the engine's analysis steps do, and the series kept with them by the engine's own helpers; limits are those of an invented limit set.  Paths follow the
 plan's ``group/chN/output/var=value/step`` form.
 """
 
@@ -19,6 +19,7 @@ import numpy as np
 from scipy import stats
 
 from sequencer import analysis as an
+from sequencer.engine.steps.series import pulse_series, s_curve_series, transfer_series
 from sequencer.events import (
     InstrumentInfo,
     Measurement,
@@ -286,11 +287,12 @@ def _transfer(
         amps.append(amp)
     fit = an.transfer_curve(amps, heights)
     noise = 0.3 + rng.normal(0, 0.01)
+    series = transfer_series(ch, output, np.array(amps), np.array(heights), fit)  # as the engine
     rec.step(
         f"gain/ch{ch}/{output}/transfer",
         "analyse.transfer",
         settings={"traces": "pulse", "x": "amp", "n_baseline": N_BASELINE, "method": "peak"},
-        results={"points": len(amps)},
+        results={"points": len(amps), "series": [series]},
         measurements=(
             judged(
                 "gain",
@@ -322,10 +324,12 @@ def _shape(rec: _Recorder, rng: np.random.Generator, ch: int) -> None:
     )
     rec.step(path, "scope.capture", settings={"inputs": [2], "into": ["shaped"]}, traces=(trace,))
     peaking = float(an.peaking_time(samples_mV, 1.0, 80.0))
+    series = pulse_series(ch, "shaped", "peaking_time_ns", peaking, samples_mV[None, :], 1.0, -80.0, 80)
     rec.step(
         f"shape/ch{ch}/peaking",
         "analyse.peaking",
         settings={"traces": "shaped"},
+        results={"series": [series]},
         measurements=(judged("peaking_time_ns", peaking, output="shaped", channel=ch),),
     )
 
@@ -349,10 +353,12 @@ def _s_curve(rec: _Recorder, rng: np.random.Generator, ch: int, mu: float, fix: 
             results={"readings": {"counts": k}},
         )
     fit = an.fit_s_curve(THRESHOLDS_MV, counts, TRIALS)
+    series = s_curve_series(ch, "S-curve", THRESHOLDS_MV, counts, TRIALS, fit)
     rec.step(
         f"scurve/ch{ch}/fit",
         "analyse.s_curve",
         settings={"counts": "counts", "x": "thr", "trials": TRIALS},
+        results={"series": [series]},
         measurements=(
             judged(
                 "threshold_mV",
