@@ -45,7 +45,7 @@ def runs(db: str | None, fmt: str, board: str | None, procedure: str | None, bat
         with store.engine.connect() as conn:
             lines = run_lines(conn, newest_first=False, board=board, procedure=procedure, batch=batch,
                               operator=operator, status=status, since=_utc(since), until=_utc(until))  # fmt: skip
-            counts = run_counts(conn, [r.id for r in lines])
+            counts = run_counts(conn, [r.id for r in lines], steps=False)
     verdicts = {r.id: counts[r.id].verdict(r.status) for r in lines}
     if verdict is not None:
         wanted = "" if verdict == "open" else verdict
@@ -68,7 +68,7 @@ def batches(db: str | None, fmt: str) -> None:
     with compose.open_existing_store(db, env()) as store, store.engine.connect() as conn:
         for b in batch_lines(conn):
             lines = run_lines(conn, batch=b.batch)
-            counts = run_counts(conn, [r.id for r in lines])
+            counts = run_counts(conn, [r.id for r in lines], steps=False)
             verdicts = [counts[r.id].verdict(r.status) for r in lines]
             rows.append({
                 "batch": b.batch, "boards": b.boards, "runs": b.runs, "running": b.running,

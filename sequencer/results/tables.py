@@ -117,7 +117,7 @@ def run_table(store: Store, sel: Selection = Selection()) -> Table:
     """One row per run with its status, verdict and counts (oldest first)."""
     runs = _runs(store, sel)
     with store.engine.connect() as conn:
-        counts = run_counts(conn, [r.id for r in runs])
+        counts = run_counts(conn, [r.id for r in runs], steps=False)
     rows = []
     for r in runs:
         c = counts[r.id]

@@ -41,8 +41,11 @@ class RunCounts:
         return "pass" if status == "completed" else ""
 
 
-def run_counts(conn: Connection, run_ids: Sequence[int]) -> dict[int, RunCounts]:
-    """``run_id -> RunCounts`` for each of ``run_ids`` (runs with nothing stored get zeros)."""
+def run_counts(
+    conn: Connection, run_ids: Sequence[int], *, steps: bool = True
+) -> dict[int, RunCounts]:
+    """``run_id -> RunCounts`` for each of ``run_ids`` (runs with nothing stored get zeros);
+    ``steps=False`` leaves the step counts at zero (a listing needs only the verdicts)."""
     ids = list(dict.fromkeys(int(i) for i in run_ids))
     if not ids:
         return {}
@@ -58,7 +61,7 @@ def run_counts(conn: Connection, run_ids: Sequence[int]) -> dict[int, RunCounts]
             .group_by(Measurement.run_id)
         )
     }
-    stepped = {
+    stepped = {} if not steps else {
         r[0]: (int(r[1] or 0), int(r[2] or 0), int(r[3]))
         for r in conn.execute(
             select(
@@ -97,9 +100,10 @@ def run_counts(conn: Connection, run_ids: Sequence[int]) -> dict[int, RunCounts]
     return out
 
 
-@dataclass(frozen=True, kw_only=True)
+@dataclass(frozen=True, slots=True)
 class RunLine:
-    """A run as a listing shows it: no documents, no instruments (cheap for thousands of runs)."""
+    """A run as a listing shows it: no documents, no instruments (cheap for thousands of runs).
+    Fields in the order of ``_LINE_COLUMNS`` (rows are unpacked into it positionally)."""
 
     id: int
     procedure: str
@@ -138,7 +142,7 @@ def run_lines(
     query = select(*_LINE_COLUMNS).where(*clauses).order_by(*order).offset(offset)
     if limit is not None:
         query = query.limit(limit)
-    return [RunLine(**row) for row in conn.execute(query).mappings()]
+    return [RunLine(*row) for row in conn.execute(query)]
 
 
 def count_runs(conn: Connection, *, operator: str | None = None, **filters: Any) -> int:

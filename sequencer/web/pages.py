@@ -17,8 +17,11 @@ from starlette.responses import Response
 from sequencer.errors import StoreError
 from sequencer.reports.quantities import format_limits, format_measured, format_number
 from sequencer.store.overview import batch_lines, count_runs, run_counts, run_lines
+from sequencer.web.rows import run_rows_html
 from sequencer.web.settings import MAX_PAGE_SIZE
 
+RUNS_COLUMNS = ("run", "board", "batch", "procedure", "operator", "status", "verdict", "values",
+                "started", "took")
 RUN_FILTERS = ("board", "batch", "procedure", "verdict", "operator", "status", "since", "until")
 VERDICTS = ("pass", "fail", "")
 
@@ -69,16 +72,17 @@ def runs_page(request: Request) -> Response:
     with store.engine.connect() as conn:
         if q["verdict"]:
             lines = run_lines(conn, **filters)  # a verdict is counted, not a column: filter here
-            counts = run_counts(conn, [r.id for r in lines])
+            counts = run_counts(conn, [r.id for r in lines], steps=False)
             lines = [r for r in lines if counts[r.id].verdict(r.status) == _verdict(q["verdict"])]
             total = len(lines)
             lines = lines[offset : offset + limit]
         else:
             total = count_runs(conn, **filters)
             lines = run_lines(conn, limit=limit, offset=offset, **filters)
-            counts = run_counts(conn, [r.id for r in lines])
+            counts = run_counts(conn, [r.id for r in lines], steps=False)
     rows = [{"run": r, "counts": counts[r.id], "verdict": counts[r.id].verdict(r.status)} for r in lines]
-    return render(request, "runs.html", rows=rows, q=q, total=total, offset=offset, limit=limit)
+    html = run_rows_html(rows, columns=RUNS_COLUMNS)
+    return render(request, "runs.html", rows=rows, rows_html=html, q=q, total=total, offset=offset, limit=limit)
 
 
 def _verdict(text: str) -> str:
@@ -168,7 +172,7 @@ def board_page(request: Request) -> Response:
     serial = request.path_params["serial"]
     with store.engine.connect() as conn:
         lines = run_lines(conn, board=serial)
-        counts = run_counts(conn, [r.id for r in lines])
+        counts = run_counts(conn, [r.id for r in lines], steps=False)
     if not lines:
         raise HTTPException(404, f"no runs of board {serial!r} in this database")
     quantities = sorted({(m.quantity, m.channel, m.output or "") for m in store.measurements(board=serial)},
