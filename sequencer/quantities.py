@@ -36,5 +36,9 @@ QUANTITY_UNITS: Mapping[str, str] = MappingProxyType(
         "gain_slope": "1e6/V",
         "dcr_kHz": "kHz",
         "optical_crosstalk_pct": "%",
+        "excess_charge_factor": "1",
+        "light_yield_pe": "p.e.",
+        "muon_rate_hz": "Hz",
+        "muon_efficiency_pct": "%",
     }
 )

@@ -32,12 +32,17 @@ key                                 default    meaning
 ``sensors[].light_scale``           1.0        fraction of the plate's (or LED's) light reaching it
 ``plate.area_cm2``                  400.0      plate area seen by vertical muons
 ``plate.muon_rate_per_cm2_min``     1.0        muon flux (PDG "Cosmic rays", ~1 /cm²/min, memory)
-``plate.mpv_pe``                    30.0       most probable light at the fibre end, photoelectrons
+``plate.mpv_pe``                    30.0       most probable light of a vertical muon, in primary
+                                               photoelectrons at a sensor on a fibre of length 0
 ``plate.landau_width_pe``           3.0        Landau width (scipy.stats.landau scale) in p.e.
+                                               (a sensor sees both scaled by exp(-fibre/λ_att) and
+                                               its ``light_scale``: a poorly coupled fibre < 1)
 ``plate.attenuation_length_cm``     300.0      fibre attenuation length λ_att
 ``plate.fibre_cm``                  [50, 50]   fibre length from the plate to each sensor
-``plate.singles_rate_hz``           [300, 300] uncorrelated single rates of each sensor's trigger
-``plate.coincidence_window_ns``     50.0       default resolving time τ of the coincidence unit
+``plate.singles_rate_hz``           [300, 300] uncorrelated pulses at each sensor (radioactivity,
+                                               dark pile-up), heights exponential with mean
+                                               ``plate.singles_mean_pe`` photoelectrons
+``plate.singles_mean_pe``           10.0       mean light of those pulses
 ==================================  =========  =====================================================
 
 Physics (see :mod:`drivers.sim.sipm`): G = C_cell·(V - V_bd(T))/e with V_bd(T) = V_bd + k·(T - T_ref);
@@ -100,7 +105,7 @@ class PlateSpec:
     attenuation_length_cm: float = 300.0
     fibre_cm: tuple[float, float] = (50.0, 50.0)
     singles_rate_hz: tuple[float, float] = (300.0, 300.0)
-    coincidence_window_ns: float = 50.0
+    singles_mean_pe: float = 10.0
 
     @property
     def muon_rate_hz(self) -> float:

@@ -1,5 +1,6 @@
 """The simulated bench of a light sensor (or scintillator module): pulser (driving the LED), mca,
-threshold DAC, counter, bias supply and temperature sensor, each a real SCPI server."""
+threshold DAC, counter, bias supply and temperature sensor, each a real SCPI server; a module (a
+sensor file with a ``plate:``) adds the coincidence unit fed by cosmic-ray muons."""
 
 from __future__ import annotations
 
@@ -8,7 +9,9 @@ from typing import Any
 
 from drivers.sim.bench import SimBench
 from drivers.sim.bias import BiasSupply
-from drivers.sim.board import BoardSpec, ChannelSpec
+from drivers.sim.board import BoardSpec, ChannelSpec, CoincidenceSpec
+from drivers.sim.coincidence import CoincidenceUnit
+from drivers.sim.cosmics import CosmicPlate
 from drivers.sim.dark_counter import DarkCounter
 from drivers.sim.instrument import SimInstrument
 from drivers.sim.mca import PulseHeightAnalyser
@@ -19,7 +22,7 @@ from drivers.sim.thermometer import Thermometer
 from drivers.sim.threshold import ThresholdDac
 
 #: The roles of a sensor bench, in port order.
-SENSOR_ROLES = ("pulser", "mca", "threshold", "counter", "bias", "temperature")
+SENSOR_ROLES = ("pulser", "mca", "threshold", "counter", "bias", "temperature", "coincidence")
 
 
 def bias_board(spec: SensorSpec) -> BoardSpec:
@@ -54,13 +57,28 @@ class SensorBench(SimBench):
         bias = BiasSupply(board=bias_board(spec), **common("bias"))
         rig = SensorRig(spec, bias=bias, pulser=pulser, clock=clock)
         threshold = ThresholdDac(channels=len(spec.sensors), **common("threshold"))
+        extra: dict[str, SimInstrument] = {}
+        sources = {}
+        if spec.plate is not None:  # a scintillator module: two sensors in coincidence
+            plate = CosmicPlate(rig, spec.plate)
+            unit = CoincidenceUnit(
+                spec=CoincidenceSpec(noise_mV=spec.readout.noise_mV),
+                pulser=pulser,
+                seed=spec.seed,
+                time_scale=spec.time_scale,
+                source=plate.trains,
+                **common("coincidence"),
+            )
+            extra["coincidence"] = unit
+            sources["COINcidence"] = plate.triggered(unit)
         instruments: dict[str, SimInstrument] = {
             "pulser": pulser,
-            "mca": PulseHeightAnalyser(rig=rig, **common("mca")),
+            "mca": PulseHeightAnalyser(rig=rig, sources=sources, **common("mca")),
             "threshold": threshold,
             "counter": DarkCounter(rig=rig, threshold=threshold, **common("counter")),
             "bias": bias,
             "temperature": Thermometer(rig=rig, **common("temperature")),
+            **extra,
         }
         if spec.time_scale < 1.0:  # the simulated clock runs faster than real time: say so
             for inst in instruments.values():

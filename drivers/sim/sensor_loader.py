@@ -58,7 +58,7 @@ _PLATE: dict[str, Check] = {
     "attenuation_length_cm": _number(0.0, 1e6, above=True),
     "fibre_cm": _pair,
     "singles_rate_hz": _pair,
-    "coincidence_window_ns": _number(0.0, 1e9, above=True),
+    "singles_mean_pe": _number(0.0, 1e5, above=True),
 }
 _TOP: dict[str, Check] = {
     "serial": _text,

@@ -15,7 +15,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy import optimize, special, stats
+from scipy import optimize, signal, special, stats
 
 from ._checks import as_points
 
@@ -24,6 +24,8 @@ LANDAU_MODE = -0.4293145
 
 MIN_EVENTS = 100
 _GRID_PER_BIN = 8
+_MAX_GRID = 20_000
+"""Grid points over the fitted range at most: bounds the cost of a very finely binned histogram."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -120,13 +122,15 @@ def _convolved_density(grid: np.ndarray, loc: float, scale: float, sigma: float,
     t = np.arange(-half, half + 1) * step
     kern = np.exp(-0.5 * (t / sigma) ** 2)
     kern /= kern.sum()
-    return np.convolve(land, kern, mode="same")
+    return signal.fftconvolve(land, kern, mode="same")
 
 
 def _model(theta: np.ndarray, edges: np.ndarray) -> np.ndarray:
     loc, scale, sigma, norm = theta
     width = edges[1] - edges[0]
-    step = min(width / _GRID_PER_BIN, scale / 4.0, sigma / 2.0)
+    step = max(
+        min(width / _GRID_PER_BIN, scale / 4.0, sigma / 2.0), (edges[-1] - edges[0]) / _MAX_GRID
+    )
     pad = 6.0 * sigma
     grid = np.arange(edges[0] - pad, edges[-1] + pad + step, step)
     dens = _convolved_density(grid, loc, scale, sigma, step)

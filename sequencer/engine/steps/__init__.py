@@ -17,6 +17,7 @@ from . import (
     coincidence,
     counter,
     flow,
+    module_analysis,
     pulser,
     scope,
     sensor_analysis,
@@ -33,7 +34,7 @@ def handler_table() -> Mapping[str, Handler]:
     table: dict[str, Handler] = {}
     for family in (
         pulser, scope, threshold, counter, coincidence, bias, switch, flow, analysis, sensors,
-        sensor_analysis,
+        sensor_analysis, module_analysis,
     ):
         table.update(family.HANDLERS)
     return table

@@ -61,8 +61,12 @@ def _plot_series(fit: an.FingerFit, sign: float) -> dict[str, Any]:
 def analyse_fingers(ctx: RunContext, step: PlannedStep) -> StepResult:
     a = step.args
     sign = -1.0 if a.get("polarity") == "negative" else 1.0
-    fit = _fit(_readings(ctx, step, a["histogram"])[-1], str(a.get("polarity")))
+    item = _readings(ctx, step, a["histogram"])[-1]
+    fit = _fit(item, str(a.get("polarity")))
     k = float(a["mV_per_fC"])
+    # excess charge factor: mean fired cells per pulse over mean primaries (1/(1-λ) for branching
+    # crosstalk, Vinogradov arXiv:1109.2014); charge in single-cell units divides by it
+    ecf = float(np.arange(fit.areas.size) @ fit.areas) / _histogram(item)[2] / fit.mu
     rel = fit.gain_err / fit.gain
     g = _gain_millions(fit.gain, k)
     return StepResult(
@@ -76,6 +80,7 @@ def analyse_fingers(ctx: RunContext, step: PlannedStep) -> StepResult:
             measure(ctx, step, "pe_gain_mV", sign * fit.gain, uncertainty=fit.gain_err),
             measure(ctx, step, "mean_pe", fit.mu, uncertainty=fit.mu_err),
             measure(ctx, step, "pedestal_mV", sign * fit.pedestal, uncertainty=fit.pedestal_err),
+            measure(ctx, step, "excess_charge_factor", ecf),
         ],
     )
 
