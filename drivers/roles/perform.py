@@ -5,6 +5,8 @@ the operation's timeout), ``query`` steps through :meth:`ScpiSession.query_parse
 rule (a reply the rule cannot read is a ``ProtocolError``, retried once after a resync), ``wait``
 sleeps a bounded time, ``poll`` repeats a query until its condition holds or its own deadline
 passes (then :class:`InstrumentTimeout`).  A step with ``when:`` runs only when its condition holds.
+Both waits look at the session's ``stop_check`` (the run's stop flag) and give up with
+:class:`ReadStopped` when a stop was requested.
 """
 
 from __future__ import annotations
@@ -15,7 +17,7 @@ from typing import Any
 
 from drivers.dialect import Dialect
 from drivers.dialect_ops import Operation, Step
-from drivers.errors import ConfigError, InstrumentTimeout, Problem
+from drivers.errors import ConfigError, InstrumentTimeout, Problem, ReadStopped
 from drivers.scpi.replies import ReplyRule, parse_reply
 from drivers.scpi.session import ScpiSession
 from drivers.scpi.templates import ExpressionError
@@ -39,7 +41,7 @@ def perform(
             if step.when is not None and not _holds(op, step, step.when, values):
                 continue
             if step.action == "wait":
-                time.sleep(step.seconds)
+                _pause(session, step.seconds, f"{op.role}.{op.name}")
                 continue
             assert step.template is not None
             text = dialect.render(op, step.template, values)
@@ -86,7 +88,23 @@ def _poll(
                 address=session.address,
                 command=command,
             )
-        time.sleep(step.every_s)
+        _pause(session, step.every_s, f"{op.role}.{op.name}")
+
+
+#: A pause looks at the stop flag at least this often (seconds).
+STOP_SLICE_S = 0.1
+
+
+def _pause(session: ScpiSession, seconds: float, what: str) -> None:
+    """Sleep ``seconds`` in slices, giving up when the session's stop check says so."""
+    end = time.monotonic() + seconds
+    while True:
+        if session.stop_check is not None and session.stop_check():
+            raise ReadStopped(f"{what}: wait given up by a stop request", address=session.address)
+        left = end - time.monotonic()
+        if left <= 0:
+            return
+        time.sleep(min(left, STOP_SLICE_S))
 
 
 def _holds(op: Operation, step: Step, condition: Any, values: Mapping[str, Any]) -> bool:

@@ -88,9 +88,12 @@ class Runner:
                 self.bench.watch_stop(None)
 
     def _read_should_stop(self) -> bool:
-        """Long reads (binary blocks) give up when a stop was requested, except in the cleanup
-        block, which runs to its end."""
-        return self.stop.requested and not (self._ctx is not None and self._ctx.in_cleanup)
+        """Long reads (binary blocks) and dialect waits give up when a stop was requested, except
+        while the bias is brought to its safe state and in the cleanup block."""
+        ctx = self._ctx
+        if ctx is None or not self.stop.requested:
+            return False
+        return not ctx.in_cleanup and not (ctx.guard is not None and ctx.guard.securing)
 
     def _run(self) -> RunOutcome:
         ctx = RunContext(

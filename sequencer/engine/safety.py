@@ -59,6 +59,11 @@ class BiasGuard:
         self._reconnects_seen = reconnects(self.bias)
         self._watcher: _Watcher | None = None
 
+    @property
+    def securing(self) -> bool:
+        """True while the safe state is being reached (nothing may give up on a stop request)."""
+        return self._securing
+
     # -- events -------------------------------------------------------------------------------
     def record(self, kind: str, path: str = "", **detail: Any) -> None:
         """Emit one SafetyEvent.
