@@ -1,9 +1,9 @@
 """The curve points behind a run's figures: transfer curves and S-curves, one point a row.
 
-``read_series`` is the one place exports and the web view get series from.  Today the store keeps
-the traces and counts, and the certificate's evidence reader (``sequencer.reports.evidence``) turns
-them into curves; when the engine stores the series it fitted, this function reads those instead
-and nothing above it changes.
+``read_series`` is the one place exports and the web view get series from.  The engine keeps the
+series each analysis step computed with the step (transfer points with their residuals from the
+fitted line, S-curve points); the certificate's evidence reader (``sequencer.reports.evidence``)
+reads them, and so does this.  Runs recorded before the engine kept its series have none.
 """
 
 from __future__ import annotations
@@ -29,6 +29,7 @@ class CurvePoint:
     y: float
     y_unit: str
     trials: int | None = None
+    residual: float | None = None  # transfer: height minus the fitted line, mV
 
     def as_row(self) -> dict[str, Any]:
         return asdict(self)
@@ -53,10 +54,12 @@ def read_series(store: Any, run_id: int) -> list[CurvePoint]:
         transfer, s_curves, _pulses = gather_evidence(snap, channel)
         for curve in transfer:
             step = _step_of(snap, channel, ("analyse.transfer",), curve.output)
-            for x, y in zip(curve.amplitudes_mV, curve.heights_mV, strict=True):
+            residuals = list(curve.residuals_mV) or [None] * len(curve.amplitudes_mV)
+            for x, y, r in zip(curve.amplitudes_mV, curve.heights_mV, residuals, strict=True):
                 points.append(CurvePoint(
                     step=step, channel=channel, output=curve.output or None, series="transfer",
                     label=f"transfer {curve.output}".strip(), x=x, x_unit="mV", y=y, y_unit="mV",
+                    residual=r,
                 ))  # fmt: skip
         step = _step_of(snap, channel, ("analyse.s_curve", "analyse.discriminator"), None)
         for sc in s_curves:

@@ -92,7 +92,7 @@ RUN_COLUMNS = _columns((
 SERIES_COLUMNS = _columns((
     ("run_id", "int"), ("board", "str"), ("step", "str"), ("channel", "int"), ("output", "str"),
     ("series", "str"), ("label", "str"), ("x", "float"), ("x_unit", "str"), ("y", "float"),
-    ("y_unit", "str"), ("trials", "int"),
+    ("y_unit", "str"), ("trials", "int"), ("residual", "float"),
 ))  # fmt: skip
 TRACE_COLUMNS = _columns((
     ("run_id", "int"), ("board", "str"), ("step", "str"), ("name", "str"), ("channel", "int"),

@@ -156,3 +156,16 @@ def test_export_filters_and_refusals(recorded, out: Path) -> None:
 def test_a_missing_library_names_the_extra() -> None:
     with pytest.raises(MissingExtra, match=r"pip install 'benchwright\[data\]'"):
         need("benchwright_no_such_module", "data", "Parquet export")
+
+
+def test_transfer_residuals_are_the_distance_to_the_stored_line(recorded) -> None:
+    """residual = height − (gain · amplitude + offset) with the stored gain and offset_mV
+    (the definition of a residual from the best-fit line, IEEE Std 1241 / REFERENCES.md)."""
+    url, store = recorded
+    df = results.series(url, run=1)
+    fit = {(m.channel, m.output, m.quantity): m.value for m in store.measurements(run_id=1)}
+    transfer = df[df["series"] == "transfer"]
+    assert transfer["residual"].notna().all()
+    for _, p in transfer.iterrows():
+        line = fit[(p["channel"], p["output"], "gain")] * p["x"] + fit[(p["channel"], p["output"], "offset_mV")]
+        assert p["residual"] == pytest.approx(p["y"] - line, abs=1e-6 * max(1.0, abs(p["y"])))
