@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import click
 
 from sequencer.cli_common import db_option, env, handles_errors
@@ -14,8 +16,10 @@ from sequencer.web.settings import DEFAULT_HOST, DEFAULT_PORT, is_loopback, new_
               help="Address to listen on; any address but loopback requires the access token printed at start.")
 @click.option("--port", default=DEFAULT_PORT, show_default=True, type=click.IntRange(0, 65535),
               help="TCP port (0: any free port, printed at start).")
+@click.option("--certificates", "certificate_dirs", multiple=True, type=click.Path(file_okay=False, exists=True),
+              help="Folder where `benchwright certify` wrote certificates: listed per run and verified (repeatable).")
 @handles_errors
-def serve(db: str | None, host: str, port: int) -> None:
+def serve(db: str | None, host: str, port: int, certificate_dirs: tuple[str, ...]) -> None:
     """Local web view: runs, live progress, batches, boards, trends (read-only).
 
     Runs in progress on the same database, from any bench writing to it, fill the live view as
@@ -33,7 +37,8 @@ def serve(db: str | None, host: str, port: int) -> None:
     except ImportError as exc:
         raise MissingExtra("uvicorn", "web", "the web view") from exc
     token = None if is_loopback(host) else new_token()
-    settings = ServeSettings(db_url=db or "", host=host, port=port, token=token)
+    settings = ServeSettings(db_url=db or "", host=host, port=port, token=token,
+                             certificates=tuple(Path(d) for d in certificate_dirs))
     with compose.open_existing_store(db, env()) as store:
         app = create_app(settings, store)
         family = socket.AF_INET6 if ":" in host else socket.AF_INET

@@ -135,12 +135,19 @@ def create_app(settings: ServeSettings, store: Any) -> Any:
     from starlette.applications import Starlette
     from starlette.exceptions import HTTPException
     from starlette.requests import Request
-    from starlette.responses import HTMLResponse, JSONResponse, Response, StreamingResponse
+    from starlette.responses import (
+        FileResponse,
+        HTMLResponse,
+        JSONResponse,
+        Response,
+        StreamingResponse,
+    )
     from starlette.routing import Mount, Route
     from starlette.staticfiles import StaticFiles
     from starlette.templating import Jinja2Templates
 
     from sequencer.web import pages
+    from sequencer.web.certificates import CertificateChecks, certificates_of_run, find_certificate
     from sequencer.web.live import Outlines, live_snapshot
     from sequencer.web.templating import install_filters
 
@@ -157,6 +164,22 @@ def create_app(settings: ServeSettings, store: Any) -> Any:
         await asyncio.to_thread(pages._run_or_404, request.app.state.store, run_id)
         return StreamingResponse(_run_stream(request, run_id), media_type="text/event-stream",
                                  headers={"Cache-Control": "no-store"})  # fmt: skip
+
+    def run_certificates(request: Request) -> Response:
+        state = request.app.state
+        run_id = int(request.path_params["run_id"])
+        pages._run_or_404(state.store, run_id)
+        files = certificates_of_run(state.settings.certificates, run_id)
+        checks = [state.certificate_checks.check(state.store, f) for f in files]
+        return JSONResponse([{"name": c.name, "ok": c.ok, "number": c.number,
+                              "differences": list(c.differences)} for c in checks])  # fmt: skip
+
+    def certificate_file(request: Request) -> Response:
+        path = find_certificate(request.app.state.settings.certificates, request.path_params["name"])
+        if path is None:
+            raise HTTPException(404, "no such certificate in the certificate folders")
+        media = "application/pdf" if path.suffix.lower() == ".pdf" else "text/html"
+        return FileResponse(path, media_type=media)
 
     async def live_events(request: Request) -> Response:
         return StreamingResponse(_live_stream(request), media_type="text/event-stream",
@@ -180,6 +203,8 @@ def create_app(settings: ServeSettings, store: Any) -> Any:
         Route("/runs/{run_id:int}", pages.run_page, name="run"),
         Route("/runs/{run_id:int}/live.json", run_json, name="run_json"),
         Route("/runs/{run_id:int}/events", run_events, name="run_events"),
+        Route("/runs/{run_id:int}/certificates", run_certificates, name="run_certificates"),
+        Route("/certificates/{name}", certificate_file, name="certificate"),
         Route("/live", pages.live_page, name="live"),
         Route("/live/events", live_events, name="live_events"),
         Route("/batches", pages.batches_page, name="batches"),
@@ -194,6 +219,7 @@ def create_app(settings: ServeSettings, store: Any) -> Any:
     app.state.settings = settings
     app.state.store = store
     app.state.outlines = Outlines()
+    app.state.certificate_checks = CertificateChecks()
     app.state.templates = Jinja2Templates(env=env)
     app.state.database = store.engine.url.render_as_string(hide_password=True)
     if settings.token is not None:

@@ -17,6 +17,7 @@ from starlette.responses import Response
 from sequencer.errors import StoreError
 from sequencer.reports.quantities import format_limits, format_measured, format_number
 from sequencer.store.overview import batch_lines, count_runs, run_counts, run_lines
+from sequencer.web.certificates import certificates_of_run
 from sequencer.web.rows import run_rows_html
 from sequencer.web.settings import MAX_PAGE_SIZE
 
@@ -129,6 +130,8 @@ def run_page(request: Request) -> Response:
         steps=steps, rows=measurement_rows(measurements), curves=list(curves.values()),
         safety=store.safety_events(run_id), notes=store.audit_trail(run_id),
         snapshot=live_snapshot(store, run_id, _state(request).outlines),
+        certificates=certificates_of_run(_state(request).settings.certificates, run_id),
+        certificate_folders=_state(request).settings.certificates,
     )  # fmt: skip
 
 

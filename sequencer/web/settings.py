@@ -10,6 +10,7 @@ from __future__ import annotations
 import ipaddress
 import secrets
 from dataclasses import dataclass
+from pathlib import Path
 
 DEFAULT_HOST = "127.0.0.1"
 DEFAULT_PORT = 8470
@@ -45,6 +46,7 @@ class ServeSettings:
     poll_s: float = DEFAULT_POLL_S
     page_size: int = DEFAULT_PAGE_SIZE
     stream_s: float = DEFAULT_STREAM_S
+    certificates: tuple[Path, ...] = ()  # folders where `benchwright certify` wrote certificates
 
     def __post_init__(self) -> None:
         if self.token is None and not is_loopback(self.host):

@@ -233,6 +233,20 @@ function startStrips() {
   });
 }
 
+function startCertificates() {
+  const table = document.getElementById("certificates");
+  if (!table) return;
+  fetch(`/runs/${table.dataset.run}/certificates`).then((r) => r.json()).then((checks) => {
+    for (const c of checks) {
+      const row = table.querySelector(`tr[data-name="${CSS.escape(c.name)}"]`);
+      if (!row) continue;
+      const cell = row.querySelector("td.check");
+      cell.className = "check " + (c.ok ? "pass" : "fail");
+      cell.textContent = c.ok ? "matches" : "DOES NOT MATCH: " + c.differences.join("; ");
+    }
+  });
+}
+
 document.addEventListener("DOMContentLoaded", () => {
-  startLive(); startLiveList(); startCurves(); startTrend(); startStrips();
+  startLive(); startLiveList(); startCurves(); startTrend(); startStrips(); startCertificates();
 });

@@ -183,3 +183,35 @@ def test_read_only_by_construction(tmp_path: Path) -> None:
     missing = tmp_path / "none.db"
     result = CliRunner().invoke(cli, ["serve", "--db", f"sqlite:///{missing}", "--port", "0"])
     assert result.exit_code == 2 and not missing.exists()
+
+
+def test_certificates_are_listed_and_checked_against_the_database(db, tmp_path: Path) -> None:
+    """The same check as `benchwright verify`: an untouched certificate matches, an edited printed
+    field does not (and is checked again because the file changed)."""
+    import re
+
+    from sequencer.reports import certify_run
+
+    url, store, _ = db
+    folder = tmp_path / "certs"
+    written = certify_run(store, 1, folder, workers=1)
+    app = create_app(ServeSettings(db_url=url, certificates=(folder,)), store)
+    with TestClient(app) as c:
+        page = c.get("/runs/1").text
+        names = sorted(p.name for p in written)
+        assert sorted(re.findall(r'data-name="([^"]+)"', page)) == names
+        checks = c.get("/runs/1/certificates").json()
+        assert sorted(x["name"] for x in checks) == names and all(x["ok"] for x in checks)
+        html = next(p for p in written if p.suffix == ".html")
+        text = html.read_text(encoding="utf-8")
+        edited = re.sub(r'(data-field="judgement">)([^<]*)', r"\1All fine, trust me.", text, count=1)
+        assert edited != text
+        html.write_text(edited, encoding="utf-8")
+        again = {x["name"]: x for x in c.get("/runs/1/certificates").json()}
+        assert not again[html.name]["ok"] and again[html.name]["differences"]
+        assert sum(x["ok"] for x in again.values()) == len(names) - 1
+        pdf = next(p for p in written if p.suffix == ".pdf")
+        got = c.get(f"/certificates/{pdf.name}")
+        assert got.status_code == 200 and got.content[:5] == b"%PDF-"  # PDF header (ISO 32000)
+        assert c.get("/certificates/..%2Fresults.db").status_code == 404
+        assert c.get("/certificates/results.db").status_code == 404
