@@ -28,7 +28,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from drivers.dialect import GENERIC, load_dialect, shipped_dialect_path
+from drivers.capabilities import role_problems
+from drivers.dialect import GENERIC, Dialect, load_dialect, shipped_dialect_path
 from drivers.errors import ConfigError, Location, Problem
 from drivers.scpi.session import Identity
 from drivers.transport import (
@@ -45,7 +46,7 @@ ROLES = (
 _TERMINATIONS = {"LF": "\n", "CR": "\r", "CRLF": "\r\n", "\\n": "\n", "\\r": "\r", "\\r\\n": "\r\n"}
 #: The pyvisa backends a bench file may name by itself (no native code chosen by a file).
 NAMED_VISA_BACKENDS = ("@py", "@ivi", "@sim")
-_BIAS_ONLY = ("max_volts", "max_ramp_V_per_s", "max_current_uA")
+_BIAS_ONLY = ("max_volts", "max_ramp_V_per_s", "max_current_uA", "hardware_interlock")
 _KEYS = (
     "address",
     "dialect",
@@ -79,6 +80,9 @@ class InstrumentSpec:
     max_volts: float | None = None
     max_ramp_V_per_s: float | None = None
     max_current_uA: float | None = None
+    #: How a hardware interlock is wired to the supply's inhibit input (bias only; required when
+    #: the dialect cannot read the interlock, and then acknowledged for each run).
+    hardware_interlock: str = ""
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -229,10 +233,20 @@ def _instrument(
     values["busy_poll_us"] = check.integer("busy_poll_us", DEFAULT_BUSY_POLL_US, 0, 100_000)
     values["read_termination"] = check.termination("read_termination")
     values["write_termination"] = check.termination("write_termination")
-    values["dialect"] = _dialect(role, entry, problems, source, base_dir)
+    values["dialect"], dialect = _dialect(role, entry, problems, source, base_dir)
     if role == "bias":
-        for key in _BIAS_ONLY:
+        for key in ("max_volts", "max_ramp_V_per_s", "max_current_uA"):
             values[key] = check.positive(key, required=key != "max_current_uA")
+        values["hardware_interlock"] = check.text("hardware_interlock", default="")
+    if dialect is not None:
+        problems.extend(
+            role_problems(
+                dialect,
+                role,
+                hardware_interlock=values.get("hardware_interlock", ""),
+                entry=_where(entry, "dialect", source) if "dialect" in entry else _where(entry, None, source),
+            )
+        )
     if len(problems) > start:
         return None
     return InstrumentSpec(**values)
@@ -271,26 +285,28 @@ def _resolved(path: str) -> str:
 
 def _dialect(
     role: str, entry: Mapping, problems: list[Problem], source: str, base_dir: Path | None
-) -> str:
+) -> tuple[str, Dialect | None]:
+    """The dialect's name or resolved path, and the dialect itself when it loads."""
     name = entry.get("dialect", GENERIC)
     where = _where(entry, "dialect", source)
     if not isinstance(name, str) or not name.strip():
         problems.append(
             Problem(where, f"{role}: dialect must be 'generic' or the path of a dialect file")
         )
-        return GENERIC
+        return GENERIC, None
     is_path = name.endswith((".yaml", ".yml")) or "/" in name or "\\" in name
     path = Path(name) if is_path else shipped_dialect_path(name)
     if is_path and not path.is_absolute() and base_dir is not None:
         path = base_dir / path
     if not path.is_file():
         problems.append(Problem(where, f"{role}: dialect {name!r} not found ({path})"))
-        return name
+        return name, None
+    dialect = None
     try:
-        load_dialect(path)
+        dialect = load_dialect(path)
     except ConfigError as exc:
         problems.extend(exc.problems)
-    return str(path) if is_path else name
+    return (str(path) if is_path else name), dialect
 
 
 class _Checker:

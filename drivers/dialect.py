@@ -15,6 +15,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
+from drivers.capabilities import faked_state_problems
 from drivers.dialect_ops import Operation, Reader, check_template, hint, map_value, read_value_maps
 from drivers.dialect_waveform import WaveformSpec, read_waveform
 from drivers.errors import ConfigError, Location, Problem
@@ -258,6 +259,7 @@ def parse_dialect(text: str | bytes, source: str) -> Dialect:
                 _read_role(role, roles[role], fmt, parts, problems)
     if parts.waveform is not None:
         _check_byte_order(parts, problems)
+    problems.extend(faked_state_problems(parts.operations))
     binary = BinaryFormat()
     if fmt < 2:
         binary = _read_binary(data, problems, parts.operations.get(("common", "byte_order")))

@@ -7,16 +7,19 @@ the errors that belong above the instrument layer.
 ::
 
     BenchwrightError                      root: the CLI prints any of these as one line
-    ├── TransportError                    the link failed (address attached)
-    │   ├── InstrumentTimeout             no reply within the timeout
-    │   ├── ConnectionRefused             nothing listens at the address / host unreachable
-    │   ├── ConnectionClosed              the peer closed the link
-    │   └── ReadStopped                   a long read given up because the run was asked to stop
-    ├── ProtocolError                     a reply that cannot be parsed (malformed block, garbled number)
-    │   └── ImplausibleReading            a parsed reading no instrument could mean (NaN, 9.91E+37, overrange)
-    ├── InstrumentError                   the instrument reported an error (SYSTem:ERRor? gave a code)
+    ├── InstrumentFault                   base of the instrument layer's faults: carries address,
+    │   │                                 command and step path (set once, at the boundary)
+    │   ├── TransportError                the link failed (address attached)
+    │   │   ├── InstrumentTimeout         no reply within the timeout
+    │   │   ├── ConnectionRefused         nothing listens at the address / host unreachable
+    │   │   ├── ConnectionClosed          the peer closed the link
+    │   │   └── ReadStopped               a long read given up because the run was asked to stop
+    │   ├── ProtocolError                 a reply that cannot be parsed (malformed block, garbled number)
+    │   │   └── ImplausibleReading        a parsed reading no instrument could mean (NaN, 9.91E+37, overrange)
+    │   ├── InstrumentError               the instrument reported an error (SYSTem:ERRor? gave a code)
+    │   └── SafetyLimitError              a bias request above the bench limits (refused before sending)
+    │       └── RampRunaway               a read-back ran ahead of the commanded ramp rate
     ├── ConfigError                       a bench, dialect or board file is wrong (file:line:column)
-    ├── SafetyLimitError                  a bias request above the bench limits (refused before sending)
     ├── ProcedureError                    (sequencer.errors) a procedure is wrong (file:line:column)
     ├── StoreError                        (sequencer.errors) the results database refused or is too new
     └── RunAborted                        (sequencer.errors) the run was stopped (interlock, operator,
@@ -34,7 +37,23 @@ class BenchwrightError(Exception):
     """Root of every error benchwright raises on purpose."""
 
 
-class TransportError(BenchwrightError):
+class InstrumentFault(BenchwrightError):
+    """What every instrument-layer fault carries: the resource address, the command sent and the
+    step path of the run (``at_step`` sets it once, where the engine catches it), so the one place
+    that prints a fault formats it once (``sequencer.engine.faults``)."""
+
+    address: str = ""
+    command: str = ""
+    step_path: str = ""
+
+    def at_step(self, path: str) -> InstrumentFault:
+        """The same error, told which step it happened in (kept if one is known already)."""
+        if not self.step_path:
+            self.step_path = path
+        return self
+
+
+class TransportError(InstrumentFault):
     """The link to an instrument failed."""
 
     def __init__(
@@ -81,7 +100,7 @@ class ReadStopped(TransportError):
     link is out of step and is resynchronised before its next use.  Never retried."""
 
 
-class ProtocolError(BenchwrightError):
+class ProtocolError(InstrumentFault):
     """A reply could not be understood (malformed block header, garbled number)."""
 
     def __init__(self, message: str, *, address: str = "", command: str = "") -> None:
@@ -101,7 +120,7 @@ class ImplausibleReading(ProtocolError):
     A safety decision never rests on such a value."""
 
 
-class InstrumentError(BenchwrightError):
+class InstrumentError(InstrumentFault):
     """The instrument reported an entry in its error queue."""
 
     def __init__(self, code: int, message: str, *, address: str = "", command: str = "") -> None:
@@ -152,5 +171,15 @@ class ConfigError(LocatedError):
     """A bench, dialect or board file is wrong."""
 
 
-class SafetyLimitError(BenchwrightError):
+class SafetyLimitError(InstrumentFault):
     """A requested voltage, ramp rate or current is above the bench file's limit; nothing was sent."""
+
+    def __init__(self, message: str, *, address: str = "", command: str = "") -> None:
+        self.address = address
+        self.command = command
+        super().__init__(message)
+
+
+class RampRunaway(SafetyLimitError):
+    """While ramping, the read-back ran ahead of the commanded rate: the supply is not doing what
+    was commanded (and logged), so the run goes to the safe state."""

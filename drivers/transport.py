@@ -95,6 +95,9 @@ class VisaTransport:
         self._read_term = settings.read_termination.encode("ascii")
         self._write_term = settings.write_termination
         self._poll_s = max(0, settings.busy_poll_us) / 1e6
+        #: Why the last close of the resource failed ('' when it did not); the link is dropped
+        #: either way (a backend may raise anything while closing a dead session).
+        self.close_error = ""
 
     # -- opening -------------------------------------------------------------------------------
     @classmethod
@@ -324,16 +327,20 @@ class VisaTransport:
     def _close_resource(self) -> None:
         resource, self._resource = self._resource, None
         if resource is not None:
-            with contextlib.suppress(VisaIOError, InvalidSession, OSError, AttributeError):
+            try:
                 resource.close()
+            except Exception as exc:  # a dead link may fail to close: kept, and the link is gone
+                self.close_error = f"{type(exc).__name__}: {exc}"
 
     def _mapped(self, command: str = "") -> _ErrorMap:
         """Translate pyvisa and OS errors into ours, the address and command attached."""
         return _ErrorMap(self, command)
 
     def _translate(self, exc: BaseException, command: str) -> TransportError:
-        """Our error for one of ``_MAPPED_ERRORS`` (a pyvisa or OS error), address and command
-        attached."""
+        """Our error for one of ``_MAPPED_ERRORS`` (a pyvisa, OS or backend error), address and
+        command attached; one of ours passes through with the command named."""
+        if isinstance(exc, TransportError):
+            return exc.with_command(command)
         if isinstance(exc, VisaIOError):
             return self._from_visa(exc, command)
         if isinstance(exc, InvalidSession):
@@ -346,7 +353,19 @@ class VisaTransport:
             )
         if isinstance(exc, TimeoutError):
             return InstrumentTimeout(str(exc) or "no reply", address=self.address, command=command)
-        return ConnectionClosed(f"link failed ({exc})", address=self.address, command=command)
+        if isinstance(exc, OSError | RuntimeError | EOFError | BrokenPipeError):
+            # pyvisa-py's HiSLIP and VXI-11 sessions raise plain RuntimeError (and EOFError from
+            # the RPC layer) when the peer drops: a lost link, so the session reconnects
+            return ConnectionClosed(
+                f"link failed ({type(exc).__name__}: {exc})", address=self.address, command=command
+            )
+        # anything else the backend raises is still a link failure here, never an "internal
+        # error" that would skip the safe state: named, and mapped to our family
+        return TransportError(
+            f"VISA backend failed ({type(exc).__name__}: {exc})",
+            address=self.address,
+            command=command,
+        )
 
     def _from_visa(self, exc: VisaIOError, command: str) -> TransportError:
         code = exc.error_code
@@ -373,8 +392,11 @@ class VisaTransport:
         )
 
 
-#: What ``_translate`` maps (TimeoutError and ConnectionRefusedError are OSErrors).
-_MAPPED_ERRORS = (VisaIOError, InvalidSession, OSError)
+#: What ``_translate`` maps: pyvisa's errors, OS errors (TimeoutError and ConnectionRefusedError
+#: among them) and -- since a backend may raise anything (pyvisa-py's HiSLIP raises a plain
+#: ``RuntimeError`` on a dropped link) -- every other ``Exception``: at this one boundary all of
+#: them become our ``TransportError`` family, so the runner's safe state always runs.
+_MAPPED_ERRORS = (Exception,)
 
 
 class _ErrorMap:

@@ -114,8 +114,16 @@ def build_caution(plan: Plan, bench_spec: Any) -> Caution:
     rates = [r for _, _, r in ramps if r is not None]
     address = getattr(spec, "address", "?")
     what = ", ".join(plan.meta.hazards) if plan.meta.hazards else "bias"
+    live = [f"{what} from the bias supply at {address}"]
+    hardware = getattr(spec, "hardware_interlock", "")
+    if hardware:  # the dialect cannot read the interlock: the operator vouches for the hardware
+        live.append(
+            f"the interlock is NOT read by software; it rests on the hardware interlock on the "
+            f"supply's inhibit input declared in the bench file ({hardware}): acknowledge only "
+            "if it is wired and tested"
+        )
     return Caution(
-        live=(f"{what} from the bias supply at {address}",),
+        live=tuple(live),
         max_volts=max_v,
         max_ramp_V_per_s=max([*rates, plan.meta.max_ramp_V_per_s, 0.0]),
         steps=tuple(s.path for s in hazard_steps(plan)),

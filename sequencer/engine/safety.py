@@ -105,11 +105,18 @@ class BiasGuard:
             raise self._abort(
                 "precondition", "a step makes a voltage live but the bench has no bias role"
             )
-        closed = self.bias.interlock_closed()
-        self.record("interlock", closed=closed)
-        if not closed:
+        closed = self.interlock()
+        hardware = {} if closed is not None else {"hardware": self.bias.hardware_interlock}
+        self.record("interlock", closed=closed, **hardware)
+        if closed is False:
             raise self._abort(
                 "interlock", f"bias at {self.address}: interlock open, refusing to apply voltage"
+            )
+        if closed is None and not self.bias.hardware_interlock:
+            raise self._abort(
+                "precondition",
+                f"bias at {self.address}: the interlock cannot be read and the bench file "
+                "declares no hardware interlock (hardware_interlock:); no voltage applied",
             )
         caution = build_caution(self.ctx.plan, self.ctx.bench.spec)
         opts = self.ctx.options
@@ -121,6 +128,7 @@ class BiasGuard:
                 unattended=True,
                 max_volts=caution.max_volts,
                 at=self.ctx.clock().isoformat(),
+                **hardware,
             )
         elif opts.acknowledge is None:
             raise self._abort(
@@ -136,6 +144,7 @@ class BiasGuard:
                 unattended=False,
                 max_volts=caution.max_volts,
                 at=self.ctx.clock().isoformat(),
+                **hardware,
             )
         else:
             self.record(
@@ -145,6 +154,7 @@ class BiasGuard:
                 unattended=False,
                 max_volts=caution.max_volts,
                 at=self.ctx.clock().isoformat(),
+                **hardware,
             )
             raise self._abort("operator", "the operator declined the caution; no voltage applied")
         self.ctx.checkpoint()  # a signal while the caution was up wins over the answer
@@ -170,7 +180,7 @@ class BiasGuard:
         if not self.live:  # a link drop while nothing is live is the drivers' business only
             self._reconnects_seen = reconnects(self.bias)
             return
-        if not self.bias.interlock_closed():
+        if self.interlock() is False:
             self.record("interlock", closed=False)
             raise self._abort("interlock", f"bias at {self.address}: interlock opened while live")
         self.check_link()
@@ -225,6 +235,7 @@ class BiasGuard:
         deadline = time.monotonic() + allowed_s
         while True:
             measured = self.poll(going_down=going_down)
+            self.bias.follow_ramp(measured)  # ahead of the commanded rate: abort; software ramp: step
             if abs(measured - volts) <= opts.ramp_tolerance_V:
                 break
             if time.monotonic() > deadline:
@@ -234,6 +245,7 @@ class BiasGuard:
                     f"did not reach {volts:g} V within the expected ramp time ({allowed_s:.1f} s)",
                 )
             self._pause(going_down=going_down, requests=requests)
+        self.bias.end_ramp()
         self.record("ramp_end", volts=measured)
         return measured
 
@@ -273,11 +285,11 @@ class BiasGuard:
             self.record("reading", volts=v)
             return v
         i = self.bias.current_A()
-        closed = self.bias.interlock_closed()
+        closed = self.interlock()
         trip = self.bias.tripped()
         self.record("reading", volts=v, current_A=i, interlock_closed=closed, tripped=trip)
         self.check_link()
-        if not closed:
+        if closed is False:
             raise self._abort(
                 "interlock", f"bias at {self.address}: interlock opened during a ramp"
             )
@@ -303,6 +315,13 @@ class BiasGuard:
     def interlock_still_closed(self) -> bool:
         """The interlock read again after a trip was seen: an interlock that opened between the
         two reads trips the supply too, and the interlock is then the cause to report."""
+        return self.interlock() is not False
+
+    def interlock(self) -> bool | None:
+        """The interlock as read from the supply; ``None`` when its dialect cannot read it (then
+        the bench's declared hardware interlock, acknowledged in :meth:`arm`, is what protects)."""
+        if not getattr(self.bias, "interlock_readable", True):
+            return None
         return bool(self.bias.interlock_closed())
 
     def _rate(self, rate: float | None) -> float:
@@ -483,7 +502,7 @@ class _Watcher:
             if not g.live:
                 continue
             try:
-                if not g.bias.interlock_closed():
+                if g.interlock() is False:
                     stop.request("interlock", f"bias at {g.address}: interlock opened while live")
                     return
                 if g.bias.tripped():

@@ -3,6 +3,8 @@ setpoint at once (an instant ramp) unless told otherwise.  Everything above it i
 
 from __future__ import annotations
 
+import math
+import time
 from collections.abc import Callable
 from typing import Any
 
@@ -79,6 +81,8 @@ class BenchState:
         self.on_query: Callable[[str, str], None] | None = None
         self.lies: dict[str, str] = {}  # bias query header (upper case) -> the reply it gets instead
         self._measured = 0.0
+        self._slew_from = 0.0
+        self._slew_at = time.monotonic()
         self._lag = 0
         self._counts: dict[str, int] = {}
 
@@ -114,14 +118,19 @@ class BenchState:
             return self.lies[head]
         b = self.bias
         if head == "SOURCE:VOLTAGE:LEVEL:IMMEDIATE:AMPLITUDE":
+            self._slew_from = self._slewed()
+            self._slew_at = time.monotonic()
             b["setpoint"] = float(value)
             self._lag = self.lag_polls
         elif head == "SOURCE:VOLTAGE:SLEW":
+            self._slew_from = self._slewed()
+            self._slew_at = time.monotonic()
             b["rate"] = float(value)
         elif head == "SOURCE:CURRENT:LIMIT":
             b["limit_A"] = float(value)
         elif head == "OUTPUT:STATE":
             b["output"] = value.upper() in ("ON", "1")
+            self._slew_from, self._slew_at = 0.0, time.monotonic()  # off drops to 0 V at once
         elif head == "OUTPUT:PROTECTION:CLEAR":
             self.tripped = False
         elif head == "SOURCE:VOLTAGE:LEVEL:IMMEDIATE:AMPLITUDE?":
@@ -142,8 +151,26 @@ class BenchState:
             return "0"
         return None
 
+    def _slewed(self) -> float:
+        """Where the output stands: it slews from its last value towards the set point at the
+        programmed rate (a supply with a slew command does not jump; the drivers check that)."""
+        b = self.bias
+        if not b["output"] or self.tripped:
+            return 0.0
+        distance = b["setpoint"] - self._slew_from
+        moved = min(abs(distance), b["rate"] * (time.monotonic() - self._slew_at))
+        return self._slew_from + math.copysign(moved, distance)
+
+    def at_setpoint(self) -> bool:
+        """True when the output has slewed all the way to the set point."""
+        return abs(self._slewed() - self.bias["setpoint"]) < 1e-9
+
+    def output_V(self) -> float:
+        """The output voltage now (what the meter reads without lag)."""
+        return self._slewed()
+
     def measured(self) -> float:
-        target = self.bias["setpoint"] if self.bias["output"] and not self.tripped else 0.0
+        target = self._slewed()
         if self._lag > 0:
             self._lag -= 1
             return self._measured
@@ -155,14 +182,19 @@ BIAS_LIMITS = {"max_volts": 60, "max_ramp_V_per_s": 10, "max_current_uA": 100}
 
 
 def scripted_bench(
-    state: BenchState, roles: tuple[str, ...] = ("pulser", "switch", "bias")
+    state: BenchState,
+    roles: tuple[str, ...] = ("pulser", "switch", "bias"),
+    *,
+    bias: dict[str, Any] | None = None,
 ) -> Bench:
-    """A real ``Bench`` (bench file model, dialect, sessions, role drivers) over scripted links."""
+    """A real ``Bench`` (bench file model, dialect, sessions, role drivers) over scripted links;
+    ``bias``: more keys of the bias entry (``dialect``, ``hardware_interlock``)."""
     instruments: dict[str, Any] = {}
     for i, role in enumerate(roles):
         entry: dict[str, Any] = {"address": f"TCPIP0::127.0.0.1::{6000 + i}::SOCKET"}
         if role == "bias":
             entry.update(BIAS_LIMITS)
+            entry.update(bias or {})
         instruments[role] = entry
     spec = bench_from_mapping({"bench": "scripted", "instruments": instruments})
     return open_bench(spec, opener=lambda s: ScriptedTransport(s.role, s.address, state))

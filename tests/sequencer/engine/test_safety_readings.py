@@ -72,7 +72,10 @@ def test_a_plausible_reading_within_the_margin_is_accepted():
     state = BenchState()
     lie_when_live(state, MEASURE_V, "62")
     out, _safety, _ = run(hv_plan(), state, unattended=True, ramp_margin_s=0.05)
-    assert isinstance(out, RunAborted) and "did not reach 5 V" in str(out)
+    # not refused as implausible; the run still ends, because 62 V during a ramp to 5 V runs
+    # ahead of the commanded rate (drivers/roles/ramp.py) or never settles at 5 V
+    assert isinstance(out, RunAborted) and "implausible" not in str(out)
+    assert "did not reach 5 V" in str(out) or "ahead of the commanded ramp" in str(out)
 
 
 def test_output_reading_off_at_a_voltage_is_not_believed():
@@ -125,7 +128,8 @@ def test_a_second_stop_request_cuts_the_ramp_down_short():
         if role != "bias" or not text.startswith("MEASure:VOLT"):
             return
         runner = runner_box[0]
-        if state.bias["setpoint"] == 5.0 and state.bias["output"] and runner.stop.requests == 0:
+        live = state.bias["output"] and state.output_V() > 4.5  # slewed up near 5 V
+        if state.bias["setpoint"] == 5.0 and live and runner.stop.requests == 0:
             runner.stop.request("signal", "stopped by SIGTERM")
             state.lag_polls = 10**9  # from now on the meter stays at 5 V: a slow ramp-down
         elif state.bias["setpoint"] == 0.0 and runner.stop.requests == 1:
