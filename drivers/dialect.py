@@ -314,9 +314,9 @@ def _check_byte_order(parts: _Parts, problems: list[Problem]) -> None:
     assert wave is not None
     for template in parts.open_commands.get("scope", ()):
         text = template.text.upper()
-        if "BORD" not in text:
+        if "BORD" not in text and "BYTEORD" not in text and "BYT" not in text.split(" ")[0]:
             continue
-        swapped = "SWAP" in text
+        swapped = "SWAP" in text or "LSBF" in text
         if swapped == wave.data.big_endian:
             said = "SWAPped (little-endian)" if swapped else "NORMal (big-endian)"
             problems.append(Problem(wave.location, f"waveform data byte_order disagrees with "

@@ -233,9 +233,10 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
 
 @cli.command()
 @click.option("--bench", "bench_path", required=True, type=click.Path(dir_okay=False))
+@click.option("--check", is_flag=True, help="Ask every query of each dialect; print each reply as parsed.")
 @visa_library_option
 @handles_errors
-def instruments(bench_path: str, allow_visa_library: tuple[str, ...]) -> None:
+def instruments(bench_path: str, check: bool, allow_visa_library: tuple[str, ...]) -> None:
     """Identify each instrument; warn on identity mismatch or calibration past due."""
     import datetime as dt
 
@@ -243,6 +244,14 @@ def instruments(bench_path: str, allow_visa_library: tuple[str, ...]) -> None:
     from drivers.instruments import describe_bench, format_reports
 
     spec = load_bench(bench_path, allowed_visa_libraries=allow_visa_library)
+    if check:
+        from drivers.check import check_bench
+
+        lines = check_bench(spec)
+        click.echo("\n".join(lines))
+        if any(" ERROR " in line or " FAILED: " in line for line in lines):
+            sys.exit(EXIT_ABORT)
+        return
     reports = describe_bench(spec, dt.date.today())
     click.echo("\n".join(format_reports(reports)))
     if any(getattr(r, "error", "") for r in reports):

@@ -69,8 +69,9 @@ class Scope(RoleDriver):
             raise ValueError("sample_rate_hz must be above 0")
         if int(points) != points or not 1 <= points <= 1 << 28:
             raise ValueError(f"points={points!r} must be a whole number from 1")
-        self._write("set_sample_rate", hertz=rate)
+        # the record length first: a dialect may compute the time base from it
         self._write("set_points", count=int(points))
+        self._write("set_sample_rate", hertz=rate)
         self._write(
             "set_trigger_delay",
             seconds=check_range("pretrigger_ns", pretrigger_ns, 0.0, 1e12) * 1e-9,

@@ -31,10 +31,16 @@ from drivers.sim.instrument import MAKER, SimInstrument
 from drivers.sim.pulser import Pulser
 from drivers.sim.sensor import SensorSpec
 from drivers.sim.server import InstrumentServer
+from drivers.sim.sourcemeter import SourceMeterBias
 from drivers.sim.switch import Switch
 from drivers.sim.threshold import ThresholdDac
+from drivers.sim.wavescope import WaveformScope
 
 DEFAULT_TIMEOUT_MS = 5000
+#: Command structures per role (board file ``command_sets``); each name is also the shipped dialect
+#: (``drivers/dialects/<name>.yaml``) that speaks it.
+SCOPES: dict[str, type[Digitizer]] = {"generic": Digitizer, "wavescope": WaveformScope}
+SUPPLIES: dict[str, type[BiasSupply]] = {"generic": BiasSupply, "sourcemeter": SourceMeterBias}
 
 
 def _instruments(board: BoardSpec, clock: Callable[[], float]) -> dict[str, SimInstrument]:
@@ -50,12 +56,14 @@ def _instruments(board: BoardSpec, clock: Callable[[], float]) -> dict[str, SimI
     threshold = ThresholdDac(channels=n, **common("threshold"))
     return {
         "pulser": pulser,
-        "scope": Digitizer(board=board, pulser=pulser, switch=switch, **common("scope")),
+        "scope": SCOPES[board.command_sets.get("scope", "generic")](
+            board=board, pulser=pulser, switch=switch, **common("scope")
+        ),
         "threshold": threshold,
         "counter": Counter(
             board=board, pulser=pulser, switch=switch, threshold=threshold, **common("counter")
         ),
-        "bias": BiasSupply(board=board, **common("bias")),
+        "bias": SUPPLIES[board.command_sets.get("bias", "generic")](board=board, **common("bias")),
         "switch": switch,
         "coincidence": CoincidenceUnit(
             spec=board.coincidence,
@@ -152,7 +160,7 @@ class SimBench:
         for role, inst in self.instruments.items():
             entry: dict[str, Any] = {
                 "address": self.address(role),
-                "dialect": "generic",
+                "dialect": self.board.command_sets.get(role, "generic"),  # shipped dialect names
                 "read_termination": "\n",
                 "write_termination": "\n",
                 "timeout_ms": DEFAULT_TIMEOUT_MS,

@@ -149,6 +149,8 @@ class BoardSpec:
     bias_current_offset_nA: float = 0.02
     bias_current_noise_nA: float = 0.002
     bias_voltage_noise_mV: float = 1.0
+    #: Command structure per role: ``{scope: wavescope, bias: sourcemeter}``; ``generic`` otherwise.
+    command_sets: Mapping[str, str] = field(default_factory=lambda: MappingProxyType({}))
     source: str = "<board>"
 
     @property

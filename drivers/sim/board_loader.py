@@ -162,6 +162,11 @@ _FAULT = {
     "code": _integer(-999, 999),
     "message": _text,
 }
+#: Per role, the command structures the simulator speaks (``generic`` unless the board file says).
+_COMMAND_SETS: dict[str, Check] = {
+    "scope": _choice("generic", "wavescope"),
+    "bias": _choice("generic", "sourcemeter"),
+}
 _TOP: dict[str, Check] = {
     "serial": _text,
     "board_type": _text,
@@ -171,6 +176,7 @@ _TOP: dict[str, Check] = {
     "coincidence": lambda v: v,
     "faults": lambda v: v,
     "channels": lambda v: v,
+    "command_sets": lambda v: v,
     "crosstalk_pct": _number(0.0, 100.0),
     "bias_resistance_Mohm": _number(0.0, 1e9, above=True),
     "seed": _integer(0, 2**63 - 1),
@@ -219,12 +225,18 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
     )
     outputs = _outputs(reader, data, top.get("outputs"))
     faults = _faults(reader, data, top.get("faults"))
+    command_sets = (
+        reader.mapping(top["command_sets"], _COMMAND_SETS, "command_sets")
+        if "command_sets" in top
+        else {}
+    )
     if problems:
         raise ConfigError(sorted(problems, key=lambda p: (p.location.line, p.location.column)))
     extras = {
         k: v
         for k, v in top.items()
-        if k not in ("channels", "shaper", "pulse", "coincidence", "outputs", "faults")
+        if k
+        not in ("channels", "shaper", "pulse", "coincidence", "outputs", "faults", "command_sets")
     }
     return BoardSpec(
         channels=channels,
@@ -233,6 +245,7 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
         coincidence=coincidence,
         outputs=outputs,
         faults=faults,
+        command_sets=MappingProxyType(dict(command_sets)),
         source=source,
         **extras,
     )

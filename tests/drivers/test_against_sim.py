@@ -90,3 +90,22 @@ def test_recovers_from_a_dropped_link_and_a_garbled_reply(tmp_path):
             bench.threshold.set_level(1, 12.5)  # its error-queue reply (4th message) is garbled
             assert bench.threshold.level_mV(1) == pytest.approx(12.5)
             assert bench.threshold.session.resyncs == 1 and bench.threshold.session.reconnects == 0
+
+
+def test_instruments_check_asks_every_query_and_leaves_the_bias_alone(sim_bench):
+    from drivers.check import check_bench
+
+    spec = bench_from_mapping(sim_bench.bench_mapping())
+    with open_bench(spec, roles=["bias"]) as bench:
+        before = (bench.bias.output_on(), bench.bias.setpoint())
+    lines = check_bench(spec)
+    text = "\n".join(lines)
+    assert "FAILED" not in text and " ERROR " not in text, text
+    # each query of the generic dialect, parsed as the driver would read it
+    assert "bias.interlock_closed" in text and "-> True (bool)" in text
+    assert "bias.measure_voltage" in text and "scope.preamble" in text
+    capture = next(line for line in lines if "scope.capture" in line)
+    assert " points, " in capture and "FAILED" not in capture
+    assert "counter.counts" in text and "skipped: waits for a measurement gate" in text
+    with open_bench(spec, roles=["bias"]) as bench:
+        assert (bench.bias.output_on(), bench.bias.setpoint()) == before  # nothing changed

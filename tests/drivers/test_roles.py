@@ -89,8 +89,8 @@ def test_scope_sends_data_format_once_when_opened_and_configures():
         SCOPE_OPEN,
         configured("SENSe:VOLTage1:RANGe:UPPer 2"),
         configured("SENSe:VOLTage1:OFFSet -0.1"),
-        configured("SENSe:SWEep:SRATe 1e+09"),  # NR3 form, IEEE 488.2 §7.7.2.1 (from memory)
         configured("SENSe:SWEep:POINts 2000"),
+        configured("SENSe:SWEep:SRATe 1e+09"),  # NR3 form, IEEE 488.2 §7.7.2.1 (from memory)
         configured("TRIGger:SEQuence:DELay 2e-07"),
         configured("TRIGger:SEQuence:SOURce EXTernal"),
         configured("TRIGger:SEQuence:LEVel 0.5"),
