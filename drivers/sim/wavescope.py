@@ -78,9 +78,7 @@ class WaveformScope(Digitizer):
     def commands(self) -> Sequence[Command]:
         self.wave = WaveState()
         return [
-            command(
-                "CHANnel#:SCALe", write=self._set_scale, query=lambda c: self._per_div(c)
-            ),  # fmt: skip
+            command("CHANnel#:SCALe", write=self._set_scale, query=lambda c: self._per_div(c)),
             command(
                 "CHANnel#:OFFSet",
                 write=lambda c: self._set_input(c, "offset_V", -10.0, 10.0),
@@ -90,57 +88,57 @@ class WaveformScope(Digitizer):
                 "ACQuire:POINts",
                 write=lambda c: self._set_int("points", c, 2, 1_000_000),
                 query=lambda c: str(self.settings.points),
-            ),  # fmt: skip
+            ),
             command(
                 "TIMebase:SCALe",
                 write=self._set_timebase,
                 query=lambda c: format_float(self._time_per_div()),
-            ),  # fmt: skip
+            ),
             command(
                 "TIMebase:REFerence",
                 write=lambda c: self._set("pretrigger_s", c, -1e-3, 1e-3),
                 query=lambda c: format_float(self.settings.pretrigger_s),
-            ),  # fmt: skip
+            ),
             command(
                 "ACQuire:TYPE",
                 write=self._set_type,
                 query=lambda c: "AVER" if self.wave.averaging else "NORM",
-            ),  # fmt: skip
+            ),
             command("ACQuire:COUNt", write=self._set_count, query=lambda c: str(self.wave.count)),
             command(
                 "TRIGger:SOURce",
                 write=self._set_trigger_source,
                 query=lambda c: self.settings.trigger_source,
-            ),  # fmt: skip
+            ),
             command(
                 "TRIGger:LEVel",
                 write=lambda c: self._set("trigger_level_V", c, -10.0, 10.0),
                 query=lambda c: format_float(self.settings.trigger_level_V),
-            ),  # fmt: skip
+            ),
             command("SINGle", write=lambda c: self.acquire(), max_params=0),
             command(
                 "WAVeform:SOURce", write=self._set_source, query=lambda c: f"CHAN{self.wave.source}"
-            ),  # fmt: skip
+            ),
             command(
                 "WAVeform:FORMat",
                 write=self._set_format_kind,
                 query=lambda c: self.wave.format.upper()[:4],
-            ),  # fmt: skip
+            ),
             command(
                 "WAVeform:BYTeorder",
                 write=self._set_order,
                 query=lambda c: "LSBF" if self.wave.little_endian else "MSBF",
-            ),  # fmt: skip
+            ),
             command(
                 "WAVeform:STARt",
                 write=lambda c: self._set_range(c, "start"),
                 query=lambda c: str(self.wave.start),
-            ),  # fmt: skip
+            ),
             command(
                 "WAVeform:STOP",
                 write=lambda c: self._set_range(c, "stop"),
                 query=lambda c: str(self.wave.stop),
-            ),  # fmt: skip
+            ),
             command("WAVeform:PREamble", query=lambda c: self._wave_preamble()),
             command("WAVeform:DATA", query=lambda c: self._wave_data()),
         ]
