@@ -153,6 +153,11 @@ class SimBench:
     def __exit__(self, *exc: object) -> None:
         self.stop()
 
+    def dialect_of(self, role: str) -> str:
+        """The shipped dialect that speaks ``role``'s command structure (board ``command_sets``)."""
+        sets = self.board.command_sets if isinstance(self.board, BoardSpec) else {}
+        return sets.get(role, "generic")
+
     def bench_mapping(self) -> dict[str, Any]:
         """The bench-file data (DESIGN.md "Bench file") describing this simulated bench."""
         due = dt.date.today() + dt.timedelta(days=365)
@@ -160,7 +165,7 @@ class SimBench:
         for role, inst in self.instruments.items():
             entry: dict[str, Any] = {
                 "address": self.address(role),
-                "dialect": self.board.command_sets.get(role, "generic"),  # shipped dialect names
+                "dialect": self.dialect_of(role),
                 "read_termination": "\n",
                 "write_termination": "\n",
                 "timeout_ms": DEFAULT_TIMEOUT_MS,
