@@ -99,7 +99,9 @@ class _Down:
         deadline = time.monotonic() + allowed
         while True:
             volts = self.bias.voltage()
+            self.bias.follow_ramp(volts)  # a supply without a slew command is stepped down here
             if abs(volts) <= tol:
+                self.bias.end_ramp()
                 self.actions.append(f"ramped down at {self.rate:g} V/s to {volts:.3f} V")
                 return
             if self.should_stop():
