@@ -119,6 +119,10 @@ class ImplausibleReading(ProtocolError):
     ``9.91E+37`` (or overrange ``9.9E+37``), or beyond what the bench file allows by a margin.
     A safety decision never rests on such a value."""
 
+    def __init__(self, message: str, *, address: str = "", command: str = "") -> None:
+        self.detail = message  # without the address and command (printed once by the caller)
+        super().__init__(message, address=address, command=command)
+
 
 class InstrumentError(InstrumentFault):
     """The instrument reported an entry in its error queue."""

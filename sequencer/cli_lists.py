@@ -51,6 +51,23 @@ def runs(db: str | None, fmt: str, board: str | None, procedure: str | None, bat
         wanted = "" if verdict == "open" else verdict
         lines = [r for r in lines if verdicts[r.id] == wanted]
     click.echo(format_rows(run_rows(lines, verdicts), fmt, RUN_COLUMNS), nl=False)
+    note = maybe_live_note(lines)
+    if note:
+        click.echo(note, err=True)
+
+
+def maybe_live_note(lines: Any) -> str:
+    """A line (on stderr) naming the runs whose bench may have been left live -- interrupted (a
+    killed runner, a dead PC) or aborted without a confirmed safe state -- and ``benchwright
+    safe``; '' when there are none."""
+    ids = [r.id for r in lines
+           if r.status == "interrupted" or (r.status == "aborted" and "UNSAFE" in (r.reason or ""))]
+    if not ids:
+        return ""
+    listed = ", ".join(str(i) for i in ids[:10]) + (" ..." if len(ids) > 10 else "")
+    return (f"note: run(s) {listed} ended without a confirmed safe state; a bias supply on their "
+            "bench may still be live: `benchwright instruments --bench FILE` shows it, "
+            "`benchwright safe --bench FILE` ramps it down and switches it off")
 
 
 @click.command()

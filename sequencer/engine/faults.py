@@ -64,7 +64,7 @@ def describe_fault(exc: BaseException, instruments: Mapping[str, Any]) -> str:
     if isinstance(exc, TransportError):
         return f"{who}: link failed ({sending}): {exc}"
     if isinstance(exc, ImplausibleReading):
-        return f"{who}: implausible reply to {cmd}: {_first_line(exc)}"
+        return f"{who}: implausible reply to {cmd}: {exc.detail}"
     if isinstance(exc, ProtocolError):
         return f"{who}: unreadable reply to {cmd}: {_first_line(exc)}"
     if isinstance(exc, InstrumentError):

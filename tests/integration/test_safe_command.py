@@ -106,8 +106,10 @@ def test_runner_killed_while_live_then_safe_brings_the_supply_to_zero(tmp_path):
         left = supply_state(sim)
         assert left["output"] is True and abs(left["volts"] - 5.0) < TOL, left  # still live
         shown = run_cli(cli_command("instruments", "--bench", str(bench)), tmp_path)
+        listed = run_cli(cli_command("runs", "--db", db), tmp_path)
         done = run_cli(cli_command("safe", "--bench", str(bench)), tmp_path)
         state = supply_state(sim)
+    assert "interrupted" in listed.stdout and "benchwright safe --bench" in listed.stderr, listed
     assert "output ON" in shown.stdout and "(set point 5 V)" in shown.stdout
     assert f"benchwright safe --bench {bench}" in shown.stdout
     assert done.code == EXIT_OK, done
