@@ -279,10 +279,16 @@ def check_template(
     import string
 
     try:
-        fields = [f for _, f, _, _ in string.Formatter().parse(text) if f is not None]
+        parsed = [(f, s or "") for _, f, s, _ in string.Formatter().parse(text) if f is not None]
     except ValueError as exc:
         problems.append(Problem(where, f"{label}: bad template {text!r}: {exc}"))
         return None
+    fields = [f for f, _ in parsed]
+    for f, spec in parsed:
+        too_wide = _spec_beyond_bounds(spec)
+        if too_wide:  # checked before the sample render below: {volts:>9999999999} is 10 GB
+            problems.append(Problem(where, f"{label}: field {{{f}:{spec}}}: {too_wide}"))
+            return None
     for f in fields:
         lookup = _LOOKUP.match(f)
         if lookup:  # {volts.real}, {volts[0]}, {volts.9g}: a lookup or a lost colon
@@ -307,6 +313,27 @@ def check_template(
         problems.append(Problem(where, f"{label}: template {text!r} does not format: {exc}"))
         return None
     return template
+
+
+#: Largest field width and precision a template may ask for: an SCPI number needs a few tens of
+#: characters; a float has 17 significant digits (IEEE 754 binary64).
+MAX_FIELD_WIDTH = 64
+MAX_FIELD_PRECISION = 32
+_SPEC_NUMBERS = re.compile(r"(?:.?[<>=^])?[-+ ]?z?#?0?(?P<width>\d*)[,_]?(?:\.(?P<precision>\d*))?")
+
+
+def _spec_beyond_bounds(spec: str) -> str:
+    """Why a format spec's width or precision is too large, or ``""`` (also for specs that
+    ``format`` will refuse itself: the sample render reports those)."""
+    found = _SPEC_NUMBERS.match(spec)
+    if found is None:
+        return ""
+    width, precision = found["width"], found["precision"]
+    if width and (len(width) > 4 or int(width) > MAX_FIELD_WIDTH):
+        return f"width {width} is above {MAX_FIELD_WIDTH} characters"
+    if precision and (len(precision) > 4 or int(precision) > MAX_FIELD_PRECISION):
+        return f"precision {precision} is above {MAX_FIELD_PRECISION} digits"
+    return ""
 
 
 def read_reply_rule(entry: YamlMap, label: str, problems: list[Problem]) -> ReplyRule:

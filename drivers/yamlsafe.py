@@ -14,6 +14,7 @@ This module is a leaf (imports only ``drivers.errors`` and PyYAML); every layer 
 from __future__ import annotations
 
 import errno
+import re
 from collections.abc import Hashable
 from dataclasses import dataclass
 from pathlib import Path
@@ -233,6 +234,9 @@ def _expanded_size(node: Node, memo: dict[int, int], depth: int, limits: YamlLim
     return total
 
 
+_SURROGATE = re.compile("[\ud800-\udfff]")
+
+
 class _Builder:
     """Turns a composed node tree into YamlMap / YamlSeq / scalars, collecting located problems."""
 
@@ -256,10 +260,15 @@ class _Builder:
 
     def _scalar(self, node: ScalarNode) -> Any:
         try:
-            return self._constructor.construct_object(node, deep=True)
+            value = self._constructor.construct_object(node, deep=True)
         except (yaml.YAMLError, ValueError, OverflowError) as exc:
             self.problems.append(Problem(location_of(node, self.file), f"bad value {node.value!r}: {exc}"))
             return None
+        if isinstance(value, str) and _SURROGATE.search(value):
+            # a "\ud800" escape: not Unicode text, no UTF-8 file, database or socket takes it
+            self.problems.append(Problem(location_of(node, self.file), f"bad value {value!r}: a lone surrogate is not text"))
+            return None
+        return value
 
     def _mapping(self, node: MappingNode) -> YamlMap:
         out = YamlMap()

@@ -41,6 +41,7 @@ from sequencer.procedure import (
     unjudged_warnings,
 )
 from sequencer.procedure.boards import board_type_path
+from sequencer.procedure.textrules import MAX_NAME, text_problem
 from sequencer.store import Store, default_url
 
 
@@ -94,6 +95,7 @@ def plan_for(
     ``stored`` are the inputs of a recorded run (``--repeat``, ``resume``): its board-type text is
     used instead of today's file.
     """
+    check_option_text("--board", serial)
     kept = of_kind(stored, "board_type")
     if kept:
         board_in = kept[0]
@@ -164,6 +166,14 @@ def check_text_unchanged(store: Store, plan: Plan) -> str:
         ))])
     return (f"procedure {name} version {version} (a draft) differs from the text stored with run "
             f"{first} under the same name and version")
+
+
+def check_option_text(option: str, value: str, *, max_length: int = MAX_NAME) -> None:
+    """A name given on the command line that the store keeps (a serial, an operator): one line
+    of printable text within its column, else bad input naming the option."""
+    problem = text_problem(value, option, max_length=max_length)
+    if problem is not None:
+        raise ConfigError([Problem(Location("<options>", 1, 1), problem)])
 
 
 @contextlib.contextmanager
@@ -253,6 +263,7 @@ def execute(
     Raises ``RunAborted`` (after the engine's cleanup and safe state) when the run is stopped.
     """
     preflight(plan, spec)
+    check_option_text("--operator", request.operator)
     with open_bench(spec, roles=_roles_needed(plan, spec)) as bench:
         completed = None
         info = None

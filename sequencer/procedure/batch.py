@@ -26,6 +26,8 @@ from drivers.yamlsafe import YamlMap, YamlSeq, load_yaml, read_bounded
 from sequencer.errors import ProcedureError
 
 from .checking import check_keys, require_keys
+from .expressions import MAX_TEXT
+from .textrules import MAX_NAME, text_problem
 
 BATCH_KEYS = ("batch", "procedure", "board_type", "operator", "description", "boards")
 BOARD_KEYS = ("serial", "board_type", "operator", "sim_board")
@@ -59,6 +61,11 @@ def _text(data: YamlMap, key: str, problems: list[Problem], default: str = "") -
     if not isinstance(value, str) or (key in data and not value.strip()):
         problems.append(Problem(data.where(key), f"{key}: needs a non-empty text"))
         return default
+    # a procedure is a file path (a text column); the others are names of the store's runs table
+    problem = text_problem(value, key, max_length=MAX_TEXT if key == "procedure" else MAX_NAME)
+    if problem is not None:
+        problems.append(Problem(data.where(key), problem))
+        return default
     return value
 
 
@@ -72,7 +79,9 @@ def _board(
     check_keys(entry, BOARD_KEYS, problems, "a batch board")
     require_keys(entry, ("serial",), problems, "a batch board")
     serial = entry.get("serial", "")
-    if "serial" in entry and (not isinstance(serial, str) or not SERIAL.match(serial)):
+    if "serial" in entry and (
+        not isinstance(serial, str) or not SERIAL.match(serial) or len(serial) > MAX_NAME
+    ):
         problems.append(
             Problem(
                 entry.where("serial"), f"serial {serial!r} must be letters, digits, '_', '.', '-'"

@@ -13,6 +13,8 @@ from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
 from .expressions import (
+    MAX_INTEGER,
+    MAX_TEXT,
     Attr,
     Binary,
     Call,
@@ -51,11 +53,27 @@ def is_number(value: Any) -> bool:
 
 
 def _finite(value: Any, offset: int) -> Any:
+    """``value`` if within the bounds every result keeps: finite, whole numbers up to 2**53 (larger
+    ones continue as floats), text up to MAX_TEXT characters."""
+    if isinstance(value, int) and not isinstance(value, bool) and abs(value) > MAX_INTEGER:
+        try:
+            value = float(value)
+        except OverflowError:
+            raise ExpressionError("result is not a finite number", offset) from None
     if isinstance(value, float) and not math.isfinite(value):
         raise ExpressionError("result is not a finite number", offset)
     if isinstance(value, Quantity) and not math.isfinite(value.si):
         raise ExpressionError("result is not a finite number", offset)
+    if isinstance(value, str) and len(value) > MAX_TEXT:
+        raise ExpressionError(f"text longer than {MAX_TEXT} characters", offset)
     return value
+
+
+def _bounded_concat(a: str, b: str, offset: int) -> str:
+    """``a + b``, refused before it is built when longer than MAX_TEXT."""
+    if len(a) + len(b) > MAX_TEXT:
+        raise ExpressionError(f"text longer than {MAX_TEXT} characters", offset)
+    return a + b
 
 
 def _same_kind(op: str, a: Any, b: Any, offset: int) -> None:
@@ -84,7 +102,7 @@ def _arith(op: str, a: Any, b: Any, offset: int) -> Any:
             si = a.si + b.si if op == "+" else a.si - b.si
             return Quantity(clean(si), a.dimension, a.unit)
         if isinstance(a, str):
-            return a + b
+            return _bounded_concat(a, b, offset)
         return a + b if op == "+" else a - b
     if op == "*":
         if is_number(a) and is_number(b):

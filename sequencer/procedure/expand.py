@@ -8,9 +8,11 @@ second unnamed capture in the same list).  A duplicate path is a located error.
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import itertools
-from collections.abc import Mapping
+import math
+from collections.abc import Iterable, Iterator, Mapping
 from typing import Any
 
 from drivers.errors import Problem
@@ -24,10 +26,15 @@ from .kinds import KINDS
 from .model import ChannelLoop, Group, Include, Leaf, OutputLoop, Parameter, Procedure, Step, Sweep
 from .plan_checks import StepChecks, check_unique
 from .plan_model import BoardInfo, Plan, PlannedStep, ProcedureMeta
+from .textrules import step_texts_fit
 from .units import Quantity, clean, label_value
 from .values import ListOf, Template, TemplateError, as_param, as_text, resolve
 
 MAX_STEPS = 100_000
+#: Loop and sweep iterations a plan may visit, steps or not (a sweep whose body is all
+#: ``when: false`` makes no step but still costs its iterations).  Nested loops count as the
+#: product of their lengths, known before the inner one is expanded even once.
+MAX_ITERATIONS = 10 * MAX_STEPS
 
 
 class _TooMany(Exception):
@@ -69,6 +76,29 @@ class _Expander:
         self.problems = problems
         self.steps: list[PlannedStep] = []
         self.checks = StepChecks(board, problems)
+        self.iterations = 0
+        self.nesting = 1  # product of the lengths of the loops around the current step
+
+    @contextlib.contextmanager
+    def _iterating(self, step: Step, count: int) -> Iterator[None]:
+        """Account for ``count`` iterations of ``step``'s body before expanding any of them: the
+        loops around it would repeat them, so the product is refused at once when too large."""
+        self.iterations += count
+        if self.iterations > MAX_ITERATIONS or self.nesting * count > MAX_ITERATIONS:
+            self.problems.append(
+                Problem(
+                    step.location,
+                    f"the plan's loops and sweeps would run more than {MAX_ITERATIONS:,} "
+                    f"iterations ({count:,} here, inside loops of {self.nesting:,})",
+                )
+            )
+            raise _TooMany
+        outer = self.nesting
+        self.nesting = outer * max(count, 1)
+        try:
+            yield
+        finally:
+            self.nesting = outer
 
     def run(
         self,
@@ -136,6 +166,8 @@ class _Expander:
             self.problems.append(
                 Problem(step.args["rate"].location, "bias.ramp: rate must be above 0 V/s")
             )
+            return
+        if not step_texts_fit(step, args, "/".join((*path, step.segment)), self.problems):
             return
         self.checks.check(step, args, labels)
         hazard = spec.hazard and not (step.kind == "bias.output" and args.get("on") is False)
@@ -207,19 +239,33 @@ class _Expander:
                     Problem(step.location, f"a zipped sweep needs lists of one length ({lengths})")
                 )
                 return
-            rows = list(zip(*columns, strict=True))
+            count = len(columns[0]) if columns else 0
+            rows: Iterable[tuple[Any, ...]] = zip(*columns, strict=True)
         else:
-            rows = list(itertools.product(*columns))
-        for row in rows:
-            segments = [f"{n}={as_text(v)}" for n, v in zip(names, row, strict=True)]
-            inner_path = (*path, ",".join(segments)) if step.mode == "zip" else (*path, *segments)
-            self.run(
-                step.body,
-                {**env, **dict(zip(names, row, strict=True))},
-                {**labels, **{n: _label(v) for n, v in zip(names, row, strict=True)}},
-                inner_path,
-                block,
-            )
+            count = math.prod(len(c) for c in columns)  # counted before anything is expanded
+            if count > MAX_STEPS:
+                shape = " x ".join(str(len(c)) for c in columns)
+                self.problems.append(
+                    Problem(
+                        step.location,
+                        f"the sweep has {shape} = {count:,} combinations, above {MAX_STEPS:,}",
+                    )
+                )
+                raise _TooMany
+            rows = itertools.product(*columns)
+        with self._iterating(step, count):
+            for row in rows:
+                segments = [f"{n}={as_text(v)}" for n, v in zip(names, row, strict=True)]
+                inner_path = (
+                    (*path, ",".join(segments)) if step.mode == "zip" else (*path, *segments)
+                )
+                self.run(
+                    step.body,
+                    {**env, **dict(zip(names, row, strict=True))},
+                    {**labels, **{n: _label(v) for n, v in zip(names, row, strict=True)}},
+                    inner_path,
+                    block,
+                )
 
     def channels(
         self,
@@ -267,14 +313,17 @@ class _Expander:
         block: str,
     ) -> None:
         """Expand ``body`` once per value, bound to ``name`` and named by ``segment`` in the path."""
-        for value in values or ():
-            self.run(
-                body,
-                {**env, name: value},
-                {**labels, name: value},
-                (*path, segment.format(value)),
-                block,
-            )
+        if not values or not body:
+            return
+        with self._iterating(body[0], len(values)):
+            for value in values:
+                self.run(
+                    body,
+                    {**env, name: value},
+                    {**labels, name: value},
+                    (*path, segment.format(value)),
+                    block,
+                )
 
     def include(
         self,

@@ -27,6 +27,13 @@ from .units import UNIT_PATTERN, make_quantity
 
 MAX_LENGTH = 1000
 MAX_DEPTH = 40
+#: Largest whole number an expression keeps (2**53: beyond it a float is no longer exact, and
+#: Python's integers would grow without limit: a parameter squaring itself 30 times has a billion
+#: digits).  Fractional values are floats, bounded by being finite.
+MAX_INTEGER = 2**53
+#: Longest text an expression or an interpolated string may produce (doubling a string 30 times
+#: would need gigabytes).
+MAX_TEXT = 4096
 FUNCTIONS = ("min", "max", "abs", "round", "floor", "ceil", "sqrt", "len")
 KEYWORDS = ("and", "or", "not", "in", "true", "false")
 
@@ -126,6 +133,8 @@ def tokenize(text: str) -> list[Token]:
             number = (
                 float(match["num"]) if any(c in match["num"] for c in ".eE") else int(match["num"])
             )
+            if isinstance(number, int) and number > MAX_INTEGER:
+                number = _as_float(number, pos)  # in floats beyond 2**53 (bounded: finite)
             if match["unit"]:
                 tokens.append(Token("qty", match[0], pos, make_quantity(number, match["unit"])))
             else:
@@ -139,6 +148,13 @@ def tokenize(text: str) -> list[Token]:
         pos = match.end()
     tokens.append(Token("end", "", len(text)))
     return tokens
+
+
+def _as_float(number: int, offset: int) -> float:
+    try:
+        return float(number)
+    except OverflowError:
+        raise ExpressionError("number too large to be a finite float", offset) from None
 
 
 # binding powers of infix operators

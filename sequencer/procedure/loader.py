@@ -35,7 +35,8 @@ from .limits import merge_limits, parse_limit_list, parse_limits_text
 from .model import Leaf, Parameter, Procedure, leaves
 from .plan_model import Limit
 from .steps import StepParser
-from .values import Literal, Template, parse_value
+from .textrules import MAX_NAME, MAX_VERSION, text_problem
+from .values import MAX_TEXT, Literal, Template, parse_value
 
 TOP_KEYS = (
     "name",
@@ -59,6 +60,13 @@ HAZARDS = ("bias",)
 ROLES = tuple(dict.fromkeys(k.role for k in KINDS.values() if k.role))
 MAX_INCLUDE_DEPTH = 8
 LIMITS_BY_NAME = "@limits/"
+#: key -> (longest text the store keeps, free text with lines) -- sequencer/procedure/textrules.py
+_TEXT_RULES = {
+    "name": (MAX_NAME, False),
+    "version": (MAX_VERSION, False),
+    "board_type": (MAX_NAME, False),
+    "description": (MAX_TEXT, True),
+}
 
 
 class _Reader:
@@ -173,6 +181,11 @@ class _Loader:
             return ""
         if key in ("name", "version", "board_type") and key in data and not value.strip():
             self.problems.append(Problem(data.where(key), f"{key}: must not be empty"))
+        limit, lines = _TEXT_RULES[key]
+        problem = text_problem(value, key, max_length=limit, lines=lines)
+        if problem is not None:
+            self.problems.append(Problem(data.where(key), problem))
+            return ""
         return value
 
     def _names(self, data: YamlMap, key: str, allowed: tuple[str, ...]) -> tuple[str, ...]:

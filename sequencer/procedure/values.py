@@ -19,7 +19,7 @@ from drivers.errors import Location, Problem
 from drivers.yamlsafe import YamlMap, YamlSeq
 
 from .evaluate import describe, evaluate, is_number
-from .expressions import Attr, ExpressionError, Name, Node, names_in, parse_expression
+from .expressions import MAX_TEXT, Attr, ExpressionError, Name, Node, names_in, parse_expression
 from .units import Quantity, clean, format_number, read_quantity
 
 MAX_SERIES = 10_000
@@ -251,14 +251,25 @@ def resolve(template: Template, env: Mapping[str, Any]) -> Any:
                 expression_problem(template.location, template.text, exc, template.start).message,
             ) from None
     if isinstance(template, Interp):
-        return "".join(
-            p if isinstance(p, str) else as_text(resolve(p, env)) for p in template.parts
-        )
+        return _interpolate(template, env)
     if isinstance(template, ListOf):
         return [resolve(item, env) for item in template.items]
     if isinstance(template, Series):
         return _series(template, env)
     raise TemplateError(template.location, "unsupported value")
+
+
+def _interpolate(template: Interp, env: Mapping[str, Any]) -> str:
+    """The text of ``template``, refused as soon as it grows past MAX_TEXT characters."""
+    out: list[str] = []
+    size = 0
+    for part in template.parts:
+        text = part if isinstance(part, str) else as_text(resolve(part, env))
+        size += len(text)
+        if size > MAX_TEXT:
+            raise TemplateError(template.location, f"text longer than {MAX_TEXT} characters")
+        out.append(text)
+    return "".join(out)
 
 
 def as_text(value: Any) -> str:
@@ -294,7 +305,11 @@ def _series(t: Series, env: Mapping[str, Any]) -> list[Any]:
     a, b, step = (x.si if isinstance(x, Quantity) else x for x in (start, stop, third))
     if step == 0 or (b - a) * step < 0:
         raise TemplateError(t.third.location, "range step is zero or points away from stop")
-    n = math.floor((b - a) / step + 1e-9) + 1
+    count = (b - a) / step + 1e-9  # counted before anything is built
+    if not math.isfinite(count) or count >= MAX_SERIES:
+        shown = f"{math.floor(count) + 1:,}" if math.isfinite(count) else "endless"
+        raise TemplateError(t.location, f"range has {shown} values, above {MAX_SERIES}")
+    n = math.floor(count) + 1
     if n > MAX_SERIES:
         raise TemplateError(t.location, f"range has {n} values, above {MAX_SERIES}")
     if is_number(start) and all(isinstance(x, int) for x in (start, stop, third)):
