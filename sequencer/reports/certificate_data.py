@@ -21,6 +21,13 @@ from dataclasses import dataclass, field, fields, is_dataclass
 from datetime import datetime
 from typing import Any
 
+from .certificate_context import (
+    COVERAGE,
+    SIMPLE_ACCEPTANCE,
+    bias_summary,
+    conditions,
+    missing_reason,
+)
 from .evidence import PulseShape, RunSnapshot, SCurve, TransferCurve, gather_evidence, snapshot_run
 from .quantities import quantity_rank
 
@@ -68,6 +75,7 @@ class QuantityLine:
     low: float | None
     high: float | None
     verdict: str
+    note: str = ""  # why there is no value (the analysis step's recorded error)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -107,6 +115,10 @@ class CertificateData:
     s_curves: tuple[SCurve, ...] = ()
     pulses: tuple[PulseShape, ...] = ()
     caveats: tuple[str, ...] = ()  # how the run was run (overrides, changed draft text): printed
+    conditions: tuple[str, ...] = ()  # the run's resolved parameters, "name = value"
+    decision_rule: str = SIMPLE_ACCEPTANCE
+    coverage: str = COVERAGE
+    bias: tuple[tuple[str, str], ...] = ()  # the bias record summarised: (label, text)
     unjudged: int = 0  # values of quantities the limit set limits that no limit matched
     verdict: str = field(default="INCOMPLETE")
 
@@ -159,11 +171,11 @@ def gather_certificate(store: Any, run_id: int, channel: int) -> CertificateData
 def _certificate(snap: RunSnapshot, channel: int) -> CertificateData:
     run = snap.run
     mine = [m for m in snap.measurements if m.channel == channel or m.channel is None]
-    quantities = tuple(sorted((_quantity(m) for m in mine), key=_quantity_key))
+    quantities = tuple(sorted((_quantity(m, snap) for m in mine), key=_quantity_key))
     crosstalk_out = tuple(
         sorted(
             (
-                _quantity(m)
+                _quantity(m, snap)
                 for m in snap.measurements
                 if m.aggressor == channel and m.channel != channel
             ),
@@ -198,6 +210,9 @@ def _certificate(snap: RunSnapshot, channel: int) -> CertificateData:
         s_curves=s_curves,
         pulses=pulses,
         caveats=tuple(snap.caveats),
+        conditions=conditions(dict(run.parameters or {})),
+        decision_rule=snap.decision_rule,
+        bias=bias_summary(snap.safety_events),
         unjudged=unjudged,
         verdict=overall_verdict(quantities, run.status, unjudged),
     )
@@ -214,8 +229,11 @@ def _quantity_key(q: QuantityLine) -> tuple:
     )
 
 
-def _quantity(m: Any) -> QuantityLine:
+def _quantity(m: Any, snap: RunSnapshot | None = None) -> QuantityLine:
+    value = _float_or_none(m.value)
+    step = snap.steps.get(m.path) if snap is not None and value is None else None
     return QuantityLine(
+        note=missing_reason(step) if step is not None else "",
         quantity=m.quantity,
         channel=m.channel,
         output=m.output,
@@ -332,4 +350,6 @@ def certificate_from_dict(value: Mapping[str, Any]) -> CertificateData:
     v["s_curves"] = rows("s_curves", SCurve, ("thresholds_mV", "counts"))
     v["pulses"] = rows("pulses", PulseShape)
     v["caveats"] = tuple(v.get("caveats", ()))
+    v["conditions"] = tuple(v.get("conditions", ()))
+    v["bias"] = tuple(tuple(pair) for pair in v.get("bias", ()))
     return CertificateData(**v)

@@ -16,22 +16,19 @@ from html import escape
 from pathlib import Path
 
 from .certificate_data import CertificateData, canonical_json, data_sha256
-from .certificate_pdf import FIGURE_CAPTIONS, metadata_keywords
+from .certificate_pdf import CLOSING_SECTIONS, FIGURE_CAPTIONS, metadata_keywords
 from .certificate_view import (
     INSTRUMENT_COLUMNS,
     INSTRUMENT_HEADER,
     QUANTITY_COLUMN_KEYS,
     QUANTITY_HEADER,
-    SAFETY_COLUMNS,
-    SAFETY_HEADER,
-    caveat_text,
+    closing_fields,
     field_slug,
     identity_rows,
     instrument_rows,
-    judgement_text,
     overall_text,
+    printed_fields,
     quantity_rows,
-    safety_rows,
 )
 
 DATA_SCRIPT_ID = "certificate-data"
@@ -78,20 +75,14 @@ def render_html(data: CertificateData, images: Mapping[str, bytes | None], path:
         _identity(data),
         f'<p class="verdict {verdict}" id="verdict" data-field="verdict">Overall verdict: '
         f"{escape(overall_text(data))}</p>",
-        f'<p data-field="judgement">{escape(judgement_text(data))}</p>',
-        *(
-            f'<p class="caveat" data-field="caveats.{i}">{escape(caveat_text(c))}</p>'
-            for i, c in enumerate(data.caveats)
-        ),
+        *(_paragraph(key, text) for key, text in printed_fields(data)
+          if not key.startswith("header.") and key != "verdict"),
         "<h2>Results</h2>",
         _quantities(data),
         "<h2>Instruments</h2>",
         _table(INSTRUMENT_HEADER, instrument_rows(data), "instruments", INSTRUMENT_COLUMNS),
         *(_figure(key, images.get(key), caption) for key, caption in FIGURE_CAPTIONS.items()),
-        "<h2>Safety events of the run</h2>",
-        _table(SAFETY_HEADER, safety_rows(data), "safety", SAFETY_COLUMNS)
-        if data.safety
-        else "<p>No bias or high-voltage event was recorded in this run.</p>",
+        *_closing(data),
         "<h2>Data integrity</h2>",
         f'<p>SHA-256 of the certificate data: <span class="hash" id="data-sha256" data-field="data_sha256">{digest}</span></p>',
         f"<p>Check with: <code>benchwright verify {escape(data.number)}.html</code></p>",
@@ -102,6 +93,24 @@ def render_html(data: CertificateData, images: Mapping[str, bytes | None], path:
     path.parent.mkdir(parents=True, exist_ok=True)
     path.write_text("\n".join(p for p in parts if p) + "\n", encoding="utf-8")
     return path
+
+
+def _paragraph(key: str, text: str) -> str:
+    css = ' class="caveat"' if key.startswith("caveats.") else ""
+    return f'<p{css} data-field="{key}">{escape(text)}</p>'
+
+
+def _closing(data: CertificateData) -> list[str]:
+    closing = closing_fields(data)
+    parts = []
+    for title, prefix, empty in CLOSING_SECTIONS:
+        lines = [(key, text) for key, text in closing if key.startswith(prefix)]
+        if lines or empty:
+            parts.append(f"<h2>{escape(title)}</h2>")
+        parts += [_paragraph(key, text) for key, text in lines]
+        if not lines and empty:
+            parts.append(f"<p>{escape(empty)}</p>")
+    return parts
 
 
 def _script_json(data: CertificateData) -> str:

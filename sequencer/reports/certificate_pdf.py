@@ -17,15 +17,12 @@ from .certificate_data import SCHEMA, CertificateData, canonical_json, data_sha2
 from .certificate_view import (
     INSTRUMENT_HEADER,
     QUANTITY_HEADER,
-    SAFETY_HEADER,
-    caveat_text,
+    closing_fields,
     identity_rows,
     instrument_rows,
-    judgement_text,
     overall_text,
     printed_fields,
     quantity_rows,
-    safety_rows,
     table_fields,
 )
 from .pdf_layout import (
@@ -43,6 +40,12 @@ from .pdf_layout import (
 __all__ = ["ATTACHMENT_NAME", "FIGURE_CAPTIONS", "needs_unicode_font", "pdf_text", "render_pdf"]
 
 ATTACHMENT_NAME = "certificate-data.json"
+CLOSING_SECTIONS = (
+    ("Values not measured", "notes.", ""),
+    ("Bias record", "bias.", "No bias or high voltage was applied in this run."),
+    ("Approval", "approval.", ""),
+)
+"""Sections after the figures: (title, field prefix of ``closing_fields``, text when it has none)."""
 FIGURE_CAPTIONS = {
     "transfer": "Transfer curve per output with the fitted line; residuals in % of the span (INL)",
     "s_curves": "Discriminator S-curves with the fitted error function",
@@ -53,7 +56,8 @@ FIGURE_CAPTIONS = {
 
 def needs_unicode_font(data: CertificateData) -> bool:
     """True when a text of the certificate needs DejaVu (see ``pdf_layout``)."""
-    texts = [t for _, t in printed_fields(data)] + [c for _, _, cells in table_fields(data) for c in cells]
+    texts = [t for _, t in printed_fields(data) + closing_fields(data)]
+    texts += [c for _, _, cells in table_fields(data) for c in cells]
     return needs_unicode(texts)
 
 
@@ -85,9 +89,11 @@ def render_pdf(
     pdf.add_page()
     _header(pdf, data)
     _verdict(pdf, data)
-    note(pdf, judgement_text(data))
-    for caveat in data.caveats:
-        _caveat(pdf, caveat_text(caveat))
+    for key, text in printed_fields(data):
+        if key.startswith("caveats."):
+            _caveat(pdf, text)
+        elif not key.startswith("header.") and key != "verdict":
+            note(pdf, text)
     section(pdf, "Results")
     _quantities(pdf, data)
     section(pdf, "Instruments")
@@ -96,12 +102,13 @@ def render_pdf(
         png = images.get(key)
         if png:
             figure(pdf, png, caption)
-    section(pdf, "Safety events of the run")
-    rows = safety_rows(data)
-    if rows:
-        table(pdf, SAFETY_HEADER, rows, (40, 50, 28, 62), size=6.5)
-    else:
-        note(pdf, "No bias or high-voltage event was recorded in this run.")
+    closing = closing_fields(data)
+    for title, prefix, empty in CLOSING_SECTIONS:
+        lines = [text for key, text in closing if key.startswith(prefix)]
+        if lines or empty:
+            section(pdf, title)
+        for text in lines or ([empty] if empty else []):
+            note(pdf, text)
     section(pdf, "Data integrity")
     note(pdf, f"SHA-256 of the certificate data: {digest}")
     note(pdf, f"Check with: benchwright verify {data.number}.pdf")

@@ -10,7 +10,7 @@ import json
 from dataclasses import dataclass
 
 from .certificate_data import CertificateData, QuantityLine
-from .quantities import format_limits, format_measured
+from .quantities import format_limits, format_measured, readable
 
 QUANTITY_HEADER = ("quantity", "output", "value", "±", "unit", "limits", "verdict")
 QUANTITY_COLUMN_KEYS = ("quantity", "output", "value", "uncertainty", "unit", "limits", "verdict")
@@ -52,11 +52,12 @@ def identity_rows(d: CertificateData) -> list[tuple[str, str]]:
 
 
 def quantity_label(q: QuantityLine) -> str:
+    name = readable(q.quantity)
     if q.channel is None:
-        return f"{q.quantity} (board)"
+        return f"{name} (board)"
     if q.aggressor is not None:
-        return f"{q.quantity} (from ch {q.aggressor})"
-    return q.quantity
+        return f"{name} (from ch {q.aggressor})"
+    return name
 
 
 def quantity_cells(q: QuantityLine) -> tuple[str, ...]:
@@ -124,27 +125,45 @@ def field_slug(label: str) -> str:
 
 
 INSTRUMENT_COLUMNS = ("role", "maker", "model", "serial", "firmware", "calibration_due")
-SAFETY_COLUMNS = ("at", "path", "kind", "detail")
 
 
 def printed_fields(d: CertificateData) -> list[tuple[str, str]]:
-    """Everything a certificate prints, as ``(field key, text)`` in reading order.
+    """What a certificate prints before its tables, as ``(field key, text)`` in reading order.
 
-    Both renderers print exactly these texts (the HTML marks each with ``data-field``), and
-    ``verify`` recomputes them from the embedded data: a certificate whose printed text was edited
-    fails, naming the field.  Table fields are whole cells; in the PDF a table row is checked as its
-    cells joined by spaces.
+    Both renderers print exactly these texts (the HTML marks each with ``data-field``), then the
+    tables (:func:`table_fields`), then :func:`closing_fields`; ``verify`` recomputes all three from
+    the embedded data, in that order: a certificate whose printed text was edited fails, naming the
+    field.  In the PDF a table row is checked as its cells joined by spaces.
     """
     out = [(f"header.{field_slug(label)}", f"{label} {value}") for label, value in identity_rows(d)]
     out.append(("verdict", f"Overall verdict: {overall_text(d)}"))
     out.append(("judgement", judgement_text(d)))
     out += [(f"caveats.{i}", caveat_text(c)) for i, c in enumerate(d.caveats)]
+    out.append(("decision_rule", f"Decision rule: {d.decision_rule}; {d.coverage}"))
+    out += [(f"conditions.{i}", f"Test condition: {c}") for i, c in enumerate(d.conditions)]
     return out
 
 
 def table_fields(d: CertificateData) -> list[tuple[str, tuple[str, ...], tuple[str, ...]]]:
-    """The printed tables as ``(row key, column names, cells)``: results, instruments, safety."""
+    """The printed tables as ``(row key, column names, cells)``: results, then instruments."""
     rows = [(r.key, QUANTITY_COLUMN_KEYS, r.cells) for r in quantity_rows(d)]
     rows += [(f"instruments.{i}", INSTRUMENT_COLUMNS, c) for i, c in enumerate(instrument_rows(d))]
-    rows += [(f"safety.{i}", SAFETY_COLUMNS, c) for i, c in enumerate(safety_rows(d))]
     return rows
+
+
+APPROVAL = ("Reviewed by ______________________________", "Date ______________________")
+
+
+def closing_fields(d: CertificateData) -> list[tuple[str, str]]:
+    """What a certificate prints after its tables: why values are missing, the bias record
+    summarised, and the approval block (tested by; reviewed by and date are signed by hand)."""
+    out = [
+        (f"notes.{i}", f"Not measured: {quantity_label(q)} {q.output or ''}: {q.note}".replace("  ", " "))
+        for i, q in enumerate(d.quantities)
+        if q.note
+    ]
+    out += [(f"bias.{field_slug(label)}", f"{label}: {text}") for label, text in d.bias]
+    out.append(("approval.tested_by", f"Tested by {d.operator or '—'}"))
+    out.append(("approval.reviewed_by", APPROVAL[0]))
+    out.append(("approval.date", APPROVAL[1]))
+    return out

@@ -19,6 +19,8 @@ from typing import Any
 
 import numpy as np
 
+from .certificate_context import decision_rule
+
 
 @dataclass(frozen=True, kw_only=True)
 class TransferCurve:
@@ -74,7 +76,9 @@ class RunSnapshot:
         self.steps: Mapping[str, Any] = dict(store.completed_steps(run_id))
         self.safety_events = tuple(store.safety_events(run_id))
         self.caveats = tuple(store.caveats(run_id))
-        self.limit_quantities = _limit_quantities(store.run_inputs(run_id))
+        inputs = store.run_inputs(run_id)
+        self.limit_quantities = _limit_quantities(inputs)
+        self.decision_rule = decision_rule(inputs)
         self.channels = sorted({int(m.channel) for m in self.measurements if m.channel is not None})
         if not self.channels and self.measurements:
             self.channels = [MODULE_CHANNEL]  # a module measured as a whole: one certificate

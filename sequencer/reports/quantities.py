@@ -16,6 +16,28 @@ VALUE_DIGITS = 5
 UNCERTAINTY_DIGITS = 2
 
 
+READABLE: dict[str, str] = {
+    "gain": "Gain",
+    "offset_mV": "Offset",
+    "inl_pct": "Integral nonlinearity",
+    "noise_in_mV": "Noise, input-referred",
+    "crosstalk_pct": "Crosstalk",
+    "threshold_mV": "Threshold (50 % point)",
+    "threshold_sigma_mV": "Threshold width (sigma)",
+    "discriminator_offset_mV": "Discriminator offset",
+    "peaking_time_ns": "Peaking time",
+    "rise_time_ns": "Rise time (10-90 %)",
+    "leakage_nA": "Leakage current",
+    "baseline_mV": "Baseline",
+}
+"""Names printed on certificates (the unit is its own column, so it is not repeated in the name);
+a quantity not listed is printed by its DESIGN.md name."""
+
+
+def readable(quantity: str) -> str:
+    return READABLE.get(quantity, quantity)
+
+
 ORDER: tuple[str, ...] = tuple(UNITS)
 """The order in which quantities are listed on a certificate (DESIGN.md table order)."""
 

@@ -34,7 +34,7 @@ from .certificate_data import (
 )
 from .certificate_html import DATA_SCRIPT_ID, META_NAME
 from .certificate_pdf import ATTACHMENT_NAME, needs_unicode_font, pdf_text
-from .certificate_view import printed_fields, table_fields
+from .certificate_view import closing_fields, printed_fields, table_fields
 
 MAX_DIFFERENCES = 50
 
@@ -115,8 +115,9 @@ def _visible_problems(e: _Embedded, printed_digest: str) -> list[str]:
         return [f"embedded data is not a certificate's: {exc}"]
     fields = printed_fields(data)
     tables = table_fields(data)
+    closing = closing_fields(data)
     if e.visible is not None:
-        expected = dict(fields)
+        expected = dict(fields) | dict(closing)
         for key, columns, cells in tables:
             expected.update({f"{key}.{col}": text for col, text in zip(columns, cells, strict=True)})
         expected["data_sha256"] = printed_digest
@@ -151,6 +152,7 @@ def _visible_problems(e: _Embedded, printed_digest: str) -> list[str]:
         problems += [f"printed {key}.{col}: {cell!r} not found in the PDF text" for col, cell in gone]
         if not gone:
             problems.append(f"printed {key}: {' '.join(cells)!r} not found in the PDF text")
+    problems += [f"printed {key}: {text!r} not found in the PDF text" for key, text in closing if not find(text)]
     digest_line = f"SHA-256 of the certificate data: {printed_digest}"
     if not find(digest_line):
         problems.append(f"printed data_sha256: {digest_line!r} not found in the PDF text")

@@ -79,5 +79,7 @@ def test_the_override_is_recorded_and_printed_on_every_certificate(tmp_path, sim
         text = html.read_text(encoding="utf-8")
         assert f"Caveat: {caveat}" in text
         assert "2020-01-31" in text  # the scope's calibration due date in the instruments table
+        # test conditions: quick-gain.yaml's parameters as resolved for the run
+        assert "Test condition: amplitudes = [20 mV, 40 mV, 60 mV, 80 mV, 100 mV]" in text
     code, out = _invoke("verify", "--db", db, str(htmls[0]))
     assert code == 0, out

@@ -16,7 +16,7 @@ from pypdf import PdfReader, PdfWriter
 
 from sequencer.events import Measurement, MeasurementMade, RunFinished, StepFinished, StepStarted
 from sequencer.reports import certify_run, gather_certificates, verify_certificate
-from sequencer.reports.certificate_view import printed_fields, table_fields
+from sequencer.reports.certificate_view import closing_fields, printed_fields, table_fields
 from sequencer.reports.pdf_layout import pdf_text
 from sequencer.store import Store
 
@@ -38,7 +38,7 @@ def certified(tmp_path_factory: pytest.TempPathFactory):
 
 def _keys(data) -> list[str]:
     """The header fields, verdict, judgement, caveats, hash, and one cell of every table column."""
-    keys = [k for k, _ in printed_fields(data)] + ["data_sha256"]
+    keys = [k for k, _ in printed_fields(data) + closing_fields(data)] + ["data_sha256"]
     seen: set[tuple[str, str]] = set()
     for row, columns, _ in table_fields(data):
         table = row.split(".")[0]
@@ -47,6 +47,19 @@ def _keys(data) -> list[str]:
                 seen.add((table, col))
                 keys.append(f"{row}.{col}")
     return keys
+
+
+def test_the_qa_block_is_printed(certified):
+    """Decision rule with coverage factor, test conditions, the bias record summarised (peak V and
+    I, ramp rate, interlock, acknowledgement), the approval block; readable quantity names."""
+    store, _, pdf, html = certified
+    text = html.read_text(encoding="utf-8")
+    assert "Decision rule: simple acceptance" in text and "coverage factor k = 1" in text
+    # simulated_runs: bias ramped 0 -> 42 V at 5 V/s, leakage read at 8.4 nA
+    assert "Peak bias voltage: 42 V" in text and "Ramp rate: up to 5 V/s" in text
+    assert "Tested by i.lindqvist" in text and "Reviewed by ____" in text
+    assert ">Gain<" in text and ">gain<" not in text
+    assert verify_certificate(store, html).ok and verify_certificate(store, pdf).ok
 
 
 def test_the_caveat_and_the_judgement_are_printed(certified):
@@ -63,11 +76,12 @@ def test_the_caveat_and_the_judgement_are_printed(certified):
 def test_every_printed_field_of_the_html_is_marked(certified):
     _, data, _, html = certified
     marked = set(re.findall(r'data-field="([^"]+)"', html.read_text(encoding="utf-8")))
-    expected = {k for k, _ in printed_fields(data)} | {"data_sha256"}
+    expected = {k for k, _ in printed_fields(data) + closing_fields(data)} | {"data_sha256"}
     expected |= {f"{row}.{col}" for row, columns, _ in table_fields(data) for col in columns}
     assert marked == expected
     assert {"header.board_serial", "header.operator", "instruments.0.calibration_due",
-            "quantities.0.limits", "quantities.0.uncertainty", "verdict", "caveats.0"} <= marked
+            "quantities.0.limits", "quantities.0.uncertainty", "verdict", "caveats.0",
+            "decision_rule", "bias.peak_bias_voltage", "approval.tested_by"} <= marked
 
 
 def test_an_edit_of_each_printed_html_field_is_named(certified, tmp_path: Path):
@@ -115,7 +129,7 @@ def _edit_pdf(pdf: Path, old: str, out: Path) -> bool:
 
 def test_an_edit_of_each_printed_pdf_field_is_named(certified, tmp_path: Path):
     store, data, pdf, _ = certified
-    values = dict(printed_fields(data))
+    values = dict(printed_fields(data) + closing_fields(data))
     shown = {k: v.removeprefix(lbl + " ") for k, v in values.items() for lbl in [_label(k, data)]}
     digest = verify_certificate(store, pdf).data_sha256
     shown["data_sha256"] = f"SHA-256 of the certificate data: {digest}"
@@ -135,8 +149,9 @@ def test_an_edit_of_each_printed_pdf_field_is_named(certified, tmp_path: Path):
     assert {k for k in checked if k.startswith("header.")} == {
         k for k in values if k.startswith("header.")
     } - {"header.certificate_number"}
+    # (the decision rule wraps over two lines of the PDF, so it is not one string to edit here)
     assert {"verdict", "caveats.0", "data_sha256", "instruments.0.serial",
-            "instruments.0.calibration_due"} <= set(checked)
+            "instruments.0.calibration_due", "bias.interlock", "approval.tested_by"} <= set(checked)
     for col in ("value", "uncertainty", "limits"):
         assert any(k.startswith("quantities.") and k.endswith("." + col) for k in checked), col
 
@@ -147,13 +162,16 @@ def _label(key: str, data) -> str:
     return next((lbl for lbl, _ in identity_rows(data) if f"header.{field_slug(lbl)}" == key), "")
 
 
-def _one_channel_run(store: Store, measurements: list[Measurement]) -> int:
+def _one_channel_run(
+    store: Store, measurements: list[Measurement], results: dict | None = None
+) -> int:
     run_id = store.create_run(replace(run_info(RunSpec(channels=1))), started_at=T0)
     store.handle(StepStarted(run_id, "gain/ch1/fit", "analyse.transfer", 0, 1, T0))
     for m in measurements:
         store.handle(MeasurementMade(run_id, "gain/ch1/fit", m))
     end = T0 + timedelta(seconds=1)
-    store.handle(StepFinished(run_id, "gain/ch1/fit", "analyse.transfer", "completed", T0, end))
+    store.handle(StepFinished(run_id, "gain/ch1/fit", "analyse.transfer", "completed", T0, end,
+                              results=results or {}))
     store.handle(RunFinished(run_id, "completed", end))
     return run_id
 
@@ -176,3 +194,18 @@ def test_an_unjudged_value_of_a_limited_quantity_is_counted_and_never_passes(tmp
     assert "every judged value within its limits" not in text
     assert "unjudged values of limited quantities: 1" in text
     assert "Judged values: 1 pass, 0 fail" in text
+
+
+def test_a_dead_channel_value_is_printed_with_its_reason(tmp_path: Path):
+    # what the engine stores for an analysis that cannot measure (failed_analysis): NaN, fail, and
+    # the reason in the step's results
+    dead = Measurement("gain", float("nan"), "V/V", None, 1, "x1", None, 0.95, 1.05, "fail")
+    reason = "no pulse above the noise: nothing to time"
+    with Store.open(f"sqlite:///{tmp_path / 'r.db'}") as store:
+        run_id = _one_channel_run(store, [dead], results={"error": reason})
+        [data] = gather_certificates(store, run_id)
+        pdf, html = certify_run(store, run_id, tmp_path / "c", workers=1)
+        assert verify_certificate(store, html).ok and verify_certificate(store, pdf).ok
+    assert data.quantities[0].note == reason
+    assert f"Not measured: Gain x1: {reason}" in html.read_text(encoding="utf-8")
+    assert data.verdict == "FAIL"
