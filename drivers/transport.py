@@ -257,6 +257,22 @@ class VisaTransport:
         except OSError:
             return False
 
+    def wait_for_input(self, timeout_s: float) -> bool | None:
+        """True when input (or end-of-file) is waiting or arrives within ``timeout_s``, False when
+        none does, None when this link cannot tell (not a pyvisa-py SOCKET session).  Lets a long
+        read wait in short slices and look at the stop flag in between."""
+        resource = self._live()
+        session = _pyvisa_py_session(resource)
+        if session is not None and getattr(session, "_pending_buffer", None):
+            return True
+        sock = _socket_of(resource)
+        if sock is None:
+            return None
+        try:
+            return bool(select.select([sock], [], [], max(0.0, timeout_s))[0])
+        except (OSError, ValueError):
+            return True  # the read that follows reports what is wrong
+
     def drain(self) -> None:
         """Discard any input waiting (a late or partial reply), so the next reply is in step.
 

@@ -34,6 +34,8 @@ MAX_INDEFINITE_BYTES = 64 * 1024 * 1024
 DEFAULT_MIN_TRANSFER_BPS = 1_000_000
 #: Bytes asked of the link per chunk; the stop flag and the deadline are looked at between chunks.
 DEFAULT_BLOCK_CHUNK = 256 * 1024
+#: While no data arrives, a block read looks at the stop flag this often (seconds).
+STOP_SLICE_S = 0.1
 #: Allowance above the expected record: a few header or padding bytes, never another record.
 EXPECTED_MARGIN_BYTES = 1024
 EXPECTED_MARGIN_FRACTION = 0.01
@@ -112,6 +114,7 @@ class BlockReader:
         data = bytearray()
         while len(data) < length:
             self._between_chunks(len(data), length, deadline)
+            self._await_data(len(data), length, deadline)
             want = min(self.bounds.chunk_bytes, length - len(data))
             with self._chunk_timeout(deadline):
                 data += self.transport.read_bytes(want)
@@ -127,6 +130,7 @@ class BlockReader:
         cap = self._cap(indefinite=True)
         deadline = self.bounds.deadline(cap, self.start)
         term = self.transport.read_termination.encode("ascii")
+        self._await_data(0, None, deadline)
         with self._chunk_timeout(deadline):
             data = bytearray(self.transport.read())
         while True:
@@ -157,6 +161,20 @@ class BlockReader:
                 address=self.transport.address,
                 command=self.command,
             )
+
+    def _await_data(self, got: int, total: int | None, deadline: float) -> None:
+        """Wait for the next bytes in short slices, looking at the stop flag and the deadline in
+        between, for at most the link timeout (the read that follows then reports the timeout).
+        Links that cannot tell whether input waits (``wait_for_input`` absent or None) skip this."""
+        wait = getattr(self.transport, "wait_for_input", None)  # optional in the contract
+        if wait is None or self.bounds.stop is None:
+            return
+        limit = min(deadline, time.monotonic() + self.transport.timeout_ms / 1000.0)
+        while True:
+            ready = wait(min(STOP_SLICE_S, max(0.0, limit - time.monotonic())))
+            if ready is None or ready or time.monotonic() >= limit:
+                return
+            self._between_chunks(got, total, deadline)
 
     @contextlib.contextmanager
     def _chunk_timeout(self, deadline: float) -> Iterator[None]:

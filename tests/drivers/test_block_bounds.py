@@ -10,6 +10,7 @@ the bytes the instrument was allowed to push, and the memory allocated.
 
 from __future__ import annotations
 
+import threading
 import tracemalloc
 
 import numpy as np
@@ -132,5 +133,28 @@ def test_a_stop_request_gives_a_trickling_block_up_between_chunks(instrument, fa
             s.query_block_bytes("D?")
         assert proxy.received.count("D?") == 1  # given up, never retried
         s.stop_check = None
+        honest_after(s, proxy)
+        s.close()
+
+
+def test_a_stop_request_ends_the_wait_for_a_block_that_went_silent(instrument):
+    # The header arrives, then nothing: without looking at the stop flag while it waits, the read
+    # would end only at the link timeout (30 s here) with InstrumentTimeout.
+    lie = Lie("D?", header_then_silence(b"#41000"))
+    pressed = threading.Event()
+    with HostileProxy(("127.0.0.1", instrument.port), [lie]) as proxy:
+        link = VisaTransport.open(proxy.address, timeout_ms=30_000)
+        s = ScpiSession(link)
+        s.stop_check = pressed.is_set
+        timer = threading.Timer(0.3, pressed.set)  # Ctrl-C while the scope is silent
+        timer.start()
+        try:
+            with pytest.raises(ReadStopped, match="after 0 of 1000 bytes"):
+                s.query_block_bytes("D?")
+        finally:
+            timer.cancel()
+        assert proxy.received.count("D?") == 1
+        s.stop_check = None
+        link.timeout_ms = 300
         honest_after(s, proxy)
         s.close()
