@@ -115,7 +115,7 @@ async def _live_stream(request: Any) -> AsyncIterator[bytes]:
             ids = [r.id for r in run_lines(conn, status="running")]
         out = []
         for i in ids:
-            s = live_snapshot(state.store, i, state.outlines)
+            s = live_snapshot(state.store, i, state.outlines, detail=False)
             out.append({k: s[k] for k in ("run_id", "board", "procedure", "status", "done", "total",
                                           "percent", "eta_s", "current_step", "failed", "measurements")})  # fmt: skip
         return out

@@ -118,15 +118,18 @@ def _trace_json(trace: Any) -> dict[str, Any] | None:
             "mV": ys, "labels": dict(trace.labels or {})}  # fmt: skip
 
 
-def live_snapshot(store: Any, run_id: int, outlines: Outlines, now: datetime | None = None) -> dict[str, Any]:
-    """Everything the live view of run ``run_id`` shows, as JSON-able values."""
+def live_snapshot(
+    store: Any, run_id: int, outlines: Outlines, now: datetime | None = None, *, detail: bool = True
+) -> dict[str, Any]:
+    """Everything the live view of run ``run_id`` shows, as JSON-able values; ``detail=False``
+    leaves out the grid and the trace (the list of running runs needs only the progress)."""
     run = store.get_run(run_id)
     outline = outlines.of(store, run)
     with store.engine.connect() as conn:
         counts = run_counts(conn, [run_id])[run_id]
         position = last_position(conn, run_id)
-        trace = latest_trace(conn, run_id)
-    measurements = store.measurements(run_id=run_id)
+        trace = latest_trace(conn, run_id) if detail else None
+    measurements = store.measurements(run_id=run_id) if detail else []
     total = outline.total
     done = counts.steps_done
     now = now or datetime.now(UTC)
@@ -153,7 +156,7 @@ def live_snapshot(store: Any, run_id: int, outlines: Outlines, now: datetime | N
         "measurements": counts.measurements,
         "failed": counts.failed,
         "verdict": counts.verdict(run.status),
-        "grid": verdict_grid(measurements, outline.channels),
+        "grid": verdict_grid(measurements, outline.channels) if detail else None,
         "trace": _trace_json(trace),
     }
 

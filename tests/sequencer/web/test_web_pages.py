@@ -215,3 +215,22 @@ def test_certificates_are_listed_and_checked_against_the_database(db, tmp_path: 
         assert got.status_code == 200 and got.content[:5] == b"%PDF-"  # PDF header (ISO 32000)
         assert c.get("/certificates/..%2Fresults.db").status_code == 404
         assert c.get("/certificates/results.db").status_code == 404
+
+
+def test_the_list_of_running_runs_is_pushed(db, client) -> None:
+    _, store, _ = db
+    other = LiveRun(store, datetime.now(UTC) - timedelta(seconds=10))
+    other.advance(3)
+    try:
+        running = {r.id for r in store.list_runs(status="running")}
+        with client.stream("GET", "/live/events") as stream:
+            for line in stream.iter_lines():
+                if line.startswith("data: "):
+                    runs = json.loads(line[6:])
+                    break
+        assert {r["run_id"] for r in runs} == running and other.run_id in running
+        mine = next(r for r in runs if r["run_id"] == other.run_id)
+        assert (mine["done"], mine["total"]) == (3, len(other.plan.steps))
+        assert mine["current_step"] == other.plan.steps[3].path
+    finally:
+        other.finish()
