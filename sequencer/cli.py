@@ -263,13 +263,15 @@ def instruments(bench_path: str, check: bool, allow_visa_library: tuple[str, ...
 @click.option("--host", default="127.0.0.1", show_default=True)
 @click.option("--port-base", default=0, type=int, help="First TCP port (0 = free ports).")
 @click.option("--bench-out", type=click.Path(dir_okay=False), default=None, help="Write the bench file here.")
+@click.option("--link", type=click.Choice(["socket", "hislip"]), default="socket", show_default=True,
+              help="Addresses in the bench file: raw sockets or HiSLIP (both are served).")
 @handles_errors
-def sim(board_path: str, host: str, port_base: int, bench_out: str | None) -> None:
+def sim(board_path: str, host: str, port_base: int, bench_out: str | None, link: str) -> None:
     """Serve the simulated instruments of a board file until interrupted."""
     from drivers.sim import serve
 
     serve(board_path, host=host, port_base=port_base, bench_out=Path(bench_out) if bench_out else None,
-          on_ready=None)
+          on_ready=None, link=link)
 
 
 def attach_commands() -> None:

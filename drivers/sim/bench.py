@@ -27,6 +27,7 @@ from drivers.sim.counter import Counter
 from drivers.sim.digitizer import Digitizer
 from drivers.sim.faults import FaultRunner
 from drivers.sim.files import load_sim_file
+from drivers.sim.hislip import HislipServer
 from drivers.sim.instrument import MAKER, SimInstrument
 from drivers.sim.pulser import Pulser
 from drivers.sim.sensor import SensorSpec
@@ -101,6 +102,7 @@ class SimBench:
         self.instruments = self.make_instruments(board, clock)
         lock = threading.Lock()
         self._servers: dict[str, InstrumentServer] = {}
+        self._hislip: dict[str, HislipServer] = {}
         try:
             for index, role in enumerate(self.instruments):
                 port = port_base + index if port_base else 0
@@ -119,6 +121,9 @@ class SimBench:
                     ) from None
                 self._servers[role] = server
                 server.start()
+                hislip = HislipServer(server, host=host)  # a free port: none privileged
+                self._hislip[role] = hislip
+                hislip.start()
         except BaseException:
             self.stop()
             raise
@@ -134,14 +139,19 @@ class SimBench:
         """role -> TCP port."""
         return {role: server.port for role, server in self._servers.items()}
 
-    def address(self, role: str) -> str:
-        """VISA resource string of ``role``."""
+    def address(self, role: str, link: str = "socket") -> str:
+        """VISA resource string of ``role`` over ``link``: ``socket`` (raw SCPI over TCP) or
+        ``hislip`` (IVI-6.1; the port is explicit in the address)."""
+        if link == "hislip":
+            return f"TCPIP0::{self.host}::hislip0,{self._hislip[role].port}::INSTR"
         return f"TCPIP0::{self.host}::{self.ports[role]}::SOCKET"
 
     def stop(self) -> None:
         """Stop every server and close every client connection (idempotent)."""
         servers, self._servers = self._servers, {}
+        hislip, self._hislip = self._hislip, {}
         stoppers = [threading.Thread(target=server.stop) for server in servers.values()]
+        stoppers += [threading.Thread(target=server.stop) for server in hislip.values()]
         for stopper in stoppers:  # in parallel: each waits up to one poll interval
             stopper.start()
         for stopper in stoppers:
@@ -158,13 +168,13 @@ class SimBench:
         sets = self.board.command_sets if isinstance(self.board, BoardSpec) else {}
         return sets.get(role, "generic")
 
-    def bench_mapping(self) -> dict[str, Any]:
+    def bench_mapping(self, link: str = "socket") -> dict[str, Any]:
         """The bench-file data (DESIGN.md "Bench file") describing this simulated bench."""
         due = dt.date.today() + dt.timedelta(days=365)
         instruments: dict[str, Any] = {}
         for role, inst in self.instruments.items():
             entry: dict[str, Any] = {
-                "address": self.address(role),
+                "address": self.address(role, link),
                 "dialect": self.dialect_of(role),
                 "read_termination": "\n",
                 "write_termination": "\n",
@@ -177,11 +187,11 @@ class SimBench:
             instruments[role] = entry
         return {"bench": self.bench_name, "instruments": instruments}
 
-    def write_bench(self, path: str | Path) -> Path:
-        """Write :meth:`bench_mapping` as a YAML bench file; returns the path."""
+    def write_bench(self, path: str | Path, link: str = "socket") -> Path:
+        """Write :meth:`bench_mapping` (over ``link``) as a YAML bench file; returns the path."""
         out = Path(path)
         header = f"# simulated bench for board {self.board.serial} ({self.board.source})\n"
-        text = yaml.dump(self.bench_mapping(), Dumper=_BenchDumper, sort_keys=False)
+        text = yaml.dump(self.bench_mapping(link), Dumper=_BenchDumper, sort_keys=False)
         out.write_text(header + text, encoding="utf-8")
         return out
 
@@ -239,6 +249,7 @@ def serve(
     bench_out: Path | None = None,
     on_ready: Callable[[SimBench], None] | None = None,
     stop_event: threading.Event | None = None,
+    link: str = "socket",
 ) -> None:
     """Serve the simulated bench of ``board_path`` until SIGINT or SIGTERM, then stop cleanly.
 
@@ -258,10 +269,10 @@ def serve(
     try:
         with start_sim_bench(board_path, host=host, port_base=port_base) as bench:
             if bench_out is not None:
-                bench.write_bench(bench_out)
+                bench.write_bench(bench_out, link)
             print(f"simulated bench for board {bench.board.serial}:")
             for role in bench.ports:
-                print(f"  {role:<9} {bench.address(role)}")
+                print(f"  {role:<9} {bench.address(role)}  {bench.address(role, 'hislip')}")
             if bench_out is not None:
                 print(f"bench file: {bench_out}")
             print("press Ctrl-C to stop", flush=True)

@@ -133,19 +133,27 @@ class InstrumentServer:
                 with self.lock:
                     self.instrument.push_error(-223, "Too much data")
 
-    def _answer(self, sock: socket.socket, line: bytes) -> bool:
-        """Run one message and send its reply; False if the connection must close."""
+    def respond(self, message: bytes) -> tuple[bool, bytes | None]:
+        """Run one program message through the faults and the instrument: (keep the link, the
+        reply or None).  Shared by every link kind (raw socket here, HiSLIP in ``hislip.py``)."""
         with self.lock:
             effect = self.faults.on_message()
             if effect.disconnect:
-                return False
-            for code, message in effect.errors:
-                self.instrument.push_error(code, message)
+                return False, None
+            for code, text in effect.errors:
+                self.instrument.push_error(code, text)
             if effect.silent:
-                return True
-            reply = self.instrument.process(line.decode("latin-1"))
+                return True, None
+            reply = self.instrument.process(message.decode("latin-1"))
             if reply is not None:
                 reply = self.faults.filter_reply(reply)
+        return True, reply
+
+    def _answer(self, sock: socket.socket, line: bytes) -> bool:
+        """Run one message and send its reply; False if the connection must close."""
+        keep, reply = self.respond(line)
+        if not keep:
+            return False
         if reply is not None:
             try:
                 sock.sendall(reply)

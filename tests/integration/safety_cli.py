@@ -93,8 +93,10 @@ def sim_bench(
     max_ramp_V_per_s: float = 5.0,
     max_current_uA: float = 100.0,
     bias_timeout_ms: int | None = None,
+    link: str = "socket",
 ) -> Iterator[tuple[SimBench, Path]]:
-    """A simulated bench started here (it outlives the CLI) and its bench file, stopped at the end."""
+    """A simulated bench started here (it outlives the CLI) and its bench file (addresses over
+    ``link``: ``socket`` or ``hislip``), stopped at the end."""
     spec = board_from_mapping(yaml.safe_load(board.read_text(encoding="utf-8")), source=str(board))
     with start_sim_bench(
         spec,
@@ -102,7 +104,7 @@ def sim_bench(
         max_ramp_V_per_s=max_ramp_V_per_s,
         max_current_uA=max_current_uA,
     ) as sim:
-        path = sim.write_bench(folder / "bench.yaml")
+        path = sim.write_bench(folder / "bench.yaml", link)
         if bias_timeout_ms is not None:  # a silent supply is reported after one short timeout
             data = yaml.safe_load(path.read_text(encoding="utf-8"))
             data["instruments"]["bias"]["timeout_ms"] = bias_timeout_ms
