@@ -67,6 +67,17 @@ class CosmicPlate:
         readout = self.rig.spec.readout
         return readout.sign * (self.heights(rng, light, index) - readout.baseline_mV)
 
+    def singles_heights(self, rng: np.random.Generator, n: int, index: int) -> np.ndarray:
+        """Unsigned heights of uncorrelated pulses: exponential light of mean ``singles_mean_pe``
+        times the mean charge per photoelectron (crosstalk as its mean, 1/(1 - λ)), plus noise.
+        Drawn in closed form, not pulse by pulse: a long gate holds millions of them."""
+        sipm = self.rig.spec.sensors[index]
+        over = self.rig.over_V(index + 1)
+        a1 = height_per_cell_mV(sipm, self.rig.spec.readout, over)
+        per_pe = a1 / (1.0 - branching_lambda(sipm, over))
+        light = rng.exponential(self.plate.singles_mean_pe, n)
+        return light * per_pe + rng.normal(0.0, self.rig.spec.readout.noise_mV, n)
+
     def trains(self, gate_s: float, rng: np.random.Generator) -> tuple[Train, Train]:
         """The coincidence unit's source: muons on both inputs plus each input's singles."""
         muons = poisson_times(
@@ -76,9 +87,8 @@ class CosmicPlate:
         out = []
         for i in (0, 1):
             own = poisson_times(self.plate.singles_rate_hz[i], gate_s, rng)
-            own_light = rng.exponential(self.plate.singles_mean_pe, own.size)
             heights = np.concatenate(
-                [self.pulse_heights(rng, light[:, i], i), self.pulse_heights(rng, own_light, i)]
+                [self.pulse_heights(rng, light[:, i], i), self.singles_heights(rng, own.size, i)]
             )
             out.append(Train(np.concatenate([muons, own]), heights))
         return out[0], out[1]

@@ -40,8 +40,9 @@ key                                 default    meaning
 ``plate.attenuation_length_cm``     300.0      fibre attenuation length λ_att
 ``plate.fibre_cm``                  [50, 50]   fibre length from the plate to each sensor
 ``plate.singles_rate_hz``           [300, 300] uncorrelated pulses at each sensor (radioactivity,
-                                               dark pile-up), heights exponential with mean
-                                               ``plate.singles_mean_pe`` photoelectrons
+                                               dark pile-up), light exponential with mean
+                                               ``plate.singles_mean_pe`` photoelectrons (its
+                                               crosstalk as the mean factor 1/(1 - λ))
 ``plate.singles_mean_pe``           10.0       mean light of those pulses
 ==================================  =========  =====================================================
 

@@ -5,6 +5,6 @@ The scenario data (simulated board files and the batch file) are package data be
 summary.  ``benchwright demo`` is its command.
 """
 
-from .scenario import DEMO_BATCH, DemoResult, demo_dir, run_demo
+from .scenario import DEMO_BATCH, DEMO_MODULE_BATCH, DemoResult, demo_dir, run_demo
 
-__all__ = ["DEMO_BATCH", "DemoResult", "demo_dir", "run_demo"]
+__all__ = ["DEMO_BATCH", "DEMO_MODULE_BATCH", "DemoResult", "demo_dir", "run_demo"]

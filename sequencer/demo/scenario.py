@@ -17,6 +17,7 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 from sequencer.batchrun import BatchOptions, BatchOutcome, qualify_batch
 from sequencer.pace import describe_left, time_left
@@ -24,6 +25,8 @@ from sequencer.procedure import load_batch
 from sequencer.store import Store
 
 DEMO_BATCH = "batch.yaml"
+DEMO_MODULE_BATCH = "modules.yaml"
+"""The scintillator modules of the scenario, tested with cosmic rays after the preamp boards."""
 DEFAULT_OUT = Path("benchwright-demo")
 
 
@@ -43,6 +46,7 @@ class DemoResult:
     report: tuple[Path, ...]
     outcome: BatchOutcome
     seconds: float
+    module_outcome: BatchOutcome | None = None
 
 
 def run_demo(
@@ -52,7 +56,7 @@ def run_demo(
     workers: int | None = None,
 ) -> DemoResult:
     """Qualify the demo batch on the simulator, certify every run, summarise the batch."""
-    from sequencer.reports import batch_report, batch_summary, certify_run
+    from sequencer.reports import batch_report, batch_summary
 
     start = time.perf_counter()
     out = Path(out_dir)
@@ -61,20 +65,21 @@ def run_demo(
     db_url = f"sqlite:///{(out / 'results.db').resolve()}"
     echo(f"demo: batch {batch.name} ({len(batch.boards)} invented boards) on the simulator")
     with Store.open(db_url) as store:
-        options = BatchOptions(sim_dir=str(demo_dir()), unattended=True, requalify=True, echo=echo)
-        outcome = qualify_batch(batch, store, options)
-        certificates: list[Path] = []
-        start_certs = time.perf_counter()
-        for k, run_id in enumerate(outcome.run_ids, start=1):
-            certificates += certify_run(store, run_id, out / "certificates", workers=workers)
-            left = describe_left(time_left(k, len(outcome.run_ids), time.perf_counter() - start_certs))
-            echo(f"demo: certificates of run {run_id} written ({k}/{len(outcome.run_ids)} runs"
-                 + (f", {left} at the pace so far)" if left and k < len(outcome.run_ids) else ")"))
-        summary = batch_summary(store, batch.name)
-        text = summary.to_text()
+        outcome, certificates = _qualify(store, batch, out, echo, workers)
+        modules = load_batch(demo_dir() / DEMO_MODULE_BATCH)
+        echo(
+            f"demo: batch {modules.name} ({len(modules.boards)} invented scintillator modules, "
+            "cosmic rays on the simulator's fast clock)"
+        )
+        module_outcome, module_certificates = _qualify(store, modules, out, echo, workers)
+        certificates += module_certificates
+        text = "\n\n".join(batch_summary(store, b.name).to_text() for b in (batch, modules))
         summary_path = out / "batch-summary.txt"
         summary_path.write_text(text + "\n", encoding="utf-8")
-        report = batch_report(store, batch.name, out / "batch-report")
+        report = [
+            *batch_report(store, batch.name, out / "batch-report"),
+            *batch_report(store, modules.name, out / "batch-report"),
+        ]
     echo("")
     echo(text)
     return DemoResult(
@@ -85,7 +90,28 @@ def run_demo(
         report=tuple(report),
         outcome=outcome,
         seconds=time.perf_counter() - start,
+        module_outcome=module_outcome,
     )
+
+
+def _qualify(
+    store: Store, batch: Any, out: Path, echo: Callable[[str], None], workers: int | None
+) -> tuple[BatchOutcome, list[Path]]:
+    """Qualify one batch of the scenario on the simulator and certify every run."""
+    from sequencer.reports import certify_run
+
+    options = BatchOptions(sim_dir=str(demo_dir()), unattended=True, requalify=True, echo=echo)
+    outcome = qualify_batch(batch, store, options)
+    certificates: list[Path] = []
+    start_certs = time.perf_counter()
+    for k, run_id in enumerate(outcome.run_ids, start=1):
+        certificates += certify_run(store, run_id, out / "certificates", workers=workers)
+        left = describe_left(time_left(k, len(outcome.run_ids), time.perf_counter() - start_certs))
+        echo(
+            f"demo: certificates of run {run_id} written ({k}/{len(outcome.run_ids)} runs"
+            + (f", {left} at the pace so far)" if left and k < len(outcome.run_ids) else ")")
+        )
+    return outcome, certificates
 
 
 def describe(result: DemoResult) -> list[str]:

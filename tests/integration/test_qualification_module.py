@@ -45,7 +45,7 @@ def write_module(folder: Path, serial: str, *, light_scale: float) -> Path:
             "landau_width_pe": 3.0,
             "attenuation_length_cm": ATTENUATION_CM,
             "fibre_cm": list(FIBRE_CM),
-            "singles_rate_hz": [2000, 2000],
+            "singles_rate_hz": [1000, 1000],
         },
     }
     path = folder / f"{serial}.yaml"

@@ -23,10 +23,10 @@ from sequencer import analysis as an
 from sequencer.procedure.plan_model import PlannedStep
 
 from ..context import RunContext
-from ..judge import measure
+from ..judge import channel_of, measure
 from ..records import StepResult
 from .analysis import AnalysisInputError, _readings
-from .sensor_analysis import _earlier, _histogram
+from .sensor_analysis import _earlier, _histogram, spectrum_series
 
 FIT_FROM, FIT_TO = 0.5, 3.0
 """Fit range of the light-yield spectrum in units of its peak position (common practice)."""
@@ -65,11 +65,16 @@ def analyse_light_yield(ctx: RunContext, step: PlannedStep) -> StepResult:
             "landau_scale_pe": fit.scale,
             "sigma_pe": fit.sigma,
             "chi2_ndf": fit.chi2_ndf,
-            "spectrum": {
-                "edges_pe": [float(e) for e in fit.edges],
-                "counts": [float(c) for c in fit.counts],
-                "model": [float(m) for m in fit.model],
-            },
+            "series": [
+                spectrum_series(
+                    channel_of(step),
+                    "muon spectrum (coincidence trigger)",
+                    "p.e.",
+                    fit.edges,
+                    fit.counts,
+                    fit.model,
+                )
+            ],
         },
         measurements=[measure(ctx, step, "light_yield_pe", value, uncertainty=fit.mpv_err / ecf)],
     )

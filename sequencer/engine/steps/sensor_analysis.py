@@ -50,11 +50,19 @@ def _gain_millions(pe_mV: float, mV_per_fC: float) -> float:
     return abs(pe_mV) / mV_per_fC * FEMTOCOULOMB / an.ELEMENTARY_CHARGE_C / 1e6
 
 
-def _plot_series(fit: an.FingerFit, sign: float) -> dict[str, Any]:
+def spectrum_series(
+    channel: int | None, label: str, unit: str, edges: Any, counts: Any, model: Any
+) -> dict[str, Any]:
+    """A fitted histogram kept with the step (``results["series"]``, kind ``spectrum``): bin
+    ``edges`` in ``unit``, ``counts`` and the fitted ``model`` counts per bin, for the reports."""
     return {
-        "edges_mV": [float(sign * e) for e in fit.edges],
-        "counts": [float(c) for c in fit.counts],
-        "model": [float(m) for m in fit.model],
+        "kind": "spectrum",
+        "channel": channel,
+        "label": label,
+        "unit": unit,
+        "edges": [float(e) for e in edges],
+        "counts": [float(c) for c in counts],
+        "model": [float(m) for m in model],
     }
 
 
@@ -73,7 +81,17 @@ def analyse_fingers(ctx: RunContext, step: PlannedStep) -> StepResult:
         results={
             "chi2_ndf": fit.chi2_ndf,
             "sigma0_mV": fit.sigma0,
-            "spectrum": _plot_series(fit, sign),
+            "sigma1_mV": fit.sigma1,
+            "series": [
+                spectrum_series(
+                    channel_of(step),
+                    "LED finger spectrum",
+                    "mV",
+                    sign * fit.edges,
+                    fit.counts,
+                    fit.model,
+                )
+            ],
         },
         measurements=[
             measure(ctx, step, "sipm_gain", g, uncertainty=g * rel),
@@ -105,10 +123,18 @@ def analyse_breakdown(ctx: RunContext, step: PlannedStep) -> StepResult:
         errs.append(gains[-1] * fit.gain_err / fit.gain)
     bd = an.breakdown_voltage(volts, gains, errs)
     results: dict[str, Any] = {
-        "bias_V": volts.tolist(),
-        "gain": gains,
-        "gain_err": errs,
         "chi2_ndf": bd.chi2_ndf,
+        "series": [
+            {
+                "kind": "gain_scan",
+                "channel": channel_of(step),
+                "bias_V": volts.tolist(),
+                "gain": gains,
+                "gain_err": errs,
+                "breakdown_V": bd.v_bd,
+                "slope": bd.slope,
+            }
+        ],
     }
     ms = [
         measure(ctx, step, "breakdown_V", bd.v_bd, uncertainty=bd.v_bd_err),
@@ -158,11 +184,17 @@ def analyse_staircase(ctx: RunContext, step: PlannedStep) -> StepResult:
     )
     return StepResult(
         results={
-            "thresholds_mV": thresholds.tolist(),
-            "counts": counts,
-            "gain_mV": gain,
-            "pedestal_mV": pedestal,
             "dcr_1p5_kHz": st.dcr_three_halves / 1e3,
+            "series": [
+                {
+                    "kind": "staircase",
+                    "channel": channel_of(step),
+                    "thresholds_mV": thresholds.tolist(),
+                    "rate_hz": [c / float(a["gate"]) for c in counts],
+                    "gain_mV": gain,
+                    "pedestal_mV": pedestal,
+                }
+            ],
         },
         measurements=[
             measure(ctx, step, "dcr_kHz", st.dcr_half / 1e3, uncertainty=st.dcr_half_err / 1e3),
