@@ -40,6 +40,9 @@ PREFIXES = {
 KINDS = ("float", "int", "bool", "str", "csv", "block")
 DEFAULT_WORDS: Mapping[str, bool] = {"1": True, "+1": True, "ON": True, "0": False, "+0": False,
                                      "OFF": False}  # fmt: skip
+#: Status registers are 16 bits wide in IEEE 488.2 and SCPI (from memory); vendors' own reach 32.
+#: A larger "word" -- SCPI's 9.91E+37 not-a-number above all -- is no status, never a flag.
+MAX_STATUS_WORD = 2**32
 _NUMBER = re.compile(r"^\s*([+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*([A-Za-zµ]*)\s*$")
 
 
@@ -70,8 +73,8 @@ def parse_reply(text: str, kind: str, rule: ReplyRule = ReplyRule()) -> Any:
     part = select(text, rule)
     if rule.bit is not None:
         word = parse_number(part, rule.unit)
-        if not float(word).is_integer() or word < 0:
-            raise ValueError(f"{part!r} is not a status word (a non-negative integer)")
+        if not float(word).is_integer() or not 0 <= word < MAX_STATUS_WORD:
+            raise ValueError(f"{part!r} is not a status word (a non-negative integer below 2**32)")
         flag = bool((int(word) >> rule.bit) & 1)
         return flag if kind == "bool" else int(flag)
     if rule.words or kind == "bool":

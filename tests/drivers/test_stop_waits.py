@@ -53,3 +53,4 @@ def test_a_declared_wait_ends_at_a_stop_request():
     with pytest.raises(ReadStopped):
         Scope(session, d)._write("acquire", reapply=False)
     t.assert_done()
+
