@@ -11,6 +11,7 @@ shows each supply's output state and voltage and names ``benchwright safe`` whil
 
 from __future__ import annotations
 
+import signal
 import socket
 import time
 
@@ -25,6 +26,7 @@ from tests.integration.safety_cli import (
     second_session,
     sim_bench,
     supply_state,
+    the_run,
     wait_until_live,
     write_board,
     write_procedure,
@@ -166,3 +168,35 @@ def test_safe_does_not_believe_a_meter_answering_not_a_number(tmp_path):
     assert done.code == EXIT_ABORT, done
     assert "implausible reading" in done.stdout and "UNSAFE: bias at" in done.stderr
     assert state["output"] is False and abs(state["volts"]) < TOL, state
+
+
+def test_a_second_sigterm_cuts_the_ramp_down_short_with_the_output_off(tmp_path):
+    # 20 V at 5 V/s: the ramp-down after the first SIGTERM takes four seconds; the operator's
+    # second SIGTERM during it switches the output off at once (issue 19 item 1).
+    db = f"sqlite:///{tmp_path / 'results.db'}"
+    proc = write_procedure(tmp_path, volts=20.0, soak_s=30.0, limit_uA=None)
+    with sim_bench(tmp_path, write_board(tmp_path)) as (sim, bench):
+        child = Child(run_args(proc, bench, db, "--yes"), tmp_path)
+        try:
+            with second_session(sim) as watcher:
+                wait_until_live(watcher, 20.0, child)
+                child.proc.send_signal(signal.SIGTERM)
+                for _ in range(400):  # a guard of 20 s: the ramp-down starts at once
+                    if sim.instruments["bias"].settings.setpoint_V == 0.0:
+                        break
+                    time.sleep(0.05)
+                time.sleep(0.3)  # well into the four-second ramp
+                midway = supply_state(sim)
+                child.proc.send_signal(signal.SIGTERM)
+                done = child.wait()
+        finally:
+            child.kill()
+        state = supply_state(sim)
+    assert midway["output"] is True and 1.0 < midway["volts"] < 20.0, midway  # still ramping
+    assert done.code == EXIT_ABORT, done
+    assert_off_at_zero(state)
+    _run, events = the_run(db)
+    cut = [e for e in events if e.kind == "ramp_cut"]
+    assert len(cut) == 1 and "stop request" in cut[0].detail["error"]
+    k = [e.kind for e in events]
+    assert k.index("ramp_cut") < len(k) - 1 - k[::-1].index("output")  # then the output off
