@@ -17,7 +17,8 @@ from sequencer.reports.evidence import gather_evidence, snapshot_run
 @dataclass(frozen=True, kw_only=True)
 class CurvePoint:
     """One point of a series: ``series`` is ``transfer`` (x injected amplitude, y output height,
-    both mV) or ``s_curve`` (x threshold mV, y counts out of ``trials``)."""
+    both mV), ``s_curve`` (x threshold mV, y counts out of ``trials``) or ``pulse`` (the mean
+    pulse a timing was taken from: x time ns, y mV)."""
 
     step: str
     channel: int
@@ -47,11 +48,11 @@ def _step_of(snap: Any, channel: int, kinds: tuple[str, ...], output: str | None
 
 
 def read_series(store: Any, run_id: int) -> list[CurvePoint]:
-    """Every transfer-curve and S-curve point of run ``run_id``, by channel, then curve."""
+    """Every transfer-curve, S-curve and mean-pulse point of run ``run_id``, by channel, then curve."""
     snap = snapshot_run(store, run_id)
     points: list[CurvePoint] = []
     for channel in snap.channels:
-        transfer, s_curves, _pulses = gather_evidence(snap, channel)
+        transfer, s_curves, pulses = gather_evidence(snap, channel)
         for curve in transfer:
             step = _step_of(snap, channel, ("analyse.transfer",), curve.output)
             residuals = list(curve.residuals_mV) or [None] * len(curve.amplitudes_mV)
@@ -67,5 +68,13 @@ def read_series(store: Any, run_id: int) -> list[CurvePoint]:
                 points.append(CurvePoint(
                     step=step, channel=channel, output=None, series="s_curve", label=sc.label,
                     x=x, x_unit="mV", y=float(n), y_unit="counts", trials=sc.trials,
+                ))  # fmt: skip
+        for pulse in pulses:
+            step = _step_of(snap, channel, ("analyse.peaking", "analyse.rise"), pulse.output)
+            for i, y in enumerate(pulse.samples_mV):
+                points.append(CurvePoint(
+                    step=step, channel=channel, output=pulse.output or None, series="pulse",
+                    label=f"mean pulse {pulse.output} ({pulse.quantity})".replace("  ", " "),
+                    x=pulse.t0_ns + i * pulse.dt_ns, x_unit="ns", y=y, y_unit="mV",
                 ))  # fmt: skip
     return points

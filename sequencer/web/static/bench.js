@@ -200,7 +200,8 @@ function startCurves() {
   const curves = JSON.parse(data.textContent);
   document.querySelectorAll("figure.curve").forEach((fig) => {
     const c = curves[Number(fig.dataset.curve)];
-    plot(fig, {title: c.title, series: [{x: c.x, y: c.y, points: true}, {x: c.x, y: c.y}],
+    const series = c.series === "pulse" ? [{x: c.x, y: c.y}] : [{x: c.x, y: c.y, points: true}, {x: c.x, y: c.y}];
+    plot(fig, {title: c.title, series: series,
       xLabel: `${c.title} · x (${c.x_unit})`, yLabel: c.y_unit});
   });
 }

@@ -169,3 +169,23 @@ def test_transfer_residuals_are_the_distance_to_the_stored_line(recorded) -> Non
     for _, p in transfer.iterrows():
         line = fit[(p["channel"], p["output"], "gain")] * p["x"] + fit[(p["channel"], p["output"], "offset_mV")]
         assert p["residual"] == pytest.approx(p["y"] - line, abs=1e-6 * max(1.0, abs(p["y"])))
+
+
+def test_mean_pulse_series_is_the_stored_pulse(recorded) -> None:
+    """The exported mean pulse of each channel is the one the engine stored with its timing step:
+    its maximum (numpy.argmax as the reference) sits at the peak landmark the engine recorded,
+    within one sample, and after the trigger."""
+    from sequencer.reports.evidence import gather_evidence, snapshot_run
+
+    url, store = recorded
+    df = results.series(url, run=1)
+    pulses = df[df["series"] == "pulse"]
+    snap = snapshot_run(store, 1)
+    stored = {ch: gather_evidence(snap, ch)[2] for ch in snap.channels}
+    assert set(pulses["channel"]) == {ch for ch, p in stored.items() if p}
+    for ch, curve in pulses.groupby("channel"):
+        (pulse,) = stored[ch]
+        t, y = curve["x"].to_numpy(float), curve["y"].to_numpy(float)
+        assert len(y) == len(pulse.samples_mV) and np.array_equal(y, np.asarray(pulse.samples_mV))
+        assert pulse.peak_ns is not None and t[np.argmax(y)] > 0.0
+        assert abs(t[np.argmax(y)] - pulse.peak_ns) <= pulse.dt_ns

@@ -104,7 +104,7 @@ def test_run_page_shows_measurements_limits_and_curves(client) -> None:
     assert "fail" in html and "0.9 … 1.1" in html  # the gain limits of the invented limit set
     assert 'id="curves"' in html  # transfer curves and S-curves, drawn in the browser
     curves = json.loads(html.split('id="curves">')[1].split("</script>")[0])
-    assert {c["series"] for c in curves} == {"transfer", "s_curve"}
+    assert {c["series"] for c in curves} == {"transfer", "s_curve", "pulse"}
     assert client.get("/runs/999").status_code == 404
 
 
