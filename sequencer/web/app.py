@@ -117,7 +117,7 @@ async def _live_stream(request: Any) -> AsyncIterator[bytes]:
         for i in ids:
             s = live_snapshot(state.store, i, state.outlines, detail=False)
             out.append({k: s[k] for k in ("run_id", "board", "procedure", "status", "done", "total",
-                                          "percent", "eta_s", "current_step", "failed", "measurements")})  # fmt: skip
+                                          "percent", "eta_s", "current_step", "failed", "measurements", "quiet_s")})  # fmt: skip
         return out
 
     while time.monotonic() < deadline and not await request.is_disconnected():

@@ -7,7 +7,9 @@ and its board type; when that is impossible (a lab's board type missing here) th
 shows the steps done without a total or an ETA.
 
 ETA: the pace so far (elapsed time / steps finished) times the steps left: an estimate, labelled
-as such on the page.
+as such on the page.  ``quiet_s`` is the time since the run last stored a step: a run whose
+process died on another host stays ``running`` in the database, and the page says how long it
+has been silent instead of pretending it is moving (``QUIET_WARN_S``).
 """
 
 from __future__ import annotations
@@ -24,6 +26,7 @@ from sequencer.errors import BenchwrightError
 from sequencer.store.overview import last_position, latest_trace, run_counts
 
 VERDICT_RANK = {"": 0, "info": 1, "pass": 2, "fail": 3}
+QUIET_WARN_S = 120.0  # the page warns when a running run stored nothing for this long
 TRACE_POINTS = 400  # the latest trace is decimated to at most this many points
 
 
@@ -135,6 +138,8 @@ def live_snapshot(
     now = now or datetime.now(UTC)
     end = run.ended_at or now
     elapsed = max(0.0, (end - run.started_at).total_seconds())
+    last_at = counts.last_step_at or run.started_at
+    quiet = max(0.0, (now - last_at).total_seconds()) if run.status == "running" else None
     next_index = 0 if position is None else position + 1
     current = ""
     if run.status == "running" and total is not None and next_index < total:
@@ -149,6 +154,7 @@ def live_snapshot(
         "total": total,
         "percent": None if not total else round(100.0 * min(done, total) / total, 1),
         "elapsed_s": round(elapsed, 1),
+        "quiet_s": _round(quiet),
         "eta_s": None if run.status != "running" else _round(_eta(done, total, elapsed)),
         "plan_problem": outline.problem,
         "current_step": current,

@@ -3,6 +3,7 @@
 "use strict";
 
 const SVG = "http://www.w3.org/2000/svg";
+const QUIET_WARN_S = 120;  // as sequencer/web/live.py
 
 function el(name, attrs, text) {
   const node = document.createElementNS(SVG, name);
@@ -146,6 +147,7 @@ function renderSnapshot(s) {
     t += ` · ${s.measurements} values, ${s.failed} out of limits · elapsed ${duration(s.elapsed_s)}`;
     if (s.status === "running") t += s.eta_s !== null ? ` · about ${duration(s.eta_s)} left at the pace so far` : "";
     if (s.plan_problem) t += ` · ${s.plan_problem}`;
+    if (s.quiet_s !== null && s.quiet_s > QUIET_WARN_S) t += ` · WARNING: nothing stored for ${duration(s.quiet_s)}: is the bench still running?`;
     text.textContent = t;
   }
   const cur = document.getElementById("current-step");
@@ -188,7 +190,7 @@ function startLiveList() {
       tr.insertCell().textContent = r.procedure;
       tr.insertCell().textContent = r.total !== null ? `${r.done} / ${r.total} (${r.percent} %)` : `${r.done} steps`;
       tr.insertCell().textContent = duration(r.eta_s);
-      tr.insertCell().textContent = r.current_step;
+      tr.insertCell().textContent = r.quiet_s > QUIET_WARN_S ? `nothing stored for ${duration(r.quiet_s)}` : r.current_step;
       tr.insertCell().textContent = r.failed ? `${r.failed} of ${r.measurements}` : "";
     }
   });

@@ -118,6 +118,8 @@ def test_live_snapshot_progress_eta_and_current_step(db) -> None:
     # the pace so far: 40 s for the steps done, so the steps left take (total - done) × 40 s / done
     assert snap["eta_s"] == pytest.approx((total - live.done) * 40.0 / live.done, abs=0.1)
     assert [r["channel"] for r in snap["grid"]["rows"]] == list(range(1, 9))  # PA8: 8 channels
+    # the last step was stored at started + 2 s × done; 40 s after the start it has been quiet since
+    assert snap["quiet_s"] == pytest.approx(40.0 - 2.0 * live.done, abs=0.1)
 
 
 def test_the_stream_pushes_each_stored_step_and_ends_with_the_run(db, client) -> None:
