@@ -43,9 +43,10 @@ def _text(store: Any, what: str, fmt: str, sel: Any) -> str:
 
 @click.command()
 @db_option
-@click.option("--what", type=click.Choice(["measurements", "series", "traces", "runs"]),
-              default="measurements", show_default=True,
-              help="Judged values; transfer-curve and S-curve points; captured traces; or runs.")
+@click.option("--what", "whats", type=click.Choice(["measurements", "series", "traces", "runs"]),
+              multiple=True, default=("measurements",), show_default=True,
+              help="Judged values; curve points (transfer, S-curve, mean pulse); captured traces; or "
+                   "runs. Repeat it with --format root for several trees in one file.")
 @click.option("--run", "run_id", type=int, default=None)
 @click.option("--board", default=None)
 @click.option("--procedure", default=None)
@@ -56,7 +57,7 @@ def _text(store: Any, what: str, fmt: str, sel: Any) -> str:
 @click.option("--out", "out_file", type=click.Path(dir_okay=False), default=None,
               help="Write to this file (needed for parquet and root; else stdout).")
 @handles_errors
-def export(db: str | None, what: str, run_id: int | None, board: str | None,
+def export(db: str | None, whats: tuple[str, ...], run_id: int | None, board: str | None,
            procedure: str | None, batch: str | None, since: Any, until: Any, fmt: str,
            out_file: str | None) -> None:
     """Results in open formats: one row per value (or curve point, trace, run) with its keys."""
@@ -65,19 +66,24 @@ def export(db: str | None, what: str, run_id: int | None, board: str | None,
 
     if fmt in BINARY and not out_file:
         raise click.UsageError(f"--format {fmt} writes a file: give --out FILE")
+    whats = tuple(dict.fromkeys(whats))
+    if len(whats) > 1 and fmt != "root":
+        raise click.UsageError("several --what tables go into one file only with --format root")
+    what = whats[0]
     sel = Selection(run_id=run_id, board=board, procedure=procedure, batch=batch,
                     since=_utc(since), until=_utc(until))
     with compose.open_existing_store(db, env()) as store:
         if fmt in BINARY:
             from sequencer.results.formats import write_parquet, write_root
 
-            table = read_table(store, what, sel)
+            tables = [read_table(store, w, sel) for w in whats]
             path = Path(out_file or "")
             if fmt == "parquet":
-                write_parquet(table, path)
+                write_parquet(tables[0], path)
             else:
-                write_root([table], path)
-            click.echo(f"{len(table.rows)} {what} row(s) written to {path}", err=True)
+                write_root(tables, path)
+            for table in tables:
+                click.echo(f"{len(table.rows)} {table.name} row(s) written to {path}", err=True)
             return
         text = _text(store, what, fmt, sel)
     if out_file:

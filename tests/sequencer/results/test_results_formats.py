@@ -189,3 +189,20 @@ def test_mean_pulse_series_is_the_stored_pulse(recorded) -> None:
         assert len(y) == len(pulse.samples_mV) and np.array_equal(y, np.asarray(pulse.samples_mV))
         assert pulse.peak_ns is not None and t[np.argmax(y)] > 0.0
         assert abs(t[np.argmax(y)] - pulse.peak_ns) <= pulse.dt_ns
+
+
+def test_several_tables_in_one_root_file(recorded, out: Path) -> None:
+    url, store = recorded
+    path = out / "batch.root"
+    result = _invoke("export", "--db", url, "--batch", "NR-B07", "--what", "measurements", "--what", "series",
+                     "--what", "runs", "--format", "root", "--out", str(path))  # fmt: skip
+    assert result.exit_code == 0, result.output
+    with uproot.open(path) as f:
+        trees = {k.split(";")[0] for k, v in f.classnames().items() if v == "TTree"}
+    assert {"measurements", "series", "runs"} <= trees
+    runs = read_root(path, "runs")
+    assert runs["run_id"] == [r.id for r in store.list_runs(batch="NR-B07")]
+    assert runs["procedure_version"] == ["2.0", "2.0"]  # versions stay text
+    refused = _invoke("export", "--db", url, "--what", "series", "--what", "runs", "--format", "parquet",
+                      "--out", str(out / "x.parquet"))  # fmt: skip
+    assert refused.exit_code == 2 and "--format root" in refused.output
