@@ -18,6 +18,7 @@ from sequencer.errors import (
     ProtocolError,
     RunAborted,
     SafetyLimitError,
+    StorageFault,
     StoreError,
     TransportError,
 )
@@ -51,6 +52,9 @@ def handles_errors(func: F) -> F:
         except LocatedError as exc:
             _debug(debug)
             fail(EXIT_INPUT, "\n".join(str(p) for p in exc.problems))
+        except StorageFault as exc:  # the disk or the database file failed: not bad input
+            _debug(debug)
+            fail(EXIT_ABORT, f"aborted: storage fault: {exc}")
         except (SafetyLimitError, StoreError) as exc:
             _debug(debug)
             fail(EXIT_INPUT, f"error: {exc}")
@@ -67,6 +71,11 @@ def handles_errors(func: F) -> F:
             raise  # click's own usage errors and exits
         except Exception as exc:  # a bug: one line for the operator, the traceback with --debug
             _debug(debug)
+            from sequencer.store.faults import first_line, storage_cause
+
+            cause = storage_cause(exc)  # a database error that escaped the store's mapping
+            if cause:
+                fail(EXIT_ABORT, f"aborted: storage fault: {cause} ({first_line(exc)})")
             fail(EXIT_ABORT, f"internal error: {type(exc).__name__}: {exc} (a bug: please report it; "
                  "--debug shows the traceback)")
 

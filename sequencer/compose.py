@@ -24,6 +24,7 @@ from sequencer.engine import (
     check_plan_against_bench,
     describe_run,
 )
+from sequencer.engine.context import StopFlag
 from sequencer.engine.log import RunLog
 from sequencer.engine.preflight import hazard_steps
 from sequencer.engine.progress import ProgressDisplay
@@ -268,6 +269,8 @@ def execute(
         completed = None
         info = None
         overridden = check_instruments(bench.check(date.today()), spec, request)
+        stop = StopFlag()
+        log = open_log(request.log_path, stop)
         if resume_run is None:
             info = describe_run(
                 plan, bench, operator=request.operator, batch=request.batch, repeat_of=request.repeat_of
@@ -294,8 +297,7 @@ def execute(
             display = ProgressDisplay(plan, force_terminal=_plain_progress(plan, request))
             subscribers.append(display)
             closers.append(display.close)
-        if request.log_path is not None:
-            log = RunLog(request.log_path)
+        if log is not None:
             subscribers.append(log)
             closers.append(log.close)
         subscribers.extend(request.extra_subscribers)
@@ -309,13 +311,26 @@ def execute(
         try:
             runner = Runner(
                 plan, bench, run_id=run_id, subscribers=subscribers, options=options,
-                completed=completed, info=info,
+                completed=completed, info=info, stop=stop,
             )
             outcome = runner.run()
         finally:
             for close in closers:
                 close()
     return RunResult(run_id=run_id, outcome=outcome)
+
+
+def open_log(path: Path | None, stop: StopFlag) -> RunLog | None:
+    """The ``--log`` file, opened before the run is recorded; a write that fails later (a full
+    device) stops the run like a signal would: safe state, run ``aborted``, exit 3."""
+    if path is None:
+        return None
+    try:
+        return RunLog(path, on_failure=lambda why: stop.request("log", why))
+    except OSError as exc:
+        raise ConfigError(
+            [Problem(Location("<options>", 1, 1), f"--log: cannot open {path}: {exc.strerror or exc}")]
+        ) from None
 
 
 def check_instruments(problems: Sequence[str], spec: BenchSpec, request: RunRequest) -> tuple[str, ...]:

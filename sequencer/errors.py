@@ -19,6 +19,7 @@ from drivers.errors import (
 
 __all__ = [
     "BenchwrightError",
+    "CertificateFileError",
     "ConfigError",
     "ConnectionClosed",
     "ConnectionRefused",
@@ -32,6 +33,7 @@ __all__ = [
     "ProtocolError",
     "RunAborted",
     "SafetyLimitError",
+    "StorageFault",
     "StoreError",
     "TransportError",
 ]
@@ -41,8 +43,17 @@ class ProcedureError(LocatedError):
     """A procedure (or limits, batch file) is wrong; every problem located."""
 
 
+class CertificateFileError(LocatedError):
+    """A file given to ``verify`` is not a benchwright certificate (bad input, exit 2)."""
+
+
 class StoreError(BenchwrightError):
     """The results database cannot be used (refused, newer schema, missing run)."""
+
+
+class StorageFault(StoreError):
+    """The storage under the results database failed (disk full, I/O error, damaged file): not bad
+    input; the CLI exits 3 (``sequencer.store.faults`` tells the causes apart)."""
 
 
 class RunAborted(BenchwrightError):

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
 from types import TracebackType
 from typing import IO
@@ -63,22 +64,42 @@ def _bound(x: float | None) -> str:
 
 
 class RunLog:
-    """Append one line per event to ``path`` (flushed per line, so a killed run keeps its log)."""
+    """Append one line per event to ``path`` (flushed per line, so a killed run keeps its log).
 
-    def __init__(self, path: str | Path) -> None:
+    A write that fails (a full device, an I/O error) raises, unless ``on_failure`` is given: then it
+    is called once with one line naming the cause (the CLI asks the run to stop: safe state, run
+    ``aborted``), ``failure`` keeps that line and later events are not written.
+    """
+
+    def __init__(self, path: str | Path, *, on_failure: Callable[[str], None] | None = None) -> None:
         self.path = Path(path)
+        self.on_failure = on_failure
+        self.failure = ""
         self._file: IO[str] | None = self.path.open("a", encoding="utf-8")
 
     def __call__(self, event: Event) -> None:
+        if self.failure:
+            return
         if self._file is None:
             raise ValueError(f"run log {self.path} is closed")
-        self._file.write(format_event(event).replace("\n", " ") + "\n")
-        self._file.flush()
+        try:
+            self._file.write(format_event(event).replace("\n", " ") + "\n")
+            self._file.flush()
+        except OSError as exc:
+            if self.on_failure is None:
+                raise
+            self.failure = f"cannot write the run log {self.path}: {exc.strerror or exc}"
+            self.on_failure(self.failure)
 
     def close(self) -> None:
         if self._file is not None:
-            self._file.close()
-            self._file = None
+            file, self._file = self._file, None
+            try:
+                file.close()
+            except OSError as exc:  # the last buffered line: kept as the failure, not raised
+                if self.on_failure is None:
+                    raise
+                self.failure = self.failure or f"cannot close the run log {self.path}: {exc.strerror}"
 
     def __enter__(self) -> RunLog:
         return self

@@ -58,6 +58,7 @@ class Runner:
         completed: Mapping[str, CompletedStepLike] | None = None,
         clock: Callable[[], datetime] = utc_now,
         info: RunInfo | None = None,
+        stop: StopFlag | None = None,
     ) -> None:
         self.plan = plan
         self.bench = bench
@@ -68,7 +69,7 @@ class Runner:
         self.clock = clock
         self.info = info
         self.handlers = handler_table()
-        self.stop = StopFlag()
+        self.stop = stop if stop is not None else StopFlag()  # shared with whoever may stop it
         self._ctx: RunContext | None = None
 
     # -- events -------------------------------------------------------------------------------

@@ -23,7 +23,7 @@ from html.parser import HTMLParser
 from pathlib import Path
 from typing import Any
 
-from sequencer.errors import StoreError
+from sequencer.errors import CertificateFileError, Location, Problem, StoreError
 
 from .certificate_data import (
     SCHEMA,
@@ -61,10 +61,11 @@ def verify_certificate(store: Any, path: Path | str) -> VerifyResult:
     ``ValueError`` if the file is not a benchwright certificate at all.
     """
     p = Path(path)
-    embedded = _read_pdf(p) if p.suffix.lower() == ".pdf" else _read_html(p)
+    embedded = _read_certificate(p)
     meta = embedded.meta
-    if meta.get("schema") != SCHEMA:
-        raise ValueError(f"{p}: not a benchwright certificate (schema {meta.get('schema')!r})")
+    if not isinstance(meta, dict) or meta.get("schema") != SCHEMA:
+        schema = meta.get("schema") if isinstance(meta, dict) else None
+        raise _not_a_certificate(p, f"schema {schema!r}")
     printed = str(meta.get("data_sha256", ""))
     problems: list[str] = []
     if data_sha256(embedded.data) != printed:
@@ -178,20 +179,44 @@ def _squeezed(text: str) -> str:
     return "".join(text.split())
 
 
+def _not_a_certificate(path: Path, why: str) -> CertificateFileError:
+    return CertificateFileError(
+        [Problem(Location(str(path), 1, 1), f"not a benchwright certificate ({why})")]
+    )
+
+
+def _read_certificate(path: Path) -> _Embedded:
+    """The embedded data of a certificate file; :class:`CertificateFileError` (exit 2) for any
+    other file, whatever its bytes: a PDF must start with ``%PDF-`` (ISO 32000-1 §7.5.2)."""
+    try:
+        if path.suffix.lower() == ".pdf":
+            with path.open("rb") as f:
+                if f.read(5) != b"%PDF-":
+                    raise _not_a_certificate(path, "no PDF header")
+            return _read_pdf(path)
+        return _read_html(path)
+    except OSError as exc:
+        raise _not_a_certificate(path, f"cannot read it: {exc.strerror or exc}") from None
+    except ValueError as exc:  # also UnicodeDecodeError, and pypdf's errors mapped in _read_pdf
+        raise _not_a_certificate(path, str(exc).removeprefix(f"{path}: ")) from None
+
+
 def _read_pdf(path: Path) -> _Embedded:
     try:
         from pypdf import PdfReader
     except ImportError as exc:  # pragma: no cover - depends on the environment
         raise ImportError("verifying a PDF certificate needs pypdf: pip install pypdf") from exc
-    reader = PdfReader(str(path))
-    keywords = (reader.metadata or {}).get("/Keywords", "")
+    from pypdf.errors import PyPdfError
+
     try:
+        reader = PdfReader(str(path))
+        keywords = (reader.metadata or {}).get("/Keywords", "")
         meta = json.loads(str(keywords))
         payload = reader.attachments[ATTACHMENT_NAME][0]
         data = json.loads(payload.decode("utf-8"))
-    except (ValueError, KeyError, IndexError) as exc:
+        text = "\n".join(page.extract_text() or "" for page in reader.pages)
+    except (ValueError, KeyError, IndexError, PyPdfError) as exc:
         raise ValueError(f"{path}: no benchwright certificate data in this PDF") from exc
-    text = "\n".join(page.extract_text() or "" for page in reader.pages)
     return _Embedded(meta=meta, data=data, visible=None, page_text=text)
 
 

@@ -22,6 +22,7 @@ from sequencer.events import Event, RunInfo
 from sequencer.inputs import RunInput
 from sequencer.store import lifecycle, queries
 from sequencer.store.connect import database_exists, open_engine, writer
+from sequencer.store.faults import as_store_error, refuse_damaged
 from sequencer.store.liveness import this_process
 from sequencer.store.migrate import current_revisions, ensure_schema
 from sequencer.store.recording import Recorder
@@ -37,17 +38,12 @@ from sequencer.store.records import (
 )
 
 
-def _first_line(exc: BaseException) -> str:
-    orig = getattr(exc, "orig", None) or exc
-    return str(orig).strip().splitlines()[0] if str(orig).strip() else type(orig).__name__
-
-
 @contextmanager
 def _as_store_error(what: str) -> Iterator[None]:
     try:
         yield
     except SQLAlchemyError as exc:
-        raise StoreError(f"{what}: {_first_line(exc)}") from exc
+        raise as_store_error(what, exc) from exc
 
 
 class Store:
@@ -75,6 +71,7 @@ class Store:
                 if not create:
                     with engine.connect() as conn:
                         if not current_revisions(conn):
+                            refuse_damaged(conn, where)
                             raise StoreError(f"no database at {url} (no benchwright tables there)")
                 ensure_schema(engine)
         except BaseException:
@@ -120,7 +117,7 @@ class Store:
             path = getattr(event, "path", "")
             where = f" step {path}" if path else ""
             what = f"cannot record {type(event).__name__} of run {event.run_id}{where}"
-            raise StoreError(f"{what}: {_first_line(exc)}") from exc
+            raise as_store_error(what, exc) from exc
 
     @property
     def subscriber(self) -> Callable[[Event], None]:

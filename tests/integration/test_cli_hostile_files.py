@@ -53,3 +53,39 @@ def test_bench_address_with_a_newline_is_bad_input_located(tmp_path: Path) -> No
     assert code == 2, err
     m = LOCATED.match(err.strip())
     assert m and (m["line"], m["col"]) == ("3", "21") and "control character" in err, err
+
+
+# -- storage faults at the command line ----------------------------------------------------------
+
+ROOT = Path(__file__).resolve().parents[2]
+QUICK = ROOT / "procedures" / "examples" / "quick-gain.yaml"
+BOARD = ROOT / "drivers" / "sim" / "boards" / "example-pa8.yaml"
+
+
+def test_a_log_on_a_full_device_stops_the_run_cleanly(tmp_path: Path) -> None:
+    """/dev/full: every write fails with ENOSPC (Linux null(4) man page), as on a full disk."""
+    from sequencer.store import Store
+
+    url = f"sqlite:///{tmp_path / 'results.db'}"
+    code, _, err = invoke("run", str(QUICK), "--sim", str(BOARD), "--db", url, "--yes",
+                          "--log", "/dev/full")
+    assert code == 3, err
+    last = [line for line in err.splitlines() if line.strip()][-1]
+    assert last.startswith("aborted: cannot write the run log /dev/full: No space left on device")
+    with Store.open(url, create=False) as store:
+        (run,) = store.list_runs()
+        steps = store.steps(run.id)
+    assert run.status == "aborted" and "run log" in run.reason
+    assert [s.path for s in steps if s.path.startswith("cleanup/")]  # the cleanup block ran
+
+
+def test_verify_of_a_file_that_is_no_certificate_is_bad_input(tmp_path: Path) -> None:
+    other = tmp_path / "notes.pdf"
+    other.write_bytes(b"not a pdf at all")
+    from sequencer.store import Store
+
+    url = f"sqlite:///{tmp_path / 'results.db'}"
+    Store.open(url).close()  # an empty results database
+    code, _, err = invoke("verify", str(other), "--db", url)
+    assert code == 2, err
+    assert LOCATED.match(err.strip()) and "not a benchwright certificate" in err, err

@@ -10,6 +10,7 @@ import html5lib
 import pytest
 from pypdf import PdfReader, PdfWriter
 
+from sequencer.errors import CertificateFileError
 from sequencer.reports import certify_run, gather_certificates, verify_certificate
 from sequencer.reports.certificate_pdf import ATTACHMENT_NAME
 from sequencer.store import Store
@@ -129,8 +130,21 @@ def test_a_certificate_of_a_run_missing_from_the_database(certified, tmp_path):
 def test_not_a_certificate(store, tmp_path):
     page = tmp_path / "page.html"
     page.write_text("<!DOCTYPE html><html><head><title>x</title></head><body></body></html>")
-    with pytest.raises(ValueError, match="no benchwright certificate data"):
-        verify_certificate(store, page)
+    with pytest.raises(CertificateFileError, match="no benchwright certificate data"):
+        verify_certificate(store, page)  # bad input (exit 2), located at the file
+
+
+@pytest.mark.parametrize(
+    ("name", "content"),
+    [("notes.pdf", b"hello"), ("results.db", bytes(range(256)) * 8), ("page.html", b"\xff\xfe<x>")],
+)
+def test_any_other_file_is_a_located_refusal(store, tmp_path, name, content):
+    path = tmp_path / name
+    path.write_bytes(content)
+    with pytest.raises(CertificateFileError) as caught:
+        verify_certificate(store, path)
+    (problem,) = caught.value.problems
+    assert str(problem).startswith(f"{path}:1:1: not a benchwright certificate (")
 
 
 def test_markup_in_stored_text_neither_breaks_the_html_nor_verify(store, tmp_path):
