@@ -40,5 +40,6 @@ QUANTITY_UNITS: Mapping[str, str] = MappingProxyType(
         "light_yield_pe": "p.e.",
         "muon_rate_hz": "Hz",
         "muon_efficiency_pct": "%",
+        "baseline_mV": "mV",
     }
 )

@@ -12,9 +12,13 @@ key                           default    meaning
 ``board_type``                PA8        printed in the identity of the bench
 ``polarity``                  positive   ``negative``: the fast outputs (x1, x5) swing negative
 ``inverter``                  false      an inverter stage after the preamp flips the fast outputs
+``output_polarity``           (none)     per output, ``positive`` or ``negative``, e.g. ``{shaped:
+                                         negative}``; overrides ``polarity``/``inverter`` for that
+                                         output (the shaped output is positive unless named here)
 ``pulse.rise_ns``             4.0        10-90 % rise time of the fast preamp pulse (ns)
 ``pulse.decay_ns``            40.0       decay time constant of the fast pulse (ns)
-``pulse_delay_ns``            0.0        the pulses start this long after the trigger instant
+``pulse_delay_ns``            0.0        the pulses start this long after the trigger instant (a
+                                         cable delay: every output, the discriminator unaffected)
 ``shaper.gain``               1.0        shaped peak = gain_x1 * A * shaper.gain (before tanh)
 ``adc_bits``                  12         digitizer resolution (6-16 bits)
 ``time_scale``                0.0        counter gates last gate_time * time_scale real seconds
@@ -140,6 +144,7 @@ class BoardSpec:
     faults: tuple[FaultSpec, ...] = ()
     polarity: str = "positive"
     inverter: bool = False
+    output_polarity: Mapping[str, str] = field(default_factory=lambda: MappingProxyType({}))
     pulse_delay_ns: float = 0.0
     adc_bits: int = 12
     time_scale: float = 0.0
@@ -158,6 +163,14 @@ class BoardSpec:
         """+1 or -1: the sign of the fast outputs after polarity and inverter."""
         sign = -1 if self.polarity == "negative" else 1
         return -sign if self.inverter else sign
+
+    def sign(self, output: str) -> int:
+        """+1 or -1: the direction pulses on ``output`` swing (``output_polarity`` first, then the
+        fast outputs' ``fast_sign``; the shaped output is positive-going by default)."""
+        named = self.output_polarity.get(output)
+        if named is not None:
+            return -1 if named == "negative" else 1
+        return 1 if output == "shaped" else self.fast_sign
 
     def gain(self, channel: int, output: str) -> float:
         """Small-signal gain of ``output`` of board channel ``channel`` (1-based)."""

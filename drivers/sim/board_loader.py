@@ -182,6 +182,7 @@ _TOP: dict[str, Check] = {
     "seed": _integer(0, 2**63 - 1),
     "polarity": _choice("positive", "negative"),
     "inverter": _boolean,
+    "output_polarity": lambda v: v,
     "pulse_delay_ns": _number(0.0, 1e6),
     "adc_bits": _integer(6, 16),
     "time_scale": _number(0.0, 1e3),
@@ -230,6 +231,12 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
         if "command_sets" in top
         else {}
     )
+    if "output_polarity" in top:
+        polarity = _choice("positive", "negative")
+        table = {name: polarity for name in ("x1", "x5", "shaped")}
+        top["output_polarity"] = MappingProxyType(
+            reader.mapping(top["output_polarity"], table, "output_polarity")
+        )
     if problems:
         raise ConfigError(sorted(problems, key=lambda p: (p.location.line, p.location.column)))
     extras = {

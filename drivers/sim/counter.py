@@ -6,9 +6,12 @@ Per gate of G seconds on the selected board channel c (``ROUTe:TERMinals:CHANnel
   N trials (burst count in burst mode, else frequency × G) fires with probability
   ``ε = ½ erfc((thr - offset - h) / (√2 σ))`` where h is the fast x1 pulse height S·tanh(gain_x1·A/S)
   (0 for a dead channel), thr the threshold DAC level of c, offset its ``discriminator_offset_mV`` and
-  σ = noise_in_mV · gain_x1; the count is drawn from Binomial(N, ε);
+  σ = noise_in_mV · gain_x1; the count is drawn from Binomial(N, ε).  On a negative-going x1
+  output (``BoardSpec.sign("x1")`` = -1) h is negative and the discriminator fires when the pulse
+  goes *below* thr - offset: ε = ½ erfc((h - (thr - offset)) / (√2 σ)); the 50 % threshold is
+  h + offset for either polarity;
 * **noise firings** when no pulse is injected into c: Poisson with the Rice rate
-  ``ν₀ exp(-u²/2σ²)``, u = thr - offset, ν₀ = √3/(2π·discriminator_tau_ns) (CR-RC², REFERENCES.md);
+  ``ν₀ exp(-u²/2σ²)``, u = ±(thr - offset) in the output's direction, ν₀ = √3/(2π·discriminator_tau_ns) (CR-RC², REFERENCES.md);
 * **dark pulses** (board key ``dark_rate_hz``, default 0): Poisson at that rate, each of height
   ``dark_height_mV`` firing with the same erfc probability.
 
@@ -92,11 +95,14 @@ class Counter(SimInstrument):
         c = self.channel
         spec = board.channels[c - 1]
         sigma = spec.noise_in_mV * spec.gain_x1
-        u = self.threshold.level_mV(c) - spec.discriminator_offset_mV
+        # everything in the direction the x1 output swings: a negative-going output fires when
+        # the pulse goes below a negative threshold
+        sign = board.sign("x1")
+        u = sign * (self.threshold.level_mV(c) - spec.discriminator_offset_mV)
         injected = self.pulser.settings.output_on and self.switch.injected == c
         trials = self.pulser.trials(self.gate_s) if injected else 0
         p = firing_probability(
-            discriminator_height_mV(board, c, self.pulser.amplitude_mV), u, sigma
+            sign * discriminator_height_mV(board, c, self.pulser.amplitude_mV), u, sigma
         )
         rate = 0.0 if injected else rice_rate_hz(u, sigma, board.discriminator_tau_ns)
         if board.dark_rate_hz > 0 and not spec.dead:

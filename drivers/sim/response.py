@@ -2,9 +2,11 @@
 
 The fast output ``k`` (x1, x5) of channel ``c`` for an injected amplitude A (mV at the injection
 input) is ``baseline_mV + sign · S · tanh(gain_k · A / S) · p(t)`` with S = ``saturation_mV`` and p the
-unit fast pulse (:func:`drivers.sim.physics.fast_pulse`); ``sign`` is -1 for ``polarity: negative``,
-flipped again by ``inverter: true``.  The shaped output is ``baseline_mV + S · tanh(gain_x1 ·
-shaper.gain · A / S) · h(t)`` with h the unit-peak CR-RCⁿ or CR²-RCⁿ response (always positive-going).
+unit fast pulse (:func:`drivers.sim.physics.fast_pulse`); ``sign`` is :meth:`BoardSpec.sign` of the
+output (-1 for ``polarity: negative``, flipped again by ``inverter: true``, or as
+``output_polarity`` names it).  The shaped output is ``baseline_mV + sign · S · tanh(gain_x1 ·
+shaper.gain · A / S) · h(t)`` with h the unit-peak CR-RCⁿ or CR²-RCⁿ response (positive-going
+unless ``output_polarity`` makes it negative).
 Channels c ± 1 see ``crosstalk_pct / 100`` times the aggressor's pulse on the same output.  A dead
 channel shows its baseline and noise only (no pulse, no crosstalk in or out).  Pulses start at
 ``t = pulse_delay_ns`` after the trigger.
@@ -58,9 +60,12 @@ def output_signal_mV(
     tt = t - board.pulse_delay_ns
     if output == "shaped":
         shaper = board.shaper
-        return signal + height * shaped_pulse(tt, shaper.order, shaper.tau_ns, shaper.kind)
+        shape = shaped_pulse(tt, shaper.order, shaper.tau_ns, shaper.kind)
+        return signal + board.sign(output) * height * shape
     pulse = board.pulse
-    return signal + board.fast_sign * height * fast_pulse(tt, pulse.tau_rise_ns, pulse.tau_decay_ns)
+    return signal + board.sign(output) * height * fast_pulse(
+        tt, pulse.tau_rise_ns, pulse.tau_decay_ns
+    )
 
 
 def noise_rms_mV(board: BoardSpec, channel: int, output: str) -> float:
@@ -74,7 +79,8 @@ def noise_tau_ns(board: BoardSpec, output: str) -> float:
 
 
 def discriminator_height_mV(board: BoardSpec, channel: int, amplitude_mV: float) -> float:
-    """Fast x1 pulse height above baseline seen by the (AC-coupled) discriminator; 0 if dead."""
+    """Fast x1 pulse height from the baseline seen by the (AC-coupled) discriminator, signed like
+    the x1 output (negative for a negative-going one); 0 if dead."""
     if board.channels[channel - 1].dead:
         return 0.0
-    return abs(pulse_height_mV(board, channel, "x1", amplitude_mV))
+    return board.sign("x1") * abs(pulse_height_mV(board, channel, "x1", amplitude_mV))

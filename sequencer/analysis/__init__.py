@@ -25,7 +25,7 @@ from .landau import (
     landau_gauss_pdf,
 )
 from .levels import state_levels
-from .lines import LineFit, fit_line, inl_percent
+from .lines import LineFit, fit_line, inl_percent, inl_with_uncertainty
 from .noise import ELEMENTARY_CHARGE_C, TraceAverage, average_traces, enc_electrons
 from .photoelectrons import (
     MeanPhotoelectrons,
@@ -97,6 +97,7 @@ __all__ = [
     "fit_sine_4",
     "generalised_poisson_pmf",
     "inl_percent",
+    "inl_with_uncertainty",
     "landau_gauss_pdf",
     "mean_photoelectrons",
     "noise_rate",

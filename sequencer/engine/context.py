@@ -90,6 +90,9 @@ class RunContext:
         self.traces: list[NamedTrace] = []
         self.readings: list[Reading] = []
         self.measurements: list[Measurement] = []
+        # scope input -> (low, high) rails in mV, from the last scope.input step: a sample there is
+        # clipped (analyses refuse it)
+        self.input_rails: dict[int, tuple[float, float]] = {}
 
     @property
     def path(self) -> str:

@@ -7,7 +7,7 @@
     channels: 8
     outputs:                      # in order; nominal_gain in V/V for the outputs that have one
       x1: {nominal_gain: 1.0}
-      x5: {nominal_gain: 5.0}
+      x5: {nominal_gain: 5.0, polarity: negative}   # polarity: positive (default) or negative
       shaped: {}
 
 :func:`load_board_type` gives a :class:`BoardInfo` template (serial empty); :func:`board_info` fills in
@@ -31,7 +31,8 @@ from .checking import check_keys, require_keys
 from .plan_model import BoardInfo
 
 BOARD_KEYS = ("board_type", "description", "channels", "outputs")
-OUTPUT_KEYS = ("nominal_gain", "description")
+OUTPUT_KEYS = ("nominal_gain", "polarity", "description")
+POLARITIES = {"positive": 1, "negative": -1}
 MAX_CHANNELS = 1024
 _OUTPUT_NAME = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.+-]*$")
 
@@ -78,18 +79,27 @@ def parse_board_type(text: str | bytes, file: str) -> BoardInfo:
                 data.where("channels"), f"channels: needs a whole number from 1 to {MAX_CHANNELS}"
             )
         )
-    outputs, gains = _outputs(data, problems)
+    outputs, gains, signs = _outputs(data, problems)
     if problems:
         raise ProcedureError(problems)
     return BoardInfo(
-        serial="", board_type=name, channels=channels, outputs=outputs, nominal_gain=gains
+        serial="",
+        board_type=name,
+        channels=channels,
+        outputs=outputs,
+        nominal_gain=gains,
+        polarity=signs,
+        source=file,
     )
 
 
-def _outputs(data: YamlMap, problems: list[Problem]) -> tuple[tuple[str, ...], dict[str, float]]:
+def _outputs(
+    data: YamlMap, problems: list[Problem]
+) -> tuple[tuple[str, ...], dict[str, float], dict[str, int]]:
     raw = data.get("outputs")
+    signs: dict[str, int] = {}
     if raw is None:
-        return (), {}
+        return (), {}, signs
     if not isinstance(raw, YamlMap) or not raw:
         problems.append(
             Problem(
@@ -97,7 +107,7 @@ def _outputs(data: YamlMap, problems: list[Problem]) -> tuple[tuple[str, ...], d
                 "outputs: needs a mapping of output name: {nominal_gain: ...}",
             )
         )
-        return (), {}
+        return (), {}, signs
     gains: dict[str, float] = {}
     for key, spec in raw.items():
         if not isinstance(key, str) or not _OUTPUT_NAME.match(key):
@@ -116,6 +126,13 @@ def _outputs(data: YamlMap, problems: list[Problem]) -> tuple[tuple[str, ...], d
             )
             continue
         check_keys(spec, OUTPUT_KEYS, problems, f"output {key!r}")
+        polarity = spec.get("polarity", "positive")
+        if polarity not in POLARITIES:
+            problems.append(
+                Problem(spec.where("polarity"), "polarity: needs positive or negative")
+            )
+        else:
+            signs[key] = POLARITIES[polarity]
         gain = spec.get("nominal_gain")
         if gain is None:
             continue
@@ -130,7 +147,7 @@ def _outputs(data: YamlMap, problems: list[Problem]) -> tuple[tuple[str, ...], d
             )
             continue
         gains[key] = float(gain)
-    return tuple(str(k) for k in raw), gains
+    return tuple(str(k) for k in raw), gains, signs
 
 
 def load_board_type(name_or_path: str | Path) -> BoardInfo:

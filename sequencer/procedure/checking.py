@@ -15,7 +15,7 @@ from .values import Template, references
 
 IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 SEGMENT = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.=+-]*$")
-BOARD_FIELDS = ("serial", "type", "channels", "outputs", "nominal_gain")
+BOARD_FIELDS = ("serial", "type", "channels", "outputs", "nominal_gain", "polarity")
 RESERVED = frozenset({"board", "channel", "output", *FUNCTIONS, *KEYWORDS})
 
 

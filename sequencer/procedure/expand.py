@@ -49,6 +49,7 @@ def board_namespace(board: BoardInfo) -> dict[str, Any]:
         "channels": board.channels,
         "outputs": list(board.outputs),
         "nominal_gain": dict(board.nominal_gain),
+        "polarity": {out: board.sign(out) for out in board.outputs},
     }
 
 

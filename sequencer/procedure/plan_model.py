@@ -26,6 +26,12 @@ class BoardInfo:
     channels: int
     outputs: tuple[str, ...] = ("x1", "x5", "shaped")
     nominal_gain: Mapping[str, float] = field(default_factory=dict)   # output -> V/V
+    polarity: Mapping[str, int] = field(default_factory=dict)   # output -> +1 / -1 (absent: +1)
+    source: str = ""                 # the board-type file it came from
+
+    def sign(self, output: str | None) -> int:
+        """+1 for a positive-going output (the default), -1 for a negative-going one."""
+        return -1 if output is not None and self.polarity.get(output, 1) < 0 else 1
 
 
 @dataclass(frozen=True)

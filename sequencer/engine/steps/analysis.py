@@ -21,6 +21,7 @@ from sequencer.procedure.plan_model import PlannedStep
 from ..context import Reading, RunContext
 from ..judge import channel_of, measure, output_of
 from ..records import NamedTrace, StepResult
+from .refusing import AnalysisRefused, clip_reasons, merge, polarity, refuse_any
 from .series import pulse_series, s_curve_series, transfer_series
 
 
@@ -84,8 +85,10 @@ def _gain(ctx: RunContext, step: PlannedStep, output: str | None) -> float:
     if found is None:
         raise AnalysisInputError(f"no gain measured earlier for {where}: give gain:")
     gain, unc = found.value, found.uncertainty
-    if not math.isfinite(gain) or gain == 0.0 or (
-        unc is not None and abs(gain) <= GAIN_SIGNIFICANCE * unc
+    if (
+        not math.isfinite(gain)
+        or gain == 0.0
+        or (unc is not None and abs(gain) <= GAIN_SIGNIFICANCE * unc)
     ):
         spread = "" if unc is None else f" ± {unc:.2g}"
         raise AnalysisInputError(
@@ -99,7 +102,9 @@ def _n_baseline(step: PlannedStep, items: list[Any]) -> int:
     """The step's ``n_baseline``, or (0, the default) every pre-trigger sample of its traces."""
     trace = items[0].trace
     try:
-        return an.pretrigger_baseline(int(step.args.get("n_baseline") or 0), trace.t0_ns, trace.dt_ns)
+        return an.pretrigger_baseline(
+            int(step.args.get("n_baseline") or 0), trace.t0_ns, trace.dt_ns
+        )
     except ValueError as exc:
         raise AnalysisInputError(f"traces {items[0].name!r}: {exc}") from None
 
@@ -117,24 +122,64 @@ def _has_pulse(rows: np.ndarray, n_baseline: int) -> bool:
     return height > 0.0 and height > MIN_PULSE_SNR * float(base.std())
 
 
+def _heights(
+    ctx: RunContext, step: PlannedStep, items: list[NamedTrace]
+) -> tuple[np.ndarray, np.ndarray]:
+    """Signed pulse heights of every capture and their standard uncertainties: each a capture of
+    ``averages`` acquisitions, its noise the baseline RMS over √(n_baseline) samples of white
+    noise, times √(1 + n_baseline/Σs²)-like terms neglected (common practice for a matched filter
+    over the pulse width: the height error ≈ σ_baseline · √(Σs²)/Σs², s the unit template).
+    Refuses (AnalysisRefused) when any capture is clipped, has no pulse or the wrong polarity."""
+    a = step.args
+    rows, dt = _stack_mV(items)
+    n = _n_baseline(step, items)
+    sign = polarity(ctx, output_of(step))
+    method = a.get("method", "peak")
+    heights = np.atleast_1d(an.pulse_height(rows, dt, n, method, polarity=sign))
+    why = merge(clip_reasons(items, rows), an.pulse_reasons(rows, n, polarity=sign))
+    if method == "template":  # the matched filter measures what the largest sample cannot
+        why = merge(
+            clip_reasons(items, rows),
+            ["" if h == h else r or "not measured" for h, r in zip(heights, why, strict=True)],
+        )
+    refuse_any(why)
+    sigma = np.atleast_1d(an.baseline_rms(rows, n))
+    return heights, _height_errors(rows, n, sigma, method)
+
+
+def _height_errors(rows: np.ndarray, n: int, sigma: np.ndarray, method: str) -> np.ndarray:
+    """Standard uncertainty of each height: the baseline noise σ of the capture (its baseline mean
+    adds σ/√n) and, for the matched filter, σ/√Σs² with s the unit-peak mean pulse (white noise,
+    Spieler 2005 ch. 4 on optimum filtering, from memory); for the largest sample σ itself."""
+    if method != "template":
+        return sigma * np.sqrt(1.0 + 1.0 / n)
+    mean = rows.mean(axis=0)
+    shape = mean - mean[:n].mean()
+    peak = float(np.max(np.abs(shape))) or 1.0
+    energy = float(np.sum((shape / peak) ** 2)) or 1.0
+    return sigma * np.sqrt(1.0 / energy + 1.0 / n)
+
+
 def analyse_transfer(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """Gain (signed: negative on a negative-going output), offset and INL with its uncertainty."""
     a = step.args
     items = _traces(ctx, step, a["traces"])
-    rows, dt = _stack_mV(items)
-    heights = an.pulse_height(rows, dt, _n_baseline(step, items), a.get("method", "peak"))
+    heights, errors = _heights(ctx, step, items)
     x = _sweep(items, a["x"])
     fit = an.transfer_curve(x, heights, deviation_pct=float(a.get("deviation", 1.0)))
+    inl = an.inl_with_uncertainty(x, heights, errors)
     return StepResult(
         results={
             "points": len(items),
             "dynamic_range_mV": fit.dynamic_range_mV,
             "chi2_ndf": fit.fit.chi2_ndf,
             "series": [transfer_series(channel_of(step), output_of(step), x, heights, fit)],
+            "height_err_mV": float(np.median(errors)),
         },
         measurements=[
             measure(ctx, step, "gain", fit.gain, uncertainty=fit.gain_err),
             measure(ctx, step, "offset_mV", fit.offset_mV, uncertainty=fit.offset_err),
-            measure(ctx, step, "inl_pct", fit.inl_pct),
+            measure(ctx, step, "inl_pct", inl.value, uncertainty=inl.uncertainty),
         ],
     )
 
@@ -145,6 +190,7 @@ def analyse_noise(ctx: RunContext, step: PlannedStep) -> StepResult:
     items = _traces(ctx, step, step.args["traces"])
     rows, _ = _stack_mV(items)
     n = int(step.args.get("n_baseline") or 0) or rows.shape[1]
+    refuse_any(clip_reasons(items, rows[:, :n]))
     rms = np.atleast_1d(an.baseline_rms(rows, n))
     single = rms * np.sqrt([t.trace.averages for t in items])
     combined = float(np.sqrt(np.mean(single**2)))
@@ -156,6 +202,22 @@ def analyse_noise(ctx: RunContext, step: PlannedStep) -> StepResult:
     )
 
 
+def analyse_baseline(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """The output's DC level with no injection: the mean of its samples.  Uncertainty: RMS/√N of
+    N samples (white noise; band-limited noise makes it somewhat larger, common practice)."""
+    items = _traces(ctx, step, step.args["traces"])
+    rows, _ = _stack_mV(items)
+    n = int(step.args.get("n_baseline") or 0) or rows.shape[1]
+    refuse_any(clip_reasons(items, rows[:, :n]))
+    level = float(np.mean(np.atleast_1d(an.baseline_level(rows, n))))
+    rms = float(np.sqrt(np.mean(np.atleast_1d(an.baseline_rms(rows, n)) ** 2)))
+    unc = rms / np.sqrt(n * len(items))
+    return StepResult(
+        results={"readings": {"baseline_rms_mV": rms}, "traces": len(items)},
+        measurements=[measure(ctx, step, "baseline_mV", level, uncertainty=unc)],
+    )
+
+
 def analyse_crosstalk(ctx: RunContext, step: PlannedStep) -> StepResult:
     a = step.args
     agg = _traces(ctx, step, a["aggressor"])
@@ -164,9 +226,14 @@ def analyse_crosstalk(ctx: RunContext, step: PlannedStep) -> StepResult:
         raise AnalysisInputError(f"{len(agg)} aggressor traces but {len(vic)} victim traces")
     arows, dt = _stack_mV(agg)
     vrows, _ = _stack_mV(vic)
-    if not _has_pulse(arows, _n_baseline(step, agg)):  # dead aggressor: nothing to measure
+    n = _n_baseline(step, agg)
+    sign = polarity(ctx, output_of(step))
+    if not (_has_pulse(arows, n) or _has_pulse(-arows, n)):  # dead aggressor: nothing to drive
         return StepResult(results={"pairs": len(agg), "skipped": "the aggressor shows no pulse"})
-    pct, err = _mean_err(an.crosstalk_percent(arows, vrows, dt, _n_baseline(step, agg)))
+    agg_why = merge(clip_reasons(agg, arows), an.pulse_reasons(arows, n, polarity=sign))
+    refuse_any([f"aggressor: {r}" if r else "" for r in agg_why])
+    refuse_any([f"victim: {r}" if r else "" for r in clip_reasons(vic, vrows)])
+    pct, err = _mean_err(an.crosstalk_percent(arows, vrows, dt, n, polarity=sign))
     m = measure(
         ctx,
         step,
@@ -179,16 +246,31 @@ def analyse_crosstalk(ctx: RunContext, step: PlannedStep) -> StepResult:
     return StepResult(results={"pairs": len(agg)}, measurements=[m])
 
 
+def _s_curve(
+    ctx: RunContext, step: PlannedStep, thresholds: np.ndarray, items: list[Reading]
+) -> tuple[an.SCurveFit, float]:
+    """The S-curve fit and its signed 50 % point.  A negative-going output fires when the pulse
+    goes below the threshold: its efficiency rises with the threshold, so the fit runs on the
+    thresholds mirrored (the model of fit_s_curve falls with threshold) and μ is mirrored back."""
+    sign = polarity(ctx, output_of(step))
+    fit = an.fit_s_curve(
+        sign * thresholds, [float(i.value) for i in items], int(step.args["trials"])
+    )
+    return fit, sign * fit.mu
+
+
 def analyse_s_curve(ctx: RunContext, step: PlannedStep) -> StepResult:
     a = step.args
     items = _readings(ctx, step, a["counts"])
     x, counts = _sweep(items, a["x"]), [float(i.value) for i in items]
-    fit = an.fit_s_curve(x, counts, int(a["trials"]))
-    curve = s_curve_series(channel_of(step), "S-curve", x, counts, int(a["trials"]), fit)
+    fit, mu = _s_curve(ctx, step, x, items)
+    curve = s_curve_series(
+        channel_of(step), "S-curve", x, counts, int(a["trials"]), replace(fit, mu=mu)
+    )
     return StepResult(
         results={"points": len(items), "chi2_ndf": fit.chi2_ndf, "series": [curve]},
         measurements=[
-            measure(ctx, step, "threshold_mV", fit.mu, uncertainty=fit.mu_err),
+            measure(ctx, step, "threshold_mV", mu, uncertainty=fit.mu_err),
             measure(ctx, step, "threshold_sigma_mV", fit.sigma, uncertainty=fit.sigma_err),
         ],
     )
@@ -205,12 +287,15 @@ def analyse_discriminator(ctx: RunContext, step: PlannedStep) -> StepResult:
     mus, errs, curves = [], [], []
     for amp, group in groups.items():
         x, counts = _sweep(group, a["x"]), [float(i.value) for i in group]
-        fit = an.fit_s_curve(x, counts, int(a["trials"]))
-        mus.append(fit.mu)
+        fit, mu = _s_curve(ctx, step, x, group)
+        mus.append(mu)
         errs.append(fit.mu_err)
         label = f"{a['amplitude']} = {amp:g} mV"
-        curves.append(s_curve_series(channel_of(step), label, x, counts, int(a["trials"]), fit))
-    heights = gain * np.array(list(groups))
+        curves.append(
+            s_curve_series(channel_of(step), label, x, counts, int(a["trials"]), replace(fit, mu=mu))
+        )
+    # heights signed like the output (a nominal gain is given unsigned)
+    heights = polarity(ctx, "x1") * abs(gain) * np.array(list(groups))
     cal = an.threshold_calibration(heights, mus, errs)
     return StepResult(
         results={"amplitudes": list(groups), "mu_mV": mus, "slope": cal.slope, "gain": gain,
@@ -221,22 +306,37 @@ def analyse_discriminator(ctx: RunContext, step: PlannedStep) -> StepResult:
     )
 
 
-def analyse_peaking(ctx: RunContext, step: PlannedStep) -> StepResult:
-    """Pulse start = the trigger instant, i.e. ``-t0`` on the trace's own axis."""
-    items = _traces(ctx, step, step.args["traces"])
+def _pulse_rows(
+    ctx: RunContext, step: PlannedStep, items: list[NamedTrace]
+) -> tuple[np.ndarray, float, int, int]:
+    """Rows, sample interval, baseline samples and polarity of the captures of a timing step;
+    refused (AnalysisRefused) when a capture is clipped or shows no pulse of that polarity.  The
+    flat-top check is the caller's (a step's plateau is flat by nature)."""
     rows, dt = _stack_mV(items)
-    starts = np.array([-t.trace.t0_ns for t in items])
-    if not _has_pulse(rows, _n_baseline(step, items)):
-        raise AnalysisInputError("no pulse above the noise: nothing to time")
-    value, err = _mean_err(an.peaking_time(rows, dt, starts))
-    results: dict[str, Any] = {"traces": len(items)}
-    results["series"] = [_pulse(step, "peaking_time_ns", value, rows, dt, items)]
+    n = _n_baseline(step, items)
+    sign = polarity(ctx, output_of(step))
+    mean_why = an.pulse_reasons(rows.mean(axis=0)[None, :], n, polarity=sign, flat_top=False)
+    refuse_any(merge(clip_reasons(items, rows), mean_why * len(items)))
+    return rows, dt, n, sign
+
+
+def analyse_peaking(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """Peaking time from the fitted onset of the shaped pulse (never the trigger: a cable delay
+    is not shaping); the zero crossing of a bipolar shaper from the same onset."""
+    items = _traces(ctx, step, step.args["traces"])
+    rows, dt, n, sign = _pulse_rows(ctx, step, items)
+    refuse_any(an.pulse_reasons(rows, n, polarity=sign))
+    onsets = np.atleast_1d(an.pulse_onset(rows, dt, n, polarity=sign))
+    if not np.all(np.isfinite(onsets)):
+        raise AnalysisRefused("the pulse onset could not be fitted")
+    value, err = _mean_err(an.peaking_time(rows, dt, n_baseline=n, polarity=sign))
+    results: dict[str, Any] = {
+        "traces": len(items),
+        "onset_after_trigger_ns": float(np.mean(onsets)) + items[0].trace.t0_ns,
+        "series": [_pulse(step, "peaking_time_ns", value, rows, dt, items)],
+    }
     try:
-        zc, _ = _mean_err(
-            an.zero_crossing_time(
-                rows, dt, starts, n_baseline=_n_baseline(step, items)
-            )
-        )
+        zc, _ = _mean_err(an.zero_crossing_time(rows, dt, onsets, n_baseline=n, polarity=sign))
         results["zero_crossing_ns"] = zc
     except ValueError:
         pass  # unipolar shaper: no zero crossing
@@ -247,11 +347,10 @@ def analyse_peaking(ctx: RunContext, step: PlannedStep) -> StepResult:
 
 
 def analyse_rise(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """10-90 % transition duration from IEEE 181 state levels, in the output's direction."""
     items = _traces(ctx, step, step.args["traces"])
-    rows, dt = _stack_mV(items)
-    if not _has_pulse(rows, _n_baseline(step, items)):
-        raise AnalysisInputError("no pulse above the noise: nothing to time")
-    value, err = _mean_err(an.rise_time(rows, dt, _n_baseline(step, items)))
+    rows, dt, n, sign = _pulse_rows(ctx, step, items)
+    value, err = _mean_err(an.rise_time(rows, dt, n, polarity=sign))
     return StepResult(
         results={"traces": len(items), "series": [_pulse(step, "rise_time_ns", value, rows, dt, items)]},
         measurements=[measure(ctx, step, "rise_time_ns", value, uncertainty=err)],
@@ -277,6 +376,7 @@ def _pulse(step: PlannedStep, quantity: str, value: float, rows: np.ndarray, dt:
 HANDLERS = {
     "analyse.transfer": analyse_transfer,
     "analyse.noise": analyse_noise,
+    "analyse.baseline": analyse_baseline,
     "analyse.crosstalk": analyse_crosstalk,
     "analyse.s_curve": analyse_s_curve,
     "analyse.discriminator": analyse_discriminator,

@@ -2,18 +2,68 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
+from drivers.trace import Trace
 from sequencer.procedure.plan_model import PlannedStep
 
 from ..context import RunContext
+from ..judge import channel_of, output_of
 from ..records import EMPTY_RESULT, NamedTrace, StepResult
+
+NOISE_SPAN_SIGMAS = 14.0
+"""With ``follow_baseline`` the full scale is at least this many baseline RMS (±7 σ: a Gaussian
+sample beyond it once in 4e11, standard normal tail)."""
+
+RAILS_META = "rails_mV"
+"""Key of a captured trace's ``meta``: "low,high", the input's range limits when it was captured."""
+
+
+class BaselineNotMeasured(ValueError):
+    """``follow_baseline`` without a baseline measured earlier for that channel and output."""
 
 
 def set_input(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """Range and offset of one input; with ``follow_baseline`` the offset adds the baseline_mV
+    measured earlier for the step's channel and output, so a few mV of DC level do not put a
+    narrow range on its rail, and the range widens to ``NOISE_SPAN_SIGMAS`` times the baseline RMS
+    measured with it (reading ``baseline_rms_mV``), so a noisy output is not clipped either.  A baseline that could not be measured (NaN, its reason stored with
+    its step) leaves the offset as given: the analyses then refuse what clips."""
     a = step.args
-    ctx.bench.scope.set_input(
-        int(a["input"]), range_mV=float(a["range"]), offset_mV=float(a.get("offset", 0.0))
-    )
+    offset = float(a.get("offset", 0.0))
+    if a.get("follow_baseline"):
+        found = ctx.measurement("baseline_mV", channel=channel_of(step), output=output_of(step))
+        if found is None:
+            raise BaselineNotMeasured(
+                f"follow_baseline: no baseline_mV measured earlier for channel "
+                f"{channel_of(step)} output {output_of(step)} (analyse.baseline first)"
+            )
+        if found.value == found.value:
+            offset += found.value
+    span = float(a["range"])
+    if a.get("follow_baseline"):
+        noise = ctx.select_readings("baseline_rms_mV", step.labels)
+        if noise and noise[-1].value == noise[-1].value:
+            span = max(span, NOISE_SPAN_SIGMAS * float(noise[-1].value))
+    ctx.bench.scope.set_input(int(a["input"]), range_mV=span, offset_mV=offset)
+    ctx.input_rails[int(a["input"])] = (offset - span / 2.0, offset + span / 2.0)
     return EMPTY_RESULT
+
+
+def with_rails(trace: Trace, rails: tuple[float, float] | None) -> Trace:
+    """``trace`` with the rails of its input recorded in its meta (unchanged when unknown)."""
+    if rails is None:
+        return trace
+    return replace(trace, meta={**trace.meta, RAILS_META: f"{rails[0]!r},{rails[1]!r}"})
+
+
+def rails_of(trace: Trace) -> tuple[float, float] | None:
+    """The rails recorded by :func:`with_rails`, or None."""
+    text = trace.meta.get(RAILS_META) if trace.meta else None
+    if not text:
+        return None
+    low, high = (float(v) for v in text.split(","))
+    return low, high
 
 
 def set_timebase(ctx: RunContext, step: PlannedStep) -> StepResult:
@@ -48,7 +98,8 @@ def capture(ctx: RunContext, step: PlannedStep) -> StepResult:
     labels = dict(step.labels)
     return StepResult(
         traces=[
-            NamedTrace(name=n, trace=t, labels=labels) for n, t in zip(names, traces, strict=True)
+            NamedTrace(name=n, trace=with_rails(t, ctx.input_rails.get(i)), labels=labels)
+            for n, t, i in zip(names, traces, inputs, strict=True)
         ],
     )
 
