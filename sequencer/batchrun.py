@@ -34,13 +34,9 @@ from sequencer.procedure import (
     BatchBoard,
     Plan,
     Procedure,
-    board_info,
-    board_type_input,
-    board_type_of_input,
-    build_plan,
     load_procedure,
 )
-from sequencer.procedure.boards import board_type_path
+from sequencer.procedure.board_choice import LabFiles
 
 Mount = Literal["go", "skip", "stop"]
 BoardStatus = Literal["passed", "failed", "aborted", "skipped", "not run"]
@@ -63,6 +59,7 @@ class BatchOptions:
     echo: Callable[[str], None] = print
     handle_signals: bool = True
     overrides: Mapping[str, Any] = field(default_factory=dict)  # procedure parameters
+    lab: LabFiles = field(default_factory=LabFiles)  # a lab's own board types and limit sets
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -207,6 +204,12 @@ class _BatchRun:
             handle_signals=opts.handle_signals,
         )
         sim = str(sim_board_path(board, opts.sim_dir)) if opts.sim_dir else None
+        if sim:
+            try:
+                compose.check_sim_board(plan, sim)
+            except ConfigError as exc:
+                note = f"refused before any instrument was touched: {exc.problems[0].message}"
+                return BoardOutcome(serial=board.serial, status="aborted", note=note), False
         try:
             bench = compose.bench_for(None, sim) if sim else contextlib.nullcontext(self.bench)
             with bench as spec:
@@ -222,9 +225,13 @@ class _BatchRun:
         return _outcome(self.store, board.serial, result.run_id, "passed"), False
 
     def _plan(self, board: BatchBoard) -> Plan:
-        board_in = board_type_input(board.board_type)
-        info = board_info(board_type_of_input(board_in, file=str(board_type_path(board.board_type))), board.serial)
-        return build_plan(self.procedure, info, overrides=self.options.overrides, board_input=board_in)
+        return compose.plan_for(
+            self.procedure,
+            board.serial,
+            board_type=board.board_type,
+            lab=self.options.lab,
+            overrides=self.options.overrides,
+        )
 
     def _aborted_run(self, serial: str) -> int | None:
         runs = [r for r in self.store.runs_of_batch(self.batch.name) if r.board == serial]

@@ -80,8 +80,11 @@ def plan(
     """
     from sequencer.compose import plan_for
     from sequencer.procedure import format_plan, load_procedure
+    from sequencer.procedure.board_choice import LabFiles
 
-    planned = plan_for(load_procedure(procedure), serial, board_type=board_type)
+    planned = plan_for(
+        load_procedure(procedure), serial, board_type=board_type, lab=LabFiles.from_env(env())
+    )
     from sequencer.procedure import unjudged_warnings
 
     for line in unjudged_warnings(planned):
@@ -141,13 +144,17 @@ def _summarise(run_id: int, outcome: Any) -> int:
 @click.option("--operator", default=lambda: os.environ.get("USER", ""), help="Operator name recorded with the run.")
 @click.option("--yes", is_flag=True, help="Unattended: acknowledge the safety caution (recorded as such).")
 @click.option("--repeat", "repeat", type=int, default=None, metavar="RUN_ID", help="Rerun the procedure text stored for that run.")
+@click.option("--board-type", default=None,
+              help="Board type of this board (default: the procedure's); its limits judge the run. "
+                   "A lab's own types: BENCHWRIGHT_LAB=DIR (DIR/boards, DIR/limits).")
 @click.option("--log", "log_path", type=click.Path(dir_okay=False), default=None, help="Append a plain-text event log here.")
 @visa_library_option
 @override_option
 @handles_errors
 def run(procedure: str | None, bench_path: str | None, sim_board: str | None, serial: str | None,
-        db: str | None, operator: str, yes: bool, repeat: int | None, log_path: str | None,
-        allow_visa_library: tuple[str, ...], override_instrument_checks: bool) -> None:
+        db: str | None, operator: str, yes: bool, repeat: int | None, board_type: str | None,
+        log_path: str | None, allow_visa_library: tuple[str, ...],
+        override_instrument_checks: bool) -> None:
     """Run a procedure on a bench (or the simulator) for one board and record everything."""
     from sequencer import compose
     from sequencer.procedure import load_procedure
@@ -172,7 +179,12 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
             serial = record.board
         if not serial:
             raise click.UsageError("give --board SERIAL")
-        plan_ = compose.plan_for(proc, serial, stored=stored)
+        from sequencer.procedure.board_choice import LabFiles
+
+        plan_ = compose.plan_for(proc, serial, board_type=board_type, stored=stored,
+                                 lab=LabFiles.from_env(env()))
+        if sim_board:
+            compose.check_sim_board(plan_, sim_board)
         request = compose.RunRequest(
             operator=operator, unattended=yes, acknowledge=acknowledge_on_terminal(),
             prompt=prompt_on_terminal(), repeat_of=repeat, progress=True,
@@ -213,7 +225,10 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
             raise StoreError(f"run {run_id} is completed; a completed run is never resumed (use run --repeat)")
         stored = store.run_inputs(run_id)
         proc = compose.stored_procedure(record, stored, lambda line: click.echo(f"warning: {line}", err=True))
-        plan_ = compose.plan_for(proc, record.board, board_type=record.board_type or None, stored=stored)
+        from sequencer.procedure.board_choice import LabFiles
+
+        plan_ = compose.plan_for(proc, record.board, board_type=record.board_type or None, stored=stored,
+                                 lab=LabFiles.from_env(env()))
         request = compose.RunRequest(operator=operator or record.operator, unattended=yes,
                                      acknowledge=acknowledge_on_terminal(), prompt=prompt_on_terminal(),
                                      override_instrument_checks=override_instrument_checks,

@@ -16,6 +16,7 @@ from sequencer.cli_common import (
     handles_errors,
     visa_library_option,
 )
+from sequencer.procedure.board_choice import LabFiles
 
 
 def _mount_on_terminal(bench: bool) -> Any:
@@ -107,6 +108,7 @@ def batch(
         acknowledge=acknowledge_on_terminal(),
         prompt=prompt_on_terminal(),
         echo=click.echo,
+        lab=LabFiles.from_env(env()),
     )
     with compose.open_store(db, env()) as store:
         outcome = qualify_batch(spec, store, options)

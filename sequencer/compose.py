@@ -30,18 +30,15 @@ from sequencer.engine.preflight import hazard_steps
 from sequencer.engine.progress import ProgressDisplay
 from sequencer.errors import ConfigError, Location, Problem, ProcedureError, StoreError
 from sequencer.events import Event, RunFinished
-from sequencer.inputs import RunInput, is_released, loader_files, of_kind, text_digest
+from sequencer.inputs import RunInput, is_released, loader_files, text_digest
 from sequencer.procedure import (
     Plan,
     Procedure,
-    board_info,
-    board_type_input,
-    board_type_of_input,
     build_plan,
     load_procedure_text,
     unjudged_warnings,
 )
-from sequencer.procedure.boards import board_type_path
+from sequencer.procedure.board_choice import LabFiles, choose_board
 from sequencer.procedure.textrules import MAX_NAME, text_problem
 from sequencer.store import Store, default_url
 
@@ -90,26 +87,40 @@ def plan_for(
     *,
     board_type: str | None = None,
     stored: Sequence[RunInput] = (),
+    lab: LabFiles | None = None,
+    overrides: Mapping[str, Any] | None = None,
 ) -> Plan:
-    """The plan of ``procedure`` for the board ``serial`` of the procedure's (or the given) type.
+    """The plan of ``procedure`` for the board ``serial`` of the procedure's (or the given) type,
+    judged by that type's limits (:func:`sequencer.procedure.board_choice.choose_board`).
 
-    ``stored`` are the inputs of a recorded run (``--repeat``, ``resume``): its board-type text is
-    used instead of today's file.
+    ``stored`` are the inputs of a recorded run (``--repeat``, ``resume``): its board-type and
+    limit-set texts are used instead of today's files.
     """
     check_option_text("--board", serial)
-    kept = of_kind(stored, "board_type")
-    if kept:
-        board_in = kept[0]
-        template = board_type_of_input(board_in)
-    else:
-        type_name = board_type or procedure.board_type
-        if not type_name:
-            raise ProcedureError(
-                [Problem(procedure.location, "the procedure names no board_type; cannot plan")]
-            )
-        board_in = board_type_input(type_name)
-        template = board_type_of_input(board_in, file=str(board_type_path(type_name)))
-    return build_plan(procedure, board_info(template, serial), board_input=board_in)
+    chosen, board, board_in = choose_board(procedure, serial, board_type, lab, stored=stored)
+    return build_plan(chosen, board, overrides=overrides, board_input=board_in)
+
+
+def check_sim_board(plan: Plan, sim_board: str) -> None:
+    """Refuse, before any instrument is touched, a simulated board whose channel count or outputs
+    differ from the run's board type (ConfigError: exit 2)."""
+    from drivers.sim.board import OUTPUT_INDEX
+    from drivers.sim.board_loader import load_board
+
+    spec = load_board(sim_board)
+    problems = []
+    if len(spec.channels) != plan.board.channels:
+        problems.append(
+            f"{len(spec.channels)} channels, but board type {plan.board.board_type} has "
+            f"{plan.board.channels}"
+        )
+    missing = [o for o in plan.board.outputs if o not in OUTPUT_INDEX]
+    if missing:
+        problems.append(f"no output {', '.join(missing)} of board type {plan.board.board_type}")
+    if problems:
+        raise ConfigError(
+            [Problem(Location(sim_board, 1, 1), f"board {spec.serial}: {p}") for p in problems]
+        )
 
 
 def stored_procedure(record: Any, inputs: Sequence[RunInput], warn: Callable[[str], None] | None) -> Procedure:

@@ -43,6 +43,7 @@ TOP_KEYS = (
     "version",
     "description",
     "board_type",
+    "board_types",
     "roles",
     "hazards",
     "parameters",
@@ -147,7 +148,39 @@ class _Loader:
             hazards=self._names(data, "hazards", HAZARDS),
             ramp_rate=self._defaults(data),
             limits=() if fragment else self._limits(data, key),
+            board_types=self._board_types(data),
+            limits_by_type=self._limits_by_type(data),
+            limits_inline=() if fragment else self._limits_inline(data),
         )
+
+    @staticmethod
+    def _limits_inline(data: YamlMap) -> tuple[Limit, ...]:
+        """The inline ``set:`` of ``limits:`` (problems were reported by ``_limits``)."""
+        raw = data.get("limits")
+        if not isinstance(raw, YamlMap) or "set" not in raw:
+            return ()
+        return tuple(parse_limit_list(raw["set"], raw.where("set"), []))
+
+    def _board_types(self, data: YamlMap) -> tuple[str, ...]:
+        """``board_types:``, the board types a procedure accepts (empty: any)."""
+        raw = data.get("board_types")
+        if raw is None:
+            return ()
+        if not isinstance(raw, YamlSeq) or not all(isinstance(x, str) and x for x in raw):
+            self.problems.append(
+                Problem(data.where("board_types"), "board_types: needs a list of names, e.g. [PA8]")
+            )
+            return ()
+        return tuple(dict.fromkeys(raw))
+
+    @staticmethod
+    def _limits_by_type(data: YamlMap) -> str:
+        """The board type the limits were named by (``limits: PA8`` or ``{file: PA8}``), else ""."""
+        raw = data.get("limits")
+        ref = raw.get("file") if isinstance(raw, YamlMap) else raw
+        if isinstance(ref, str) and not ref.endswith((".yaml", ".yml")) and "/" not in ref:
+            return ref
+        return ""
 
     def include(
         self, target: str, at: Location, including_key: str, stack: tuple[str, ...]

@@ -93,6 +93,9 @@ class Procedure:
     parameters: tuple[Parameter, ...] = ()
     ramp_rate: Template | None = None  # defaults.ramp_rate
     limits: tuple[Limit, ...] = ()
+    board_types: tuple[str, ...] = ()  # the board types it accepts (empty: any)
+    limits_by_type: str = ""  # the board type its limits file was named by (limits: PA8), or ""
+    limits_inline: tuple[Limit, ...] = ()  # limits: {set: [...]} that override the file's
     setup: tuple[Step, ...] = ()
     steps: tuple[Step, ...] = ()
     cleanup: tuple[Step, ...] = ()
