@@ -1,9 +1,10 @@
 """``benchwright demo``: the invented batch qualified end to end on the simulator.
 
-The full demo takes about 75 s on 2 cores for four 8-channel boards with real-time bias ramps and 64
+The full demo takes about 95 s on 2 cores for five 8-channel boards with real-time bias ramps and 80
 certificates, and about 90 s more for the three scintillator modules: marked slow.  Its time goal (under two minutes) is measured by
 tests/benchmarks/bench_demo.py, not asserted here.  The quick test checks the scenario itself:
-invented serials, one fault of each kind, the batch file naming the shipped procedure.
+invented serials, one fault of each kind, the batch file naming the shipped procedure, and a board
+of the inverted board type PA8N judged as such (issue 15).
 """
 
 from __future__ import annotations
@@ -19,11 +20,17 @@ from sequencer.procedure import load_batch, load_procedure
 
 def test_the_scenario_has_one_fault_of_each_kind():
     batch = load_batch(demo_dir() / DEMO_BATCH)
-    assert len(batch.boards) == 4
-    assert all(b.serial.startswith("NR-PA8-") for b in batch.boards)
-    assert load_procedure(batch.procedure).name == "qualify-preamp"
+    assert len(batch.boards) == 5
+    assert all(b.serial.startswith(("NR-PA8-", "NR-PA8N-")) for b in batch.boards)
+    assert [b.board_type for b in batch.boards].count("PA8N") == 1
+    procedure = load_procedure(batch.procedure)
+    assert procedure.name == "qualify-preamp" and "PA8N" in procedure.board_types
     boards = [yaml.safe_load((demo_dir() / f"{b.serial}.yaml").read_text()) for b in batch.boards]
     assert all(len(b["channels"]) == 8 for b in boards)
+    (inverted,) = [b for b in boards if b["board_type"] == "PA8N"]
+    assert inverted["polarity"] == "negative" and inverted["output_polarity"]["shaped"] == "negative"
+    dc_fault = [c for c in inverted["channels"] if abs(c["baseline_mV"]) > 10.0]
+    assert len(dc_fault) == 1
     dead = [b["serial"] for b in boards if any(c["dead"] for c in b["channels"])]
     saturating = [
         b["serial"] for b in boards if any(c["saturation_mV"] < 500 for c in b["channels"])
@@ -50,11 +57,12 @@ def test_demo_runs_end_to_end(tmp_path):
     assert result.exit_code == 0, result.output  # a demonstration: 0 although boards fail
     out = tmp_path / "demo"
     assert (out / "results.db").is_file()
-    # 4 boards x 8 channels, then 3 modules x 2 sensors
-    assert len(list((out / "certificates").glob("*.pdf"))) == 32 + 6
-    assert len(list((out / "certificates").glob("*.html"))) == 32 + 6
+    # 5 boards x 8 channels, then 3 modules x 2 sensors
+    assert len(list((out / "certificates").glob("*.pdf"))) == 40 + 6
+    assert len(list((out / "certificates").glob("*.html"))) == 40 + 6
     summary = (out / "batch-summary.txt").read_text()
     # 8 healthy + 7 (dead channel 5) + 7 (saturating channel 3) + 0 (crosstalk into every channel)
-    assert "32 channels, 22 passed" in summary
+    # + 7 (PA8N, inverted outputs judged as such; channel 6 sits at -12 mV)
+    assert "40 channels, 29 passed" in summary
     assert "LX-M2-0102" in summary and "LX-M2-0103" in summary  # the two failing modules
     assert str(out / "certificates") in result.output
