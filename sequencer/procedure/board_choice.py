@@ -75,35 +75,39 @@ def choose_board(
         name = board_type or procedure.board_type
         if not name:
             raise ProcedureError([Problem(where, "the procedure names no board_type; cannot plan")])
+        _check_accepted(procedure, name, where)
         path = lab.find("boards", name)
         board_in = RunInput("board_type", name, board_type_input(path).text)
         template = board_type_of_input(board_in, file=str(path))
     board = board_info(template, serial)
-    if procedure.board_types and board.board_type not in procedure.board_types:
-        accepted = ", ".join(procedure.board_types)
-        raise ProcedureError(
-            [
-                Problem(
-                    where,
-                    f"board type {board.board_type!r} is not one this procedure accepts ({accepted})",
-                )
-            ]
-        )
+    _check_accepted(procedure, board.board_type, where)
     if procedure.limits_by_type and procedure.limits_by_type != board.board_type:
         procedure = _limits_of_type(procedure, board.board_type, lab, stored)
     return procedure, board, board_in
+
+
+def _check_accepted(procedure: Procedure, name: str, where: Location) -> None:
+    if procedure.board_types and name not in procedure.board_types:
+        accepted = ", ".join(procedure.board_types)
+        raise ProcedureError(
+            [Problem(where, f"board type {name!r} is not one this procedure accepts ({accepted})")]
+        )
 
 
 def _limits_of_type(
     procedure: Procedure, name: str, lab: LabFiles, stored: Sequence[RunInput]
 ) -> Procedure:
     """``procedure`` judged by the limit set of board type ``name`` (its inline ``set:`` on top);
-    the set's text joins the procedure's files, so the run stores it with its other inputs."""
+    the set's text joins the procedure's files, so the run stores it with its other inputs.  A
+    board type without a limit set of its own (none in the lab's folder or shipped, e.g. a cut-down
+    test type) is judged by the procedure's limits as they are."""
     key = f"{LIMITS_PREFIX}{name}.yaml"
     text = loader_files(stored).get(key)
     file = f"<limit set {name} as stored>"
     if text is None:
         path = lab.find("limits", name)
+        if not path.is_file():
+            return procedure
         file = str(path)
         try:
             text = read_bounded(path).decode("utf-8")

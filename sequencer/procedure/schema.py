@@ -152,6 +152,7 @@ def procedure_schema() -> dict[str, Any]:
             "version": {"type": ["string", "number"]},
             "description": _STRING,
             "board_type": _STRING,
+            "board_types": {"type": "array", "items": _STRING},
             "roles": {"type": "array", "items": {"enum": list(ROLES)}},
             "hazards": {"type": "array", "items": {"enum": list(HAZARDS)}},
             "parameters": {"type": "object", "additionalProperties": {"$ref": "#/$defs/values"}},
