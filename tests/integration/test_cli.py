@@ -88,11 +88,12 @@ def test_run_records_and_exports_fixed_columns(recorded: tuple[str, str, int]) -
     # example-pa8.yaml channel 1: gain_x1 1.01 (the simulator's truth) -> within 1 %
     assert abs(float(gains[0]["value"]) - 1.01) / 1.01 < 0.01
     inl = next(r for r in body if r["quantity"] == "inl_pct")
-    assert inl["uncertainty"] == ""        # empty fields are empty strings in CSV (DESIGN.md)
+    assert inl["low"] == ""        # no lower limit: empty fields are empty strings in CSV (DESIGN.md)
+    assert float(inl["uncertainty"]) > 0.0  # INL carries its propagated uncertainty (issue 15)
     code, text, _ = invoke("export", "--db", url, "--run", "1", "--format", "json")
     data = json.loads(text)
     assert list(data[0]) == EXPORT_COLUMNS
-    assert next(r for r in data if r["quantity"] == "inl_pct")["uncertainty"] is None
+    assert next(r for r in data if r["quantity"] == "inl_pct")["low"] is None
 
 
 def test_exit_code_follows_the_verdicts(recorded: tuple[str, str, int]) -> None:
