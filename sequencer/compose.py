@@ -96,6 +96,7 @@ def plan_for(
     ``stored`` are the inputs of a recorded run (``--repeat``, ``resume``): its board-type and
     limit-set texts are used instead of today's files.
     """
+    check_option_text("--board", serial)
     chosen, board, board_in = choose_board(procedure, serial, board_type, lab, stored=stored)
     return build_plan(chosen, board, overrides=overrides, board_input=board_in)
 
