@@ -48,6 +48,8 @@ FALLBACKS: Mapping[tuple[str, str], str] = {
     ("bias", "interlock_closed"): "usable only with a hardware interlock on the supply's inhibit "
     "input declared in the bench file (hardware_interlock:) and acknowledged for each run",
     ("bias", "clear_trip"): "a trip is cleared at the supply by hand",
+    ("bias", "set_keep_alive"): "a supply left live by a runner that died stays live until "
+    "`benchwright safe --bench FILE` or a hand switches it off",
 }
 
 #: Operations whose reply is a safety state the runner decides on.

@@ -74,6 +74,7 @@ OPERATIONS: dict[str, dict[str, OpSpec]] = {
         "set_current_limit": _w("amps"), "set_output": _w("state"), "get_output": _q("bool"),
         "measure_voltage": _q("float"), "measure_current": _q("float"),
         "interlock_closed": _q("bool"), "tripped": _q("bool"), "clear_trip": _w(),
+        "set_keep_alive": _w("seconds"),  # optional: output off when no command for N s (0: off)
     },
     "switch": {
         "route": _w("input", "output_index", "channel"), "inject": _w("channel"),

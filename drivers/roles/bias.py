@@ -185,5 +185,19 @@ class BiasSupply(RoleDriver):
         """True when the over-current / over-voltage protection has tripped."""
         return bool(self._query("tripped"))
 
+    @property
+    def keep_alive_available(self) -> bool:
+        """True when the dialect declares the supply's own keep-alive (``set_keep_alive``): the
+        supply switches its output off when no command arrives within the given time."""
+        return self.dialect.has("bias", "set_keep_alive")
+
+    def set_keep_alive(self, seconds: float) -> None:
+        """Arm the supply's keep-alive for ``seconds`` (0 disarms it); re-applied after a
+        reconnect like any setting."""
+        value = check_finite("seconds", seconds)
+        if value < 0:
+            raise ValueError("seconds must be 0 (off) or above")
+        self._write("set_keep_alive", seconds=value)
+
     def clear_trip(self) -> None:
         self._write("clear_trip", reapply=False)

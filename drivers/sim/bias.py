@@ -11,8 +11,13 @@ fault opens the interlock ``after_s`` after the output first turned on: the supp
 ``SYSTem:INTerlock:STATe?`` reads 0 from then on; switching on with the interlock open or while
 tripped is -221 Settings conflict.
 
+Keep-alive (``OUTPut:KEEPalive[:TIMeout] <s>``, this simulated supply's own command; 0 = off, the
+``*RST`` default): while it is armed and the output is on, an interval of more than that many seconds
+without any message (from any client) switches the output off at the moment the interval ran out --
+what a runner that died leaves to the supply.
+
 ``*RST`` defaults: 0 V, 10 V/s, current limit 100 µA, output off.  Limits: 0 - 80 V,
-0.01 - 1000 V/s, 1 nA - 10 mA.
+0.01 - 1000 V/s, 1 nA - 10 mA, keep-alive 0 - 3600 s.
 """
 
 from __future__ import annotations
@@ -41,6 +46,7 @@ class BiasSettings:
     tripped: bool = False
     ramp_from_V: float = 0.0
     ramp_t0: float = 0.0
+    keep_alive_s: float = 0.0
 
 
 class BiasSupply(SimInstrument):
@@ -55,6 +61,8 @@ class BiasSupply(SimInstrument):
         self.first_on: float | None = None
         self.interlock_open = False
         self.readings = 0
+        self.last_message: float | None = None
+        self.keep_alive_lapses = 0
         faults = [f for f in board.faults_for("bias") if f.kind == "interlock_open"]
         self.interlock_after_s = min((f.after_s or 0.0 for f in faults), default=None)
         super().__init__(**kwargs)  # type: ignore[arg-type]
@@ -92,6 +100,10 @@ class BiasSupply(SimInstrument):
         ):
             self._switch_off(now)
             s.tripped = True
+        last = self.last_message
+        if s.output_on and s.keep_alive_s > 0 and last is not None and now - last > s.keep_alive_s:
+            self._switch_off(last + s.keep_alive_s)  # off when the keep-alive ran out
+            self.keep_alive_lapses += 1
 
     def _restart_ramp(self, now: float) -> None:
         self.settings.ramp_from_V = self.voltage_at(now)
@@ -105,6 +117,7 @@ class BiasSupply(SimInstrument):
     def process(self, message: str) -> bytes | None:
         """Apply elapsed time (trips) before running a message, then run it."""
         self.update()
+        self.last_message = self.clock()
         return super().process(message)
 
     # --- commands ------------------------------------------------------------------------------
@@ -141,6 +154,11 @@ class BiasSupply(SimInstrument):
             ),
             command("OUTPut:PROTection:TRIPped", query=lambda c: self._flag(self.settings.tripped)),
             command("OUTPut:PROTection:CLEar", write=self._clear_trip, max_params=0),
+            command(
+                "OUTPut:KEEPalive[:TIMeout]",
+                write=self._set_keep_alive,
+                query=lambda c: format_float(self.settings.keep_alive_s),
+            ),
         ]
 
     @staticmethod
@@ -177,6 +195,9 @@ class BiasSupply(SimInstrument):
             if self.first_on is None:
                 self.first_on = now
         self.update()
+
+    def _set_keep_alive(self, call: Call) -> None:
+        self.settings.keep_alive_s = parse_number(call.arg(), lo=0.0, hi=3600.0, default=0.0)
 
     def _clear_trip(self, call: Call) -> None:
         if self.interlock_open:

@@ -29,6 +29,11 @@ from .preflight import build_caution
 MANUAL_OFF = "switch the supply's output off by hand and check that it reads 0 V"
 """What an UNSAFE line asks of the operator when the software could not confirm the safe state."""
 
+KEEP_ALIVE_MIN_S = 5.0
+"""The shortest keep-alive armed on a supply that declares one: the watcher reads the supply every
+``interlock_interval_s`` while live, so a supply that hears nothing for this long has lost its run
+(at least 20 intervals: a loaded machine must not switch a healthy run off)."""
+
 RAMP_TIME_FACTOR = 1.5
 """A ramp may take this many times |commanded distance| / rate (plus the margin) before it counts as
 stuck (common practice: a supply's slew is within tens of per cent of what was programmed)."""
@@ -52,6 +57,7 @@ class BiasGuard:
         self.touched = False  # any bias step ran in this run
         self.rate: float | None = self.max_rate
         self.limit_applied = False  # a current limit (trip) was sent to the supply in this run
+        self.keep_alive_armed = False  # the supply's own keep-alive was armed in this run
         self._stop_recorded = False
         self._securing = False  # inside make_safe: events are held, recorded once it is done
         self._held: list[SafetyEvent] = []
@@ -159,6 +165,7 @@ class BiasGuard:
             raise self._abort("operator", "the operator declined the caution; no voltage applied")
         self.ctx.checkpoint()  # a signal while the caution was up wins over the answer
         self.apply_bench_current_limit()
+        self.arm_keep_alive()
         self.acknowledged = True
         self._reconnects_seen = reconnects(self.bias)
         self._watcher = _Watcher(self, opts.interlock_interval_s)
@@ -172,6 +179,27 @@ class BiasGuard:
         self.bias.set_current_limit(self.current_limit_uA)
         self.limit_applied = True
         self.record("current_limit", uA=self.current_limit_uA, source="bench file")
+
+    def arm_keep_alive(self) -> None:
+        """Where the supply's dialect declares a keep-alive, arm it before anything goes live: if
+        this process dies (SIGKILL, a dead PC), the supply switches its output off by itself."""
+        if self.keep_alive_armed or not self.bias.keep_alive_available:
+            return
+        seconds = max(KEEP_ALIVE_MIN_S, 20 * self.ctx.options.interlock_interval_s)
+        self.bias.set_keep_alive(seconds)
+        self.keep_alive_armed = True
+        self.record("keep_alive", seconds=seconds)
+
+    def _disarm_keep_alive(self, path: str) -> None:
+        """Once the supply is confirmed off: disarm, so manual work on the bench is not cut off."""
+        if not self.keep_alive_armed:
+            return
+        try:
+            self.bias.set_keep_alive(0.0)
+            self.keep_alive_armed = False
+            self.record("keep_alive", path, seconds=0.0)
+        except BenchwrightError as exc:  # the output is off already; say so, nothing more
+            self.record("keep_alive", path, seconds=None, error=str(exc))
 
     def at_step(self) -> None:
         """Called before every step: while live, the interlock and the link are checked."""
@@ -418,6 +446,7 @@ class BiasGuard:
                 f"{v:.3f} V after the safe-state sequence; {self.remedy()}"
             )
         self.record("safe_state", path, output=False, volts=v)
+        self._disarm_keep_alive(path)
         return ""
 
     def _off_through_reconnect(self, path: str) -> str:

@@ -14,9 +14,12 @@ from __future__ import annotations
 import signal
 import socket
 import time
+from pathlib import Path
 
 import yaml
 
+from drivers.dialect import shipped_dialect_path
+from sequencer.engine.safety import KEEP_ALIVE_MIN_S
 from tests.integration.safety_cli import (
     VOLT,
     Child,
@@ -200,3 +203,63 @@ def test_a_second_sigterm_cuts_the_ramp_down_short_with_the_output_off(tmp_path)
     assert len(cut) == 1 and "stop request" in cut[0].detail["error"]
     k = [e.kind for e in events]
     assert k.index("ramp_cut") < len(k) - 1 - k[::-1].index("output")  # then the output off
+
+
+def with_keep_alive(bench: Path, folder: Path) -> None:
+    """Give the bench's supply a lab dialect that declares the simulated supply's keep-alive."""
+    generic = shipped_dialect_path("generic").read_text(encoding="utf-8")
+    absent = '    set_keep_alive: {absent: "SCPI-1999 has no standard keep-alive command"}'
+    assert absent in generic
+    dialect = folder / "supply-with-keepalive.yaml"
+    dialect.write_text(
+        generic.replace(absent, '    set_keep_alive: {write: "OUTPut:KEEPalive:TIMeout {seconds:g}"}')
+        .replace("dialect: generic", "dialect: supply-with-keepalive"),
+        encoding="utf-8",
+    )
+    data = yaml.safe_load(bench.read_text())
+    data["instruments"]["bias"]["dialect"] = str(dialect)
+    bench.write_text(yaml.safe_dump(data, sort_keys=False))
+
+
+def test_a_keep_alive_is_armed_before_going_live_and_disarmed_once_safe(tmp_path):
+    db = f"sqlite:///{tmp_path / 'results.db'}"
+    with sim_bench(tmp_path, write_board(tmp_path)) as (sim, bench):
+        with_keep_alive(bench, tmp_path)
+        done = run_cli(run_args(write_procedure(tmp_path), bench, db, "--yes"), tmp_path)
+        state = supply_state(sim)
+        lapses = sim.instruments["bias"].keep_alive_lapses
+    assert done.code == EXIT_OK, done
+    assert_off_at_zero(state)
+    assert lapses == 0  # a healthy run is never cut off
+    _run, events = the_run(db)
+    k = [e.kind for e in events]
+    armed = [e.detail["seconds"] for e in events if e.kind == "keep_alive"]
+    assert armed == [KEEP_ALIVE_MIN_S, 0.0]
+    assert k.index("keep_alive") < k.index("output")  # armed before the output went on
+    assert k.index("safe_state") < len(k) - 1 - k[::-1].index("keep_alive")  # disarmed after
+
+
+def test_a_supply_with_a_keep_alive_switches_itself_off_when_its_runner_is_killed(tmp_path):
+    # A lab dialect declaring the simulated supply's own keep-alive: the run arms it before going
+    # live (KEEP_ALIVE_MIN_S, 5 s); killed with SIGKILL, the run sends nothing more and the supply
+    # switches its output off by itself -- no `benchwright safe` needed.
+    db = f"sqlite:///{tmp_path / 'results.db'}"
+    with sim_bench(tmp_path, write_board(tmp_path)) as (sim, bench):
+        with_keep_alive(bench, tmp_path)
+        child = Child(
+            run_args(write_procedure(tmp_path, soak_s=30.0), bench, db, "--yes"), tmp_path
+        )
+        try:
+            with second_session(sim) as watcher:
+                wait_until_live(watcher, 5.0, child)
+            child.kill()  # SIGKILL: no handler, no cleanup
+        finally:
+            child.kill()
+        time.sleep(KEEP_ALIVE_MIN_S + 1.0)  # nothing reaches the supply meanwhile
+        with second_session(sim) as watcher:  # its first message applies the elapsed time
+            on, volts = watcher.output_on(), watcher.voltage()
+        lapses = sim.instruments["bias"].keep_alive_lapses
+    assert on is False and abs(volts) < TOL and lapses == 1, (on, volts, lapses)
+    _run, events = the_run(db)
+    armed = [e.detail["seconds"] for e in events if e.kind == "keep_alive"]
+    assert armed == [KEEP_ALIVE_MIN_S]  # armed once, before going live; never disarmed
