@@ -30,6 +30,7 @@ from .certificate_context import (
 )
 from .evidence import PulseShape, RunSnapshot, SCurve, TransferCurve, gather_evidence, snapshot_run
 from .quantities import quantity_rank
+from .spectra import Spectrum, gather_spectra
 
 SCHEMA = "benchwright-certificate/2"
 HASH_PREFIX_DIGITS = 12
@@ -114,6 +115,7 @@ class CertificateData:
     transfer: tuple[TransferCurve, ...] = ()
     s_curves: tuple[SCurve, ...] = ()
     pulses: tuple[PulseShape, ...] = ()
+    spectra: tuple[Spectrum, ...] = ()
     caveats: tuple[str, ...] = ()  # how the run was run (overrides, changed draft text): printed
     conditions: tuple[str, ...] = ()  # the run's resolved parameters, "name = value"
     decision_rule: str = SIMPLE_ACCEPTANCE
@@ -209,6 +211,7 @@ def _certificate(snap: RunSnapshot, channel: int) -> CertificateData:
         transfer=transfer,
         s_curves=s_curves,
         pulses=pulses,
+        spectra=gather_spectra(snap, channel),
         caveats=tuple(snap.caveats),
         conditions=conditions(dict(run.parameters or {})),
         decision_rule=snap.decision_rule,
@@ -349,6 +352,7 @@ def certificate_from_dict(value: Mapping[str, Any]) -> CertificateData:
     v["transfer"] = rows("transfer", TransferCurve, ("amplitudes_mV", "heights_mV", "residuals_mV"))
     v["s_curves"] = rows("s_curves", SCurve, ("thresholds_mV", "counts"))
     v["pulses"] = rows("pulses", PulseShape)
+    v["spectra"] = rows("spectra", Spectrum, ("edges", "counts", "model"))
     v["caveats"] = tuple(v.get("caveats", ()))
     v["conditions"] = tuple(v.get("conditions", ()))
     v["bias"] = tuple(tuple(pair) for pair in v.get("bias", ()))

@@ -83,6 +83,7 @@ def render_certificates(datas: list[CertificateData], out_dir: str, paper: str =
     from .certificate_html import render_html
     from .certificate_pdf import render_pdf
     from .plots import Plotter
+    from .spectra import plot_spectra
 
     plotter = Plotter()
     written: list[str] = []
@@ -92,6 +93,7 @@ def render_certificates(datas: list[CertificateData], out_dir: str, paper: str =
             "s_curves": plotter.s_curves(d.s_curves),
             "pulses": plotter.pulses(d.pulses),
             "crosstalk": plotter.crosstalk(d.crosstalk_out, d.channel),
+            "spectra": plot_spectra(d.spectra),
         }
         stem = certificate_stem(d)
         pdf = render_pdf(d, images, Path(out_dir) / f"{stem}.pdf", paper=paper)

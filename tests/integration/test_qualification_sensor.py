@@ -50,7 +50,7 @@ def write_sensor(folder: Path, serial: str, *, breakdown_V: float, temperature_C
     return path
 
 
-def run(sensor: Path, db: Path) -> dict[str, Any]:
+def run(sensor: Path, db: Path, certificates: Path | None = None) -> dict[str, Any]:
     serial = yaml.safe_load(sensor.read_text())["serial"]
     procedure = load_procedure(PROCEDURES / "sipm-characterise.yaml")
     board = dataclasses.replace(load_board_type("SiPM3"), serial=serial)
@@ -61,7 +61,24 @@ def run(sensor: Path, db: Path) -> dict[str, Any]:
     with Store.open(f"sqlite:///{db}") as store:
         with compose.bench_for(None, str(sensor)) as spec:
             result = compose.execute(plan, spec, store, request)
+        if certificates is not None:
+            certify(store, result.run_id, certificates)
         return {m.quantity: m for m in store.measurements(run_id=result.run_id)}
+
+
+def certify(store: Any, run_id: int, out: Path) -> None:
+    """The sensor's certificate carries its spectra and gain scan as stored, and verifies."""
+    from sequencer.reports import certify_run, gather_certificates
+    from sequencer.reports.verify import verify_certificate
+
+    (data,) = gather_certificates(store, run_id)
+    labels = [s.label for s in data.spectra]
+    assert labels == ["gain scan", "LED finger spectrum"]
+    finger = data.spectra[1]
+    assert len(finger.edges) == len(finger.counts) + 1 == len(finger.model) + 1
+    assert sum(finger.model) == pytest.approx(sum(finger.counts), rel=0.02)  # the fit holds them
+    pdf = next(p for p in map(Path, certify_run(store, run_id, out)) if p.suffix == ".pdf")
+    assert verify_certificate(store, pdf).ok
 
 
 def test_characterisation_recovers_the_sensor_file(tmp_path: Path) -> None:

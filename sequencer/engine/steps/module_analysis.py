@@ -31,7 +31,7 @@ from .sensor_analysis import _earlier, _histogram, spectrum_series
 FIT_FROM, FIT_TO = 0.5, 3.0
 """Fit range of the light-yield spectrum in units of its peak position (common practice)."""
 FIT_BINS = 80
-"""About this many bins in the fit range (the analyser's bins are merged by a whole factor)."""
+"""At most about this many bins in the fit range, each a whole number of photoelectrons wide."""
 
 
 def analyse_light_yield(ctx: RunContext, step: PlannedStep) -> StepResult:
@@ -52,11 +52,13 @@ def analyse_light_yield(ctx: RunContext, step: PlannedStep) -> StepResult:
     if inside.size < 8:
         raise AnalysisInputError(f"only {inside.size} bins around the peak: widen the histogram")
     lo, hi = int(inside[0]), int(inside[-1]) + 1
-    group = max(1, (hi - lo) // FIT_BINS)  # rebin: the fit needs tens of bins, not thousands
-    hi = lo + (hi - lo) // group * group
-    fit = an.fit_landau_histogram(
-        pe_edges[lo : hi + 1 : group], counts[lo:hi].reshape(-1, group).sum(axis=1)
-    )
+    # rebin to whole photoelectrons: the charge comes in fired cells, so bins of any other width
+    # alias the finger structure into a comb; the fit needs tens of bins, not thousands
+    width = max(1.0, round((FIT_TO - FIT_FROM) * peak / FIT_BINS))
+    start = math.floor(centres[lo]) - 0.5
+    pe_bins = np.arange(start, centres[hi - 1] + width, width)
+    merged, _ = np.histogram(centres[lo:hi], bins=pe_bins, weights=counts[lo:hi])
+    fit = an.fit_landau_histogram(pe_bins, merged)
     value = fit.mpv / ecf
     return StepResult(
         results={
