@@ -211,6 +211,7 @@ def create_app(settings: ServeSettings, store: Any) -> Any:
         Route("/batches/{name:path}", pages.batch_page, name="batch"),
         Route("/boards/{serial:path}", pages.board_page, name="board"),
         Route("/trend", pages.trend_page, name="trend"),
+        Route("/favicon.ico", lambda request: Response(status_code=204)),  # none: no console error
         Mount("/static", StaticFiles(directory=HERE / "static"), name="static"),
     ]
 

@@ -134,6 +134,8 @@ def test_each_page_loads_and_its_links_lead_somewhere(site, browser) -> None:
             browser.get(href)
             assert browser.find_elements(By.ID, "database"), href
             assert "Nothing to show" not in browser.find_element(By.TAG_NAME, "h1").text, href
+            errors = [e["message"] for e in browser.get_log("browser") if e["level"] == "SEVERE"]
+            assert errors == [], (href, errors)  # no script error, no failed request
     assert any("/trend?" in h for h in visited) and any("/batches/" in h for h in visited)
 
 

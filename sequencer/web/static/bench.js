@@ -36,6 +36,7 @@ function plot(holder, opts) {
     s.x.forEach((x, i) => { if (s.y[i] !== null && isFinite(s.y[i])) { xs.push(x); ys.push(s.y[i]); } });
   }
   for (const v of (opts.band || [])) if (v !== null && v !== undefined) ys.push(v);
+  for (const line of (opts.lines || [])) if (line.y !== null && line.y !== undefined) ys.push(line.y);
   if (!xs.length) { holder.textContent = "no points"; return; }
   const full = {x0: Math.min(...xs), x1: Math.max(...xs), y0: Math.min(...ys), y1: Math.max(...ys)};
   let view = Object.assign({}, full);
@@ -58,9 +59,18 @@ function plot(holder, opts) {
     svg.appendChild(el("line", {x1: L, x2: L, y1: T, y2: H - B, class: "axis"}));
     svg.appendChild(el("line", {x1: L, x2: W - R, y1: H - B, y2: H - B, class: "axis"}));
     for (let k = 0; k <= 4; k++) {
-      const yv = y0 + (y1 - y0) * k / 4, xv = x0 + (x1 - x0) * k / 4;
+      const yv = y0 + (y1 - y0) * k / 4;
       svg.appendChild(el("text", {x: L - 6, y: sy(yv) + 4, class: "tick", "text-anchor": "end"}, fmt(yv)));
-      svg.appendChild(el("text", {x: sx(xv), y: H - B + 16, class: "tick", "text-anchor": "middle"}, fmt(xv)));
+    }
+    // x ticks: the given values (e.g. run ids), at most 10 of those in view; else 5 even steps
+    let xticks = [0, 1, 2, 3, 4].map((k) => x0 + (x1 - x0) * k / 4);
+    if (opts.xTicks) {
+      const inView = opts.xTicks.filter((v) => v >= x0 && v <= x1);
+      const every = Math.max(1, Math.ceil(inView.length / 10));
+      xticks = inView.filter((_, i) => i % every === 0);
+    }
+    for (const xv of xticks) {
+      svg.appendChild(el("text", {x: sx(xv), y: H - B + 16, class: "tick", "text-anchor": "middle"}, opts.xTicks ? String(xv) : fmt(xv)));
     }
     svg.appendChild(el("text", {x: (L + W - R) / 2, y: H - 6, class: "label", "text-anchor": "middle"}, opts.xLabel || ""));
     svg.appendChild(el("text", {x: 12, y: (T + H - B) / 2, class: "label", "text-anchor": "middle", transform: `rotate(-90 12 ${(T + H - B) / 2})`}, opts.yLabel || ""));
@@ -214,7 +224,7 @@ function startTrend() {
   const t = JSON.parse(data.textContent);
   const x = t.points.map((p) => p.run), y = t.points.map((p) => p.y);
   plot(document.getElementById("trend-plot"), {
-    title: t.title, zoom: true, band: t.band,
+    title: t.title, zoom: true, band: t.band, xTicks: x,
     lines: [{y: t.centre, cls: "centre"}, {y: t.limits[0], cls: "limit"}, {y: t.limits[1], cls: "limit"}],
     series: [{x, y}, {x, y, points: true, cls: (i) => (t.points[i].out ? "outside " : "") + t.points[i].verdict}],
     hover: (si, i) => { const p = t.points[i]; return `run ${p.run} · ${p.at} · ${fmt(p.y)} ${t.unit}${p.err ? " ± " + fmt(p.err) : ""} · ${p.verdict}${p.out ? " · outside the band" : ""}`; },
