@@ -179,9 +179,12 @@ class Dialect:
 
     def render(self, operation: Operation, template: Template, values: Mapping[str, Any]) -> str:
         """``template`` filled from ``values`` after the operation's value maps."""
-        wire = {
-            k: _wire_value(k, map_value(k, v, operation.values.get(k))) for k, v in values.items()
-        }
+        maps = operation.values
+        wire = {}
+        for k, v in values.items():
+            if maps and k in maps:
+                v = map_value(k, v, maps[k])
+            wire[k] = _wire_value(k, v) if isinstance(v, str) else v
         try:
             return template.render(wire)
         except ExpressionError as exc:

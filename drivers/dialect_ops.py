@@ -69,7 +69,7 @@ class Step:
     every_s: float = 0.05
     timeout_ms: int | None = None
     when: Expression | None = None
-    reply: ReplyRule = field(default_factory=ReplyRule)
+    reply: ReplyRule | None = None  # None: the operation's rule
     location: Location
 
 
@@ -222,7 +222,8 @@ class Reader:
             return Step(action=action, template=template, when=when, location=where)
         return Step(action=action, template=template, until=until, every_s=float(every) / 1000,
                     timeout_ms=self.timeout(item, label), when=when,
-                    reply=self.reply(item, label), location=where)  # fmt: skip
+                    reply=self.reply(item, label) if "reply" in item else None,
+                    location=where)  # fmt: skip
 
     def template(self, item: YamlMap, key: str, label: str, names: set[str]) -> Template | None:
         text, where = item.get(key), item.where(key)

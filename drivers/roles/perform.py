@@ -67,7 +67,7 @@ def query(
 
 
 def _rule(op: Operation, step: Step) -> ReplyRule:
-    return step.reply if step.reply != ReplyRule() else op.reply
+    return op.reply if step.reply is None else step.reply
 
 
 def _poll(

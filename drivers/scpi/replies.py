@@ -59,6 +59,16 @@ class ReplyRule:
     words: Mapping[str, Any] = dataclasses.field(default_factory=dict)
     unit: str = ""
 
+    def __post_init__(self) -> None:
+        plain = not (self.header or self.pattern or self.fields or self.words or self.unit)
+        plain = plain and self.separator == "," and self.field is None and self.bit is None
+        object.__setattr__(self, "_plain", plain)  # frozen: computed once, read per reply
+
+    @property
+    def plain(self) -> bool:
+        """True when the rule does nothing (the whole reply is the value)."""
+        return self._plain  # type: ignore[attr-defined,no-any-return]
+
     def position(self) -> int | None:
         """The 0-based index of the selected field (``None``: the whole reply)."""
         if self.field is None:
@@ -70,6 +80,14 @@ class ReplyRule:
 
 def parse_reply(text: str, kind: str, rule: ReplyRule = ReplyRule()) -> Any:
     """The value of ``text`` by ``rule``, as ``kind`` (``float``/``int``/``bool``/``str``/``csv``)."""
+    if kind == "float" and rule.plain:  # the common case: one plain number, no rule to apply
+        part = text.strip()
+        if "_" not in part:  # float() would take "1_0"; parse_number refuses it below
+            try:
+                return float(part)
+            except ValueError:
+                pass
+        return parse_number(part)
     part = select(text, rule)
     if rule.bit is not None:
         word = parse_number(part, rule.unit)

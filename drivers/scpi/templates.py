@@ -61,11 +61,11 @@ class Expression:
 
     def evaluate(self, values: Mapping[str, Any]) -> Any:
         """The value over ``values``; bounded, finite numbers only (strings only as a bare name)."""
+        if self.text in values:  # a bare name: the common case, looked up once (no evaluator)
+            return values[self.text]
         missing = sorted(n for n in self.names if n not in values)
         if missing:
             raise ExpressionError(f"{self.text!r}: no value for {', '.join(missing)}")
-        if self.text.isidentifier():
-            return values[self.text]
         for name in self.names:
             _check_number(name, values[name])
         evaluator = simpleeval.SimpleEval(names=dict(values), functions=FUNCTIONS)
@@ -163,7 +163,7 @@ class Template:
                 raise ExpressionError(
                     f"{{{part.expression.text}:{part.spec}}} cannot format {value!r}: {exc}"
                 ) from None
-            if any(c in text for c in "\r\n;"):
+            if ";" in text or "\n" in text or "\r" in text:
                 raise ExpressionError(
                     f"{part.expression.text}={value!r}: a command argument may not hold a "
                     "newline or ';'"
