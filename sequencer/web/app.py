@@ -221,6 +221,7 @@ def create_app(settings: ServeSettings, store: Any) -> Any:
     app.state.store = store
     app.state.outlines = Outlines()
     app.state.certificate_checks = CertificateChecks()
+    app.state.curve_cache = {}  # completed run id -> its curves (web/pages.py)
     app.state.templates = Jinja2Templates(env=env)
     app.state.database = store.engine.url.render_as_string(hide_password=True)
     if settings.token is not None:

@@ -23,6 +23,7 @@ from sequencer.web.settings import MAX_PAGE_SIZE
 
 RUNS_COLUMNS = ("run", "board", "batch", "procedure", "operator", "status", "verdict", "values",
                 "started", "took")
+CURVE_CACHE_RUNS = 32  # completed runs whose curves are kept for the next view
 RUN_FILTERS = ("board", "batch", "procedure", "verdict", "operator", "status", "since", "until")
 VERDICTS = ("pass", "fail", "")
 
@@ -117,22 +118,35 @@ def run_page(request: Request) -> Response:
         counts = run_counts(conn, [run_id])[run_id]
     steps = store.steps(run_id)
     measurements = store.measurements(run_id=run_id)
-    curves: dict[str, dict[str, Any]] = {}
-    if run.status != "running":
-        for p in read_series(store, run_id):
-            key = f"ch{p.channel} {p.label}"
-            curve = curves.setdefault(key, {"title": key, "series": p.series, "x_unit": p.x_unit,
-                                            "y_unit": p.y_unit, "x": [], "y": []})  # fmt: skip
-            curve["x"].append(p.x)
-            curve["y"].append(p.y)
+    curves = _curves(request, run, read_series) if run.status != "running" else []
     return render(
         request, "run.html", run=run, counts=counts, verdict=counts.verdict(run.status),
-        steps=steps, rows=measurement_rows(measurements), curves=list(curves.values()),
+        steps=steps, rows=measurement_rows(measurements), curves=curves,
         safety=store.safety_events(run_id), notes=store.audit_trail(run_id),
         snapshot=live_snapshot(store, run_id, _state(request).outlines),
         certificates=certificates_of_run(_state(request).settings.certificates, run_id),
         certificate_folders=_state(request).settings.certificates,
     )  # fmt: skip
+
+
+def _curves(request: Request, run: Any, read_series: Any) -> list[dict[str, Any]]:
+    """The run's curves for the page; kept per completed run (a completed run never changes)."""
+    cache = _state(request).curve_cache
+    if run.status == "completed" and run.id in cache:
+        return cache[run.id]
+    curves: dict[str, dict[str, Any]] = {}
+    for p in read_series(_state(request).store, run.id):
+        key = f"ch{p.channel} {p.label}"
+        curve = curves.setdefault(key, {"title": key, "series": p.series, "x_unit": p.x_unit,
+                                        "y_unit": p.y_unit, "x": [], "y": []})  # fmt: skip
+        curve["x"].append(p.x)
+        curve["y"].append(p.y)
+    found = list(curves.values())
+    if run.status == "completed":
+        while len(cache) >= CURVE_CACHE_RUNS:
+            cache.pop(next(iter(cache)))  # the oldest entry: memory stays bounded
+        cache[run.id] = found
+    return found
 
 
 def live_page(request: Request) -> Response:
