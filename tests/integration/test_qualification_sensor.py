@@ -26,13 +26,15 @@ E = 1.602176634e-19  # C, SI
 OPERATING_V = 54.3  # the procedure's operating point
 
 
-def write_sensor(folder: Path, serial: str, *, breakdown_V: float, temperature_C: float) -> Path:
+def write_sensor(
+    folder: Path, serial: str, *, breakdown_V: float, temperature_C: float, **readout: Any
+) -> Path:
     data: dict[str, Any] = {
         "serial": serial,
         "sensor_type": "SiPM3",
         "seed": 23,
         "temperature_C": temperature_C,
-        "readout": {"mV_per_fC": 0.05, "noise_mV": 1.0},
+        "readout": {"mV_per_fC": 0.05, "noise_mV": 1.0, **readout},
         "led": {"pe_per_V": 1.5, "threshold_V": 0.5},
         "sensors": [
             {
@@ -50,11 +52,13 @@ def write_sensor(folder: Path, serial: str, *, breakdown_V: float, temperature_C
     return path
 
 
-def run(sensor: Path, db: Path, certificates: Path | None = None) -> dict[str, Any]:
+def run(
+    sensor: Path, db: Path, certificates: Path | None = None, **overrides: Any
+) -> dict[str, Any]:
     serial = yaml.safe_load(sensor.read_text())["serial"]
     procedure = load_procedure(PROCEDURES / "sipm-characterise.yaml")
     board = dataclasses.replace(load_board_type("SiPM3"), serial=serial)
-    plan = build_plan(procedure, board, overrides={"events": 6000})
+    plan = build_plan(procedure, board, overrides={"events": 6000, **overrides})
     request = compose.RunRequest(
         operator="test", unattended=True, progress=False, handle_signals=False
     )
@@ -105,3 +109,29 @@ def test_a_sensor_whose_breakdown_is_off_fails(tmp_path: Path) -> None:
     )
     assert abs(ms["breakdown_ref_V"].value - 52.3) < 0.1
     assert ms["breakdown_ref_V"].verdict == "fail"
+
+
+def test_negative_readout_with_a_baseline(tmp_path: Path) -> None:
+    # other physics: pulses going down from a 3 mV baseline; thresholds below it, range mirrored
+    sensor = write_sensor(
+        tmp_path,
+        "LX-S3-T003",
+        breakdown_V=51.2,
+        temperature_C=25.0,
+        polarity="negative",
+        baseline_mV=3.0,
+    )
+    ms = run(
+        sensor,
+        tmp_path / "r.db",
+        polarity="negative",
+        mca_lower="-200 mV",
+        mca_upper="10 mV",
+        thresholds=[f"{-1.5 - 1.5 * i:.1f} mV" for i in range(33)],
+    )
+    over = OPERATING_V - 51.2
+    assert abs(ms["breakdown_ref_V"].value - 51.2) < 0.1
+    assert ms["sipm_gain"].value == pytest.approx(100e-15 * over / E / 1e6, rel=0.02)
+    assert ms["pe_gain_mV"].value < 0 and ms["pedestal_mV"].value == pytest.approx(3.0, abs=0.1)
+    assert ms["dcr_kHz"].value == pytest.approx(40.0 * over, rel=0.10)
+    assert abs(ms["optical_crosstalk_pct"].value - 100.0 * (1.0 - math.exp(-0.04 * over))) < 2.0
