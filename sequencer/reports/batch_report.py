@@ -27,6 +27,7 @@ from typing import Any
 import numpy as np
 
 from .quantities import format_limits, format_number, quantity_rank
+from .reading import StoreReader
 
 DEFAULT_OUTLIER_SIGMA = 3.5
 MAD_TO_SIGMA = 1.4826
@@ -92,7 +93,7 @@ class BatchSummary:
 
 
 def batch_summary(
-    store: Any, batch: str, *, outlier_sigma: float = DEFAULT_OUTLIER_SIGMA
+    store: StoreReader, batch: str, *, outlier_sigma: float = DEFAULT_OUTLIER_SIGMA
 ) -> BatchSummary:
     """Summarise batch ``batch`` from the store (module docstring for the definitions)."""
     if not outlier_sigma > 0:
@@ -297,7 +298,7 @@ def _text_table(header: tuple[str, ...], rows: list[tuple[str, ...]]) -> list[st
 
 
 def batch_report(
-    store: Any,
+    store: StoreReader,
     batch: str,
     out_dir: Path | str,
     *,

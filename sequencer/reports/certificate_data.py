@@ -30,6 +30,7 @@ from .certificate_context import (
 )
 from .evidence import PulseShape, RunSnapshot, SCurve, TransferCurve, gather_evidence, snapshot_run
 from .quantities import quantity_rank
+from .reading import StoreReader
 from .spectra import Spectrum, gather_spectra
 
 SCHEMA = "benchwright-certificate/2"
@@ -156,13 +157,13 @@ def limited_quantities(snap: RunSnapshot) -> frozenset[str]:
     return frozenset(found)
 
 
-def gather_certificates(store: Any, run_id: int) -> list[CertificateData]:
+def gather_certificates(store: StoreReader, run_id: int) -> list[CertificateData]:
     """One :class:`CertificateData` per channel that has a measurement in run ``run_id``."""
     snap = snapshot_run(store, run_id)
     return [_certificate(snap, channel) for channel in snap.channels]
 
 
-def gather_certificate(store: Any, run_id: int, channel: int) -> CertificateData:
+def gather_certificate(store: StoreReader, run_id: int, channel: int) -> CertificateData:
     """The data of one channel; ``KeyError`` if the run has no measurement of that channel."""
     snap = snapshot_run(store, run_id)
     if channel not in snap.channels:

@@ -15,9 +15,9 @@ import re
 from collections.abc import Callable
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from pathlib import Path
-from typing import Any
 
 from .certificate_data import CertificateData, gather_certificates
+from .reading import StoreReader
 
 MIN_PER_WORKER = 3
 """Below this many certificates per worker, starting a pool costs more than it saves."""
@@ -31,7 +31,7 @@ def certificate_stem(data: CertificateData) -> str:
 
 
 def certify_run(
-    store: Any,
+    store: StoreReader,
     run_id: int,
     out_dir: Path | str,
     *,

@@ -20,6 +20,7 @@ from typing import Any
 import numpy as np
 
 from .certificate_context import decision_rule
+from .reading import StoreReader
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -68,7 +69,7 @@ class RunSnapshot:
     """One run read from the store: record, measurements, completed steps, safety events, caveats
     and the quantities its limit set limits."""
 
-    def __init__(self, store: Any, run_id: int) -> None:
+    def __init__(self, store: StoreReader, run_id: int) -> None:
         self.store = store
         self.run_id = run_id
         self.run = store.get_run(run_id)
@@ -100,7 +101,7 @@ def _limit_quantities(inputs: Iterable[Any]) -> frozenset[str]:
     return frozenset(found)
 
 
-def snapshot_run(store: Any, run_id: int) -> RunSnapshot:
+def snapshot_run(store: StoreReader, run_id: int) -> RunSnapshot:
     return RunSnapshot(store, run_id)
 
 

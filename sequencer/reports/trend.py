@@ -21,6 +21,7 @@ from typing import Any
 import numpy as np
 
 from .quantities import UNITS
+from .reading import StoreReader
 
 DEFAULT_REFERENCE_RUNS = 5
 BAND_SIGMAS = 3.0
@@ -59,7 +60,7 @@ class TrendResult:
 
 
 def trend(
-    store: Any,
+    store: StoreReader,
     board: str,
     quantity: str,
     *,
@@ -127,7 +128,7 @@ def trend(
 
 
 def series_keys(
-    store: Any, board: str, quantity: str, *, output: str | None = None, procedure: str | None = None
+    store: StoreReader, board: str, quantity: str, *, output: str | None = None, procedure: str | None = None
 ) -> list[tuple[int | None, str | None]]:
     """The (channel, output) series of ``quantity`` on ``board``, by channel then output."""
     points = store.quantity_series(board, quantity, output=output, procedure=procedure)
@@ -136,7 +137,7 @@ def series_keys(
 
 
 def trends(
-    store: Any,
+    store: StoreReader,
     board: str,
     quantity: str,
     *,

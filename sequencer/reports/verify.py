@@ -35,6 +35,7 @@ from .certificate_data import (
 from .certificate_html import DATA_SCRIPT_ID, META_NAME
 from .certificate_pdf import ATTACHMENT_NAME, needs_unicode_font, pdf_text
 from .certificate_view import closing_fields, printed_fields, table_fields
+from .reading import StoreReader
 
 MAX_DIFFERENCES = 50
 
@@ -55,7 +56,7 @@ class _Embedded:
     page_text: str | None  # PDF text
 
 
-def verify_certificate(store: Any, path: Path | str) -> VerifyResult:
+def verify_certificate(store: StoreReader, path: Path | str) -> VerifyResult:
     """Compare the certificate at ``path`` with the database of ``store`` (module docstring).
 
     ``ValueError`` if the file is not a benchwright certificate at all.
