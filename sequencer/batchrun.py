@@ -60,6 +60,7 @@ class BatchOptions:
     handle_signals: bool = True
     overrides: Mapping[str, Any] = field(default_factory=dict)  # procedure parameters
     lab: LabFiles = field(default_factory=LabFiles)  # a lab's own board types and limit sets
+    override_instrument_checks: bool = False  # run past calibration due / wrong identity (a caveat)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -202,6 +203,8 @@ class _BatchRun:
             batch=self.batch.name,
             progress=opts.progress,
             handle_signals=opts.handle_signals,
+            override_instrument_checks=opts.override_instrument_checks,
+            warn=lambda line: opts.echo(f"warning: {board.serial}: {line}"),
         )
         sim = str(sim_board_path(board, opts.sim_dir)) if opts.sim_dir else None
         if sim:

@@ -75,6 +75,12 @@ def _mount_on_terminal(bench: bool) -> Any:
 )
 @db_option
 @visa_library_option
+@click.option(
+    "--override-instrument-checks",
+    is_flag=True,
+    help="Run although an instrument is past its calibration date or has another identity than "
+    "expected; recorded and printed on every certificate of each run.",
+)
 @handles_errors
 def batch(
     batch_file: str,
@@ -86,6 +92,7 @@ def batch(
     report_dir: str | None,
     db: str | None,
     allow_visa_library: tuple[str, ...],
+    override_instrument_checks: bool,
 ) -> None:
     """Qualify the boards of a batch file in turn; a running yield, then the batch summary."""
     from sequencer import compose
@@ -109,6 +116,7 @@ def batch(
         prompt=prompt_on_terminal(),
         echo=click.echo,
         lab=LabFiles.from_env(env()),
+        override_instrument_checks=override_instrument_checks,
     )
     with compose.open_store(db, env()) as store:
         outcome = qualify_batch(spec, store, options)
