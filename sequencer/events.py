@@ -147,6 +147,7 @@ class StepFinished:
     settings: Mapping[str, Any] = field(default_factory=dict)
     results: Mapping[str, Any] = field(default_factory=dict)
     error: str = ""
+    labels: Mapping[str, Any] = field(default_factory=dict)   # the plan's labels: channel, output, sweep values
 
 
 @dataclass(frozen=True)

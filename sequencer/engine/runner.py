@@ -201,6 +201,7 @@ class Runner:
                 started_at=started,
                 finished_at=self.clock(),
                 settings=dict(step.args),
+                labels=dict(step.labels),
                 results={} if result is None else dict(result.results),
                 error=str(result.results.get("error", "")) if result is not None else "",
             )
@@ -268,6 +269,7 @@ class Runner:
                         started_at=now,
                         finished_at=now,
                         settings=dict(step.args),
+                        labels=dict(step.labels),
                         error=str(abort),
                     )
                 )
@@ -291,6 +293,7 @@ class Runner:
                 started_at=now,
                 finished_at=now,
                 settings=dict(step.args),
+                labels=dict(step.labels),
                 error=why,
             )
         )

@@ -14,6 +14,7 @@ the two.  Layout::
     annotations   notes and the audit trail (status changes, resumes); added in revision 0002
     run_inputs    every text a run used (procedure, fragments, limits, board type, bench, dialects),
                   each a document; added in revision 0003
+    step_labels   the labels of each completed step (channel, output, sweep values), typed; 0004
 
 Everything but ``runs`` is append-only; revision 0002 adds triggers that refuse UPDATE and DELETE.
 """
@@ -250,3 +251,24 @@ class RunInput(Base):
     kind: Mapped[str] = mapped_column(String(20))
     name: Mapped[str] = mapped_column(Text)
     document: Mapped[str] = mapped_column(ForeignKey("documents.sha256"))
+
+
+LABEL_TYPES = ("int", "float", "bool", "text")
+
+
+class StepLabel(Base):
+    """One label of a completed step: ``number`` for int/float/bool (``type`` says which), else ``text``."""
+
+    __tablename__ = "step_labels"
+    __table_args__ = (
+        Index("ix_step_labels_step", "step_id"),
+        Index("ix_step_labels_run_name", "run_id", "name", "number"),
+    )
+
+    id: Mapped[int] = mapped_column(BigId, primary_key=True)
+    run_id: Mapped[int] = mapped_column(ForeignKey("runs.id"))
+    step_id: Mapped[int] = mapped_column(ForeignKey("steps.id"))
+    name: Mapped[str] = mapped_column(String(100))
+    type: Mapped[str] = mapped_column(String(8))
+    number: Mapped[float | None] = mapped_column(Float)
+    text: Mapped[str | None] = mapped_column(Text)

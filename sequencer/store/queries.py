@@ -26,6 +26,7 @@ from sequencer.store.models import (
     Run,
     SafetyRecord,
     Step,
+    StepLabel,
     Trace,
 )
 from sequencer.store.models import RunInput as RunInputRow
@@ -220,6 +221,7 @@ def completed_steps(conn: Connection, run_id: int) -> dict[str, CompletedStep]:
     by_step_ms: dict[str, list[StoredMeasurement]] = defaultdict(list)
     for m in conn.execute(_measurement_query([Measurement.run_id == run_id])).mappings():
         by_step_ms[m["path"]].append(_stored_measurement(m))
+    labels = step_labels(conn, run_id)
     query = (
         select(*Step.__table__.c)
         .where(Step.run_id == run_id, Step.status == "completed")
@@ -227,6 +229,7 @@ def completed_steps(conn: Connection, run_id: int) -> dict[str, CompletedStep]:
     )
     return {
         s["path"]: CompletedStep(
+            labels=labels.get(s["id"], {}),
             path=s["path"],
             kind=s["kind"],
             started_at=s["started_at"],
@@ -315,4 +318,25 @@ def text_digests(conn: Connection, procedure: str, version: str) -> dict[str, in
     found: dict[str, int] = {}
     for run_id, of_run in entries.items():
         found.setdefault(manifest_digest(of_run), run_id)
+    return found
+
+
+_LABEL_VALUE = {
+    "int": lambda number, _text: int(number),
+    "float": lambda number, _text: float(number),
+    "bool": lambda number, _text: bool(number),
+    "text": lambda _number, text: text,
+}
+
+
+def step_labels(conn: Connection, run_id: int) -> dict[int, dict[str, Any]]:
+    """Step id -> its labels with their types restored (int, float, bool, text)."""
+    found: dict[int, dict[str, Any]] = defaultdict(dict)
+    rows = conn.execute(
+        select(StepLabel.step_id, StepLabel.name, StepLabel.type, StepLabel.number, StepLabel.text)
+        .where(StepLabel.run_id == run_id)
+        .order_by(StepLabel.id)
+    )
+    for step_id, name, type_, number, text in rows:
+        found[step_id][name] = _LABEL_VALUE[type_](number, text)
     return found

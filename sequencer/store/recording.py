@@ -14,7 +14,7 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -40,6 +40,24 @@ STEPS: Table = Base.metadata.tables["steps"]
 TRACES: Table = Base.metadata.tables["traces"]
 MEASUREMENTS: Table = Base.metadata.tables["measurements"]
 SAFETY: Table = Base.metadata.tables["safety_events"]
+LABELS: Table = Base.metadata.tables["step_labels"]
+
+
+def label_rows(run_id: int, step_id: int, labels: Mapping[str, Any]) -> list[dict[str, Any]]:
+    """One typed row per label: ints, floats and booleans in ``number``, anything else as ``text``."""
+    rows = []
+    for name, value in labels.items():
+        row: dict[str, Any] = {"run_id": run_id, "step_id": step_id, "name": str(name)}
+        if isinstance(value, bool | np.bool_):
+            row |= {"type": "bool", "number": float(bool(value)), "text": None}
+        elif isinstance(value, int | np.integer):
+            row |= {"type": "int", "number": float(value), "text": None}
+        elif isinstance(value, float | np.floating) and math.isfinite(float(value)):
+            row |= {"type": "float", "number": float(value), "text": None}
+        else:
+            row |= {"type": "text", "number": None, "text": str(value)}
+        rows.append(row)
+    return rows
 
 
 @dataclass
@@ -165,6 +183,8 @@ class Recorder:
             step_id = int(conn.execute(insert(STEPS).values(step)).inserted_primary_key[0])
             if e.status != "completed":
                 return
+            if e.labels:
+                conn.execute(insert(LABELS), label_rows(e.run_id, step_id, e.labels))
             if pending.traces:
                 conn.execute(insert(TRACES), trace_rows(e.run_id, step_id, pending.traces))
             if pending.measurements:

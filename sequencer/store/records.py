@@ -104,6 +104,7 @@ class CompletedStep:
     results: Mapping[str, Any]
     traces: tuple[StoredTrace, ...]
     measurements: tuple[StoredMeasurement, ...]
+    labels: Mapping[str, Any] = field(default_factory=dict)   # channel, output, sweep values (typed)
 
 
 @dataclass(frozen=True, kw_only=True)

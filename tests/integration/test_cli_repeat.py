@@ -101,6 +101,11 @@ def test_every_input_is_stored_and_the_hash_covers_them(tmp_path: Path, bench) -
     with Store.open(db) as store:
         run = store.list_runs()[0]
         inputs = store.run_inputs(run.id)
+        captures = [s for s in store.completed_steps(run.id).values() if s.kind == "scope.capture"]
+    # each step's labels kept as typed values: the sweep in mV (linspace 20..100 mV, 3 points)
+    assert sorted({s.labels["amp"] for s in captures}) == [20.0, 60.0, 100.0]
+    assert {s.labels["channel"] for s in captures} == {1, 2}
+    assert {s.labels["output"] for s in captures} == {"x1"}
     kinds = {(i.kind, i.name) for i in inputs}
     assert {("procedure", "tiny-gain"), ("include", "parts/scan.yaml"), ("limits", "limits.yaml"),
             ("bench", "bench")} <= kinds
