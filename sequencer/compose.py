@@ -104,18 +104,25 @@ def plan_for(
 def check_sim_board(plan: Plan, sim_board: str) -> None:
     """Refuse, before any instrument is touched, a simulated board whose channel count or outputs
     differ from the run's board type (ConfigError: exit 2)."""
+    from drivers.sim import load_sim_file
     from drivers.sim.board import OUTPUT_INDEX
-    from drivers.sim.board_loader import load_board
+    from drivers.sim.sensor import SensorSpec
 
-    spec = load_board(sim_board)
+    spec = load_sim_file(sim_board)
     problems = []
-    if len(spec.channels) != plan.board.channels:
+    if isinstance(spec, SensorSpec):  # a light sensor or module: one readout per sensor
+        if len(spec.sensors) != plan.board.channels:
+            problems.append(
+                f"{len(spec.sensors)} sensors, but type {plan.board.board_type} has "
+                f"{plan.board.channels} channels"
+            )
+    elif len(spec.channels) != plan.board.channels:
         problems.append(
             f"{len(spec.channels)} channels, but board type {plan.board.board_type} has "
             f"{plan.board.channels}"
         )
     missing = [o for o in plan.board.outputs if o not in OUTPUT_INDEX]
-    if missing:
+    if missing and not isinstance(spec, SensorSpec):
         problems.append(f"no output {', '.join(missing)} of board type {plan.board.board_type}")
     if problems:
         raise ConfigError(

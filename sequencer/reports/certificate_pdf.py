@@ -51,7 +51,7 @@ FIGURE_CAPTIONS = {
     "s_curves": "Discriminator S-curves with the fitted error function",
     "pulses": "Captured pulse shapes (mean of the captures) with the peak marked",
     "crosstalk": "Crosstalk into the neighbouring channels when this channel is driven",
-    "spectra": "Light-sensor spectra with their fits (finger spectrum, muon spectrum) and the gain scan",
+    "spectra": "Light sensor: gain scan, spectra with their fits (finger, muon), dark-count staircase",
 }
 
 

@@ -1,6 +1,6 @@
 """Light-sensor evidence on certificates: the fitted spectra (LED finger spectrum, muon spectrum) and
-the gain scan a sensor or module run stored with its analysis steps (``results["series"]``, kinds
-``spectrum`` and ``gain_scan``; STYLE.md rule 17: drawn as stored, never re-fitted)."""
+the gain scan and the dark-count staircase a sensor or module run stored with its analysis steps
+(``results["series"]``, kinds ``spectrum``, ``gain_scan`` and ``staircase``; STYLE.md rule 17: drawn as stored, never re-fitted)."""
 
 from __future__ import annotations
 
@@ -8,14 +8,15 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
-MAX_PANELS = 4
+MAX_PANELS = 5
 
 
 @dataclass(frozen=True)
 class Spectrum:
-    """A histogram (``edges`` in ``unit``, ``counts``) with its fitted ``model`` counts per bin; or,
-    for ``label`` "gain scan", gain (10⁶) against bias (V) in ``edges``/``counts`` with the line's
-    values in ``model``."""
+    """A histogram (``edges`` in ``unit``, ``counts``) with its fitted ``model`` counts per bin; for
+    ``label`` "gain scan", gain (10⁶) against bias (V) in ``edges``/``counts`` with the line's values
+    in ``model``; for "dark-count staircase", rate (Hz) against threshold (mV) with the 0.5 and
+    1.5 p.e. levels in ``model``."""
 
     label: str
     unit: str
@@ -35,6 +36,8 @@ def gather_spectra(snap: Any, channel: int) -> tuple[Spectrum, ...]:
                 out.append(_spectrum(series))
             elif series.get("kind") == "gain_scan":
                 out.append(_gain_scan(series))
+            elif series.get("kind") == "staircase":
+                out.append(_staircase(series))
     return tuple(out)
 
 
@@ -64,6 +67,18 @@ def _gain_scan(s: Mapping[str, Any]) -> Spectrum:
     )
 
 
+def _staircase(s: Mapping[str, Any]) -> Spectrum:
+    """Dark-count rate against threshold; ``model`` marks the 0.5 and 1.5 p.e. levels (mV)."""
+    gain, pedestal = float(s.get("gain_mV", 0.0)), float(s.get("pedestal_mV", 0.0))
+    return Spectrum(
+        label="dark-count staircase",
+        unit="mV",
+        edges=_floats(s.get("thresholds_mV")),
+        counts=_floats(s.get("rate_hz")),
+        model=(pedestal + 0.5 * gain, pedestal + 1.5 * gain),
+    )
+
+
 def plot_spectra(spectra: Sequence[Spectrum]) -> bytes | None:
     """One panel per spectrum (counts as steps, the fit as a line) or gain scan (points, line)."""
     from .plots import _png, new_figure  # plotting is heavy and imports the certificate data
@@ -74,7 +89,20 @@ def plot_spectra(spectra: Sequence[Spectrum]) -> bytes | None:
     fig = new_figure(6.5, 2.4 * len(panels))
     for i, s in enumerate(panels, start=1):
         ax = fig.add_subplot(len(panels), 1, i)
-        if s.label == "gain scan":
+        if s.label == "dark-count staircase":
+            ax.semilogy(
+                s.edges,
+                [max(c, 0.5) for c in s.counts],
+                "o-",
+                color="black",
+                markersize=3,
+                label="rate above threshold",
+            )
+            for level, style in zip(s.model, ("--", ":"), strict=False):
+                ax.axvline(level, color="black", linestyle=style, linewidth=1)
+            ax.set_xlabel("threshold (mV); lines at 0.5 and 1.5 p.e.", fontsize=8)
+            ax.set_ylabel("rate (Hz)", fontsize=8)
+        elif s.label == "gain scan":
             ax.plot(s.edges, s.counts, "o", color="black", label="gain from the finger spectrum")
             ax.plot(s.edges, s.model, "--", color="black", label="straight-line fit")
             ax.set_xlabel("bias (V)", fontsize=8)

@@ -77,7 +77,7 @@ def certify(store: Any, run_id: int, out: Path) -> None:
 
     (data,) = gather_certificates(store, run_id)
     labels = [s.label for s in data.spectra]
-    assert labels == ["gain scan", "LED finger spectrum"]
+    assert labels == ["gain scan", "LED finger spectrum", "dark-count staircase"]
     finger = data.spectra[1]
     assert len(finger.edges) == len(finger.counts) + 1 == len(finger.model) + 1
     assert sum(finger.model) == pytest.approx(sum(finger.counts), rel=0.02)  # the fit holds them
