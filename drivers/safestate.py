@@ -40,8 +40,9 @@ class SupplyState:
         return not self.output_on and abs(self.volts) <= tolerance_V
 
     def __str__(self) -> str:
+        volts = 0.0 if abs(self.volts) < 0.0005 else self.volts  # no "-0.000 V" from meter noise
         return (
-            f"output {'ON' if self.output_on else 'off'}, {self.volts:.3f} V "
+            f"output {'ON' if self.output_on else 'off'}, {volts:.3f} V "
             f"(set point {self.setpoint_V:g} V)"
         )
 
