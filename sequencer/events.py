@@ -80,6 +80,7 @@ class Measurement:
     low: float | None = None
     high: float | None = None
     verdict: Verdict = "info"
+    qualifier: str = ""   # "" or "within uncertainty": value ± U straddles a limit (decision rule)
 
 
 @dataclass(frozen=True)

@@ -31,12 +31,14 @@ def measure(
     output: Any = "from-labels",
     aggressor: int | None = None,
 ) -> Measurement:
-    """A ``Measurement`` of ``quantity`` judged against ``plan.limit_for(quantity, output)``."""
+    """A ``Measurement`` of ``quantity`` judged against ``plan.limit_for(quantity, output)`` under
+    that limit set's decision rule (``sequencer.procedure.decision``)."""
     ch = channel_of(step) if channel == "from-labels" else channel
     out = output_of(step) if output == "from-labels" else output
     limit = ctx.plan.limit_for(quantity, out)
     value = float(value)
     unc = None if uncertainty is None or not math.isfinite(uncertainty) else float(uncertainty)
+    decision = None if limit is None else limit.decide(value, unc)
     return Measurement(
         quantity=quantity,
         value=value,
@@ -47,5 +49,6 @@ def measure(
         aggressor=aggressor,
         low=None if limit is None else limit.low,
         high=None if limit is None else limit.high,
-        verdict="info" if limit is None else limit.judge(value),
+        verdict="info" if decision is None else decision.verdict,
+        qualifier="" if decision is None else decision.qualifier,
     )

@@ -39,6 +39,21 @@ from .steps import handler_table
 from .steps.analysis import failed_analysis
 
 
+def with_qualifiers(result: StepResult) -> dict[str, Any]:
+    """The step's results, with the decision rule's qualifiers of its measurements (the store keeps
+    them with the step; the verdict column stays pass/fail/info)."""
+    out = dict(result.results)
+    marked = [
+        {"quantity": m.quantity, "channel": m.channel, "output": m.output,
+         "aggressor": m.aggressor, "qualifier": m.qualifier}
+        for m in result.measurements
+        if m.qualifier
+    ]
+    if marked:
+        out["qualifiers"] = marked
+    return out
+
+
 def utc_now() -> datetime:
     """The default clock: aware UTC time."""
     return datetime.now(UTC)
@@ -202,7 +217,7 @@ class Runner:
                 finished_at=self.clock(),
                 settings=dict(step.args),
                 labels=dict(step.labels),
-                results={} if result is None else dict(result.results),
+                results={} if result is None else with_qualifiers(result),
                 error=str(result.results.get("error", "")) if result is not None else "",
             )
         )

@@ -7,6 +7,9 @@ A limits file::
     limits:
       - {quantity: gain, output: x1, low: 0.95, high: 1.05, unit: V/V, reason: "..."}
 
+``decision_rule`` (optional, default ``simple``): ``simple``, ``guarded`` or ``{rule: guarded,
+coverage_factor: 2}`` — how a value and its uncertainty become a verdict (:mod:`.decision`).
+
 Each entry: ``quantity`` (a DESIGN.md quantity name), ``unit`` (that quantity's unit, written out so a
 reader never guesses), ``low`` and/or ``high`` (inclusive; omit or null for an open side), optional
 ``output`` (omitted = every output) and ``reason``.  One entry per quantity and output.
@@ -14,6 +17,7 @@ reader never guesses), ``low`` and/or ``high`` (inclusive; omit or null for an o
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Iterable
 from pathlib import Path
@@ -25,10 +29,12 @@ from sequencer.errors import ProcedureError
 from sequencer.quantities import QUANTITY_UNITS
 
 from .checking import check_keys, require_keys, suggest
+from .decision import DEFAULT_COVERAGE_K, DEFAULT_RULE, RULES, DecisionRule
 from .plan_model import Limit
 
 LIMIT_KEYS = ("quantity", "output", "low", "high", "unit", "reason")
-FILE_KEYS = ("board_type", "version", "description", "limits")
+FILE_KEYS = ("board_type", "version", "description", "decision_rule", "limits")
+RULE_KEYS = ("rule", "coverage_factor")
 
 
 def parse_limit_list(raw: Any, location: Location, problems: list[Problem]) -> list[Limit]:
@@ -122,9 +128,29 @@ def parse_limits_text(text: str | bytes, file: str) -> tuple[Limit, ...]:
     limits = (
         parse_limit_list(data["limits"], data.where("limits"), problems) if "limits" in data else []
     )
+    rule = _decision_rule(data, problems)
+    limits = [dataclasses.replace(lim, rule=rule) for lim in limits]
     if problems:
         raise ProcedureError(problems)
     return tuple(limits)
+
+
+def _decision_rule(data: YamlMap, problems: list[Problem]) -> DecisionRule:
+    """``decision_rule: simple | guarded`` or ``{rule: guarded, coverage_factor: 2}``."""
+    raw = data.get("decision_rule", DEFAULT_RULE)
+    at = data.where("decision_rule")
+    k: Any = DEFAULT_COVERAGE_K
+    if isinstance(raw, YamlMap):
+        check_keys(raw, RULE_KEYS, problems, "decision_rule")
+        k = raw.get("coverage_factor", DEFAULT_COVERAGE_K)
+        at, raw = raw.where("rule"), raw.get("rule", DEFAULT_RULE)
+    if raw not in RULES:
+        problems.append(Problem(at, f"decision_rule: needs one of {', '.join(RULES)}, got {raw!r}"))
+        return DecisionRule()
+    if isinstance(k, bool) or not isinstance(k, int | float) or not math.isfinite(k) or k <= 0:
+        problems.append(Problem(at, f"coverage_factor: needs a number > 0, got {k!r}"))
+        return DecisionRule()
+    return DecisionRule(rule=str(raw), coverage_k=float(k))
 
 
 def load_limits(path: str | Path) -> tuple[Limit, ...]:

@@ -14,6 +14,8 @@ from typing import Any, Literal
 from drivers.errors import Location
 from sequencer.inputs import RunInput
 
+from .decision import Decision, DecisionRule, decide
+
 Block = Literal["setup", "main", "cleanup"]
 
 
@@ -44,6 +46,11 @@ class Limit:
     unit: str
     output: str | None = None      # None = every output
     reason: str = ""
+    rule: DecisionRule = field(default_factory=DecisionRule)   # the limit set's decision rule
+
+    def decide(self, value: float, uncertainty: float | None) -> Decision:
+        """Verdict and qualifier under the limit set's decision rule (``decision.decide``)."""
+        return decide(value, uncertainty, self.low, self.high, self.rule)
 
     def judge(self, value: float) -> Literal["pass", "fail"]:
         """``pass`` when ``low <= value <= high`` (open bounds ignored); NaN fails."""

@@ -246,3 +246,24 @@ def test_failed_analysis_gives_nan_fail_for_each_quantity():
     res = failed_analysis(ctx, s, ValueError("boom"))
     assert [m.quantity for m in res.measurements] == ["gain", "offset_mV", "inl_pct"]
     assert all(math.isnan(m.value) and m.verdict == "fail" for m in res.measurements)
+
+
+def test_measurement_carries_the_decision_rule_qualifier():
+    # ILAC-G8:09/2019 simple acceptance: a value whose interval ± 2u straddles the limit keeps
+    # its verdict and is marked "within uncertainty" (the qualifier is its own field)
+    from sequencer.engine.judge import measure
+    from sequencer.engine.records import StepResult
+    from sequencer.engine.runner import with_qualifiers
+
+    ctx = make_ctx(limits=[Limit("noise_in_mV", None, 0.6, "mV")])
+    s = step("noise/ch1/x1/noise", "analyse.noise", labels={"channel": 1, "output": "x1"},
+             traces="baseline")
+    near = measure(ctx, s, "noise_in_mV", 0.61, uncertainty=0.02)
+    clear = measure(ctx, s, "noise_in_mV", 0.40, uncertainty=0.02)
+    assert (near.verdict, near.qualifier) == ("fail", "within uncertainty")
+    assert (clear.verdict, clear.qualifier) == ("pass", "")
+    stored = with_qualifiers(StepResult(results={"traces": 2}, measurements=[near, clear]))
+    assert stored["qualifiers"] == [
+        {"quantity": "noise_in_mV", "channel": 1, "output": "x1", "aggressor": None,
+         "qualifier": "within uncertainty"}
+    ]
