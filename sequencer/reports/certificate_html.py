@@ -23,6 +23,7 @@ from .certificate_view import (
     QUANTITY_COLUMN_KEYS,
     QUANTITY_HEADER,
     closing_fields,
+    crosstalk_out_rows,
     field_slug,
     identity_rows,
     instrument_rows,
@@ -79,6 +80,7 @@ def render_html(data: CertificateData, images: Mapping[str, bytes | None], path:
           if not key.startswith("header.") and key != "verdict"),
         "<h2>Results</h2>",
         _quantities(data),
+        _crosstalk_out(data),
         "<h2>Instruments</h2>",
         _table(INSTRUMENT_HEADER, instrument_rows(data), "instruments", INSTRUMENT_COLUMNS),
         *(_figure(key, images.get(key), caption) for key, caption in FIGURE_CAPTIONS.items()),
@@ -126,8 +128,16 @@ def _identity(data: CertificateData) -> str:
     return f"<dl>{items}</dl>"
 
 
-def _quantities(data: CertificateData) -> str:
-    rows = quantity_rows(data)
+def _crosstalk_out(data: CertificateData) -> str:
+    rows = crosstalk_out_rows(data)
+    if not rows:
+        return ""
+    title = f"Crosstalk caused by this channel (channel {data.channel} driven)"
+    return f"<h2>{escape(title)}</h2>" + _quantities(data, rows)
+
+
+def _quantities(data: CertificateData, rows: list | None = None) -> str:
+    rows = quantity_rows(data) if rows is None else rows
     if not rows:
         return "<p>No measurement of this channel is stored.</p>"
     head = "".join(f"<th>{escape(h)}</th>" for h in QUANTITY_HEADER)

@@ -18,6 +18,7 @@ from .certificate_view import (
     INSTRUMENT_HEADER,
     QUANTITY_HEADER,
     closing_fields,
+    crosstalk_out_rows,
     identity_rows,
     instrument_rows,
     overall_text,
@@ -97,6 +98,10 @@ def render_pdf(
             note(pdf, text)
     section(pdf, "Results")
     _quantities(pdf, data)
+    caused = crosstalk_out_rows(data)
+    if caused:
+        section(pdf, f"Crosstalk caused by this channel (channel {data.channel} driven)")
+        _quantities(pdf, data, caused)
     section(pdf, "Instruments")
     table(pdf, INSTRUMENT_HEADER, instrument_rows(data), (22, 34, 34, 32, 30, 28))
     for key, caption in FIGURE_CAPTIONS.items():
@@ -174,8 +179,8 @@ def _verdict(pdf: Any, data: CertificateData) -> None:
     pdf.set_y(y + 15)
 
 
-def _quantities(pdf: Any, data: CertificateData) -> None:
-    rows = quantity_rows(data)
+def _quantities(pdf: Any, data: CertificateData, rows: list | None = None) -> None:
+    rows = quantity_rows(data) if rows is None else rows
     if not rows:
         note(pdf, "No measurement of this channel is stored.")
         return

@@ -144,9 +144,21 @@ def printed_fields(d: CertificateData) -> list[tuple[str, str]]:
     return out
 
 
+def crosstalk_out_rows(d: CertificateData) -> list[QuantityRow]:
+    """This channel as the aggressor: the crosstalk it caused in each victim (what the crosstalk
+    plot draws), so the table and the plot name victim and aggressor the same way."""
+    rows = []
+    for i, q in enumerate(d.crosstalk_out):
+        cells = (f"{readable(q.quantity)} into ch {q.channel}", *quantity_cells(q)[1:])
+        rows.append(QuantityRow(key=f"crosstalk_out.{i}", cells=cells, failed=q.verdict == "fail"))
+    return rows
+
+
 def table_fields(d: CertificateData) -> list[tuple[str, tuple[str, ...], tuple[str, ...]]]:
-    """The printed tables as ``(row key, column names, cells)``: results, then instruments."""
+    """The printed tables as ``(row key, column names, cells)``: results (this channel measured,
+    as the victim for crosstalk), crosstalk this channel caused, then instruments."""
     rows = [(r.key, QUANTITY_COLUMN_KEYS, r.cells) for r in quantity_rows(d)]
+    rows += [(r.key, QUANTITY_COLUMN_KEYS, r.cells) for r in crosstalk_out_rows(d)]
     rows += [(f"instruments.{i}", INSTRUMENT_COLUMNS, c) for i, c in enumerate(instrument_rows(d))]
     return rows
 

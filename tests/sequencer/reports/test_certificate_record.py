@@ -209,3 +209,20 @@ def test_a_dead_channel_value_is_printed_with_its_reason(tmp_path: Path):
     assert data.quantities[0].note == reason
     assert f"Not measured: Gain x1: {reason}" in html.read_text(encoding="utf-8")
     assert data.verdict == "FAIL"
+
+
+def test_crosstalk_table_and_plot_name_victim_and_aggressor_alike(certified):
+    """DESIGN.md: crosstalk_pct's ``channel`` is the victim, ``aggressor`` the driven one.  The
+    results table lists this channel as the victim; the crosstalk plot draws this channel as the
+    aggressor, and so does the table beside it."""
+    store, data, _, html = certified
+    text = html.read_text(encoding="utf-8")
+    stored = {(m.channel, m.aggressor): m.value for m in store.measurements(run_id=data.run_id)
+              if m.quantity == "crosstalk_pct"}
+    [victim_row] = [q for q in data.quantities if q.quantity == "crosstalk_pct"]
+    assert (victim_row.channel, victim_row.aggressor) == (1, 2)
+    assert victim_row.value == stored[(1, 2)]
+    [caused] = data.crosstalk_out
+    assert (caused.channel, caused.aggressor, caused.value) == (2, 1, stored[(2, 1)])
+    assert "Crosstalk (from ch 2)" in text and "Crosstalk into ch 2" in text
+    assert "Crosstalk caused by this channel (channel 1 driven)" in text
