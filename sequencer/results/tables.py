@@ -92,7 +92,7 @@ RUN_COLUMNS = _columns((
 SERIES_COLUMNS = _columns((
     ("run_id", "int"), ("board", "str"), ("step", "str"), ("channel", "int"), ("output", "str"),
     ("series", "str"), ("label", "str"), ("x", "float"), ("x_unit", "str"), ("y", "float"),
-    ("y_unit", "str"), ("trials", "int"), ("residual", "float"),
+    ("y_unit", "str"), ("trials", "int"), ("residual", "float"), ("fit", "float"), ("y_err", "float"),
 ))  # fmt: skip
 TRACE_COLUMNS = _columns((
     ("run_id", "int"), ("board", "str"), ("step", "str"), ("name", "str"), ("channel", "int"),
@@ -167,7 +167,8 @@ def trace_table(store: Store, sel: Selection = Selection()) -> Table:
 
 
 def series_table(store: Store, sel: Selection = Selection()) -> Table:
-    """One row per point of each transfer curve and S-curve of the selected runs."""
+    """One row per point of each stored series (transfer, S-curve, pulse, spectrum, ...) of the
+    selected runs."""
     rows = []
     for run in _runs(store, sel):
         for point in read_series(store, run.id):

@@ -136,7 +136,7 @@ def _curves(request: Request, run: Any, read_series: Any) -> list[dict[str, Any]
         return cache[run.id]
     curves: dict[str, dict[str, Any]] = {}
     for p in read_series(_state(request).store, run.id):
-        key = f"ch{p.channel} {p.label}"
+        key = f"ch{p.channel} {p.label}" if p.channel is not None else p.label
         curve = curves.setdefault(key, {"title": key, "series": p.series, "x_unit": p.x_unit,
                                         "y_unit": p.y_unit, "x": [], "y": []})  # fmt: skip
         curve["x"].append(p.x)

@@ -206,3 +206,32 @@ def test_several_tables_in_one_root_file(recorded, out: Path) -> None:
     refused = _invoke("export", "--db", url, "--what", "series", "--what", "runs", "--format", "parquet",
                       "--out", str(out / "x.parquet"))  # fmt: skip
     assert refused.exit_code == 2 and "--format root" in refused.output
+
+
+def test_a_stored_spectrum_exports_bin_centres_counts_and_model(tmp_path: Path) -> None:
+    """A finger spectrum as the sensor analysis stores it (its own spectrum_series builder): the
+    export gives one row per bin at the bin centre (numpy as the reference for the midpoints), the
+    counts and the fitted model, in the step's path."""
+    from datetime import UTC, datetime
+
+    from sequencer.engine.steps.sensor_analysis import spectrum_series
+    from sequencer.events import StepFinished, StepStarted
+    from sequencer.store import Store
+    from tests.sequencer.store.scenario import run_info
+
+    edges = np.linspace(-5.0, 45.0, 26)  # mV, 25 bins
+    counts = np.random.default_rng(3).poisson(40.0, 25).astype(float)
+    model = counts + 0.5
+    at = datetime(2026, 3, 2, 9, 0, tzinfo=UTC)
+    url = f"sqlite:///{tmp_path / 'r.db'}"
+    with Store.open(url) as store:
+        run_id = store.create_run(run_info("NR-SP4-0001"), at)
+        path = "sensor/ch2/fingers"
+        store.handle(StepStarted(run_id, path, "analyse.fingers", 0, 1, at))
+        series = spectrum_series(2, "finger spectrum", "mV", edges, counts, model)
+        store.handle(StepFinished(run_id, path, "analyse.fingers", "completed", at, at, {}, {"series": [series]}))
+    df = results.series(url, run=run_id)
+    assert list(df["series"].unique()) == ["spectrum"] and set(df["step"]) == {path}
+    assert np.allclose(df["x"].to_numpy(float), (edges[:-1] + edges[1:]) / 2.0)
+    assert list(df["y"]) == list(counts) and list(df["fit"]) == list(model)
+    assert set(df["x_unit"]) == {"mV"} and set(df["channel"]) == {2}
