@@ -1,5 +1,6 @@
 """The qualification on a board unlike the example (issue 15): inverted outputs, baselines of ±12 mV,
-a 30 ns cable delay, a 1.2 mV noisy channel and a dead one, judged as the PA8N board type.
+a 30 ns cable delay, a 1.2 mV noisy channel, a dead and a saturating one, judged as the PA8N board
+type; and the pulse shape of shapers of order 1-4, unipolar and bipolar, behind delays of 0-30 ns.
 
 Truth: the simulated board file (DESIGN.md physics).  Tolerances are the qualification issue's:
 gain 1 %, noise 20 %, crosstalk 0.25 pp, offset and baseline 0.5 mV, peaking and rise 5 %,
@@ -11,6 +12,7 @@ from __future__ import annotations
 import dataclasses
 import math
 
+import numpy as np
 import pytest
 
 from sequencer import compose
@@ -25,7 +27,9 @@ CHANNELS = [
     channel(baseline_mV=-8.0, discriminator_offset_mV=1.5),
     channel(baseline_mV=12.0, noise_in_mV=1.2, gain_x1=1.02, gain_x5=5.1),
     channel(baseline_mV=-12.0, dead=True),
+    channel(saturation_mV=250.0),
 ]
+TOP_MV, POINTS = 160.0, 8  # the linearity scan of parts/linearity.yaml
 NEGATIVE = {"polarity": "negative", "output_polarity": {"shaped": "negative"}}
 
 
@@ -37,7 +41,10 @@ def _run(tmp_path, name: str, board_type: str, **overrides) -> tuple[Finished, d
         load_procedure(PROCEDURES / f"{name}.yaml"), SERIAL, board_type
     )
     plan = build_plan(
-        procedure, dataclasses.replace(info, channels=3), overrides=overrides, board_input=board_in
+        procedure,
+        dataclasses.replace(info, channels=len(CHANNELS)),
+        overrides=overrides,
+        board_input=board_in,
     )
     request = compose.RunRequest(
         operator="test", unattended=True, progress=False, handle_signals=False
@@ -104,12 +111,32 @@ def test_verdicts_follow_from_the_truth(qualified):
     reasons = [e for p, e in errors.items() if p.startswith("ch3/")]
     assert any("no pulse above 5 σ of the baseline noise" in e for e in reasons)
     assert not any("polarity" in e for e in errors.values())
+    # the saturating channel: gain and INL fail as its transfer curve implies (test below)
+    fails_4 = {k[0] for k, v in verdicts.items() if k[1] == 4 and v == "fail"}
+    assert fails_4 == {"gain", "inl_pct"}
+
+
+def test_saturating_channel_reads_its_transfer_curve(qualified):
+    # Truth: heights -S·tanh(g·A/S) at the scan's amplitudes (DESIGN.md physics, S = 250 mV),
+    # reduced by the reference least-squares line of numpy.polyfit
+    result, _ = qualified
+    for out, g in (("x1", 1.0), ("x5", 5.0)):
+        amps = np.linspace(TOP_MV / POINTS / g, TOP_MV / g, POINTS)
+        heights = -250.0 * np.tanh(g * amps / 250.0)
+        slope, intercept = np.polyfit(amps, heights, 1)
+        resid = heights - (slope * amps + intercept)
+        inl = 100.0 * np.max(np.abs(resid)) / (abs(slope) * np.ptp(amps))
+        assert _value(result, "gain", 4, out).value == pytest.approx(slope, rel=0.01)
+        assert _value(result, "offset_mV", 4, out).value == pytest.approx(intercept, abs=0.5)
+        assert _value(result, "inl_pct", 4, out).value == pytest.approx(inl, rel=0.05)
 
 
 def test_positive_board_type_names_the_wrong_polarity(tmp_path):
     result, errors = _run(tmp_path, "gain-linearity", "PA8")
     gains = [m for m in result.measurements if m.quantity == "gain" and m.channel != 3]
-    assert gains and all((m.value is None or math.isnan(m.value)) and m.verdict == "fail" for m in gains)
+    assert gains and all(
+        (m.value is None or math.isnan(m.value)) and m.verdict == "fail" for m in gains
+    )
     live = [e for p, e in errors.items() if not p.startswith("ch3/")]
     assert live and all(e.startswith("pulse of the wrong polarity") for e in live)
 
@@ -122,6 +149,56 @@ def test_board_type_is_chosen_per_run_and_checked_before_the_bench(tmp_path):
     assert info.sign("x1") == info.sign("shaped") == -1
     with pytest.raises(ProcedureError, match="not one this procedure accepts"):
         choose_board(procedure, SERIAL, "PB4")
-    plan = build_plan(chosen, info)  # 8 channels: the simulated board has 3
-    with pytest.raises(ConfigError, match="3 channels, but board type PA8N has 8"):
+    plan = build_plan(chosen, info)  # 8 channels: the simulated board has 4
+    with pytest.raises(ConfigError, match="4 channels, but board type PA8N has 8"):
         compose.check_sim_board(plan, str(board))
+
+
+@pytest.mark.parametrize(
+    ("order", "kind", "delay", "negative"),
+    [
+        (1, "bipolar", 0.0, True),
+        (2, "unipolar", 30.0, True),
+        (3, "bipolar", 12.0, False),
+        (4, "bipolar", 30.0, True),
+        (1, "unipolar", 20.0, False),
+    ],
+)
+def test_shaper_timing_from_the_onset(tmp_path, order, kind, delay, negative):
+    # REFERENCES.md (Spieler 2005 ch. 4): CR-RCⁿ peaks at n·τ; CR²-RCⁿ's positive lobe peaks at
+    # (n+1-√(n+1))·τ and crosses zero at (n+1)·τ, counted from the pulse onset, not the trigger
+    tau = 50.0
+    polarity = (
+        {"polarity": "negative", "output_polarity": {"shaped": "negative"}} if negative else {}
+    )
+    board = write_board(
+        tmp_path,
+        "NR-PA8N-T902",
+        [channel(baseline_mV=-12.0 if negative else 12.0)],
+        shaper={"order": order, "tau_ns": tau, "kind": kind},
+        pulse_delay_ns=delay,
+        **polarity,
+    )
+    procedure, info, board_in = choose_board(
+        load_procedure(PROCEDURES / "pulse-shape.yaml"),
+        "NR-PA8N-T902",
+        "PA8N" if negative else "PA8",
+    )
+    plan = build_plan(procedure, dataclasses.replace(info, channels=1), board_input=board_in)
+    request = compose.RunRequest(
+        operator="t", unattended=True, progress=False, handle_signals=False
+    )
+    url = f"sqlite:///{tmp_path / 'shape.db'}"
+    with Store.open(url) as store:
+        with compose.bench_for(None, str(board)) as spec:
+            result = compose.execute(plan, spec, store, request)
+        ms = {(m.quantity, m.output): m for m in store.measurements(run_id=result.run_id)}
+        steps = store.completed_steps(result.run_id)
+    x_peak = order if kind == "unipolar" else order + 1 - math.sqrt(order + 1)
+    assert ms[("peaking_time_ns", "shaped")].value == pytest.approx(x_peak * tau, rel=0.05)
+    for out in ("x1", "x5"):
+        assert ms[("rise_time_ns", out)].value == pytest.approx(4.0, rel=0.05)
+    (peaking,) = [s for s in steps.values() if s.kind == "analyse.peaking"]
+    assert peaking.results["onset_after_trigger_ns"] == pytest.approx(delay, abs=2.0)
+    if kind == "bipolar":
+        assert peaking.results["zero_crossing_ns"] == pytest.approx((order + 1) * tau, rel=0.05)
