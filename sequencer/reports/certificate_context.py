@@ -1,8 +1,8 @@
 """What a QA engineer needs beside the values: test conditions, the decision rule, the bias record
 summarised, and why a value is missing.  Each is gathered from the stored run (never re-measured).
 
-Decision rule: the limit set's ``decision_rule`` (stored with the run) when it carries one; else
-simple acceptance — a value passes when it lies within its limits, its uncertainty is stated but not
+Decision rule: the one the run's stored limit set states (``decision_rule:``, described by
+``sequencer.procedure.decision``); for a run that kept no limit set, simple acceptance — a value passes when it lies within its limits, its uncertainty is stated but not
 used to guard the limits (ILAC-G8:09/2019 names this "simple acceptance", from memory).  The stored
 uncertainties are one standard uncertainty (the analyses' one-sigma errors), so the coverage factor
 is k = 1.
@@ -15,9 +15,6 @@ import math
 from collections.abc import Iterable, Mapping
 from typing import Any
 
-from drivers.errors import LocatedError
-from drivers.yamlsafe import load_yaml
-
 SIMPLE_ACCEPTANCE = (
     "simple acceptance: a value passes when it lies within its limits; its uncertainty is stated, "
     "not used to guard the limits (ILAC-G8:09/2019, from memory)"
@@ -25,21 +22,26 @@ SIMPLE_ACCEPTANCE = (
 COVERAGE = "uncertainties are one standard uncertainty (coverage factor k = 1)"
 
 
-def decision_rule(inputs: Iterable[Any]) -> str:
-    """The rule the run's stored limit set carries (``decision_rule:``), else simple acceptance."""
+def decision_rule(inputs: Iterable[Any]) -> tuple[str, str]:
+    """(rule, coverage) as the run's stored limit set states them (``decision_rule:``, described by
+    ``sequencer.procedure.decision``), else simple acceptance with standard uncertainties."""
+    from sequencer.errors import ProcedureError
+    from sequencer.procedure.limits import parse_limits_text
+
     for given in inputs:
         if given.kind != "limits":
             continue
         try:
-            data = load_yaml(given.text, given.name, error=LocatedError)
-        except LocatedError:
+            limits = parse_limits_text(given.text, given.name)
+        except ProcedureError:
             continue
-        rule = data.get("decision_rule") if isinstance(data, Mapping) else None
-        if isinstance(rule, Mapping):
-            return ", ".join(f"{k}: {_plain(v)}" for k, v in rule.items())
-        if rule:
-            return str(rule)
-    return SIMPLE_ACCEPTANCE
+        rule = next((getattr(lim, "rule", None) for lim in limits), None)
+        if rule is not None:
+            return rule.describe(), (
+                f"the ± column is the standard uncertainty u; the rule uses U = k·u with "
+                f"k = {rule.coverage_k:g}"
+            )
+    return SIMPLE_ACCEPTANCE, COVERAGE
 
 
 def conditions(parameters: Mapping[str, Any]) -> tuple[str, ...]:

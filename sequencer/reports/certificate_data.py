@@ -216,6 +216,7 @@ def _certificate(snap: RunSnapshot, channel: int) -> CertificateData:
         caveats=tuple(snap.caveats),
         conditions=conditions(dict(run.parameters or {})),
         decision_rule=snap.decision_rule,
+        coverage=snap.coverage,
         bias=bias_summary(snap.safety_events),
         unjudged=unjudged,
         verdict=overall_verdict(quantities, run.status, unjudged),

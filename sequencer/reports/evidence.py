@@ -79,7 +79,7 @@ class RunSnapshot:
         self.caveats = tuple(store.caveats(run_id))
         inputs = store.run_inputs(run_id)
         self.limit_quantities = _limit_quantities(inputs)
-        self.decision_rule = decision_rule(inputs)
+        self.decision_rule, self.coverage = decision_rule(inputs)
         self.channels = sorted({int(m.channel) for m in self.measurements if m.channel is not None})
         if not self.channels and self.measurements:
             self.channels = [MODULE_CHANNEL]  # a module measured as a whole: one certificate

@@ -163,9 +163,9 @@ def _label(key: str, data) -> str:
 
 
 def _one_channel_run(
-    store: Store, measurements: list[Measurement], results: dict | None = None
+    store: Store, measurements: list[Measurement], results: dict | None = None, inputs: tuple = ()
 ) -> int:
-    run_id = store.create_run(replace(run_info(RunSpec(channels=1))), started_at=T0)
+    run_id = store.create_run(replace(run_info(RunSpec(channels=1)), inputs=inputs), started_at=T0)
     store.handle(StepStarted(run_id, "gain/ch1/fit", "analyse.transfer", 0, 1, T0))
     for m in measurements:
         store.handle(MeasurementMade(run_id, "gain/ch1/fit", m))
@@ -226,3 +226,25 @@ def test_crosstalk_table_and_plot_name_victim_and_aggressor_alike(certified):
     assert (caused.channel, caused.aggressor, caused.value) == (2, 1, stored[(2, 1)])
     assert "Crosstalk (from ch 2)" in text and "Crosstalk into ch 2" in text
     assert "Crosstalk caused by this channel (channel 1 driven)" in text
+
+
+GUARDED = """board_type: PA8
+version: "3"
+decision_rule: {rule: guarded, coverage_factor: 3}
+limits:
+  - {quantity: gain, output: x1, low: 0.95, high: 1.05, unit: V/V}
+"""
+
+
+def test_the_decision_rule_the_stored_limit_set_states_is_printed(tmp_path: Path):
+    from sequencer.inputs import RunInput
+
+    judged = Measurement("gain", 1.01, "V/V", 0.002, 1, "x1", None, 0.95, 1.05, "pass")
+    with Store.open(f"sqlite:///{tmp_path / 'r.db'}") as store:
+        run_id = _one_channel_run(store, [judged], inputs=(RunInput("limits", "PA8.yaml", GUARDED),))
+        [data] = gather_certificates(store, run_id)
+        _, html = certify_run(store, run_id, tmp_path / "c", workers=1)
+        assert verify_certificate(store, html).ok
+    assert data.decision_rule.startswith("guarded acceptance (ILAC-G8:09/2019)")
+    assert "k = 3" in data.coverage
+    assert "Decision rule: guarded acceptance" in html.read_text(encoding="utf-8")
