@@ -213,8 +213,10 @@ def _draw_s_curve(pts: Any, fit: Any, c: SCurve) -> None:
         from scipy.special import erfc
 
         grid = np.linspace(x.min(), x.max(), 200)
-        # efficiency = ½ erfc((thr − μ)/(√2 σ)) (REFERENCES.md, threshold scans)
-        fit.set_data(grid, 0.5 * erfc((grid - mu) / (math.sqrt(2.0) * sigma)))
+        # efficiency = ½ erfc((thr − μ)/(√2 σ)) (REFERENCES.md, threshold scans); on a
+        # negative-going output it fires below the threshold, so the efficiency rises with it
+        sign = -1.0 if counts[np.argmax(x)] > counts[np.argmin(x)] else 1.0
+        fit.set_data(grid, 0.5 * erfc(sign * (grid - mu) / (math.sqrt(2.0) * sigma)))
         fit.set_visible(True)
         label += f": μ {mu:.4g} mV, σ {sigma:.3g} mV"
     pts.set_label(label)
@@ -224,7 +226,7 @@ def _draw_pulse(ax: Any, art: dict[str, Any], s: PulseShape) -> None:
     y = np.asarray(s.samples_mV, dtype=float)
     t = s.t0_ns + s.dt_ns * np.arange(y.size)
     art["trace"].set_data(t, y)
-    ipk = int(np.argmax(y))
+    ipk = int(np.argmax(np.abs(y - np.median(y))))  # the peak of a pulse of either polarity
     art["peak"].set_data([t[ipk]], [y[ipk]])
     if s.value is not None and s.quantity == "peaking_time_ns":
         art["span"].set_data([t[ipk] - s.value, t[ipk]], [y[ipk] * 0.5] * 2)
