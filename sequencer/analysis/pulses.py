@@ -104,9 +104,19 @@ def pulse_height(
     n = n_baseline_for(n_baseline, arr.shape[1])
     base = baseline_means(arr, n)
     if method == "peak":
-        heights = sign * (peak_values(sign * arr)[0] - sign * base)
+        top, ipk, _ = peak_values(arr if sign > 0 else -arr)
+        heights = top - base if sign > 0 else -(top + base)
         finite_rows(heights, "pulse_height")
-        why = pulse_reasons(arr, n, polarity=sign, min_snr=min_snr, rails_mV=rails)
+        extreme = sample_at(arr, ipk)
+        why = pulse_reasons(
+            arr,
+            n,
+            polarity=sign,
+            min_snr=min_snr,
+            rails_mV=rails,
+            peaks=(ipk, extreme),
+            baseline=base,
+        )
     else:
         shape = _template_for(arr, n, template)
         shape_why = pulse_reasons(shape[None, :], n, polarity=sign, min_snr=min_snr)[0]

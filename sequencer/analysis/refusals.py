@@ -123,39 +123,69 @@ def pulse_reasons(
     min_snr: float = DEFAULT_MIN_SNR,
     rails_mV: tuple[float, float] | None = None,
     flat_top: bool = True,
+    peaks: tuple[np.ndarray, np.ndarray] | None = None,
+    baseline: np.ndarray | None = None,
 ) -> list[str]:
     """Per row of ``arr`` (2-D, mV): why no pulse can be measured on it, or "" when one can.
+
+    ``peaks``: the (index, value) of each row's extreme sample in the direction of ``polarity``,
+    when the caller has them already, and ``baseline`` the mean of each row's first ``n_baseline``
+    samples (each saves a pass over a large capture).
 
     Checks in order: non-finite samples, clipping at the rails, the size and direction of the
     largest excursion from the mean of the first ``n_baseline`` samples (against ``min_snr`` times
     their RMS; a noise-free baseline accepts any excursion), then (``flat_top``) a flat top.  A
-    step's plateau is flat by nature: transition durations pass ``flat_top=False``.
+    step's plateau is flat by nature: transition durations pass ``flat_top=False``.  Vectorised:
+    one pass for the maxima, one for the minima; the flat-top run is looked at only on rows whose
+    extreme sample has an equal neighbour.
     """
     if not min_snr >= 0.0:
         raise ValueError(f"min_snr must be a number >= 0, got {min_snr!r}")
-    reasons = clipping_reasons(arr, rails_mV)
-    base = arr[:, :n_baseline].mean(axis=1, dtype=np.float64)
-    sigma = arr[:, :n_baseline].std(axis=1, dtype=np.float64)
-    signed = polarity * (arr - base[:, None])
-    up = signed.max(axis=1)
-    down = (-signed).max(axis=1)
+    clip = clipping_reasons(arr, rails_mV)
+    window = arr[:, :n_baseline]
+    base = window.mean(axis=1, dtype=np.float64) if baseline is None else baseline
+    # RMS about the mean in one more pass: E[x²] - E[x]² (float64 keeps a 1 V baseline's 1 µV noise)
+    mean_sq = np.einsum("ij,ij->i", window, window, dtype=np.float64) / n_baseline
+    sigma = np.sqrt(np.maximum(mean_sq - base * base, 0.0))
+    if peaks is None:
+        i_top = np.argmax(arr, axis=1) if polarity > 0 else np.argmin(arr, axis=1)
+        extreme = np.take_along_axis(arr, i_top[:, None], axis=1)[:, 0].astype(np.float64)
+    else:
+        i_top, extreme = peaks
+    other = (arr.min(axis=1) if polarity > 0 else arr.max(axis=1)).astype(np.float64)
+    up = polarity * (extreme - base)
+    down = polarity * (base - other)
     scale = np.maximum(np.abs(up), np.abs(down))
     floor = np.maximum(min_snr * sigma, 1e-9 * scale)
-    out = []
-    for i, clip in enumerate(reasons):
-        if not (np.isfinite(up[i]) and np.isfinite(down[i])):
-            out.append(NON_FINITE)
-        elif clip:
-            out.append(clip)
-        elif down[i] > floor[i] and down[i] > up[i]:
-            out.append(WRONG_POLARITY)
-        elif not up[i] > floor[i] or up[i] <= 0.0:
-            out.append(no_pulse(min_snr))
-        elif flat_top and _flat_top(signed[i], up[i]):
-            out.append(FLAT_TOP)
-        else:
-            out.append("")
+    with np.errstate(invalid="ignore"):
+        bad = ~(np.isfinite(up) & np.isfinite(down))
+        wrong = (down > floor) & (down > up)
+        none = ~(up > floor) | (up <= 0.0)
+    candidates = np.flatnonzero(~(bad | wrong | none)) if flat_top else np.array([], dtype=int)
+    flat = np.zeros(arr.shape[0], dtype=bool)
+    for i in candidates[_equal_neighbour(arr, candidates, i_top[candidates], extreme[candidates])]:
+        flat[i] = _flat_top(polarity * (arr[i] - base[i]), float(up[i]))
+    out = list(clip)
+    for i in np.flatnonzero(bad | wrong | none | flat):
+        if bad[i]:
+            out[i] = NON_FINITE
+        elif not clip[i]:
+            out[i] = WRONG_POLARITY if wrong[i] else (no_pulse(min_snr) if none[i] else FLAT_TOP)
     return out
+
+
+def _equal_neighbour(
+    arr: np.ndarray, rows: np.ndarray, idx: np.ndarray, top: np.ndarray
+) -> np.ndarray:
+    """Of ``rows``, those whose extreme sample (at ``idx``, value ``top``) has a neighbour equal to
+    it (within 1e-6): where a flat top may be.  Reads two samples a row, copies nothing."""
+    if rows.size == 0:
+        return np.zeros(0, dtype=bool)
+    tol = 1e-6 * np.abs(top)
+    last = arr.shape[1] - 1
+    left = np.abs(arr[rows, np.clip(idx - 1, 0, last)] - top) <= tol
+    right = np.abs(arr[rows, np.clip(idx + 1, 0, last)] - top) <= tol
+    return (left & (idx > 0)) | (right & (idx < last))
 
 
 def _flat_top(signed: np.ndarray, top: float) -> bool:
