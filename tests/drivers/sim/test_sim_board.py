@@ -91,3 +91,20 @@ def test_fault_defaults():
     no_reply, interlock = board.faults
     assert (no_reply.role, no_reply.after_commands, no_reply.after_s) == ("scope", 0, None)
     assert (interlock.role, interlock.after_s) == ("bias", 0.0)
+
+
+def test_output_polarity_per_output_and_its_errors(tmp_path):
+    # issue 15: any output may swing negative; the shaped one only when named
+    path = tmp_path / "b.yaml"
+    path.write_text(
+        "serial: NR-PA8N-0009\npolarity: negative\noutput_polarity: {shaped: negative}\n"
+        "channels:\n  - {gain_x1: 1.0}\n"
+    )
+    board = load_board(path)
+    assert (board.sign("x1"), board.sign("x5"), board.sign("shaped")) == (-1, -1, -1)
+    path.write_text("serial: NR-PA8-0009\noutput_polarity: {x5: negative}\nchannels:\n  - {}\n")
+    board = load_board(path)
+    assert (board.sign("x1"), board.sign("x5"), board.sign("shaped")) == (1, -1, 1)
+    path.write_text("serial: NR-PA8-0009\noutput_polarity: {x5: inverted}\nchannels:\n  - {}\n")
+    with pytest.raises(ConfigError, match=r"b.yaml:2:\d+: output_polarity.x5: expected one of"):
+        load_board(path)
