@@ -45,6 +45,9 @@ class InstrumentFault(BenchwrightError):
     address: str = ""
     command: str = ""
     step_path: str = ""
+    #: What happened, without the address and command (the one place that prints a fault adds
+    #: them once: ``sequencer.engine.faults.describe_fault``).
+    detail: str = ""
 
     def at_step(self, path: str) -> InstrumentFault:
         """The same error, told which step it happened in (kept if one is known already)."""
@@ -60,6 +63,7 @@ class TransportError(InstrumentFault):
         self, message: str, *, address: str = "", command: str = "", after: str = ""
     ) -> None:
         self.message = message
+        self.detail = message
         self.address = address
         self.command = command
         self.after = after  # the configuring command whose error-queue check this was
@@ -104,6 +108,7 @@ class ProtocolError(InstrumentFault):
     """A reply could not be understood (malformed block header, garbled number)."""
 
     def __init__(self, message: str, *, address: str = "", command: str = "") -> None:
+        self.detail = message
         self.address = address
         self.command = command
         suffix = ""
@@ -130,6 +135,7 @@ class InstrumentError(InstrumentFault):
     def __init__(self, code: int, message: str, *, address: str = "", command: str = "") -> None:
         self.code = code
         self.instrument_message = message
+        self.detail = f"error {code},{message!r}"
         self.address = address
         self.command = command
         text = f"instrument error {code},{message!r}"
@@ -181,6 +187,7 @@ class SafetyLimitError(InstrumentFault):
     def __init__(self, message: str, *, address: str = "", command: str = "") -> None:
         self.address = address
         self.command = command
+        self.detail = message
         super().__init__(message)
 
 

@@ -12,7 +12,7 @@ from collections.abc import Callable, Mapping, Sequence
 from datetime import UTC, datetime
 from typing import Any
 
-from drivers.errors import BenchwrightError, ReadStopped
+from drivers.errors import BenchwrightError, InstrumentFault, ReadStopped
 from sequencer.errors import RunAborted
 from sequencer.events import (
     Event,
@@ -324,6 +324,8 @@ class Runner:
             return RunAborted("stopped by SIGINT", cause="signal", step_path=path)
         if isinstance(exc, ReadStopped) and self.stop.requested:  # the stop is the news
             return RunAborted(self.stop.reason, cause=self.stop.cause, step_path=path)
+        if isinstance(exc, InstrumentFault):
+            exc.at_step(path)  # attached once, where the engine meets the fault
         cause = "instrument" if isinstance(exc, FAULTS) else "error"
         return RunAborted(
             describe_fault(exc, self.bench.spec.instruments), cause=cause, step_path=path

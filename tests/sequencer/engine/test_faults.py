@@ -34,3 +34,17 @@ def test_a_failed_error_check_names_the_command_before_it(error, expected):
     exc = error("link failed", address=SCOPE, command="SYSTem:ERRor:NEXT?")
     text = describe_fault(exc.checking_after("INITiate:IMMediate"), INSTRUMENTS)
     assert text == f"scope at {SCOPE}: {expected}"
+
+
+def test_every_fault_kind_says_the_address_once():
+    # one base (drivers.errors.InstrumentFault) carries address and command; the line says them
+    # once, whatever the kind (a backend failure, a garbled reply, a runaway ramp)
+    from drivers.errors import ProtocolError, RampRunaway, TransportError
+
+    for exc in (
+        TransportError("VISA backend failed (KeyError: 'x')", address=SCOPE, command="*IDN?"),
+        ProtocolError("garbled reply 'x1'", address=SCOPE, command="MEASure:VOLTage:DC?"),
+        RampRunaway(f"bias at {SCOPE}: read-back ahead of the commanded ramp", address=SCOPE),
+    ):
+        assert describe_fault(exc, INSTRUMENTS).count(SCOPE) == 1, describe_fault(exc, INSTRUMENTS)
+    assert TransportError("x", address=SCOPE).at_step("gain/ch1").step_path == "gain/ch1"
