@@ -30,16 +30,18 @@ HEAD = "name: t\nversion: 1\nboard_type: PA8\n"
 def test_quick_gain_paths_labels_and_args():
     plan = build_plan(load_procedure(ROOT / "procedures/examples/quick-gain.yaml"), PA8)
     by_path = {s.path: s for s in plan.steps}
-    step = by_path["gain/ch3/x5/amp=40mV/capture"]
+    # the scan runs to top = 160 mV out: x5 (nominal gain 5.0, board file) to 32 mV in
+    step = by_path["gain/ch3/x5/amp=32mV/capture"]
     assert step.kind == "scope.capture" and step.labels == {
         "channel": 3,
         "output": "x5",
-        "amp": 40.0,
+        "amp": pytest.approx(32.0),
     }
     assert dict(step.args) == {"inputs": (1,), "into": ("pulses",)}
-    assert by_path["gain/ch3/x5/amp=40mV/amplitude"].args == {"mV": 40.0}
-    # range = 2.4 x 100 mV x nominal gain 5.0 of x5 (board file) = 1200 mV
-    assert by_path["gain/ch3/x5/input"].args["range"] == pytest.approx(1200.0)
+    assert by_path["gain/ch3/x5/amp=32mV/amplitude"].args == {"mV": pytest.approx(32.0)}
+    assert by_path["gain/ch3/x1/amp=160mV/amplitude"].args == {"mV": pytest.approx(160.0)}
+    # range = 2.4 x top 160 mV = 384 mV on either output
+    assert by_path["gain/ch3/x5/input"].args["range"] == pytest.approx(384.0)
     assert by_path["setup/timebase"].args == {
         "sample_rate": 1e9,
         "points": 1000,
