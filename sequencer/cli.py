@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import os
 import sys
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -209,11 +210,18 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
 @click.option("--sim", "sim_board", type=click.Path(dir_okay=False), help="Continue on a simulated bench.")
 @click.option("--operator", default=lambda: os.environ.get("USER", ""))
 @click.option("--yes", is_flag=True, help="Unattended: acknowledge the safety caution.")
+@click.option("--allow-other-bench", is_flag=True,
+              help="Resume on another bench than the run's own (recorded; certificates state it).")
+@click.option("--allow-other-board", is_flag=True,
+              help="Resume with --sim of another board than the run's (recorded; certificates state it).")
+@click.option("--take-over", is_flag=True,
+              help="Take over a run whose recorder still looks alive (its PC is dead; recorded).")
 @visa_library_option
 @override_option
 @handles_errors
 def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str | None,
-           operator: str, yes: bool, allow_visa_library: tuple[str, ...],
+           operator: str, yes: bool, allow_other_bench: bool, allow_other_board: bool,
+           take_over: bool, allow_visa_library: tuple[str, ...],
            override_instrument_checks: bool) -> None:
     """Continue an interrupted or aborted run from its last completed step."""
     from sequencer import compose
@@ -232,13 +240,20 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
         request = compose.RunRequest(operator=operator or record.operator, unattended=yes,
                                      acknowledge=acknowledge_on_terminal(), prompt=prompt_on_terminal(),
                                      override_instrument_checks=override_instrument_checks,
-                                     warn=lambda line: click.echo(f"warning: {line}", err=True))
+                                     warn=lambda line: click.echo(f"warning: {line}", err=True),
+                                     take_over=take_over)
         if bench_path or sim_board:
             bench_cm = compose.bench_for(bench_path, sim_board, allowed_visa_libraries=allow_visa_library)
         else:
             bench_cm = compose.recorded_bench(run_id, record.bench_text,
                                               allowed_visa_libraries=allow_visa_library)
         with bench_cm as spec:
+            from sequencer.resume_checks import check_resume_target
+
+            serial = compose.sim_board_serial(sim_board)[0] if sim_board else None
+            caveats = check_resume_target(record, spec, sim_board, serial,
+                                          other_bench=allow_other_bench, other_board=allow_other_board)
+            request = replace(request, resume_caveats=caveats)
             result = compose.execute(plan_, spec, store, request, resume_run=run_id)
     sys.exit(_summarise(result.run_id, result.outcome))
 

@@ -30,6 +30,7 @@ from sequencer.engine.preflight import hazard_steps
 from sequencer.engine.progress import ProgressDisplay
 from sequencer.errors import ConfigError, Location, Problem, ProcedureError, StoreError
 from sequencer.events import Event, RunFinished
+from sequencer.heartbeat import Heartbeat
 from sequencer.inputs import RunInput, is_released, loader_files, text_digest
 from sequencer.procedure import (
     Plan,
@@ -41,6 +42,7 @@ from sequencer.procedure import (
 from sequencer.procedure.board_choice import LabFiles, choose_board
 from sequencer.procedure.textrules import MAX_NAME, text_problem
 from sequencer.store import Store, default_url
+from sequencer.store.lease import DEFAULT_HEARTBEAT_S, new_token
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -59,6 +61,9 @@ class RunRequest:
     extra_subscribers: Sequence[Callable[[Event], None]] = field(default_factory=tuple)
     previous_instruments: Sequence[Any] = ()     # of the run being repeated (--repeat)
     override_instrument_checks: bool = False     # run despite calibration past due / wrong identity
+    take_over: bool = False                      # resume: take a run whose recorder looks live
+    resume_caveats: Sequence[str] = ()           # resume: overrides the certificates must state
+    heartbeat_s: float = DEFAULT_HEARTBEAT_S     # how often the run's lease is refreshed
     warn: Callable[[str], None] | None = None
 
 
@@ -289,6 +294,7 @@ def execute(
         overridden = check_instruments(bench.check(date.today()), spec, request)
         stop = StopFlag()
         log = open_log(request.log_path, stop)
+        token = new_token()
         if resume_run is None:
             info = describe_run(
                 plan, bench, operator=request.operator, batch=request.batch, repeat_of=request.repeat_of
@@ -302,12 +308,12 @@ def execute(
             if request.warn is not None:
                 for line in identity_changes(request.previous_instruments, info.instruments):
                     request.warn(line)
-            run_id = store.create_run(info, started_at=datetime.now(UTC))
+            run_id = store.create_run(info, started_at=datetime.now(UTC), lease_token=token)
         else:
             run_id = resume_run
             completed = store.completed_steps(run_id)
-            store.reopen_run(run_id)
-            for line in overridden:
+            store.reopen_run(run_id, lease_token=token, take_over=request.take_over)
+            for line in (*overridden, *request.resume_caveats):
                 store.add_caveat(run_id, f"on resume: {line}")
         subscribers: list[Callable[[Event], None]] = [store.subscriber]
         closers: list[Callable[[], None]] = []
@@ -326,12 +332,18 @@ def execute(
             handle_signals=request.handle_signals,
             prompt=request.prompt,
         )
+        heartbeat = Heartbeat(
+            lambda: store.beat(run_id, token),
+            lambda why: stop.request("lease", why),
+            request.heartbeat_s,
+        )
         try:
             runner = Runner(
                 plan, bench, run_id=run_id, subscribers=subscribers, options=options,
                 completed=completed, info=info, stop=stop,
             )
-            outcome = runner.run()
+            with heartbeat:
+                outcome = runner.run()
         finally:
             for close in closers:
                 close()

@@ -17,7 +17,8 @@ from sqlalchemy.dialects import postgresql, sqlite
 
 from sequencer.errors import StoreError
 from sequencer.events import RunInfo
-from sequencer.store.liveness import ProcessIdentity, process_alive
+from sequencer.store import lease
+from sequencer.store.liveness import ProcessIdentity
 from sequencer.store.models import Annotation, Document, Instrument, Run, Step
 from sequencer.store.models import RunInput as RunInputRow
 
@@ -56,8 +57,11 @@ def annotate(
     )
 
 
-def insert_run(conn: Connection, info: RunInfo, started_at: datetime, me: ProcessIdentity) -> int:
-    """A new run in status ``running``, with its documents and instruments; returns its id."""
+def insert_run(
+    conn: Connection, info: RunInfo, started_at: datetime, me: ProcessIdentity, token: str = ""
+) -> int:
+    """A new run in status ``running`` under the lease ``token`` (a new one if empty), with its
+    documents and instruments; returns its id."""
     procedure_doc = _store_document(conn, info.procedure_text)
     bench_doc = _store_document(conn, info.bench_text) if info.bench_text else None
     result = conn.execute(
@@ -83,6 +87,8 @@ def insert_run(conn: Connection, info: RunInfo, started_at: datetime, me: Proces
             host=me.host,
             pid=me.pid,
             process_tag=me.tag,
+            lease_token=token or lease.new_token(),
+            heartbeat_at=started_at,
         )
     )
     run_id = int(result.inserted_primary_key[0])
@@ -118,7 +124,10 @@ def insert_run(conn: Connection, info: RunInfo, started_at: datetime, me: Proces
 
 def _locked_run(conn: Connection, run_id: int) -> Any:
     row = conn.execute(
-        select(Run.status, Run.host, Run.pid, Run.process_tag, Run.ended_at, Run.reason)
+        select(
+            Run.status, Run.host, Run.pid, Run.process_tag, Run.ended_at, Run.reason,
+            Run.started_at, Run.heartbeat_at, Run.lease_token,
+        )
         .where(Run.id == run_id)
         .with_for_update()
     ).first()
@@ -151,53 +160,83 @@ def finish_run(conn: Connection, run_id: int, status: str, at: datetime, reason:
     annotate(conn, run_id, kind="finished", text=f"run {status}", detail=detail, at=at)
 
 
-def is_stale(host: str, pid: int, tag: str, me: ProcessIdentity) -> bool:
-    """A running run's recorder is known dead: same host as us and its process gone."""
-    return host == me.host and not process_alive(pid, tag)
+def reopen_run(
+    conn: Connection,
+    run_id: int,
+    me: ProcessIdentity,
+    at: datetime,
+    *,
+    token: str = "",
+    take_over: bool = False,
+    stale_after_s: float = lease.DEFAULT_STALE_AFTER_S,
+) -> None:
+    """Set an aborted, interrupted or stale running run back to running under a new lease.
 
-
-def reopen_run(conn: Connection, run_id: int, me: ProcessIdentity, at: datetime) -> None:
-    """Set an aborted, interrupted or stale running run back to running, owned by ``me``."""
+    A running run whose recorder looks live (``lease.judge``) is refused unless ``take_over``
+    (the operator knows that PC is dead): the take-over is recorded in the audit trail.
+    """
     row = _locked_run(conn, run_id)
     _refuse_completed(run_id, row.status)
-    if row.status == "running" and not is_stale(row.host, row.pid, row.process_tag, me):
+    seen = lease.judge(row, me, at, stale_after_s) if row.status == "running" else None
+    if seen is not None and seen.state == "live" and not take_over:
         raise StoreError(
-            f"run {run_id} is still running on {row.host} (pid {row.pid}); "
-            "it can be resumed once that process has ended"
+            f"run {run_id} is still running: {seen.why}; it can be resumed once that process "
+            "has ended, or with --take-over if you know its PC is dead"
         )
     conn.execute(
         update(Run)
         .where(Run.id == run_id)
         .values(
-            status="running", ended_at=None, reason="", host=me.host, pid=me.pid, process_tag=me.tag
+            status="running", ended_at=None, reason="", host=me.host, pid=me.pid,
+            process_tag=me.tag, lease_token=token or lease.new_token(), heartbeat_at=at,
         )
     )
     detail = {"from": row.status, "previous_host": row.host, "previous_pid": row.pid}
     detail |= {"previous_ended_at": row.ended_at, "previous_reason": row.reason}
-    detail |= {"host": me.host, "pid": me.pid}
+    detail |= {"host": me.host, "pid": me.pid, "previous_heartbeat_at": row.heartbeat_at}
+    if seen is not None and seen.state == "live":
+        detail |= {"taken_over": True, "seen": seen.why}
+        text = f"taken over from {row.host} (pid {row.pid}) with --take-over: {seen.why}"
+        annotate(conn, run_id, kind="resumed", text=text, detail=detail, at=at)
+        return
     annotate(conn, run_id, kind="resumed", text=f"resumed from {row.status}", detail=detail, at=at)
 
 
-def mark_stale(conn: Connection, me: ProcessIdentity, at: datetime) -> list[int]:
-    """Mark ``interrupted`` every running run of this host whose recording process is dead.
+def mark_stale(
+    conn: Connection,
+    me: ProcessIdentity,
+    at: datetime,
+    stale_after_s: float = lease.DEFAULT_STALE_AFTER_S,
+) -> list[int]:
+    """Mark ``interrupted`` every running run whose recorder is gone (``lease.judge``): its process
+    ended (this host, this boot) or its heartbeat is older than ``stale_after_s`` (anywhere).
 
-    Its ``ended_at`` is the end of its last finished step (or its start): the last moment known.
+    Its ``ended_at`` is the last moment known: its last finished step, heartbeat or start.
     """
+    last_step = (
+        select(func.max(Step.finished_at)).where(Step.run_id == Run.id).scalar_subquery()
+    )
     rows = conn.execute(
-        select(Run.id, Run.pid, Run.process_tag, Run.started_at)
-        .where(Run.status == "running", Run.host == me.host)
+        select(
+            Run.id, Run.host, Run.pid, Run.process_tag, Run.started_at, Run.heartbeat_at,
+            last_step.label("last_step_at"),
+        )
+        .where(Run.status == "running")
         .with_for_update()
     ).all()
-    stale = [r for r in rows if not process_alive(r.pid, r.process_tag)]
-    reason = "the recording process ended without finishing the run"
-    for r in stale:
-        last_step = conn.execute(select(func.max(Step.finished_at)).where(Step.run_id == r.id))
-        ended_at = last_step.scalar() or r.started_at  # the last thing known to have happened
+    gone = [(r, seen) for r in rows if (seen := lease.judge(r, me, at, stale_after_s)).state != "live"]
+    for r, seen in gone:
+        ended_at = max(t for t in (r.last_step_at, r.heartbeat_at, r.started_at) if t)
+        reason = (
+            "the recording process ended without finishing the run"
+            if seen.state == "dead"
+            else f"the recorder stopped giving a heartbeat ({seen.why})"
+        )
         conn.execute(
             update(Run)
             .where(Run.id == r.id)
             .values(status="interrupted", ended_at=ended_at, reason=reason)
         )
-        detail = {"from": "running", "to": "interrupted", "pid": r.pid}
+        detail = {"from": "running", "to": "interrupted", "pid": r.pid, "host": r.host}
         annotate(conn, r.id, kind="interrupted", text=reason, detail=detail, at=at)
-    return [r.id for r in stale]
+    return [r.id for r, _ in gone]

@@ -122,6 +122,8 @@ class Run(Base):
     host: Mapped[str] = mapped_column(String(255))
     pid: Mapped[int] = mapped_column(Integer)
     process_tag: Mapped[str] = mapped_column(String(100), server_default=text("''"))
+    lease_token: Mapped[str] = mapped_column(String(64), server_default=text("''"))
+    heartbeat_at: Mapped[datetime | None]
 
 
 class Instrument(Base):

@@ -20,7 +20,7 @@ from sqlalchemy.exc import SQLAlchemyError
 from sequencer.errors import StoreError
 from sequencer.events import Event, RunInfo
 from sequencer.inputs import RunInput
-from sequencer.store import lifecycle, queries
+from sequencer.store import lease, lifecycle, queries
 from sequencer.store.connect import database_exists, open_engine, writer
 from sequencer.store.faults import as_store_error, refuse_damaged
 from sequencer.store.liveness import this_process
@@ -104,10 +104,10 @@ class Store:
             yield conn
 
     # -- recording ---------------------------------------------------------------------------
-    def create_run(self, info: RunInfo, started_at: datetime) -> int:
-        """A new run in status ``running`` (records this host and pid); returns its id."""
+    def create_run(self, info: RunInfo, started_at: datetime, *, lease_token: str = "") -> int:
+        """A new run in status ``running`` (this host, pid and the lease token); returns its id."""
         with self._write(f"cannot record run of {info.procedure} on {info.board}") as conn:
-            return lifecycle.insert_run(conn, info, started_at, this_process())
+            return lifecycle.insert_run(conn, info, started_at, this_process(), lease_token)
 
     def handle(self, event: Event) -> None:
         """Record one of the runner's events (see ``recording.py`` for what is written when)."""
@@ -124,15 +124,28 @@ class Store:
         """``handle``, to subscribe to the runner's events."""
         return self.handle
 
-    def reopen_run(self, run_id: int) -> None:
-        """Set an aborted/interrupted (or dead-process running) run to running again, audited."""
+    def reopen_run(self, run_id: int, *, lease_token: str = "", take_over: bool = False) -> None:
+        """Set an aborted/interrupted (or dead-recorder running) run to running under a new
+        lease, audited; ``take_over`` also a running run whose recorder looks live."""
         with self._write(f"cannot reopen run {run_id}") as conn:
-            lifecycle.reopen_run(conn, run_id, this_process(), datetime.now(UTC))
+            lifecycle.reopen_run(
+                conn, run_id, this_process(), datetime.now(UTC),
+                token=lease_token, take_over=take_over,
+            )
 
-    def mark_stale_runs_interrupted(self) -> list[int]:
-        """Running runs of this host whose process is gone become ``interrupted``; their ids."""
+    def mark_stale_runs_interrupted(
+        self, *, stale_after_s: float = lease.DEFAULT_STALE_AFTER_S
+    ) -> list[int]:
+        """Running runs whose recorder is gone (its process ended on this host and boot, or no
+        heartbeat for ``stale_after_s`` from anywhere) become ``interrupted``; their ids."""
         with self._write("cannot check for interrupted runs") as conn:
-            return lifecycle.mark_stale(conn, this_process(), datetime.now(UTC))
+            return lifecycle.mark_stale(conn, this_process(), datetime.now(UTC), stale_after_s)
+
+    def beat(self, run_id: int, lease_token: str) -> bool:
+        """Refresh the heartbeat of a run held under ``lease_token``; False when the lease is lost
+        (the run was taken over, or is no longer running)."""
+        with self._write(f"cannot refresh the heartbeat of run {run_id}") as conn:
+            return lease.beat(conn, run_id, lease_token, datetime.now(UTC))
 
     def add_note(self, run_id: int, text: str, author: str) -> None:
         """Append an operator's note to a run (any status; notes are additions, never edits)."""

@@ -1,0 +1,82 @@
+"""The lease a running run holds on its record: a unique token and a heartbeat.
+
+Who may say a running run's recorder is gone:
+
+* on the same host *and the same boot* (the boot id in ``process_tag``, see ``liveness``), the
+  process table: a pid that is gone (or reused) is a dead recorder at once;
+* anywhere else (another PC, even one with the same host name; a reboot), only the heartbeat: a
+  run whose heartbeat is older than ``stale_after_s`` has lost its recorder (the PC died, or the
+  process was frozen that long).  A fresh heartbeat from elsewhere is a live run, never touched.
+
+The recorder refreshes ``heartbeat_at`` every ``DEFAULT_HEARTBEAT_S`` while it runs, and only
+while the row still holds its token: a run taken over by ``resume --take-over`` has another token,
+and the old recorder learns that it lost the lease at its next beat.
+"""
+
+from __future__ import annotations
+
+import secrets
+from dataclasses import dataclass
+from datetime import datetime, timedelta
+from typing import Any, Literal
+
+from sqlalchemy import Connection, update
+
+from sequencer.store.liveness import ProcessIdentity, process_alive
+from sequencer.store.models import Run
+
+#: Seconds between two heartbeats of a running run.
+DEFAULT_HEARTBEAT_S = 5.0
+#: A heartbeat older than this (12 missed beats) means the recorder is gone.
+DEFAULT_STALE_AFTER_S = 60.0
+
+State = Literal["live", "dead", "stale"]
+
+
+def new_token() -> str:
+    """A lease token: 128 random bits (``secrets``), unique across PCs, boots and processes."""
+    return secrets.token_hex(16)
+
+
+def _boot(tag: str) -> str:
+    return tag.split(":", 1)[0] if ":" in tag else ""
+
+
+@dataclass(frozen=True)
+class Judgement:
+    state: State
+    why: str  # one line: what was seen
+
+
+def judge(row: Any, me: ProcessIdentity, now: datetime, stale_after_s: float) -> Judgement:
+    """Whether the recorder of the running run ``row`` is live, dead (its process is gone) or
+    stale (no heartbeat for ``stale_after_s``).  ``row`` has host, pid, process_tag,
+    heartbeat_at and started_at (and may have last_step_at)."""
+    same_boot = row.host == me.host and _boot(row.process_tag) and (
+        _boot(row.process_tag) == _boot(me.tag)
+    )
+    if same_boot:
+        if process_alive(row.pid, row.process_tag):
+            return Judgement("live", f"its process {row.pid} on {row.host} is running")
+        return Judgement("dead", f"its process {row.pid} on {row.host} has ended")
+    last = max(
+        t for t in (row.heartbeat_at, getattr(row, "last_step_at", None), row.started_at) if t
+    )
+    age = (now - last).total_seconds()
+    if age > stale_after_s:
+        return Judgement("stale", f"no heartbeat from {row.host} for {age:.0f} s")
+    return Judgement("live", f"{row.host} (pid {row.pid}) gave a heartbeat {max(age, 0):.0f} s ago")
+
+
+def beat(conn: Connection, run_id: int, token: str, at: datetime) -> bool:
+    """Refresh the heartbeat of a run still running under ``token``; False: the lease is lost."""
+    result = conn.execute(
+        update(Run)
+        .where(Run.id == run_id, Run.lease_token == token, Run.status == "running")
+        .values(heartbeat_at=at)
+    )
+    return result.rowcount == 1
+
+
+def stale_before(now: datetime, stale_after_s: float) -> datetime:
+    return now - timedelta(seconds=stale_after_s)
