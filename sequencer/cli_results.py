@@ -17,21 +17,33 @@ from sequencer.cli_common import EXIT_FAIL, EXIT_INPUT, db_option, env, fail, ha
 @click.option("--run", "run_id", type=int, required=True, help="Run to certify.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), required=True, help="Folder for the certificates.")
 @click.option("--paper", type=click.Choice(["A4", "Letter"]), default="A4", show_default=True)
+@click.option("--partial", is_flag=True, help="Certify the channels a run that did not complete measured.")
 @handles_errors
-def certify(db: str | None, run_id: int, out_dir: str, paper: str) -> None:
+def certify(db: str | None, run_id: int, out_dir: str, paper: str, partial: bool) -> None:
     """One certificate per channel (PDF and HTML) for a run."""
     from sequencer import compose
     from sequencer.cli_progress import counting
     from sequencer.reports import certify_run
 
     with compose.open_existing_store(db, env()) as store:
-        compose.check_store(store, run_id)
+        run = compose.check_store(store, run_id)
+        if run.status != "completed" and not partial:
+            fail(EXIT_INPUT, _not_completed(run_id, run.status, run.reason))
         with counting(f"certificates of run {run_id}") as progress:
             paths = certify_run(store, run_id, Path(out_dir), paper=paper, on_progress=progress)
     pdfs = [p for p in paths if p.suffix == ".pdf"]
+    if not pdfs:
+        fail(EXIT_INPUT, f"error: run {run_id} ({run.status}) has no measurement: nothing to certify")
     click.echo(f"{len(pdfs)} certificate(s) (PDF and HTML) in {out_dir}")
     for p in pdfs:
         click.echo(f"  {p.name}")
+
+
+def _not_completed(run_id: int, status: str, reason: str) -> str:
+    why = f" ({reason})" if reason else ""
+    return (f"error: run {run_id} is {status}{why}: nothing to certify, a certificate covers a "
+            f"completed run; `benchwright resume {run_id}` finishes it, or --partial certifies the "
+            "channels it measured")
 
 
 @click.command()
@@ -141,10 +153,25 @@ def report(db: str | None, batch: str, out_dir: str | None) -> None:
     from sequencer.reports import batch_report, batch_summary
 
     with compose.open_existing_store(db, env()) as store:
+        check_batch(store, batch)
         click.echo(batch_summary(store, batch).to_text())
         if out_dir:
             for path in batch_report(store, batch, Path(out_dir)):
                 click.echo(f"report: {path}")
+
+
+def check_batch(store: Any, batch: str) -> None:
+    """Exit 2 naming the known batches (and a case-insensitive match) when ``batch`` has no run."""
+    from sequencer.store.overview import batch_lines
+
+    with store.engine.connect() as conn:
+        known = [b.batch for b in batch_lines(conn)]
+    if batch in known:
+        return
+    same = [k for k in known if k.casefold() == batch.casefold()]
+    hint = f"; did you mean {same[0]}?" if same else ""
+    listed = ", ".join(known) if known else "none (no run was given --batch)"
+    fail(EXIT_INPUT, f"error: no batch {batch!r} in the database{hint}\nknown batches: {listed}")
 
 
 COMMANDS: list[click.Command] = [certify, verify, trend, report]
