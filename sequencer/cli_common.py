@@ -87,6 +87,16 @@ def _debug(debug: bool) -> None:
         traceback.print_exc()
 
 
+def open_existing_store(db: str | None) -> Any:
+    """The store for a command that only reads (``runs``, ``batches``, ``export``, ``verify``): a
+    missing database is ``StoreError`` and nothing is created.  The same as
+    ``compose.open_existing_store`` without importing ``compose``, which pulls in the engine and its
+    analysis (scipy) and the drivers: a read-only command should start in a fraction of a second."""
+    from sequencer.store import Store, default_url
+
+    return Store.open(db or default_url(env()), create=False)
+
+
 def env() -> dict[str, str]:
     return dict(os.environ)
 

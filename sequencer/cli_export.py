@@ -12,7 +12,13 @@ from typing import Any
 
 import click
 
-from sequencer.cli_common import EXIT_INPUT, db_option, env, fail, handles_errors
+from sequencer.cli_common import (
+    EXIT_INPUT,
+    db_option,
+    fail,
+    handles_errors,
+    open_existing_store,
+)
 
 FORMATS = ("csv", "json", "parquet", "root")
 BINARY = ("parquet", "root")
@@ -61,7 +67,6 @@ def export(db: str | None, whats: tuple[str, ...], run_id: int | None, board: st
            procedure: str | None, batch: str | None, since: Any, until: Any, fmt: str,
            out_file: str | None) -> None:
     """Results in open formats: one row per value (or curve point, trace, run) with its keys."""
-    from sequencer import compose
     from sequencer.results.tables import Selection, read_table
 
     if fmt in BINARY and not out_file:
@@ -72,7 +77,7 @@ def export(db: str | None, whats: tuple[str, ...], run_id: int | None, board: st
     what = whats[0]
     sel = Selection(run_id=run_id, board=board, procedure=procedure, batch=batch,
                     since=_utc(since), until=_utc(until))
-    with compose.open_existing_store(db, env()) as store:
+    with open_existing_store(db) as store:
         if fmt in BINARY:
             from sequencer.results.formats import write_parquet, write_root
 

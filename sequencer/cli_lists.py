@@ -7,7 +7,7 @@ from typing import Any
 
 import click
 
-from sequencer.cli_common import db_option, env, handles_errors
+from sequencer.cli_common import db_option, handles_errors, open_existing_store
 
 FORMATS = ["table", "csv", "json"]
 BATCH_COLUMNS = ("batch", "boards", "runs", "running", "passed", "failed", "first", "last")
@@ -36,11 +36,10 @@ def _utc(moment: Any) -> Any:
 def runs(db: str | None, fmt: str, board: str | None, procedure: str | None, batch: str | None,
          operator: str | None, status: str | None, verdict: str | None, since: Any, until: Any) -> None:
     """Past runs: id, procedure, board, status, start, end, verdict, operator, batch."""
-    from sequencer import compose
     from sequencer.store import RUN_COLUMNS, format_rows, run_rows
     from sequencer.store.overview import run_counts, run_lines
 
-    with compose.open_existing_store(db, env()) as store:
+    with open_existing_store(db) as store:
         store.mark_stale_runs_interrupted()
         with store.engine.connect() as conn:
             lines = run_lines(conn, newest_first=False, board=board, procedure=procedure, batch=batch,
@@ -76,13 +75,12 @@ def maybe_live_note(lines: Any) -> str:
 @handles_errors
 def batches(db: str | None, fmt: str) -> None:
     """Batches in the database: boards, runs, how many pass or fail, first and last run."""
-    from sequencer import compose
     from sequencer.store import format_rows
     from sequencer.store.export import iso_utc
     from sequencer.store.overview import batch_lines, run_counts, run_lines
 
     rows = []
-    with compose.open_existing_store(db, env()) as store, store.engine.connect() as conn:
+    with open_existing_store(db) as store, store.engine.connect() as conn:
         for b in batch_lines(conn):
             lines = run_lines(conn, batch=b.batch)
             counts = run_counts(conn, [r.id for r in lines], steps=False)

@@ -9,7 +9,15 @@ from typing import Any
 
 import click
 
-from sequencer.cli_common import EXIT_FAIL, EXIT_INPUT, db_option, env, fail, handles_errors
+from sequencer.cli_common import (
+    EXIT_FAIL,
+    EXIT_INPUT,
+    db_option,
+    env,
+    fail,
+    handles_errors,
+    open_existing_store,
+)
 
 
 @click.command()
@@ -52,10 +60,9 @@ def _not_completed(run_id: int, status: str, reason: str) -> str:
 @handles_errors
 def verify(db: str | None, certificate: str) -> None:
     """Check a certificate (PDF or HTML) against the database; exit 1 if anything differs."""
-    from sequencer import compose
     from sequencer.reports import verify_certificate
 
-    with compose.open_existing_store(db, env()) as store:
+    with open_existing_store(db) as store:
         result = verify_certificate(store, Path(certificate))
     if result.ok:
         click.echo(f"{certificate}: matches the database (certificate {result.number}, data sha256 {result.data_sha256[:12]})")
