@@ -30,11 +30,12 @@ from sequencer.cli_common import (
     handles_errors,
     visa_library_option,
 )
+from sequencer.cli_lazy import LazyGroup
 from sequencer.cli_terminal import acknowledge_on_terminal, prompt_on_terminal
 from sequencer.errors import StoreError
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
+@click.group(cls=LazyGroup, context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
 @click.version_option(__version__, prog_name="benchwright")
 @click.option("--debug", is_flag=True, help="Show tracebacks for errors.")
 def cli(debug: bool) -> None:
@@ -304,13 +305,28 @@ def sim(board_path: str, host: str, port_base: int, bench_out: str | None, link:
           on_ready=None, link=link)
 
 
-def attach_commands() -> None:
-    """Attach the commands that live in their own modules (store-only reports; batch and demo)."""
-    from sequencer import cli_batch, cli_export, cli_lists, cli_results, cli_safe, cli_serve
+# name -> "module:attribute"; each module is imported only when its command runs (or for --help)
+LAZY_COMMANDS: dict[str, str] = {
+    "certify": "sequencer.cli_results:certify",
+    "verify": "sequencer.cli_results:verify",
+    "trend": "sequencer.cli_results:trend",
+    "report": "sequencer.cli_results:report",
+    "batch": "sequencer.cli_batch:batch",
+    "demo": "sequencer.cli_batch:demo",
+    "export": "sequencer.cli_export:export",
+    "serve": "sequencer.cli_serve:serve",
+    "runs": "sequencer.cli_lists:runs",
+    "batches": "sequencer.cli_lists:batches",
+    "safe": "sequencer.cli_safe:safe",
+}
 
-    for command in (*cli_results.COMMANDS, cli_batch.batch, cli_batch.demo, cli_export.export,
-                    cli_serve.serve, cli_lists.runs, cli_lists.batches, cli_safe.safe):
-        cli.add_command(command)
+
+def attach_commands() -> None:
+    """Attach the commands that live in their own modules (store-only reports; batch and demo),
+    lazily: a module is imported when its command is looked up, so ``runs`` does not pay for
+    ``batch``'s imports."""
+    group: LazyGroup = cli  # type: ignore[assignment]  # click.group(cls=LazyGroup) made it one
+    group.attach_lazily(LAZY_COMMANDS)
 
 
 def main() -> None:

@@ -1,0 +1,61 @@
+"""A command that only reads the store does not import the heavy libraries (issue 21 item 4).
+
+Checked by module names in ``sys.modules`` of a new interpreter after the ``benchwright`` entry point
+ran ``runs`` on a real (small) SQLite database: order and membership, no timing.
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+from sequencer.store import Store
+
+HEAVY = ("matplotlib", "scipy", "pyvisa")
+
+PROBE = """
+import json, sys
+from sequencer.cli import main
+sys.argv = ["benchwright", *sys.argv[1:]]
+try:
+    main()
+except SystemExit as exit_:
+    code = exit_.code
+else:
+    code = 0
+print(json.dumps({"code": code, "modules": sorted({m.split(".")[0] for m in sys.modules})}))
+"""
+
+
+def _run_entry_point(*args: str) -> dict:
+    done = subprocess.run([sys.executable, "-c", PROBE, *args], capture_output=True, text=True,
+                          timeout=120, check=True)
+    return json.loads(done.stdout.strip().splitlines()[-1])
+
+
+def test_runs_imports_neither_plotting_nor_analysis_nor_visa(tmp_path: Path) -> None:
+    url = f"sqlite:///{tmp_path / 'small.db'}"
+    with Store.open(url):
+        pass
+    seen = _run_entry_point("runs", "--db", url)
+    assert seen["code"] == 0
+    assert "sqlalchemy" in seen["modules"]          # the command did open the store
+    assert [m for m in HEAVY if m in seen["modules"]] == []
+
+
+def test_the_probe_sees_heavy_modules_when_a_command_needs_them() -> None:
+    # Control: ``plan`` composes a run (engine, analysis), so scipy is loaded -- the probe above
+    # would see a heavy import if ``runs`` made one.
+    procedure = Path(__file__).resolve().parents[2] / "procedures" / "noise.yaml"
+    seen = _run_entry_point("plan", str(procedure))
+    assert seen["code"] == 0
+    assert "scipy" in seen["modules"]
+
+
+def test_help_lists_the_lazily_attached_commands() -> None:
+    done = subprocess.run([sys.executable, "-m", "sequencer", "--help"], capture_output=True,
+                          text=True, timeout=120, check=True)
+    listed = {line.split()[0] for line in done.stdout.split("Commands:")[1].splitlines() if line.strip()}
+    assert {"runs", "batches", "export", "verify", "certify", "batch", "demo", "run", "plan"} <= listed
