@@ -252,9 +252,10 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
             from sequencer.resume_checks import check_resume_target
 
             serial = compose.sim_board_serial(sim_board)[0] if sim_board else None
-            caveats = check_resume_target(record, spec, sim_board, serial,
-                                          other_bench=allow_other_bench, other_board=allow_other_board)
-            request = replace(request, resume_caveats=caveats)
+            if bench_path or sim_board:  # the recorded bench is the run's own by definition
+                caveats = check_resume_target(record, spec, sim_board, serial, other_bench=allow_other_bench,
+                                              other_board=allow_other_board)
+                request = replace(request, resume_caveats=caveats)
             result = compose.execute(plan_, spec, store, request, resume_run=run_id)
     sys.exit(_summarise(result.run_id, result.outcome))
 
