@@ -53,7 +53,8 @@ OPERATIONS: dict[str, dict[str, OpSpec]] = {
         "set_leading_edge": _w("seconds"), "set_trailing_edge": _w("seconds"),
         "set_frequency": _w("hertz"), "get_frequency": _q("float"), "set_burst_count": _w("count"),
         "set_burst_state": _w("state"), "set_trigger_source": _w("source"), "trigger": _w(),
-        "set_output": _w("state"), "get_output": _q("bool"),
+        "set_output": _w("state"), "get_output": _q("bool"), "set_function": _w("shape"),
+        "set_offset": _w("volts"),
     },
     "scope": {
         "set_range": _w("input", "volts"), "set_offset": _w("input", "volts"),

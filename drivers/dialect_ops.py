@@ -52,7 +52,7 @@ SAMPLES: dict[str, Any] = {
     "volts": 1.25, "seconds": 1e-6, "hertz": 1e3, "amps": 1e-6, "volts_per_s": 5.0,
     "input": 1, "channel": 3, "count": 10, "output_index": 2,
     "state": True, "source": "EXTernal", "kind": "INTeger,16", "channels": "1203,1204",
-    "start": 1, "stop": 1000, "offset": 0, "value": 1.0,
+    "start": 1, "stop": 1000, "offset": 0, "value": 1.0, "shape": "SINusoid",
 }
 # fmt: on
 _LOOKUP = re.compile(r"^\s*([A-Za-z_]\w*)[.\[]")

@@ -41,5 +41,10 @@ QUANTITY_UNITS: Mapping[str, str] = MappingProxyType(
         "muon_rate_hz": "Hz",
         "muon_efficiency_pct": "%",
         "baseline_mV": "mV",
+        "sinad_db": "dB",
+        "enob_bits": "bit",
+        "dnl_max_lsb": "LSB",
+        "inl_max_lsb": "LSB",
+        "missing_codes": "1",
     }
 )

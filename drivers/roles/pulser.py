@@ -70,6 +70,19 @@ class Pulser(RoleDriver):
         """Fire once (a bus trigger); never repeated by a retry."""
         self._write("trigger", reapply=False)
 
+    def set_sine(self, *, hz: float, mV: float, offset_mV: float = 0.0) -> None:
+        """Continuous sine of peak amplitude ``mV`` around ``offset_mV`` at ``hz`` (the digitizer
+        tests); the pulses come back with :meth:`set_pulses`."""
+        self.set_rate(hz)
+        self.set_amplitude(check_range("mV", mV, 0.0, 1e5))
+        self._write("set_offset", volts=check_finite("offset_mV", offset_mV) * 1e-3)
+        self._write("set_function", shape="SINusoid")
+
+    def set_pulses(self) -> None:
+        """Back to test pulses (offset 0)."""
+        self._write("set_function", shape="PULSe")
+        self._write("set_offset", volts=0.0)
+
     def set_output(self, on: bool) -> None:
         self._set_output(bool(on))
 

@@ -29,6 +29,7 @@ key                           default    meaning
 ``bias_current_noise_nA``     0.002      RMS noise of the current meter
 ``bias_voltage_noise_mV``     1.0        RMS noise of the voltage meter
 ``coincidence.*``             (below)    the coincidence unit (:mod:`drivers.sim.coincidence`)
+``converter.*``               (below)    the digitizer's converter with a sine input
 ============================  =========  ===========================================================
 
 Section ``coincidence`` (every key optional):
@@ -44,6 +45,18 @@ Section ``coincidence`` (every key optional):
 ``resolving_extra_ns``        0.0        true resolving time minus the set window (ns; a fault)
 ``efficiency1``               1.0        probability input 1 fires on a pulse above threshold
 ``efficiency2``               1.0        the same for input 2
+============================  =========  ===========================================================
+
+Section ``converter`` (every key optional; :mod:`drivers.sim.converter`; used while the pulser runs
+in sine mode, when every scope input sees the generator directly):
+
+============================  =========  ===========================================================
+``bits``                      0          converter resolution (6-16); 0: the board's ``adc_bits``
+``dnl_rms_lsb``               0.0        RMS of a random code-width pattern (DNL), fixed by ``seed``
+``missing_codes``             []         codes (1 .. 2^bits − 2) of zero width
+``noise_lsb``                 0.3        RMS input-referred noise, in LSB
+``aperture_jitter_ps``        0.0        RMS sampling-instant jitter (ps)
+``bandwidth_mhz``             0.0        one-pole analogue bandwidth (MHz); 0: unlimited
 ============================  =========  ===========================================================
 
 Channel defaults: gain_x1 1.0, gain_x5 5.0, baseline_mV 0, noise_in_mV 0.3, saturation_mV 1500,
@@ -114,6 +127,18 @@ class CoincidenceSpec:
 
 
 @dataclass(frozen=True, kw_only=True)
+class ConverterSpec:
+    """The simulated digitizer's converter imperfections (keys in the table above)."""
+
+    bits: int = 0
+    dnl_rms_lsb: float = 0.0
+    missing_codes: tuple[int, ...] = ()
+    noise_lsb: float = 0.3
+    aperture_jitter_ps: float = 0.0
+    bandwidth_mhz: float = 0.0
+
+
+@dataclass(frozen=True, kw_only=True)
 class FaultSpec:
     """One injected fault; exactly one of ``after_s`` / ``after_commands`` is set."""
 
@@ -138,6 +163,7 @@ class BoardSpec:
     shaper: ShaperSpec = field(default_factory=ShaperSpec)
     pulse: PulseSpec = field(default_factory=PulseSpec)
     coincidence: CoincidenceSpec = field(default_factory=CoincidenceSpec)
+    converter: ConverterSpec = field(default_factory=ConverterSpec)
     crosstalk_pct: float = 0.0
     bias_resistance_Mohm: float = 5000.0
     seed: int = 0

@@ -21,6 +21,7 @@ from drivers.sim.board import (
     BoardSpec,
     ChannelSpec,
     CoincidenceSpec,
+    ConverterSpec,
     FaultSpec,
     PulseSpec,
     ShaperSpec,
@@ -154,6 +155,24 @@ _COINCIDENCE = {
     "efficiency1": _number(0.0, 1.0),
     "efficiency2": _number(0.0, 1.0),
 }
+
+
+def _codes(value: Any) -> tuple[int, ...]:
+    if not isinstance(value, list) or not all(
+        isinstance(v, int) and not isinstance(v, bool) and 1 <= v <= 65534 for v in value
+    ):
+        raise _Bad(f"expected a list of codes 1..65534, got {value!r}")
+    return tuple(value)
+
+
+_CONVERTER = {
+    "bits": _integer(0, 16),
+    "dnl_rms_lsb": _number(0.0, 1.0),
+    "missing_codes": _codes,
+    "noise_lsb": _number(0.0, 1e4),
+    "aperture_jitter_ps": _number(0.0, 1e6),
+    "bandwidth_mhz": _number(0.0, 1e5),
+}
 _FAULT = {
     "kind": _choice(*FAULT_KINDS),
     "role": _choice(*ROLES),
@@ -174,6 +193,7 @@ _TOP: dict[str, Check] = {
     "shaper": lambda v: v,
     "pulse": lambda v: v,
     "coincidence": lambda v: v,
+    "converter": lambda v: v,
     "faults": lambda v: v,
     "channels": lambda v: v,
     "command_sets": lambda v: v,
@@ -224,6 +244,11 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
         if "coincidence" in top
         else CoincidenceSpec()
     )
+    converter = (
+        ConverterSpec(**reader.mapping(top["converter"], _CONVERTER, "converter"))
+        if "converter" in top
+        else ConverterSpec()
+    )
     outputs = _outputs(reader, data, top.get("outputs"))
     faults = _faults(reader, data, top.get("faults"))
     command_sets = (
@@ -243,13 +268,23 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
         k: v
         for k, v in top.items()
         if k
-        not in ("channels", "shaper", "pulse", "coincidence", "outputs", "faults", "command_sets")
+        not in (
+            "channels",
+            "shaper",
+            "pulse",
+            "coincidence",
+            "converter",
+            "outputs",
+            "faults",
+            "command_sets",
+        )
     }
     return BoardSpec(
         channels=channels,
         shaper=shaper,
         pulse=pulse,
         coincidence=coincidence,
+        converter=converter,
         outputs=outputs,
         faults=faults,
         command_sets=MappingProxyType(dict(command_sets)),

@@ -23,6 +23,11 @@ the pulser output is on and a channel is injected.  ``TRACe:PREamble? CHANnel<i>
 ``x_increment_s, x_origin_s, y_increment_V, y_origin_V, points, averages`` of the last acquisition
 (volts = code · y_increment + y_origin; REAL,32 data are volts, increment 1, origin 0).  Noise of each
 acquisition comes from ``np.random.default_rng([seed, instrument_id, capture_counter])``.
+
+While the pulser runs in sine mode every input digitises the generator's sine through the converter
+model of the board's ``converter`` section (:mod:`drivers.sim.converter`: DNL pattern, missing codes,
+noise, aperture jitter, bandwidth); such records are single acquisitions (an average count above 1
+is refused with -221).
 """
 
 from __future__ import annotations
@@ -36,6 +41,7 @@ import numpy as np
 from drivers.scpi.blocks import format_block
 from drivers.sim.adc import CODES_16, digitize
 from drivers.sim.board import BoardSpec
+from drivers.sim.converter import convert, sine_volts, transitions
 from drivers.sim.instrument import Call, Command, SimInstrument, command
 from drivers.sim.physics import band_limited_noise
 from drivers.sim.pulser import Pulser
@@ -108,6 +114,7 @@ class Digitizer(SimInstrument):
         self.settings = ScopeSettings()
         self.record: Record | None = None
         self.captures = 0
+        self._edges: np.ndarray | None = None  # the converter's transitions, drawn once
         super().__init__(**kwargs)  # type: ignore[arg-type]
 
     def reset(self) -> None:
@@ -204,8 +211,13 @@ class Digitizer(SimInstrument):
         """Acquire all inputs (the average of ``averages`` triggers) into :attr:`record`."""
         s = self.settings
         board = self.board
+        if self.pulser.sine_on and s.averages > 1:
+            raise scpi_error(-221, "the converter model acquires single records of the sine")
         self.captures += 1
         rng = np.random.default_rng([board.seed, self.instrument_id, self.captures])
+        if self.pulser.sine_on:
+            self._acquire_sine(rng)
+            return
         dt_ns = 1e9 / s.sample_rate_hz
         t_ns = -s.pretrigger_s * 1e9 + dt_ns * np.arange(s.points)
         on = self.pulser.settings.output_on
@@ -252,6 +264,47 @@ class Digitizer(SimInstrument):
             lsb_V=tuple(fs / CODES_16 for fs in s.full_scale_V),
             offset_V=tuple(s.offset_V),
             averages=s.averages,
+        )
+
+    def _acquire_sine(self, rng: np.random.Generator) -> None:
+        """Every input digitises the generator's sine through the converter model."""
+        s, board, gen = self.settings, self.board, self.pulser.settings
+        spec = board.converter
+        bits = spec.bits or board.adc_bits
+        if self._edges is None:
+            self._edges = transitions(spec, bits, board.seed)
+        dt_s = 1.0 / s.sample_rate_hz
+        t_s = -s.pretrigger_s + dt_s * np.arange(s.points)
+        phase = float(rng.uniform(0.0, 2.0 * np.pi))  # one generator, split to every input
+        codes = np.vstack(
+            [
+                convert(
+                    sine_volts(
+                        spec,
+                        t_s=t_s,
+                        frequency_hz=gen.frequency_hz,
+                        amplitude_V=gen.amplitude_V,
+                        offset_V=gen.offset_V,
+                        phase_rad=phase,
+                        rng=rng,
+                    ),
+                    full_scale_V=s.full_scale_V[i],
+                    offset_V=s.offset_V[i],
+                    bits=bits,
+                    edges=self._edges,
+                    noise_lsb=spec.noise_lsb,
+                    rng=rng,
+                )
+                for i in range(SCOPE_INPUTS)
+            ]
+        )
+        self.record = Record(
+            codes=codes,
+            dt_s=dt_s,
+            t0_s=-s.pretrigger_s,
+            lsb_V=tuple(fs / CODES_16 for fs in s.full_scale_V),
+            offset_V=tuple(s.offset_V),
+            averages=1,
         )
 
     def _noise(

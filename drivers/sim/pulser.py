@@ -2,8 +2,14 @@
 
 Settings (SI units on the wire) and their ``*RST`` defaults: amplitude 0.1 V (±5 V), width 10 ns,
 leading/trailing edges 1 ns, frequency 1 kHz (1 mHz - 50 MHz), burst of 1 cycle, burst off, trigger
-source IMMediate, output off.  The board treats the pulse as a charge injection: its width and edges
-are kept and reported but do not change the board's pulse shape.  ``*TRG`` counts bus triggers.
+source IMMediate, output off, function PULSe, offset 0 V (±5 V).  The board treats the pulse as a
+charge injection: its width and edges are kept and reported but do not change the board's pulse
+shape.  ``*TRG`` counts bus triggers.
+
+Sine mode (``SOURce:FUNCtion:SHAPe SINusoid``): a continuous sine of peak amplitude ``AMPLitude``
+(not peak-to-peak) around ``SOURce:VOLTage:LEVel:IMMediate:OFFSet`` at ``FREQuency``, fed straight
+into every scope input (the digitizer under test, :mod:`drivers.sim.converter`); no test pulses
+reach the board or the counters meanwhile.
 """
 
 from __future__ import annotations
@@ -15,6 +21,7 @@ from drivers.sim.instrument import Call, Command, Handler, SimInstrument, comman
 from drivers.sim.scpi_parser import format_float, parse_bool, parse_choice, parse_int, parse_number
 
 TRIGGER_SOURCES = ("IMMediate", "EXTernal", "BUS")
+FUNCTIONS = ("PULSe", "SINusoid")
 
 
 @dataclass(kw_only=True)
@@ -31,6 +38,8 @@ class PulserSettings:
     trigger_source: str = "IMMediate"
     output_on: bool = False
     bus_triggers: int = 0
+    function: str = "PULSe"
+    offset_V: float = 0.0
 
 
 class Pulser(SimInstrument):
@@ -53,11 +62,16 @@ class Pulser(SimInstrument):
 
     def trials(self, gate_s: float) -> int:
         """Pulses sent during a counter gate of ``gate_s``: burst count, or frequency × gate."""
-        if not self.settings.output_on:
+        if not self.settings.output_on or self.sine_on:
             return 0
         if self.settings.burst_on:
             return self.settings.burst_count
         return int(self.settings.frequency_hz * gate_s + 1e-9)
+
+    @property
+    def sine_on(self) -> bool:
+        """True while the output carries the continuous sine."""
+        return self.settings.output_on and self.settings.function == "SINusoid"
 
     def _number_field(self, name: str, lo: float, hi: float) -> tuple[Handler, Handler]:
         def write(call: Call) -> None:
@@ -71,8 +85,17 @@ class Pulser(SimInstrument):
         lead = self._number_field("leading_s", 1e-10, 1e-3)
         trail = self._number_field("trailing_s", 1e-10, 1e-3)
         freq = self._number_field("frequency_hz", 1e-3, 50e6)
+        offset = self._number_field("offset_V", -5.0, 5.0)
         return [
             command("[SOURce:]VOLTage[:LEVel][:IMMediate][:AMPLitude]", write=amp[0], query=amp[1]),
+            command(
+                "[SOURce:]VOLTage[:LEVel][:IMMediate]:OFFSet", write=offset[0], query=offset[1]
+            ),
+            command(
+                "[SOURce:]FUNCtion[:SHAPe]",
+                write=self._set_function,
+                query=lambda c: self.settings.function[:4].upper(),
+            ),
             command("[SOURce:]PULSe:WIDTh", write=width[0], query=width[1]),
             command("[SOURce:]PULSe:TRANsition[:LEADing]", write=lead[0], query=lead[1]),
             command("[SOURce:]PULSe:TRANsition:TRAiling", write=trail[0], query=trail[1]),
@@ -101,6 +124,9 @@ class Pulser(SimInstrument):
 
     def common_commands(self) -> dict[str, tuple[Handler | None, Handler | None]]:
         return {"*TRG": (self._bus_trigger, None)}
+
+    def _set_function(self, call: Call) -> None:
+        self.settings.function = parse_choice(call.arg(), FUNCTIONS)
 
     def _set_burst_count(self, call: Call) -> None:
         self.settings.burst_count = parse_int(call.arg(), lo=1, hi=10**9)

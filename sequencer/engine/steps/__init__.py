@@ -16,6 +16,7 @@ from . import (
     bias,
     coincidence,
     counter,
+    digitizer,
     flow,
     module_analysis,
     pulser,
@@ -34,7 +35,7 @@ def handler_table() -> Mapping[str, Handler]:
     table: dict[str, Handler] = {}
     for family in (
         pulser, scope, threshold, counter, coincidence, bias, switch, flow, analysis, sensors,
-        sensor_analysis, module_analysis,
+        sensor_analysis, module_analysis, digitizer,
     ):
         table.update(family.HANDLERS)
     return table

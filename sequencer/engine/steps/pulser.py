@@ -36,6 +36,19 @@ def set_output(ctx: RunContext, step: PlannedStep) -> StepResult:
     return EMPTY_RESULT
 
 
+def set_sine(ctx: RunContext, step: PlannedStep) -> StepResult:
+    a = step.args
+    ctx.bench.pulser.set_sine(
+        hz=float(a["frequency"]), mV=float(a["amplitude"]), offset_mV=float(a.get("offset") or 0.0)
+    )
+    return EMPTY_RESULT
+
+
+def set_pulses(ctx: RunContext, step: PlannedStep) -> StepResult:
+    ctx.bench.pulser.set_pulses()
+    return EMPTY_RESULT
+
+
 def trigger(ctx: RunContext, step: PlannedStep) -> StepResult:
     ctx.bench.pulser.trigger()
     return EMPTY_RESULT
@@ -48,4 +61,6 @@ HANDLERS = {
     "pulser.burst": set_burst,
     "pulser.output": set_output,
     "pulser.trigger": trigger,
+    "pulser.sine": set_sine,
+    "pulser.pulses": set_pulses,
 }
