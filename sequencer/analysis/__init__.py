@@ -16,6 +16,15 @@ from .coincidence import (
     fit_delay_curve,
 )
 from .crosstalk import crosstalk_db, crosstalk_peak_percent, crosstalk_percent, crosstalk_reasons
+from .discriminator import (
+    Jitter,
+    Walk,
+    constant_fraction_times,
+    expected_jitter_ns,
+    leading_edge_times,
+    time_walk,
+    timing_jitter,
+)
 from .fingers import FingerFit, fit_finger_histogram, fit_finger_spectrum
 from .landau import (
     LANDAU_MODE,
@@ -37,6 +46,7 @@ from .photoelectrons import (
 from .pulses import baseline_level, baseline_rms, pretrigger_baseline, pulse_height
 from .refusals import Measured, pulse_reasons, summarise
 from .scurves import SCurveFit, fit_s_curve
+from .shaping import Reconstruction, crrc_fwhm_tau, reconstruct_amplitude, samples_above_half
 from .sinefit import SineFit, enob, estimate_frequency, fit_sine_3, fit_sine_4, sinad_db
 from .sipm import (
     BreakdownFit,
@@ -57,16 +67,19 @@ __all__ = [
     "DelayCurve",
     "Efficiency",
     "FingerFit",
+    "Jitter",
     "LandauFit",
     "LineFit",
     "MeanPhotoelectrons",
     "Measured",
+    "Reconstruction",
     "SCurveFit",
     "SineFit",
     "Staircase",
     "ThresholdCalibration",
     "TraceAverage",
     "TransferFit",
+    "Walk",
     "accidental_rate_hz",
     "average_traces",
     "baseline_level",
@@ -75,17 +88,20 @@ __all__ = [
     "breakdown_voltage",
     "code_density",
     "coincidence_efficiency",
+    "constant_fraction_times",
     "crosstalk_db",
     "crosstalk_lambda",
     "crosstalk_peak_percent",
     "crosstalk_percent",
     "crosstalk_probability",
     "crosstalk_reasons",
+    "crrc_fwhm_tau",
     "dark_count_staircase",
     "dnl_from_transitions",
     "enc_electrons",
     "enob",
     "estimate_frequency",
+    "expected_jitter_ns",
     "fit_delay_curve",
     "fit_finger_histogram",
     "fit_finger_spectrum",
@@ -99,6 +115,7 @@ __all__ = [
     "inl_percent",
     "inl_with_uncertainty",
     "landau_gauss_pdf",
+    "leading_edge_times",
     "mean_photoelectrons",
     "noise_rate",
     "peaking_time",
@@ -106,12 +123,16 @@ __all__ = [
     "pulse_height",
     "pulse_onset",
     "pulse_reasons",
+    "reconstruct_amplitude",
     "rice_nu0",
     "rise_time",
+    "samples_above_half",
     "sinad_db",
     "state_levels",
     "summarise",
     "threshold_calibration",
+    "time_walk",
+    "timing_jitter",
     "transfer_curve",
     "zero_crossing_time",
 ]
