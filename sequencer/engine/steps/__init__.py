@@ -17,6 +17,7 @@ from . import (
     coincidence,
     counter,
     digitizer,
+    discriminator_timing,
     flow,
     module_analysis,
     pulser,
@@ -35,7 +36,7 @@ def handler_table() -> Mapping[str, Handler]:
     table: dict[str, Handler] = {}
     for family in (
         pulser, scope, threshold, counter, coincidence, bias, switch, flow, analysis, sensors,
-        sensor_analysis, module_analysis, digitizer,
+        sensor_analysis, module_analysis, digitizer, discriminator_timing,
     ):
         table.update(family.HANDLERS)
     return table

@@ -1,0 +1,120 @@
+"""Handlers of the discriminator-timing analyses (``analyse.walk``, ``analyse.jitter``): leading-edge
+and constant-fraction times of captured fast pulses, judged as ``time_walk_ns``, ``cf_walk_ns`` and
+``timing_jitter_ns``.
+
+Times are taken on each trace's own axis (t = 0 the trigger), so they compare across captures.  The
+jitter step also states what the standard estimate σ_noise/(dV/dt) predicts from the same traces
+(baseline RMS over the mean trace's slope at the crossing), kept with the step's results.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+
+from sequencer import analysis as an
+from sequencer.procedure.plan_model import PlannedStep
+
+from ..context import RunContext
+from ..judge import measure
+from ..records import NamedTrace, StepResult
+
+
+class TimingInputError(ValueError):
+    """The run holds no usable traces for a timing step."""
+
+
+def _traces(ctx: RunContext, step: PlannedStep) -> tuple[list[NamedTrace], np.ndarray, float]:
+    name = step.args["traces"]
+    items = ctx.select_traces(name, step.labels)
+    if not items:
+        raise TimingInputError(f"no traces called {name!r} in the scope {dict(step.labels)}")
+    dt = items[0].trace.dt_ns
+    t0 = items[0].trace.t0_ns
+    if any(abs(i.trace.dt_ns - dt) > 1e-9 * dt or abs(i.trace.t0_ns - t0) > 1e-6 for i in items):
+        raise TimingInputError("the traces of one timing step have different time bases")
+    return items, np.vstack([i.trace.mV for i in items]), dt
+
+
+def _baseline(step: PlannedStep, items: list[NamedTrace]) -> int:
+    trace = items[0].trace
+    try:
+        return an.pretrigger_baseline(
+            int(step.args.get("n_baseline") or 0), trace.t0_ns, trace.dt_ns
+        )
+    except ValueError as exc:
+        raise TimingInputError(f"traces {items[0].name!r}: {exc}") from None
+
+
+def analyse_walk(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """Leading-edge walk and constant-fraction walk over an amplitude sweep."""
+    a = step.args
+    items, rows, dt = _traces(ctx, step)
+    try:
+        amps = np.array([float(i.labels[a["x"]]) for i in items])
+    except KeyError:
+        raise TimingInputError(f"sweep variable {a['x']!r} is not among the labels") from None
+    t0, nb = items[0].trace.t0_ns, _baseline(step, items)
+    le = an.leading_edge_times(rows, dt, float(a["threshold"]), t0_ns=t0, n_baseline=nb)
+    cf = an.constant_fraction_times(
+        rows,
+        dt,
+        fraction=float(a.get("fraction") or 0.3),
+        delay_ns=float(a.get("delay") or 2.0),
+        arming_mV=float(a["threshold"]),
+        t0_ns=t0,
+        n_baseline=nb,
+    )
+    walk, cf_walk = an.time_walk(amps, le), an.time_walk(amps, cf)
+    return StepResult(
+        results={
+            "amplitudes_mV": walk.amplitudes_mV.tolist(),
+            "leading_edge_ns": walk.mean_ns.tolist(),
+            "constant_fraction_ns": cf_walk.mean_ns.tolist(),
+        },
+        measurements=[
+            measure(ctx, step, "time_walk_ns", walk.walk_ns, output=None),
+            measure(ctx, step, "cf_walk_ns", cf_walk.walk_ns, output=None),
+        ],
+    )
+
+
+def analyse_jitter(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """RMS of the leading-edge times of single captures at one amplitude."""
+    items, rows, dt = _traces(ctx, step)
+    if len(items) < 2:
+        raise TimingInputError("jitter needs at least two single captures")
+    t0, nb = items[0].trace.t0_ns, _baseline(step, items)
+    threshold = float(step.args["threshold"])
+    times = an.leading_edge_times(rows, dt, threshold, t0_ns=t0, n_baseline=nb)
+    jitter = an.timing_jitter(times)
+    results: dict[str, Any] = {"captures": len(items), "refused": jitter.refused}
+    mean = rows.mean(axis=0) - rows[:, :nb].mean()
+    k = round((jitter.mean_ns - t0) / dt)
+    if 1 <= k < mean.size - 1:
+        slope = (mean[k + 1] - mean[k - 1]) / (2 * dt)
+        noise = float(np.mean(rows[:, :nb].std(axis=1, ddof=1)))
+        if slope > 0 and math.isfinite(noise):
+            results["expected_jitter_ns"] = (
+                an.expected_jitter_ns(noise, slope) if noise > 0 else 0.0
+            )
+            results["slope_mV_per_ns"] = float(slope)
+            results["noise_mV"] = noise
+    return StepResult(
+        results=results,
+        measurements=[
+            measure(
+                ctx,
+                step,
+                "timing_jitter_ns",
+                jitter.rms_ns,
+                uncertainty=jitter.uncertainty_ns,
+                output=None,
+            )
+        ],
+    )
+
+
+HANDLERS = {"analyse.walk": analyse_walk, "analyse.jitter": analyse_jitter}
