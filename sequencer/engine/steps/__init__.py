@@ -24,6 +24,7 @@ from . import (
     scope,
     sensor_analysis,
     sensors,
+    shaper_adc,
     switch,
     threshold,
 )
@@ -36,7 +37,7 @@ def handler_table() -> Mapping[str, Handler]:
     table: dict[str, Handler] = {}
     for family in (
         pulser, scope, threshold, counter, coincidence, bias, switch, flow, analysis, sensors,
-        sensor_analysis, module_analysis, digitizer, discriminator_timing,
+        sensor_analysis, module_analysis, digitizer, discriminator_timing, shaper_adc,
     ):
         table.update(family.HANDLERS)
     return table
