@@ -11,6 +11,8 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
+
 from sequencer.store import Store
 
 HEAVY = ("matplotlib", "scipy", "pyvisa")
@@ -35,11 +37,14 @@ def _run_entry_point(*args: str) -> dict:
     return json.loads(done.stdout.strip().splitlines()[-1])
 
 
-def test_runs_imports_neither_plotting_nor_analysis_nor_visa(tmp_path: Path) -> None:
+@pytest.mark.parametrize("command", [("runs",), ("batches",), ("export", "--format", "csv")])
+def test_read_only_commands_import_neither_plotting_nor_analysis_nor_visa(
+    tmp_path: Path, command: tuple[str, ...]
+) -> None:
     url = f"sqlite:///{tmp_path / 'small.db'}"
     with Store.open(url):
         pass
-    seen = _run_entry_point("runs", "--db", url)
+    seen = _run_entry_point(*command, "--db", url)
     assert seen["code"] == 0
     assert "sqlalchemy" in seen["modules"]          # the command did open the store
     assert [m for m in HEAVY if m in seen["modules"]] == []
@@ -47,7 +52,7 @@ def test_runs_imports_neither_plotting_nor_analysis_nor_visa(tmp_path: Path) -> 
 
 def test_the_probe_sees_heavy_modules_when_a_command_needs_them() -> None:
     # Control: ``plan`` composes a run (engine, analysis), so scipy is loaded -- the probe above
-    # would see a heavy import if ``runs`` made one.
+    # would see a heavy import if a read-only command made one.
     procedure = Path(__file__).resolve().parents[2] / "procedures" / "noise.yaml"
     seen = _run_entry_point("plan", str(procedure))
     assert seen["code"] == 0
