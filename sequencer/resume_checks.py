@@ -32,7 +32,10 @@ def resume_differences(
     if sim_board:
         now = str(Path(sim_board).resolve())
         if not was_sim:
-            benches.append(f"on a simulated bench ({now}), not on bench {record.bench!r} it ran on")
+            if spec.name != record.bench:  # a bench is known by its name
+                benches.append(
+                    f"on a simulated bench ({now}), not on bench {record.bench!r} it ran on"
+                )
         elif now != was_sim:
             benches.append(f"on a simulation of {now}, not of {was_sim} it ran on")
         if sim_serial is not None and sim_serial != record.board:
