@@ -27,7 +27,7 @@ from typing import Any, Literal
 
 from drivers.bench import BenchSpec, load_bench
 from sequencer import compose
-from sequencer.errors import ConfigError, Location, Problem, RunAborted
+from sequencer.errors import ConfigError, Location, OptionError, Problem, RunAborted
 from sequencer.pace import describe_left, time_left
 from sequencer.procedure import (
     Batch,
@@ -143,14 +143,16 @@ def _outcome(
 class _BatchRun:
     def __init__(self, batch: Batch, store: Any, options: BatchOptions) -> None:
         if bool(options.bench_path) == bool(options.sim_dir):
-            raise ConfigError(
-                [
-                    Problem(
-                        Location("<options>", 1, 1),
-                        "give --bench FILE or --sim-dir DIR (one of them)",
-                    )
-                ]
-            )
+            raise OptionError("give --bench FILE (a real bench) or --sim-dir DIR (simulated boards), one of them")
+        if options.sim_dir:  # every board's file before the first board is mounted
+            problems = []
+            for board in batch.boards:
+                try:
+                    sim_board_path(board, options.sim_dir)
+                except ConfigError as exc:
+                    problems += exc.problems
+            if problems:
+                raise ConfigError(problems)
         self.batch = batch
         self.store = store
         self.options = options
@@ -181,6 +183,10 @@ class _BatchRun:
         done = completed_run(self.store, self.batch.name, board.serial)
         if done is not None and not opts.requalify:
             outcome = _outcome(self.store, board.serial, done, "passed")
+            if outcome.status == "failed":  # tested, not qualified: say so, and how to test again
+                return replace(
+                    outcome, note=f"failed in run {done} (--requalify tests it again)"
+                ), False
             return replace(
                 outcome, status="skipped", note=f"already qualified in run {done}"
             ), False

@@ -164,6 +164,8 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
     if procedure and repeat is not None:
         raise click.UsageError("give PROCEDURE or --repeat RUN_ID, not both: --repeat runs the texts "
                                "stored with that run")
+    if repeat is None and not (bench_path or sim_board):
+        raise click.UsageError(compose.MISSING_BENCH)
     warn = lambda line: click.echo(f"warning: {line}", err=True)  # noqa: E731
     opener = compose.open_store if repeat is None else compose.open_existing_store
     with opener(db, env()) as store:

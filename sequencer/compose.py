@@ -28,7 +28,7 @@ from sequencer.engine.context import StopFlag
 from sequencer.engine.log import RunLog
 from sequencer.engine.preflight import hazard_steps
 from sequencer.engine.progress import ProgressDisplay
-from sequencer.errors import ConfigError, Location, Problem, ProcedureError, StoreError
+from sequencer.errors import ConfigError, Location, OptionError, Problem, ProcedureError, StoreError
 from sequencer.events import Event, RunFinished
 from sequencer.heartbeat import Heartbeat
 from sequencer.inputs import RunInput, is_released, loader_files, text_digest
@@ -197,7 +197,10 @@ def check_option_text(option: str, value: str, *, max_length: int = MAX_NAME) ->
     of printable text within its column, else bad input naming the option."""
     problem = text_problem(value, option, max_length=max_length)
     if problem is not None:
-        raise ConfigError([Problem(Location("<options>", 1, 1), problem)])
+        raise OptionError(problem)
+
+
+MISSING_BENCH = "give --bench FILE (a real bench) or --sim BOARD.yaml (a simulated board)"
 
 
 @contextlib.contextmanager
@@ -209,12 +212,12 @@ def bench_for(
     ``allowed_visa_libraries``: library paths allowed on the command line (see drivers.benchfile).
     """
     if bench_path and sim_board:
-        raise ConfigError([Problem(Location("<options>", 1, 1), "give --bench or --sim, not both")])
+        raise OptionError("give --bench FILE or --sim BOARD.yaml, not both")
     if bench_path:
         yield load_bench(bench_path, allowed_visa_libraries=allowed_visa_libraries)
         return
     if not sim_board:
-        raise ConfigError([Problem(Location("<options>", 1, 1), "give --bench FILE or --sim BOARD.yaml")])
+        raise OptionError(MISSING_BENCH)
     from drivers.sim import start_sim_bench
 
     with start_sim_bench(sim_board) as sim:
@@ -358,9 +361,7 @@ def open_log(path: Path | None, stop: StopFlag) -> RunLog | None:
     try:
         return RunLog(path, on_failure=lambda why: stop.request("log", why))
     except OSError as exc:
-        raise ConfigError(
-            [Problem(Location("<options>", 1, 1), f"--log: cannot open {path}: {exc.strerror or exc}")]
-        ) from None
+        raise OptionError(f"--log: cannot open {path}: {exc.strerror or exc}") from None
 
 
 def check_instruments(problems: Sequence[str], spec: BenchSpec, request: RunRequest) -> tuple[str, ...]:

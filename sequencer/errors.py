@@ -28,6 +28,7 @@ __all__ = [
     "LocatedError",
     "Location",
     "MissingExtra",
+    "OptionError",
     "Problem",
     "ProcedureError",
     "ProtocolError",
@@ -45,6 +46,15 @@ class ProcedureError(LocatedError):
 
 class CertificateFileError(LocatedError):
     """A file given to ``verify`` is not a benchwright certificate (bad input, exit 2)."""
+
+
+class OptionError(BenchwrightError):
+    """A command-line option is missing, wrong or refused (bad input, exit 2).  No file location:
+    the message names the option and what to give instead; several lines, one per problem."""
+
+    def __init__(self, *lines: str) -> None:
+        self.lines = tuple(lines)
+        super().__init__("\n".join(lines))
 
 
 class StoreError(BenchwrightError):

@@ -13,7 +13,7 @@ from typing import Any
 
 from drivers.bench import BenchSpec
 from sequencer.compose import SIM_MARK
-from sequencer.errors import ConfigError, Location, Problem
+from sequencer.errors import OptionError
 
 
 def recorded_sim_board(bench_text: str) -> str:
@@ -61,7 +61,7 @@ def check_resume_target(
     refused = [f"resume {d} (--allow-other-bench accepts it)" for d in benches if not other_bench]
     refused += [f"resume {d} (--allow-other-board accepts it)" for d in boards if not other_board]
     if refused:
-        raise ConfigError([Problem(Location("<options>", 1, 1), line) for line in refused])
+        raise OptionError(*refused)
     return tuple(f"resumed {d} (--allow-other-bench)" for d in benches) + tuple(
         f"resumed {d} (--allow-other-board)" for d in boards
     )

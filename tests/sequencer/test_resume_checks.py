@@ -8,7 +8,7 @@ import pytest
 
 from drivers.bench import BenchSpec
 from sequencer.compose import SIM_MARK
-from sequencer.errors import ConfigError
+from sequencer.errors import OptionError
 from sequencer.resume_checks import check_resume_target
 
 SIM_RUN = SimpleNamespace(bench="sim-bench", board="NR-PA8-0001",
@@ -28,11 +28,11 @@ def test_the_runs_own_bench_and_board_pass_without_a_caveat():
 
 
 def test_another_simulated_board_is_refused_with_the_option_that_accepts_it():
-    with pytest.raises(ConfigError) as caught:
+    with pytest.raises(OptionError) as caught:
         check_resume_target(SIM_RUN, spec("sim-bench"), "/lab/boards/b.yaml", "NR-PA8-0999",
                             other_bench=False, other_board=False)
-    lines = [str(p) for p in caught.value.problems]
-    assert len(lines) == 2 and lines[0].startswith("<options>:1:1: resume on a simulation of ")
+    lines = caught.value.lines  # options have no file location: no "<options>:1:1:" prefix
+    assert len(lines) == 2 and lines[0].startswith("resume on a simulation of ")
     assert "--allow-other-bench" in lines[0] and "--allow-other-board" in lines[1]
     caveats = check_resume_target(SIM_RUN, spec("sim-bench"), "/lab/boards/b.yaml", "NR-PA8-0999",
                                   other_bench=True, other_board=True)
@@ -40,7 +40,7 @@ def test_another_simulated_board_is_refused_with_the_option_that_accepts_it():
 
 
 def test_another_bench_file_is_refused_unless_accepted():
-    with pytest.raises(ConfigError, match="bench 'bench-7', not on bench 'bench-2'"):
+    with pytest.raises(OptionError, match="bench 'bench-7', not on bench 'bench-2'"):
         check_resume_target(BENCH_RUN, spec("bench-7"), None, None,
                             other_bench=False, other_board=False)
     assert check_resume_target(BENCH_RUN, spec("bench-7"), None, None,

@@ -172,10 +172,10 @@ def test_an_interpolated_scpi_argument_is_checked_after_resolution(tmp_path: Pat
 
 def test_a_serial_given_on_the_command_line_is_checked() -> None:
     from sequencer.compose import check_option_text
-    from sequencer.errors import ConfigError
+    from sequencer.errors import OptionError
 
     check_option_text("--board", "NR-PA8-0001")
-    with pytest.raises(ConfigError, match="--board holds the control character"):
+    with pytest.raises(OptionError, match="--board holds the control character"):
         check_option_text("--board", "NR-PA8\n0001")
-    with pytest.raises(ConfigError, match="201 characters long"):
+    with pytest.raises(OptionError, match="201 characters long"):
         check_option_text("--board", "N" * 201)

@@ -1,0 +1,74 @@
+"""Messages that name the right fix and the right place (issue 22): the missing --bench/--sim, the
+offending line of a batch file, no "<options>:1:1" location; a failed board reported as failed."""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+from click.testing import CliRunner
+
+from sequencer.cli import attach_commands, cli
+from sequencer.store import Store
+from tests.sequencer.reports.simulated_runs import RunSpec, record_run
+
+ROOT = Path(__file__).resolve().parents[2]
+QUICK = ROOT / "procedures" / "examples" / "quick-gain.yaml"
+BOARD = ROOT / "drivers" / "sim" / "boards" / "example-pa8.yaml"
+
+attach_commands()
+
+
+def _invoke(*args: str) -> tuple[int, str, str]:
+    result = CliRunner().invoke(cli, list(args), catch_exceptions=False)
+    return result.exit_code, result.stdout, result.stderr
+
+
+def test_run_without_a_bench_asks_for_bench_or_sim(tmp_path: Path) -> None:
+    db = tmp_path / "results.db"
+    code, _, err = _invoke("run", str(QUICK), "--board", "NR-PA8-0001", "--db", f"sqlite:///{db}")
+    assert code == 2 and "--bench FILE" in err and "--sim BOARD.yaml" in err
+    assert "--board" not in err and "<options>" not in err
+    assert not db.exists()  # refused before the database was opened
+
+
+def test_an_unopenable_log_is_not_located_at_options(tmp_path: Path) -> None:
+    code, _, err = _invoke("run", str(QUICK), "--sim", str(BOARD), "--db", f"sqlite:///{tmp_path / 'r.db'}",
+                           "--yes", "--log", str(tmp_path / "no" / "such" / "dir" / "log.txt"))
+    assert code == 2 and "--log: cannot open" in err and "<options>" not in err
+
+
+def _batch_file(tmp_path: Path, boards: str) -> Path:
+    path = tmp_path / "batch.yaml"
+    path.write_text(f"batch: NR-B07\nprocedure: {QUICK}\nboard_type: PA8\noperator: T. Tester\nboards:\n{boards}")
+    return path
+
+
+def test_batch_checks_every_board_file_before_the_first_board(tmp_path: Path) -> None:
+    sims = tmp_path / "sims"
+    sims.mkdir()
+    (sims / "NR-PA8-0001.yaml").write_text(BOARD.read_text())
+    path = _batch_file(tmp_path, "  - serial: NR-PA8-0001\n  - serial: NR-PA8-0002\n  - serial: NR-PA8-0003\n")
+    db = tmp_path / "results.db"
+    code, out, err = _invoke("batch", str(path), "--sim-dir", str(sims), "--yes", "--db", f"sqlite:///{db}")
+    assert code == 2
+    lines = [line for line in err.splitlines() if line.strip()]
+    located = [re.match(r"^(.+):(\d+):(\d+): no simulated board file .*(NR-PA8-000\d)$", line) for line in lines]
+    assert all(located), err
+    # both missing boards named, each at its own entry's line of the batch file (lines 7 and 8)
+    assert [(m[2], m[4]) for m in located if m] == [("7", "NR-PA8-0002"), ("8", "NR-PA8-0003")]
+    assert "mount" not in out and "run 1" not in out  # no board was run
+
+
+def test_a_failed_board_is_reported_as_failed_not_qualified(tmp_path: Path) -> None:
+    url = f"sqlite:///{tmp_path / 'results.db'}"
+    with Store.open(url) as store:  # a completed run in which channel 2's gain is 30 % low: fail
+        record_run(store, RunSpec(board="NR-PA8-0001", batch="NR-B07", full=False, gain_scale={2: 0.7}))
+    sims = tmp_path / "sims"
+    sims.mkdir()
+    (sims / "NR-PA8-0001.yaml").write_text(BOARD.read_text())
+    path = _batch_file(tmp_path, "  - serial: NR-PA8-0001\n")
+    code, out, err = _invoke("batch", str(path), "--sim-dir", str(sims), "--yes", "--db", url)
+    assert code == 1, out + err  # DESIGN.md: 1 = a value outside its limits
+    assert "already qualified" not in out
+    assert "failed in run 1 (--requalify tests it again)" in out
