@@ -9,7 +9,6 @@ option, procedure) · 3 run aborted (instrument fault, interlock, operator, sign
 
 from __future__ import annotations
 
-import os
 import sys
 from dataclasses import replace
 from pathlib import Path
@@ -28,6 +27,7 @@ from sequencer.cli_common import (
     env,
     fail,
     handles_errors,
+    login_name,
     visa_library_option,
 )
 from sequencer.cli_lazy import LazyGroup
@@ -143,7 +143,7 @@ def _summarise(run_id: int, outcome: Any) -> int:
 @click.option("--sim", "sim_board", type=click.Path(dir_okay=False), help="Start a simulated bench for this board file.")
 @click.option("--board", "serial", default=None, help="Serial of the board under test (default with --sim: the board file's).")
 @db_option
-@click.option("--operator", default=lambda: os.environ.get("USER", ""), help="Operator name recorded with the run.")
+@click.option("--operator", default=login_name, show_default="your login name", help="Operator name recorded with the run.")
 @click.option("--yes", is_flag=True, help="Unattended: acknowledge the safety caution (recorded as such).")
 @click.option("--repeat", "repeat", type=int, default=None, metavar="RUN_ID", help="Rerun the procedure text stored for that run.")
 @click.option("--board-type", default=None,
@@ -211,7 +211,7 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
 @db_option
 @click.option("--bench", "bench_path", type=click.Path(dir_okay=False), help="Another bench file.")
 @click.option("--sim", "sim_board", type=click.Path(dir_okay=False), help="Continue on a simulated bench.")
-@click.option("--operator", default=lambda: os.environ.get("USER", ""))
+@click.option("--operator", default=login_name, show_default="your login name", help="Operator name recorded with the run.")
 @click.option("--yes", is_flag=True, help="Unattended: acknowledge the safety caution.")
 @click.option("--allow-other-bench", is_flag=True,
               help="Resume on another bench than the run's own (recorded; certificates state it).")

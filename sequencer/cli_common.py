@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import functools
+import getpass
 import os
 import sys
 import traceback
@@ -95,6 +96,18 @@ def open_existing_store(db: str | None) -> Any:
     from sequencer.store import Store, default_url
 
     return Store.open(db or default_url(env()), create=False)
+
+
+UNKNOWN_OPERATOR = "unknown (no login name)"
+
+
+def login_name() -> str:
+    """The operator by default: the login name (LOGNAME, USER, LNAME, USERNAME, then the password
+    database, as ``getpass.getuser`` looks), or a marker that says no name could be found."""
+    try:
+        return getpass.getuser() or UNKNOWN_OPERATOR
+    except (OSError, KeyError):  # no variable set and no password entry for this uid
+        return UNKNOWN_OPERATOR
 
 
 def env() -> dict[str, str]:

@@ -81,7 +81,7 @@ def format_plan(plan: Plan) -> str:
     blocks = Counter(s.block for s in plan.steps)
     lines.append("")
     lines.append(
-        f"{len(plan.steps)} steps (setup {blocks['setup']}, main {blocks['main']}, "
+        f"{len(plan.steps)} steps (setup {blocks['setup']}, steps {blocks['main']}, "
         f"cleanup {blocks['cleanup']}); {len(plan.limits)} limits; "
         f"estimated duration {format_duration(plan.estimate_s)}"
     )

@@ -72,3 +72,19 @@ def test_a_failed_board_is_reported_as_failed_not_qualified(tmp_path: Path) -> N
     assert code == 1, out + err  # DESIGN.md: 1 = a value outside its limits
     assert "already qualified" not in out
     assert "failed in run 1 (--requalify tests it again)" in out
+
+
+def test_the_operator_defaults_to_the_login_name(tmp_path: Path) -> None:
+    url = f"sqlite:///{tmp_path / 'results.db'}"
+    result = CliRunner(env={"LOGNAME": "t.newcomer"}).invoke(
+        cli, ["run", str(QUICK), "--sim", str(BOARD), "--db", url, "--yes"], catch_exceptions=False)
+    assert result.exit_code == 0, result.stdout + result.stderr
+    with Store.open(url) as store:
+        assert store.get_run(1).operator == "t.newcomer"
+
+
+def test_plan_summary_names_the_blocks_after_the_procedure_sections() -> None:
+    code, out, _ = _invoke("plan", str(QUICK))
+    assert code == 0
+    assert re.search(r"\(setup \d+, steps \d+, cleanup \d+", out), out  # sections setup/steps/cleanup
+    assert "main " not in out
