@@ -80,7 +80,8 @@ def test_the_override_is_recorded_and_printed_on_every_certificate(tmp_path, sim
         assert f"Caveat: {caveat}" in text
         assert "2020-01-31" in text  # the scope's calibration due date in the instruments table
         # test conditions: quick-gain.yaml's parameters as resolved for the run
-        assert "Test condition: amplitudes = [20 mV, 40 mV, 60 mV, 80 mV, 100 mV]" in text
+        assert "Test condition: top = 160 mV" in text
+        assert "Test condition: points = 5" in text
         # procedures/limits/PA8.yaml states "decision_rule: simple" (U = 2u, the default k)
         assert "Decision rule: simple acceptance (ILAC-G8:09/2019)" in text and "k = 2" in text
     code, out = _invoke("verify", "--db", db, str(htmls[0]))
