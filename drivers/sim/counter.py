@@ -38,25 +38,15 @@ from drivers.sim.threshold import ThresholdDac
 MAX_WAIT_S = 3600.0
 
 
-class Counter(SimInstrument):
-    """The counter role."""
+class GatedCounter(SimInstrument):
+    """What every simulated counter shares: the gate, the selected channel, ``INITiate`` and the
+    ``FETCh:TOTalize?`` that waits for the gate.  A subclass says how many channels it has and
+    draws a gate's count in :meth:`start_gate` (setting ``count`` and ``gate_end``)."""
 
     role = "counter"
     model = "LTS-CT2"
 
-    def __init__(
-        self,
-        *,
-        board: BoardSpec,
-        pulser: Pulser,
-        switch: Switch,
-        threshold: ThresholdDac,
-        **kwargs: object,
-    ) -> None:
-        self.board = board
-        self.pulser = pulser
-        self.switch = switch
-        self.threshold = threshold
+    def __init__(self, **kwargs: object) -> None:
         self.gates = 0
         self.gate_s = 0.1
         self.channel = 1
@@ -68,6 +58,14 @@ class Counter(SimInstrument):
         self.gate_s = 0.1
         self.channel = 1
         self.count = None
+
+    def channel_count(self) -> int:
+        """How many inputs ``ROUTe:TERMinals:CHANnel`` may select."""
+        raise NotImplementedError
+
+    def start_gate(self) -> None:
+        """Open a gate now and draw its count."""
+        raise NotImplementedError
 
     def commands(self) -> Sequence[Command]:
         return [
@@ -87,7 +85,38 @@ class Counter(SimInstrument):
         self.gate_s = parse_number(call.arg(), lo=1e-6, hi=1000.0)
 
     def _set_channel(self, call: Call) -> None:
-        self.channel = parse_int(call.arg(), lo=1, hi=len(self.board.channels))
+        self.channel = parse_int(call.arg(), lo=1, hi=self.channel_count())
+
+    def _fetch(self, call: Call) -> str:
+        if self.count is None:
+            self.push_error(-230, STANDARD_ERRORS[-230])
+            return "0"
+        wait = self.gate_end - self.clock()
+        if wait > 0:
+            self.sleep(min(wait, MAX_WAIT_S))
+        return str(self.count)
+
+
+class Counter(GatedCounter):
+    """The counter role of a preamp bench."""
+
+    def __init__(
+        self,
+        *,
+        board: BoardSpec,
+        pulser: Pulser,
+        switch: Switch,
+        threshold: ThresholdDac,
+        **kwargs: object,
+    ) -> None:
+        self.board = board
+        self.pulser = pulser
+        self.switch = switch
+        self.threshold = threshold
+        super().__init__(**kwargs)
+
+    def channel_count(self) -> int:
+        return len(self.board.channels)
 
     def expected_rates(self) -> tuple[int, float, float]:
         """(pulser trials, firing probability per trial, Poisson rate in Hz) for the present settings."""
@@ -117,12 +146,3 @@ class Counter(SimInstrument):
         pulses = int(rng.binomial(trials, p)) if trials else 0
         self.count = pulses + int(rng.poisson(rate * self.gate_s))
         self.gate_end = self.clock() + self.gate_s * self.board.time_scale
-
-    def _fetch(self, call: Call) -> str:
-        if self.count is None:
-            self.push_error(-230, STANDARD_ERRORS[-230])
-            return "0"
-        wait = self.gate_end - self.clock()
-        if wait > 0:
-            self.sleep(min(wait, MAX_WAIT_S))
-        return str(self.count)
