@@ -47,18 +47,27 @@ def cli(debug: bool) -> None:
 
 @cli.command()
 @click.argument("procedures", nargs=-1, required=True, type=click.Path(dir_okay=False))
+@click.option("--fragment", is_flag=True,
+              help="Check the files as fragments (files for include:); a file whose modeline names "
+                   "fragment.schema.json is checked as one anyway.")
+@click.option("--board-type", default=None,
+              help="Plan fragments for this board type too (a procedure names its own).")
 @handles_errors
-def validate(procedures: tuple[str, ...]) -> None:
+def validate(procedures: tuple[str, ...], fragment: bool, board_type: str | None) -> None:
     """Check procedure files; print file:line:column: message per problem (exit 2 if any)."""
     from sequencer.procedure import validate_paths
 
-    problems = validate_paths(procedures)
+    problems = validate_paths(procedures, fragment=fragment, board_type=board_type)
     if problems:
         fail(EXIT_INPUT, "\n".join(str(p) for p in problems))
     from sequencer.compose import plan_for
-    from sequencer.procedure import load_procedure, unjudged_warnings
+    from sequencer.procedure import is_fragment_text, load_procedure, unjudged_warnings
 
     for path in procedures:
+        if fragment or is_fragment_text(Path(path).read_text(encoding="utf-8")):
+            planned = f"planned for {board_type}" if board_type else "give --board-type to plan it"
+            click.echo(f"{path}: ok (fragment; {planned})")
+            continue
         for line in unjudged_warnings(plan_for(load_procedure(path), "VALIDATE-ONLY")):
             click.echo(f"{path}: warning: {line}", err=True)
         click.echo(f"{path}: ok")
@@ -109,12 +118,13 @@ def plan(
 
 
 @cli.command()
+@click.option("--fragment", is_flag=True, help="The schema of fragments (files for include:).")
 @handles_errors
-def schema() -> None:
+def schema(fragment: bool) -> None:
     """Print the JSON Schema (draft 2020-12) of the procedure format, for editors."""
     from sequencer.procedure import schema_text
 
-    click.echo(schema_text())
+    click.echo(schema_text(fragment=fragment))
 
 
 # -- running ------------------------------------------------------------------------------------

@@ -4,10 +4,11 @@ Public API::
 
     load_procedure(path) -> Procedure
     load_procedure_text(text, path, files=None) -> Procedure
-    validate_paths(paths) -> list[Problem]
+    validate_paths(paths, *, fragment=False, board_type=None) -> list[Problem]
+    check_fragment(path, board_type=None) -> list[Problem]   (a file for include:, on its own)
     build_plan(procedure, board, *, overrides=None) -> Plan
     format_plan(plan) -> str
-    procedure_schema() -> dict
+    procedure_schema() -> dict ; fragment_schema() -> dict
     load_board_type(name_or_path) -> BoardInfo ; board_info(board_type, serial) -> BoardInfo
     load_limits(path) -> tuple[Limit, ...]
     load_batch(path) -> Batch
@@ -27,20 +28,30 @@ from .boards import board_info, board_type_input, board_type_of_input, load_boar
 from .coverage import unjudged_warnings
 from .expand import build_plan
 from .formatting import format_plan
+from .fragments import check_fragment, is_fragment_text
 from .limits import QUANTITY_UNITS, load_limits
 from .loader import load_procedure, load_procedure_text
 from .model import Procedure
 from .plan_model import BoardInfo, Limit, Plan, PlannedStep, ProcedureMeta
-from .schema import procedure_schema, schema_text
+from .schema import fragment_schema, procedure_schema, schema_text
 from .units import Quantity, UnitError, parse_quantity
 
 VALIDATION_SERIAL = "VALIDATION"
 
 
-def validate_paths(paths: Iterable[str | Path]) -> list[Problem]:
-    """Every problem of every procedure file: loading, then a plan for its board type."""
+def validate_paths(
+    paths: Iterable[str | Path], *, fragment: bool = False, board_type: str | None = None
+) -> list[Problem]:
+    """Every problem of every procedure file: loading, then a plan for its board type.
+
+    A file whose modeline names the fragment schema (or every file, with ``fragment``) is checked as a
+    fragment (:func:`check_fragment`), planned for ``board_type`` when one is given.
+    """
     problems: list[Problem] = []
     for path in paths:
+        if fragment or _marked_fragment(path):
+            problems.extend(check_fragment(path, board_type))
+            continue
         try:
             procedure = load_procedure(path)
         except ProcedureError as exc:
@@ -63,6 +74,16 @@ def validate_paths(paths: Iterable[str | Path]) -> list[Problem]:
     return problems
 
 
+def _marked_fragment(path: str | Path) -> bool:
+    """Whether the file says (in its modeline) it is a fragment; unreadable files are left to the loader."""
+    try:
+        with open(path, "rb") as handle:
+            first = handle.readline(4096).decode("utf-8", "replace")
+    except OSError:
+        return False
+    return is_fragment_text(first)
+
+
 __all__ = [
     "QUANTITY_UNITS",
     "Batch",
@@ -79,7 +100,10 @@ __all__ = [
     "board_type_input",
     "board_type_of_input",
     "build_plan",
+    "check_fragment",
     "format_plan",
+    "fragment_schema",
+    "is_fragment_text",
     "load_batch",
     "load_board_type",
     "load_limits",

@@ -12,10 +12,14 @@ from typing import Any
 
 from .kinds import KINDS, Arg, StepKind
 from .limits import LIMIT_KEYS, QUANTITY_UNITS
-from .loader import DEFAULT_KEYS, HAZARDS, ROLES
+from .loader import DEFAULT_KEYS, FRAGMENT_KEYS, HAZARDS, ROLES
 from .steps import STRUCTURAL
 
 SCHEMA_ID = "urn:benchwright:procedure-schema"
+FRAGMENT_SCHEMA_ID = "urn:benchwright:fragment-schema"
+#: The schema files shipped in procedures/, named by the modeline of each file there.
+SCHEMA_FILE = "procedure.schema.json"
+FRAGMENT_SCHEMA_FILE = "fragment.schema.json"
 _STRING = {"type": "string"}
 _EXPR = {"type": "string", "description": "an expression in braces, e.g. '{channel + 1}'"}
 _UNIT_DIMS = (
@@ -183,6 +187,24 @@ def procedure_schema() -> dict[str, Any]:
     }
 
 
-def schema_text() -> str:
-    """The schema as JSON text (what ``benchwright schema`` prints)."""
-    return json.dumps(procedure_schema(), indent=2, ensure_ascii=False) + "\n"
+def fragment_schema() -> dict[str, Any]:
+    """The JSON Schema of a fragment (a file brought in by ``include:``).
+
+    The same steps and values as a procedure; only ``name`` and ``steps`` are required and only the
+    keys a fragment may have (``loader.FRAGMENT_KEYS``) are allowed: board type, limits, hazards and
+    the setup/cleanup blocks belong to the procedure that includes it.
+    """
+    whole = procedure_schema()
+    return {
+        **whole,
+        "$id": FRAGMENT_SCHEMA_ID,
+        "title": "benchwright procedure fragment (for include:)",
+        "required": ["name", "steps"],
+        "properties": {k: whole["properties"][k] for k in FRAGMENT_KEYS},
+    }
+
+
+def schema_text(*, fragment: bool = False) -> str:
+    """The schema as JSON text (what ``benchwright schema [--fragment]`` prints)."""
+    schema = fragment_schema() if fragment else procedure_schema()
+    return json.dumps(schema, indent=2, ensure_ascii=False) + "\n"

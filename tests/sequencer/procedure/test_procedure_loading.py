@@ -13,6 +13,7 @@ from sequencer.errors import ProcedureError
 from sequencer.procedure import (
     board_info,
     build_plan,
+    fragment_schema,
     load_procedure,
     load_procedure_text,
     procedure_schema,
@@ -45,13 +46,27 @@ def test_shipped_procedure_is_valid(path: Path):
     assert validate_paths([path]) == []
 
 
-@pytest.mark.parametrize("path", shipped_procedures(), ids=lambda p: str(p.relative_to(PROCEDURES)))
-def test_shipped_procedure_has_modeline_and_matches_schema(path: Path):
+def modeline_files() -> list[Path]:
+    """Every YAML under procedures/ an editor checks: procedures and fragments (boards, limits have none)."""
+    return sorted(
+        p
+        for p in PROCEDURES.rglob("*.yaml")
+        if not {"boards", "limits"}.intersection(p.relative_to(PROCEDURES).parts)
+    )
+
+
+@pytest.mark.parametrize("path", modeline_files(), ids=lambda p: str(p.relative_to(PROCEDURES)))
+def test_shipped_file_matches_the_schema_its_modeline_names(path: Path):
+    # jsonschema (the reference implementation of draft 2020-12) reads the very file the modeline
+    # names, as a YAML-aware editor does: a fragment under parts/ must not be marked red
     text = path.read_text()
     assert text.startswith("# yaml-language-server: $schema=")
     target = (path.parent / text.splitlines()[0].split("$schema=", 1)[1].strip()).resolve()
-    assert target == PROCEDURES / "procedure.schema.json"
-    jsonschema.Draft202012Validator(procedure_schema()).validate(yaml.safe_load(text))
+    fragment = "parts" in path.relative_to(PROCEDURES).parts
+    expected = "fragment.schema.json" if fragment else "procedure.schema.json"
+    assert target == PROCEDURES / expected
+    schema = json.loads(target.read_text())
+    jsonschema.Draft202012Validator(schema).validate(yaml.safe_load(text))
 
 
 def test_schema_is_valid_draft_2020_12_and_the_shipped_file_is_current():
@@ -60,6 +75,22 @@ def test_schema_is_valid_draft_2020_12_and_the_shipped_file_is_current():
     assert schema["$schema"] == "https://json-schema.org/draft/2020-12/schema"
     assert json.loads((PROCEDURES / "procedure.schema.json").read_text()) == schema
     assert json.loads(schema_text()) == schema
+
+
+def test_fragment_schema_is_valid_and_the_shipped_file_is_current():
+    schema = fragment_schema()
+    jsonschema.Draft202012Validator.check_schema(schema)
+    assert json.loads((PROCEDURES / "fragment.schema.json").read_text()) == schema
+    assert json.loads(schema_text(fragment=True)) == schema
+    validator = jsonschema.Draft202012Validator(schema)
+    fragment = {"name": "part", "steps": [{"wait": "1 s"}]}
+    assert validator.is_valid(fragment)
+    # a fragment may not carry what belongs to the including procedure
+    assert not validator.is_valid({**fragment, "board_type": "PA8"})
+    assert not validator.is_valid({**fragment, "cleanup": [{"wait": "1 s"}]})
+    assert not validator.is_valid({"name": "part"})
+    # and the procedure schema still wants a board type
+    assert not jsonschema.Draft202012Validator(procedure_schema()).is_valid(fragment)
 
 
 def test_schema_follows_the_kinds_table():
