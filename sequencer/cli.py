@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import sys
 from dataclasses import replace
+from functools import partial
 from pathlib import Path
 from typing import Any
 
@@ -177,7 +178,7 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
     if repeat is None and not (bench_path or sim_board):
         raise click.UsageError(compose.MISSING_BENCH)
     warn = lambda line: click.echo(f"warning: {line}", err=True)  # noqa: E731
-    opener = compose.open_store if repeat is None else compose.open_existing_store
+    opener = compose.open_store if repeat is None else partial(compose.open_existing_store, upgrade=True)
     with opener(db, env()) as store:
         record = compose.check_store(store, repeat) if repeat is not None else None
         stored = store.run_inputs(repeat) if repeat is not None else ()
@@ -239,7 +240,7 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
     """Continue an interrupted or aborted run from its last completed step."""
     from sequencer import compose
 
-    with compose.open_existing_store(db, env()) as store:
+    with compose.open_existing_store(db, env(), upgrade=True) as store:
         store.mark_stale_runs_interrupted()
         record = compose.check_store(store, run_id)
         if record.status == "completed":
@@ -331,6 +332,7 @@ LAZY_COMMANDS: dict[str, str] = {
     "runs": "sequencer.cli_lists:runs",
     "batches": "sequencer.cli_lists:batches",
     "safe": "sequencer.cli_safe:safe",
+    "upgrade": "sequencer.cli_upgrade:upgrade",
 }
 
 

@@ -67,6 +67,24 @@ def _refuse_newer(current: tuple[str, ...], where: str) -> None:
         )
 
 
+UPGRADE_COMMAND = "benchwright upgrade"
+
+
+def refuse_old_schema(current: tuple[str, ...], where: str) -> None:
+    """For a read-only opening: a schema other than the head revision is refused, never upgraded.
+
+    Newer: upgrade benchwright.  Older: the one command that carries the database forward (a write,
+    which a read-only command must not make behind the operator's back)."""
+    _refuse_newer(current, where)
+    head = head_revision()
+    if current != (head,):
+        raise StoreError(
+            f"the database {where} has schema revision {', '.join(current) or 'none'}, older than "
+            f"this benchwright's {head}: `{UPGRADE_COMMAND} --db URL` carries it forward (back it "
+            "up first), then run this command again; read-only commands never change a database"
+        )
+
+
 def _lock(connection: Connection) -> None:
     """Serialise migrations (the SQLite write lock is already held since BEGIN IMMEDIATE)."""
     if connection.dialect.name == "postgresql":
@@ -125,3 +143,25 @@ def ensure_schema(engine: Engine) -> None:
     _refuse_newer(current, where)
     if current != (head_revision(),):
         upgrade_to(engine)
+
+
+def upgrade_database(url: str) -> tuple[tuple[str, ...], str]:
+    """Carry the existing benchwright database at ``url`` forward to the head revision.
+
+    Returns (revisions before, revision now).  A missing database, or one without benchwright's
+    tables, is refused (``no database at URL``): this command never creates one.
+    """
+    from sequencer.store.connect import database_exists, open_engine
+
+    if not database_exists(url):
+        raise StoreError(f"no database at {url}")
+    engine = open_engine(url)
+    try:
+        with engine.connect() as connection:
+            before = current_revisions(connection)
+        if not before:
+            raise StoreError(f"no database at {url} (no benchwright tables there)")
+        ensure_schema(engine)
+        return before, head_revision()
+    finally:
+        engine.dispose()

@@ -24,7 +24,7 @@ from sequencer.store import lease, lifecycle, queries
 from sequencer.store.connect import database_exists, open_engine, writer
 from sequencer.store.faults import as_store_error, refuse_damaged
 from sequencer.store.liveness import this_process
-from sequencer.store.migrate import current_revisions, ensure_schema
+from sequencer.store.migrate import current_revisions, ensure_schema, refuse_old_schema
 from sequencer.store.recording import Recorder
 from sequencer.store.records import (
     Annotation,
@@ -56,24 +56,33 @@ class Store:
         self._recorder = Recorder(engine)
 
     @classmethod
-    def open(cls, url: str, *, create: bool = True) -> Store:
+    def open(cls, url: str, *, create: bool = True, upgrade: bool | None = None) -> Store:
         """Connect, create or upgrade the schema; ``StoreError`` if unreachable or newer.
 
-        ``create=False`` (the read-only commands) refuses, with ``no database at URL``, a database that
-        is not there or holds no benchwright schema, and creates no file on the way.
+        ``create=False`` refuses, with ``no database at URL``, a database that is not there or holds
+        no benchwright schema, and creates no file on the way.  ``upgrade`` (default: ``create``)
+        says whether an older schema may be carried forward on the way in: the read-only commands
+        (``runs``, ``export``, ``verify``, ``certify``, ...) leave it False, so opening never writes;
+        an older database is then refused with the command that upgrades it.  ``run --repeat`` and
+        ``resume`` write into an existing database and pass ``upgrade=True``.
         """
         if not create and not database_exists(url):
             raise StoreError(f"no database at {url}")
+        may_upgrade = create if upgrade is None else upgrade
         engine = open_engine(url)
         where = engine.url.render_as_string(hide_password=True)
         try:
             with _as_store_error(f"cannot open the results database {where}"):
                 if not create:
                     with engine.connect() as conn:
-                        if not current_revisions(conn):
+                        current = current_revisions(conn)
+                        if not current:
                             refuse_damaged(conn, where)
                             raise StoreError(f"no database at {url} (no benchwright tables there)")
-                ensure_schema(engine)
+                if may_upgrade:
+                    ensure_schema(engine)
+                else:
+                    refuse_old_schema(current, where)
         except BaseException:
             engine.dispose()
             raise
