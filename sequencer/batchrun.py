@@ -22,6 +22,7 @@ import contextlib
 import time
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field, replace
+from datetime import date
 from pathlib import Path
 from typing import Any, Literal
 
@@ -166,6 +167,7 @@ class _BatchRun:
 
     def run(self) -> BatchOutcome:
         self._t0 = time.monotonic()
+        self._check_instruments_first()
         self.store.mark_stale_runs_interrupted()
         count = len(self.batch.boards)
         stopped = False
@@ -177,6 +179,35 @@ class _BatchRun:
             self.outcomes.append(outcome)
             self._report(index, count, outcome)
         return BatchOutcome(batch=self.batch.name, boards=tuple(self.outcomes), stopped=stopped)
+
+    def _check_instruments_first(self) -> None:
+        """A bench instrument past its calibration date or with another identity refuses the whole
+        batch before the first board is mounted (a lab engineer fixes the bench once, rather than
+        finding out board by board): the problems, the boards left untested, then ``ConfigError``
+        (exit 2).  With the override each run records its caveat as a single run does."""
+        if self.bench is None or self.options.override_instrument_checks:
+            return
+        todo = [b for b in self.batch.boards
+                if self.options.requalify or completed_run(self.store, self.batch.name, b.serial) is None]
+        if not todo:
+            return
+        from drivers.bench import open_bench
+
+        plan = self._plan(todo[0])
+        compose.preflight(plan, self.bench)
+        with open_bench(self.bench, roles=compose.roles_needed(plan, self.bench)) as bench:
+            problems = bench.check(date.today())
+        if not problems:
+            return
+        echo = self.options.echo
+        echo(f"batch {self.batch.name}: refused before the first board, the bench is not fit to qualify with:")
+        for p in problems:
+            echo(f"  {p}")
+        echo(f"no board was tested ({len(todo)} of {len(self.batch.boards)} waiting: "
+             f"{', '.join(b.serial for b in todo)}); fix the bench file, or run again with "
+             "--override-instrument-checks, which every certificate of the batch will state")
+        at = Location(self.bench.source or "<bench>", 1, 1)
+        raise ConfigError([Problem(at, f"{p}: batch refused before the first board") for p in problems])
 
     def _board(self, board: BatchBoard, index: int, count: int) -> tuple[BoardOutcome, bool]:
         opts = self.options

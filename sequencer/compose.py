@@ -80,10 +80,12 @@ def open_store(db: str | None, env: Mapping[str, str]) -> Store:
     return Store.open(db or default_url(env))
 
 
-def open_existing_store(db: str | None, env: Mapping[str, str]) -> Store:
+def open_existing_store(db: str | None, env: Mapping[str, str], *, upgrade: bool = False) -> Store:
     """The results store for a command that only reads: a missing database is ``StoreError`` (exit 2,
-    ``no database at URL``) and nothing is created."""
-    return Store.open(db or default_url(env), create=False)
+    ``no database at URL``) and nothing is created; an older schema is refused, not upgraded.
+    ``upgrade=True``: a command that goes on to write (``run --repeat``, ``resume``) carries an older
+    schema forward first."""
+    return Store.open(db or default_url(env), create=False, upgrade=upgrade)
 
 
 def plan_for(
@@ -291,7 +293,7 @@ def execute(
     """
     preflight(plan, spec)
     check_option_text("--operator", request.operator)
-    with open_bench(spec, roles=_roles_needed(plan, spec)) as bench:
+    with open_bench(spec, roles=roles_needed(plan, spec)) as bench:
         completed = None
         info = None
         overridden = check_instruments(bench.check(date.today()), spec, request)
@@ -415,7 +417,7 @@ def _plain_progress(plan: Plan, request: RunRequest) -> bool | None:
     return False if asks else None
 
 
-def _roles_needed(plan: Plan, spec: BenchSpec) -> list[str]:
+def roles_needed(plan: Plan, spec: BenchSpec) -> list[str]:
     """Roles the plan uses (declared or used by its steps) that the bench has."""
     from sequencer.procedure.kinds import KINDS
 

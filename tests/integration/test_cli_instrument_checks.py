@@ -86,3 +86,41 @@ def test_the_override_is_recorded_and_printed_on_every_certificate(tmp_path, sim
         assert "Decision rule: simple acceptance (ILAC-G8:09/2019)" in text and "k = 2" in text
     code, out = _invoke("verify", "--db", db, str(htmls[0]))
     assert code == 0, out
+
+
+def _batch(tmp_path: Path, serials: list[str]) -> Path:
+    path = tmp_path / "batch.yaml"
+    path.write_text(f"batch: NR-TEST-CAL\nprocedure: {QUICK}\nboard_type: PA8\noperator: T. Tester\nboards:\n"
+                    + "".join(f"  - serial: {s}\n" for s in serials))
+    return path
+
+
+def test_a_batch_on_an_overdue_bench_is_refused_before_the_first_board(tmp_path, sim):
+    # issue 16: the refusal used to come with the first board's run (after mounting it) and end the
+    # batch without a word on the boards left; now it comes before any board, with that summary
+    db = tmp_path / "r.db"
+    bench = _bench(tmp_path, sim, "scope", calibration_due=dt.date(2020, 1, 31))
+    batch = _batch(tmp_path, ["NR-PA8-0001", "NR-PA8-0002"])
+    code, out = _invoke("batch", str(batch), "--bench", str(bench), "--db", f"sqlite:///{db}", "--yes")
+    assert code == 2, out
+    assert "batch NR-TEST-CAL: refused before the first board" in out
+    assert "scope: calibration was due 2020-01-31" in out
+    assert "no board was tested (2 of 2 waiting: NR-PA8-0001, NR-PA8-0002)" in out
+    assert "--override-instrument-checks" in out and "Traceback" not in out
+    assert "[1/2]" not in out  # no board started
+    with Store.open(f"sqlite:///{db}") as store:
+        assert store.list_runs() == []
+
+
+def test_a_batch_with_the_override_runs_and_records_the_caveat(tmp_path, sim):
+    db = f"sqlite:///{tmp_path / 'r.db'}"
+    bench = _bench(tmp_path, sim, "scope", calibration_due=dt.date(2020, 1, 31))
+    batch = _batch(tmp_path, ["NR-PA8-0001"])
+    code, out = _invoke("batch", str(batch), "--bench", str(bench), "--db", db, "--yes",
+                        "--override-instrument-checks")
+    assert code in (0, 1), out
+    assert "refused before the first board" not in out
+    with Store.open(db) as store:
+        [run] = store.list_runs()
+        [caveat] = store.caveats(run.id)
+    assert "scope: calibration was due 2020-01-31" in caveat
