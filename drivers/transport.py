@@ -26,12 +26,9 @@ Facts of pyvisa 1.16 / pyvisa-py 0.8 handled here:
 from __future__ import annotations
 
 import contextlib
-import errno
-import os
 import select
 import socket
 import time
-from dataclasses import dataclass
 from types import TracebackType
 from typing import Any
 
@@ -41,16 +38,32 @@ from pyvisa.errors import InvalidSession, VisaIOError
 
 from drivers import sockio
 from drivers.errors import ConnectionClosed, ConnectionRefused, InstrumentTimeout, TransportError
+from drivers.link_faults import MAPPED_ERRORS as _MAPPED_ERRORS
+from drivers.link_faults import ErrorMap as _ErrorMap
+from drivers.link_faults import check_connected as _check_connected
+from drivers.link_faults import translate_link_error
+from drivers.transport_settings import (
+    DEFAULT_BUSY_POLL_US,
+    DEFAULT_CHUNK_SIZE,
+    DEFAULT_RECONNECT_ATTEMPTS,
+    DEFAULT_RECONNECT_BACKOFF_S,
+    DEFAULT_TIMEOUT_MS,
+    DEFAULT_VISA_LIBRARY,
+    MAX_MESSAGE_BYTES,
+    TransportSettings,
+)
 
-DEFAULT_VISA_LIBRARY = "@py"
-DEFAULT_TIMEOUT_MS = 5000
-DEFAULT_CHUNK_SIZE = 1 << 20
-DEFAULT_RECONNECT_ATTEMPTS = 3
-DEFAULT_RECONNECT_BACKOFF_S = 0.2
-#: Fast path: poll for a reply this long before sleeping (see drivers/sockio.py); 0 turns it off.
-DEFAULT_BUSY_POLL_US = 200
-#: A text reply longer than this without its terminator is refused (binary data uses read_bytes).
-MAX_MESSAGE_BYTES = 16 * 1024 * 1024
+__all__ = [
+    "DEFAULT_BUSY_POLL_US",
+    "DEFAULT_CHUNK_SIZE",
+    "DEFAULT_RECONNECT_ATTEMPTS",
+    "DEFAULT_RECONNECT_BACKOFF_S",
+    "DEFAULT_TIMEOUT_MS",
+    "DEFAULT_VISA_LIBRARY",
+    "MAX_MESSAGE_BYTES",
+    "TransportSettings",
+    "VisaTransport",
+]
 
 _TIMEOUT_CODES = {constants.StatusCode.error_timeout}
 _CLOSED_CODES = {
@@ -62,23 +75,6 @@ _REFUSED_CODES = {
     constants.StatusCode.error_resource_not_found,
     constants.StatusCode.error_resource_busy,
 }
-
-
-@dataclass(frozen=True, kw_only=True)
-class TransportSettings:
-    """How one instrument's link is opened (all per instrument, from the bench file)."""
-
-    visa_library: str = DEFAULT_VISA_LIBRARY
-    timeout_ms: int = DEFAULT_TIMEOUT_MS
-    read_termination: str = "\n"
-    write_termination: str = "\n"
-    chunk_size: int = DEFAULT_CHUNK_SIZE
-    reconnect_attempts: int = DEFAULT_RECONNECT_ATTEMPTS
-    reconnect_backoff_s: float = DEFAULT_RECONNECT_BACKOFF_S
-    #: On pyvisa-py SOCKET sessions, send and receive on the session's socket directly (see above).
-    socket_fast_path: bool = True
-    #: Fast path only: how long a wait for a reply polls before it sleeps (microseconds).
-    busy_poll_us: int = DEFAULT_BUSY_POLL_US
 
 
 class VisaTransport:
@@ -350,38 +346,18 @@ class VisaTransport:
 
     def _mapped(self, command: str = "") -> _ErrorMap:
         """Translate pyvisa and OS errors into ours, the address and command attached."""
-        return _ErrorMap(self, command)
+        return _ErrorMap(self._translate, command)
 
     def _translate(self, exc: BaseException, command: str) -> TransportError:
         """Our error for one of ``_MAPPED_ERRORS`` (a pyvisa, OS or backend error), address and
         command attached; one of ours passes through with the command named."""
-        if isinstance(exc, TransportError):
-            return exc.with_command(command)
         if isinstance(exc, VisaIOError):
             return self._from_visa(exc, command)
         if isinstance(exc, InvalidSession):
             return ConnectionClosed(
                 "the VISA session is gone", address=self.address, command=command
             )
-        if isinstance(exc, ConnectionRefusedError):
-            return ConnectionRefused(
-                f"connection refused ({exc})", address=self.address, command=command
-            )
-        if isinstance(exc, TimeoutError):
-            return InstrumentTimeout(str(exc) or "no reply", address=self.address, command=command)
-        if isinstance(exc, OSError | RuntimeError | EOFError | BrokenPipeError):
-            # pyvisa-py's HiSLIP and VXI-11 sessions raise plain RuntimeError (and EOFError from
-            # the RPC layer) when the peer drops: a lost link, so the session reconnects
-            return ConnectionClosed(
-                f"link failed ({type(exc).__name__}: {exc})", address=self.address, command=command
-            )
-        # anything else the backend raises is still a link failure here, never an "internal
-        # error" that would skip the safe state: named, and mapped to our family
-        return TransportError(
-            f"VISA backend failed ({type(exc).__name__}: {exc})",
-            address=self.address,
-            command=command,
-        )
+        return translate_link_error(exc, self.address, command)
 
     def _from_visa(self, exc: VisaIOError, command: str) -> TransportError:
         code = exc.error_code
@@ -406,36 +382,6 @@ class VisaTransport:
         return TransportError(
             f"VISA error {exc.abbreviation}", address=self.address, command=command
         )
-
-
-#: What ``_translate`` maps: pyvisa's errors, OS errors (TimeoutError and ConnectionRefusedError
-#: among them) and -- since a backend may raise anything (pyvisa-py's HiSLIP raises a plain
-#: ``RuntimeError`` on a dropped link) -- every other ``Exception``: at this one boundary all of
-#: them become our ``TransportError`` family, so the runner's safe state always runs.
-_MAPPED_ERRORS = (Exception,)
-
-
-class _ErrorMap:
-    """``with transport._mapped(command):`` -- a class, not a generator: it wraps every I/O call."""
-
-    __slots__ = ("command", "transport")
-
-    def __init__(self, transport: VisaTransport, command: str) -> None:
-        self.transport = transport
-        self.command = command
-
-    def __enter__(self) -> None:
-        return None
-
-    def __exit__(
-        self,
-        exc_type: type[BaseException] | None,
-        exc: BaseException | None,
-        tb: TracebackType | None,
-    ) -> bool:
-        if not isinstance(exc, _MAPPED_ERRORS):
-            return False
-        raise self.transport._translate(exc, self.command) from exc
 
 
 def _open_resource(address: str, settings: TransportSettings) -> Any:
@@ -463,20 +409,6 @@ def _open_resource(address: str, settings: TransportSettings) -> Any:
             resource.close()
         raise
     return resource
-
-
-def _check_connected(sock: socket.socket, address: str) -> None:
-    error = sock.getsockopt(socket.SOL_SOCKET, socket.SO_ERROR)
-    if error:
-        raise ConnectionRefused(f"connection refused ({_errno_name(error)})", address=address)
-    try:
-        sock.getpeername()
-    except OSError as exc:
-        raise ConnectionRefused(f"not connected ({exc})", address=address) from exc
-
-
-def _errno_name(code: int) -> str:
-    return f"{errno.errorcode.get(code, code)}: {os.strerror(code)}"
 
 
 def _pyvisa_py_session(resource: Any) -> Any:

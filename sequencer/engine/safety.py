@@ -14,7 +14,6 @@ being ramped down (a second Ctrl-C) cuts the ramp short: output off at once.
 
 from __future__ import annotations
 
-import threading
 import time
 from typing import Any
 
@@ -25,6 +24,9 @@ from sequencer.events import SafetyEvent
 from .context import RunContext
 from .faults import describe_fault
 from .preflight import build_caution
+from .safety_watch import Watcher, link_drop_reason, reconnect, reconnects
+
+__all__ = ["KEEP_ALIVE_MIN_S", "MANUAL_OFF", "BiasGuard", "safe_command"]
 
 MANUAL_OFF = "switch the supply's output off by hand and check that it reads 0 V"
 """What an UNSAFE line asks of the operator when the software could not confirm the safe state."""
@@ -63,7 +65,7 @@ class BiasGuard:
         self._held: list[SafetyEvent] = []
         self.unrecorded: list[str] = []  # safety events a subscriber failed to take, with why
         self._reconnects_seen = reconnects(self.bias)
-        self._watcher: _Watcher | None = None
+        self._watcher: Watcher | None = None
 
     @property
     def securing(self) -> bool:
@@ -168,7 +170,7 @@ class BiasGuard:
         self.arm_keep_alive()
         self.acknowledged = True
         self._reconnects_seen = reconnects(self.bias)
-        self._watcher = _Watcher(self, opts.interlock_interval_s)
+        self._watcher = Watcher(self, opts.interlock_interval_s)
         self._watcher.start()
 
     def apply_bench_current_limit(self) -> None:
@@ -487,68 +489,3 @@ def safe_command(bench_source: str) -> str:
     """The command that brings the bench's supplies to 0 V and off (``benchwright safe``)."""
     bench = bench_source if bench_source and not bench_source.startswith("<") else "BENCH.yaml"
     return f"benchwright safe --bench {bench}"
-
-
-def reconnects(role: Any) -> int:
-    """How often the drivers reopened the link under a role driver (0 when unknown)."""
-    count = getattr(getattr(role, "session", None), "reconnects", 0)
-    return count if isinstance(count, int) else 0
-
-
-def link_drop_reason(address: str) -> str:
-    return f"bias at {address}: the link to the supply dropped while live (reopened by the drivers)"
-
-
-def reconnect(role: Any) -> None:
-    """Reconnect the transport under a role driver (bounded; raises TransportError on failure)."""
-    session = getattr(role, "session", None)
-    transport = getattr(session, "transport", None)
-    if transport is None or not hasattr(transport, "reconnect"):
-        raise TransportError("no way to reconnect", address=getattr(transport, "address", ""))
-    transport.reconnect()
-
-
-class _Watcher:
-    """Background reader of the interlock and trip while a voltage may be live."""
-
-    def __init__(self, guard: BiasGuard, interval_s: float) -> None:
-        self._guard = guard
-        self._interval = interval_s
-        self._done = threading.Event()
-        self._thread = threading.Thread(target=self._loop, name="interlock-watch", daemon=True)
-
-    def start(self) -> None:
-        self._thread.start()
-
-    def stop(self) -> None:
-        self._done.set()
-        self._thread.join(timeout=5.0)
-
-    def _loop(self) -> None:
-        g = self._guard
-        stop = g.ctx.stop
-        while not self._done.wait(self._interval):
-            if not g.live:
-                continue
-            try:
-                if g.interlock() is False:
-                    stop.request("interlock", f"bias at {g.address}: interlock opened while live")
-                    return
-                if g.bias.tripped():
-                    if not g.interlock_still_closed():  # it opened after it was read
-                        stop.request(
-                            "interlock", f"bias at {g.address}: interlock opened while live"
-                        )
-                        return
-                    stop.request(
-                        "trip",
-                        f"bias at {g.address}: the supply tripped while live "
-                        "(over-current or over-voltage protection)",
-                    )
-                    return
-                if g.link_dropped():
-                    stop.request("instrument", link_drop_reason(g.address))
-                    return
-            except BenchwrightError as exc:
-                stop.request("instrument", describe_fault(exc, g.ctx.bench.spec.instruments))
-                return
