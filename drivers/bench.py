@@ -21,7 +21,7 @@ from drivers.benchfile import (
     load_bench,
 )
 from drivers.dialect import Dialect, load_dialect
-from drivers.errors import BenchwrightError, ConfigError, Location, Problem
+from drivers.errors import BenchwrightError, ConfigError, Problem
 from drivers.roles import (
     ROLE_CLASSES,
     BiasSupply,
@@ -166,12 +166,13 @@ def open_bench(
     wanted = list(spec.instruments) if roles is None else list(roles)
     for role in wanted:
         if role not in spec.instruments:
-            loc = Location(spec.source, 1, 1)
+            have = ", ".join(spec.instruments) or "none"
             raise ConfigError(
                 [
                     Problem(
-                        loc,
-                        f"the bench file has no {role!r} instrument (it has {', '.join(spec.instruments)})",
+                        spec.where(),
+                        f"the bench file has no {role!r} instrument (it has {have}): add "
+                        f"'{role}: {{address: ..., dialect: generic}}' under instruments:",
                     )
                 ]
             )

@@ -21,6 +21,7 @@ control characters: a newline in an address would end the VISA resource string e
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import difflib
 from collections.abc import Collection, Mapping
@@ -91,6 +92,17 @@ class BenchSpec:
     instruments: Mapping[str, InstrumentSpec]
     source: str = "<bench>"
     text: str = field(default="", repr=False)  # the file as read, for provenance
+    #: where things stand in the file: ``instruments`` (the key), ``<role>`` (the role's key) and
+    #: ``<role>.<key>`` (a value); empty for a bench built from a plain mapping
+    locations: Mapping[str, Location] = field(default_factory=dict, repr=False, compare=False)
+
+    def where(self, role: str | None = None, key: str | None = None) -> Location:
+        """The place in the bench file to point at: the value of ``role``'s ``key`` if it is written,
+        else the role's entry, else the ``instruments:`` key, else the file's start."""
+        for name in (f"{role}.{key}" if role and key else None, role, "instruments"):
+            if name is not None and name in self.locations:
+                return self.locations[name]
+        return Location(self.source, 1, 1)
 
 
 def load_bench(path: str | Path, *, allowed_visa_libraries: Collection[str] = ()) -> BenchSpec:
@@ -123,7 +135,7 @@ def parse_bench_text(
         data, source=source, base_dir=base_dir, allowed_visa_libraries=allowed_visa_libraries
     )
     raw = text.decode("utf-8") if isinstance(text, bytes) else text
-    return BenchSpec(name=spec.name, instruments=spec.instruments, source=spec.source, text=raw)
+    return dataclasses.replace(spec, text=raw)
 
 
 def bench_from_mapping(
@@ -171,7 +183,21 @@ def bench_from_mapping(
                     instruments[role] = spec
     if problems:
         raise ConfigError(problems)
-    return BenchSpec(name=name, instruments=instruments, source=source)
+    return BenchSpec(
+        name=name, instruments=instruments, source=source, locations=_locations(data, entries)
+    )
+
+
+def _locations(data: Mapping, entries: Mapping) -> dict[str, Location]:
+    """Where the ``instruments:`` key, each role and each role's values stand (files only)."""
+    if not isinstance(data, YamlMap) or not isinstance(entries, YamlMap):
+        return {}
+    out = {"instruments": data.where("instruments", of_key=True)}
+    for role, entry in entries.items():
+        out[str(role)] = entries.where(role, of_key=True)
+        if isinstance(entry, YamlMap):
+            out.update({f"{role}.{key}": entry.where(key) for key in entry})
+    return out
 
 
 def instrument_warnings(

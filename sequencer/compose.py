@@ -21,7 +21,7 @@ from sequencer.engine import (
     Runner,
     RunOptions,
     RunOutcome,
-    check_plan_against_bench,
+    bench_problems,
     describe_run,
 )
 from sequencer.engine.context import StopFlag
@@ -272,10 +272,9 @@ def sim_board_serial(sim_board: str) -> tuple[str, str]:
 
 def preflight(plan: Plan, spec: BenchSpec) -> None:
     """Refuse (bad input, exit 2) a plan that asks more of the bench than its file allows."""
-    problems = check_plan_against_bench(plan, spec)
+    problems = bench_problems(plan, spec)
     if problems:
-        at = Location(plan.source_path or "<procedure>", 1, 1)
-        raise ProcedureError([Problem(at, p) for p in problems])
+        raise ProcedureError(problems)
 
 
 def execute(

@@ -5,7 +5,7 @@ Imports the procedure model, the analysis functions and the drivers; never the s
 
 from __future__ import annotations
 
-from .preflight import build_caution, check_plan_against_bench
+from .preflight import bench_problems, build_caution, check_plan_against_bench
 from .provenance import describe_run
 from .records import Caution, CompletedStepLike, RunOptions, RunOutcome, StepResult
 from .runner import Runner
@@ -17,6 +17,7 @@ __all__ = [
     "RunOutcome",
     "Runner",
     "StepResult",
+    "bench_problems",
     "build_caution",
     "check_plan_against_bench",
     "describe_run",

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from drivers.errors import Location, Problem
 from sequencer.procedure.kinds import KINDS
 from sequencer.procedure.plan_model import Plan, PlannedStep
 
@@ -34,73 +35,128 @@ def requested_ramps(
 
 
 def check_plan_against_bench(plan: Plan, bench_spec: Any) -> list[str]:
-    """Problems that forbid running ``plan`` on the bench described by ``bench_spec``.
+    """The messages of :func:`bench_problems` (empty = fine)."""
+    return [p.message for p in bench_problems(plan, bench_spec)]
+
+
+def bench_problems(plan: Plan, bench_spec: Any) -> list[Problem]:
+    """Problems that forbid running ``plan`` on the bench described by ``bench_spec``, located.
 
     Checks that every step's kind is known and its role is on the bench, that a procedure with a
     hazard has a bias role, and that every requested voltage, ramp rate and current limit is within
-    the bench file's ``max_volts``, ``max_ramp_V_per_s`` and ``max_current_uA``.  Empty = fine.
+    the bench file's ``max_volts``, ``max_ramp_V_per_s`` and ``max_current_uA``.  A missing role is
+    located at the bench file's ``instruments:`` key, a limit at its key in the bench file (the
+    message names the step and where it stands in the procedure); empty = fine.
     """
     instruments = bench_spec.instruments
     name = getattr(bench_spec, "name", "") or "the bench"
-    problems: list[str] = []
-    missing: dict[str, list[str]] = {}
+    problems: list[Problem] = []
+    missing: dict[str, list[PlannedStep]] = {}
     for step in plan.steps:
         kind = KINDS.get(step.kind)
         if kind is None:
-            problems.append(f"step {step.path}: unknown step kind {step.kind!r}")
+            problems.append(
+                Problem(_step_place(plan, step), f"step {step.path}: unknown step kind {step.kind!r}")
+            )
         elif kind.role is not None and kind.role not in instruments:
-            missing.setdefault(kind.role, []).append(step.path)
-    for role, paths in missing.items():
+            missing.setdefault(kind.role, []).append(step)
+    for role, steps in missing.items():
         problems.append(
-            f"role {role!r} is not on bench {name!r} but {len(paths)} step(s) need it "
-            f"(first {paths[0]})"
+            Problem(
+                _bench_place(bench_spec),
+                f"role {role!r} is not on bench {name!r} but {len(steps)} step(s) need it "
+                f"(first {steps[0].path}{_at(steps[0])}): add '{role}:' under instruments:",
+            )
         )
     hazards = hazard_steps(plan)
     if (hazards or plan.meta.hazards) and "bias" not in instruments:
         if "bias" not in missing:
-            problems.append(f"the procedure declares a hazard but bench {name!r} has no bias role")
+            problems.append(
+                Problem(
+                    _bench_place(bench_spec),
+                    f"the procedure declares a hazard but bench {name!r} has no bias role",
+                )
+            )
         return problems
     if "bias" in instruments:
-        problems.extend(_bias_limits(plan, instruments["bias"]))
+        problems.extend(_bias_limits(plan, bench_spec, instruments["bias"]))
     return problems
 
 
-def _bias_limits(plan: Plan, spec: Any) -> list[str]:
+def _bench_place(bench_spec: Any, role: str | None = None, key: str | None = None) -> Location:
+    where = getattr(bench_spec, "where", None)
+    if callable(where):
+        return where(role, key)
+    return Location(getattr(bench_spec, "source", "<bench>"), 1, 1)
+
+
+def _step_place(plan: Plan, step: PlannedStep) -> Location:
+    return step.location or Location(plan.source_path or "<procedure>", 1, 1)
+
+
+def _at(step: PlannedStep) -> str:
+    """`` at proc.yaml:12:7`` when the step's place is known."""
+    return f" at {step.location}" if step.location is not None else ""
+
+
+def _bias_limits(plan: Plan, bench_spec: Any, spec: Any) -> list[Problem]:
     max_v = getattr(spec, "max_volts", None)
     max_rate = getattr(spec, "max_ramp_V_per_s", None)
     max_i = getattr(spec, "max_current_uA", None)
-    problems: list[str] = []
+    problems: list[Problem] = []
+
+    def at(key: str, message: str) -> None:
+        problems.append(Problem(_bench_place(bench_spec, "bias", key), message))
+
     ramps = requested_ramps(plan, max_rate)
     if ramps and max_v is None:
-        problems.append("bench bias has no max_volts: refusing to ramp without a voltage limit")
+        at("max_volts", "bench bias has no max_volts: refusing to ramp without a voltage limit")
     if ramps and max_rate is None:
-        problems.append("bench bias has no max_ramp_V_per_s: refusing to ramp without a rate limit")
+        at(
+            "max_ramp_V_per_s",
+            "bench bias has no max_ramp_V_per_s: refusing to ramp without a rate limit",
+        )
     for step, volts, rate in ramps:
         if max_v is not None and abs(volts) > max_v:
-            problems.append(f"step {step.path}: {volts:g} V exceeds the bench limit {max_v:g} V")
+            at(
+                "max_volts",
+                f"step {step.path}{_at(step)}: {volts:g} V exceeds the bench limit {max_v:g} V "
+                "(max_volts; lower the step's volts, raise the limit only if the supply, cabling "
+                "and device are rated for it and your lab's safety rules allow it)",
+            )
         if rate is not None and max_rate is not None and rate > max_rate:
-            problems.append(
-                f"step {step.path}: ramp rate {rate:g} V/s exceeds the bench limit {max_rate:g} V/s"
+            at(
+                "max_ramp_V_per_s",
+                f"step {step.path}{_at(step)}: ramp rate {rate:g} V/s exceeds the bench limit "
+                f"{max_rate:g} V/s (max_ramp_V_per_s)",
             )
         if rate is not None and rate <= 0:
-            problems.append(f"step {step.path}: ramp rate must be positive, got {rate:g} V/s")
+            problems.append(
+                Problem(
+                    _step_place(plan, step),
+                    f"step {step.path}: ramp rate must be positive, got {rate:g} V/s",
+                )
+            )
     if max_v is not None and plan.meta.max_bias_volts > max_v:
-        problems.append(
+        at(
+            "max_volts",
             f"the procedure requests up to {plan.meta.max_bias_volts:g} V, above the bench "
-            f"limit {max_v:g} V"
+            f"limit {max_v:g} V (max_volts)",
         )
     if max_rate is not None and plan.meta.max_ramp_V_per_s > max_rate:
-        problems.append(
+        at(
+            "max_ramp_V_per_s",
             f"the procedure ramps at up to {plan.meta.max_ramp_V_per_s:g} V/s, above the bench "
-            f"limit {max_rate:g} V/s"
+            f"limit {max_rate:g} V/s (max_ramp_V_per_s)",
         )
     for step in plan.steps:
         if step.kind == "bias.limit" and max_i is not None:
             current = float(step.args["current"])
             if current > max_i:
-                problems.append(
-                    f"step {step.path}: current limit {current:g} uA exceeds the bench limit "
-                    f"{max_i:g} uA"
+                at(
+                    "max_current_uA",
+                    f"step {step.path}{_at(step)}: current limit {current:g} uA exceeds the bench "
+                    f"limit {max_i:g} uA (max_current_uA)",
                 )
     return problems
 

@@ -268,3 +268,24 @@ def test_control_characters_in_an_address_are_refused_located(tmp_path, value, c
     found = problems(tmp_path, f'bench: b\ninstruments:\n  pulser: {{address: "{value}"}}\n')
     assert len(found) == 1 and found[0].startswith("bench.yaml:3:21: pulser: address holds the control")
     assert repr(char.encode().decode("unicode_escape")) in found[0]
+
+
+def test_a_role_the_bench_lacks_is_located_at_instruments(tmp_path):
+    # issue 22: reported at bench.yaml:1:1 before; the place to add the role is under instruments:
+    spec = load_bench(write(tmp_path, GOOD))
+    with pytest.raises(ConfigError) as exc:
+        open_bench(spec, roles=["scope"], opener=lambda inst: pytest.fail("nothing may be opened"))
+    (problem,) = exc.value.problems
+    assert (problem.location.line, problem.location.column) == (2, 1)
+    assert "'scope: {address: ..., dialect: generic}' under instruments:" in problem.message
+
+
+def test_bench_keys_are_located_by_role_and_key(tmp_path):
+    spec = load_bench(write(tmp_path, GOOD))
+    # line 4 of GOOD: `  bias:   {... max_volts: 60, ...}`; columns count from 1 (yaml marks from 0)
+    line = GOOD.splitlines()[3]
+    volts = spec.where("bias", "max_volts")
+    assert (volts.line, volts.column) == (4, line.index("60") + 1)
+    assert spec.where("bias", "max_current_uA") == spec.where("bias")  # not written: the role
+    assert (spec.where("bias").line, spec.where("bias").column) == (4, 3)
+    assert spec.where("scope") == spec.where()  # no such role: the instruments key

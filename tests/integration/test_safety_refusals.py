@@ -81,12 +81,34 @@ def test_over_limit_procedure_is_refused_before_any_command(tmp_path):
         "current limit 150 uA exceeds the bench limit 100 uA",
     ):
         assert any(expected in line for line in lines), (expected, lines)
-    assert all(line.startswith(f"{proc}:") for line in lines), lines  # file:line:column: message
+    # file:line:column: message, at the bench file's key that sets the limit (issue 22: not 1:1),
+    # naming the step and where it stands in the procedure
+    bench_lines = bench.read_text(encoding="utf-8").splitlines()
+    for line in lines:
+        where, _, message = line.partition(": ")
+        file, number, column = where.rsplit(":", 2)
+        assert file == str(bench), line
+        key = next(k for k in ("max_volts", "max_ramp_V_per_s", "max_current_uA") if k in message)
+        assert bench_lines[int(number) - 1][int(column) - 1 :].startswith(
+            bench_value(bench_lines, key)
+        ), line
+    assert all(f"at {proc}:" in line for line in lines if line.split(": ", 1)[1].startswith("step"))
     # not one message reached any instrument, not even *IDN?
     assert received == {role: [] for role in received}
     assert_nothing_applied(state)
     with Store.open(db) as store:  # refused before the run began: no run is created
         assert store.list_runs() == []
+
+
+def bench_value(lines: list[str], key: str) -> str:
+    """The text of ``key``'s value in the bench file's ``bias`` entry (block or flow style)."""
+    import re
+
+    for text in lines:
+        match = re.search(rf"\b{key}: ([^,}}\s]+)", text)
+        if match:
+            return match[1]
+    raise AssertionError(f"{key} not in the bench file")
 
 
 def test_interlock_open_before_the_first_ramp_refuses(tmp_path):
