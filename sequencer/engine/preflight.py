@@ -63,7 +63,7 @@ def bench_problems(plan: Plan, bench_spec: Any) -> list[Problem]:
     for role, steps in missing.items():
         problems.append(
             Problem(
-                _bench_place(bench_spec),
+                _bench_place(bench_spec, otherwise=_step_place(plan, steps[0])),
                 f"role {role!r} is not on bench {name!r} but {len(steps)} step(s) need it "
                 f"(first {steps[0].path}{_at(steps[0])}): add '{role}:' under instruments:",
             )
@@ -83,10 +83,20 @@ def bench_problems(plan: Plan, bench_spec: Any) -> list[Problem]:
     return problems
 
 
-def _bench_place(bench_spec: Any, role: str | None = None, key: str | None = None) -> Location:
+def _bench_place(
+    bench_spec: Any,
+    role: str | None = None,
+    key: str | None = None,
+    *,
+    otherwise: Location | None = None,
+) -> Location:
+    """Where in the bench file; a bench with no file (the simulated one) points at ``otherwise``
+    (the step) when given, rather than at a made-up ``<simulated bench>:1:1``."""
     where = getattr(bench_spec, "where", None)
-    if callable(where):
+    if callable(where) and getattr(bench_spec, "locations", None):
         return where(role, key)
+    if otherwise is not None:
+        return otherwise
     return Location(getattr(bench_spec, "source", "<bench>"), 1, 1)
 
 
@@ -105,8 +115,9 @@ def _bias_limits(plan: Plan, bench_spec: Any, spec: Any) -> list[Problem]:
     max_i = getattr(spec, "max_current_uA", None)
     problems: list[Problem] = []
 
-    def at(key: str, message: str) -> None:
-        problems.append(Problem(_bench_place(bench_spec, "bias", key), message))
+    def at(key: str, message: str, step: PlannedStep | None = None) -> None:
+        otherwise = None if step is None else _step_place(plan, step)
+        problems.append(Problem(_bench_place(bench_spec, "bias", key, otherwise=otherwise), message))
 
     ramps = requested_ramps(plan, max_rate)
     if ramps and max_v is None:
@@ -123,12 +134,14 @@ def _bias_limits(plan: Plan, bench_spec: Any, spec: Any) -> list[Problem]:
                 f"step {step.path}{_at(step)}: {volts:g} V exceeds the bench limit {max_v:g} V "
                 "(max_volts; lower the step's volts, raise the limit only if the supply, cabling "
                 "and device are rated for it and your lab's safety rules allow it)",
+                step,
             )
         if rate is not None and max_rate is not None and rate > max_rate:
             at(
                 "max_ramp_V_per_s",
                 f"step {step.path}{_at(step)}: ramp rate {rate:g} V/s exceeds the bench limit "
                 f"{max_rate:g} V/s (max_ramp_V_per_s)",
+                step,
             )
         if rate is not None and rate <= 0:
             problems.append(
@@ -157,6 +170,7 @@ def _bias_limits(plan: Plan, bench_spec: Any, spec: Any) -> list[Problem]:
                     "max_current_uA",
                     f"step {step.path}{_at(step)}: current limit {current:g} uA exceeds the bench "
                     f"limit {max_i:g} uA (max_current_uA)",
+                    step,
                 )
     return problems
 
