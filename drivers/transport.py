@@ -156,7 +156,7 @@ class VisaTransport:
         """
         resource = self._live()
         link = self._fast_link(resource)
-        if link is None and _peer_closed(_socket_of(resource)):
+        if link is None and _peer_closed(_socket_of(resource) or _rpc_socket_of(resource)):
             raise ConnectionClosed(
                 "the instrument closed the link", address=self.address, command=text
             )
@@ -217,6 +217,8 @@ class VisaTransport:
         return data
 
     def _pyvisa_read_bytes(self, resource: Any, n: int) -> bytes:
+        if _message_based(self.address):  # termination character already off (see _open_resource)
+            return resource.read_bytes(n, break_on_termchar=False)
         attr = constants.ResourceAttribute.termchar_enabled
         resource.set_visa_attribute(attr, constants.VI_FALSE)
         try:
@@ -339,6 +341,12 @@ class VisaTransport:
     def _close_resource(self) -> None:
         resource, self._resource = self._resource, None
         if resource is not None:
+            rpc_sock = _rpc_socket_of(resource)
+            if rpc_sock is not None and _peer_closed(rpc_sock):
+                # pyvisa-py's VXI-11 close asks destroy_link and waits 5 s for a reply from a
+                # peer that is gone; shut down, the call fails at once (EPIPE) and it closes
+                with contextlib.suppress(OSError):
+                    rpc_sock.shutdown(socket.SHUT_RDWR)
             try:
                 resource.close()
             except Exception as exc:  # a dead link may fail to close: kept, and the link is gone
@@ -400,6 +408,12 @@ def _open_resource(address: str, settings: TransportSettings) -> Any:
         resource.read_termination = settings.read_termination or None
         resource.write_termination = settings.write_termination
         resource.chunk_size = settings.chunk_size
+        if _message_based(address):
+            # an INSTR link marks each message's end (VXI-11 END flag, HiSLIP DataEnd): a read
+            # ends there, not at a newline byte inside an indefinite #0 block (a VXI-11 device
+            # honours the term character when asked to, ending the read at the first 0x0A)
+            attr = constants.ResourceAttribute.termchar_enabled
+            resource.set_visa_attribute(attr, constants.VI_FALSE)
         sock = _socket_of(resource)
         if sock is not None:
             _check_connected(sock, address)
@@ -409,6 +423,12 @@ def _open_resource(address: str, settings: TransportSettings) -> Any:
             resource.close()
         raise
     return resource
+
+
+def _message_based(address: str) -> bool:
+    """A LAN INSTR resource (VXI-11 or HiSLIP), whose messages end at END, not a newline."""
+    upper = address.upper()
+    return upper.startswith("TCPIP") and upper.endswith("::INSTR")
 
 
 def _pyvisa_py_session(resource: Any) -> Any:
@@ -427,6 +447,16 @@ def _socket_of(resource: Any) -> socket.socket | None:
     except InvalidSession:
         return None
     return interface if isinstance(interface, socket.socket) else None
+
+
+def _rpc_socket_of(resource: Any) -> socket.socket | None:
+    """The TCP socket under a pyvisa-py VXI-11 session (its RPC client's), else ``None``; only
+    looked at for a closed peer, never read: its bytes are RPC records."""
+    try:
+        sock = getattr(getattr(_pyvisa_py_session(resource), "interface", None), "sock", None)
+    except InvalidSession:
+        return None
+    return sock if isinstance(sock, socket.socket) else None
 
 
 def _peer_closed(sock: socket.socket | None) -> bool:
