@@ -308,8 +308,9 @@ def instruments(bench_path: str, check: bool, allow_visa_library: tuple[str, ...
 @click.option("--host", default="127.0.0.1", show_default=True)
 @click.option("--port-base", default=0, type=int, help="First TCP port (0 = free ports).")
 @click.option("--bench-out", type=click.Path(dir_okay=False), default=None, help="Write the bench file here.")
-@click.option("--link", type=click.Choice(["socket", "hislip"]), default="socket", show_default=True,
-              help="Addresses in the bench file: raw sockets or HiSLIP (both are served).")
+@click.option("--link", type=click.Choice(["socket", "hislip", "vxi11"]), default="socket",
+              show_default=True,
+              help="Addresses in the bench file: raw sockets, HiSLIP or VXI-11 (all are served).")
 @handles_errors
 def sim(board_path: str, host: str, port_base: int, bench_out: str | None, link: str) -> None:
     """Serve the simulated instruments of a board file until interrupted."""

@@ -35,9 +35,12 @@ from drivers.sim.server import InstrumentServer
 from drivers.sim.sourcemeter import SourceMeterBias
 from drivers.sim.switch import Switch
 from drivers.sim.threshold import ThresholdDac
+from drivers.sim.vxi11 import Vxi11Server
 from drivers.sim.wavescope import WaveformScope
 
 DEFAULT_TIMEOUT_MS = 5000
+#: The links every simulated instrument is served over at once (see :meth:`SimBench.address`).
+LINKS = ("socket", "hislip", "vxi11")
 #: Command structures per role (board file ``command_sets``); each name is also the shipped dialect
 #: (``drivers/dialects/<name>.yaml``) that speaks it.
 SCOPES: dict[str, type[Digitizer]] = {"generic": Digitizer, "wavescope": WaveformScope}
@@ -103,6 +106,7 @@ class SimBench:
         lock = threading.Lock()
         self._servers: dict[str, InstrumentServer] = {}
         self._hislip: dict[str, HislipServer] = {}
+        self._vxi11: dict[str, Vxi11Server] = {}
         try:
             for index, role in enumerate(self.instruments):
                 port = port_base + index if port_base else 0
@@ -124,6 +128,9 @@ class SimBench:
                 hislip = HislipServer(server, host=host)  # a free port: none privileged
                 self._hislip[role] = hislip
                 hislip.start()
+                vxi11 = Vxi11Server(server, host=host)  # explicit port: no portmapper, no root
+                self._vxi11[role] = vxi11
+                vxi11.start()
         except BaseException:
             self.stop()
             raise
@@ -141,17 +148,22 @@ class SimBench:
 
     def address(self, role: str, link: str = "socket") -> str:
         """VISA resource string of ``role`` over ``link``: ``socket`` (raw SCPI over TCP) or
-        ``hislip`` (IVI-6.1; the port is explicit in the address)."""
+        ``hislip`` (IVI-6.1) or ``vxi11`` (VXI-11 core channel); the INSTR ports are explicit in
+        the address, so no portmapper is asked."""
         if link == "hislip":
             return f"TCPIP0::{self.host}::hislip0,{self._hislip[role].port}::INSTR"
+        if link == "vxi11":
+            return f"TCPIP0::{self.host},{self._vxi11[role].port}::inst0::INSTR"
         return f"TCPIP0::{self.host}::{self.ports[role]}::SOCKET"
 
     def stop(self) -> None:
         """Stop every server and close every client connection (idempotent)."""
         servers, self._servers = self._servers, {}
         hislip, self._hislip = self._hislip, {}
+        vxi11, self._vxi11 = self._vxi11, {}
         stoppers = [threading.Thread(target=server.stop) for server in servers.values()]
         stoppers += [threading.Thread(target=server.stop) for server in hislip.values()]
+        stoppers += [threading.Thread(target=server.stop) for server in vxi11.values()]
         for stopper in stoppers:  # in parallel: each waits up to one poll interval
             stopper.start()
         for stopper in stoppers:
@@ -272,7 +284,8 @@ def serve(
                 bench.write_bench(bench_out, link)
             print(f"simulated bench for board {bench.board.serial}:")
             for role in bench.ports:
-                print(f"  {role:<9} {bench.address(role)}  {bench.address(role, 'hislip')}")
+                addresses = (bench.address(role, link) for link in LINKS)
+                print(f"  {role:<9} " + "  ".join(addresses))
             if bench_out is not None:
                 print(f"bench file: {bench_out}")
             print("press Ctrl-C to stop", flush=True)

@@ -10,7 +10,9 @@ Rows (ours / baseline, medians, ours and baseline alternating so a busy machine 
   parsed by field) / the generic one; goal <= 2;
 * ``query_latency_hislip``: one query over HiSLIP / over a raw socket (the generic dialect, the
   same simulated instrument); goal <= 4 (pyvisa-py's HiSLIP client has no fast path);
-* ``capture_hislip``: the generic 20 000-point capture over HiSLIP / over a raw socket; goal <= 4.
+* ``capture_hislip``: the generic 20 000-point capture over HiSLIP / over a raw socket; goal <= 4;
+* ``query_latency_vxi11`` and ``capture_vxi11``: the same two over VXI-11 (ONC RPC: each write and
+  each read is one RPC call and reply); goals <= 4.
 
 The goals are this project's own (no outside source): a foreign structure or a link must not make
 a qualification more than a few times slower than the generic path.
@@ -75,9 +77,10 @@ def run() -> list[dict]:
         roles = ["scope", "switch", "pulser", "bias"]
         g_sock = open_bench(bench_from_mapping(generic.bench_mapping()), roles=roles)
         g_hs = open_bench(bench_from_mapping(generic.bench_mapping(link="hislip")), roles=roles)
+        g_vx = open_bench(bench_from_mapping(generic.bench_mapping(link="vxi11")), roles=roles)
         f_sock = open_bench(bench_from_mapping(foreign.bench_mapping()), roles=roles)
         try:
-            for bench in (g_sock, g_hs, f_sock):
+            for bench in (g_sock, g_hs, g_vx, f_sock):
                 bench.scope.set_input(1, range_mV=1000.0)
                 bench.scope.set_timebase(sample_rate_hz=1e9, points=POINTS, pretrigger_ns=100.0)
             ours, base = _median_pair(
@@ -92,7 +95,13 @@ def run() -> list[dict]:
                 lambda: g_hs.scope.capture([1]), lambda: g_sock.scope.capture([1])
             )
             rows.append(_row("capture_hislip", ours, base, 1e3, "ms", 4))
+            ours, base = _median_pair(g_vx.bias.voltage, g_sock.bias.voltage)
+            rows.append(_row("query_latency_vxi11", ours, base, 1e6, "us", 4))
+            ours, base = _median_pair(
+                lambda: g_vx.scope.capture([1]), lambda: g_sock.scope.capture([1])
+            )
+            rows.append(_row("capture_vxi11", ours, base, 1e3, "ms", 4))
         finally:
-            for bench in (g_sock, g_hs, f_sock):
+            for bench in (g_sock, g_hs, g_vx, f_sock):
                 bench.close()
     return rows

@@ -1,8 +1,10 @@
-"""INSTR links: the simulated instruments over HiSLIP (IVI-6.1) through pyvisa-py, beside raw sockets.
+"""INSTR links: the simulated instruments over HiSLIP (IVI-6.1) and VXI-11 through pyvisa-py, beside
+raw sockets.
 
-Checked from outside: every role identifies and a scope record arrives whole over HiSLIP; an
+Checked from outside: every role identifies and a scope record arrives whole over each; an
 indefinite-length ``#0`` block (IEEE 488.2 §8.7.9.4, from memory: data up to the END of the message)
-keeps its newline bytes over an INSTR link; a dropped HiSLIP session surfaces as our
+keeps its newline bytes over an INSTR link (a VXI-11 device ends a read at the term character
+when the client asks it to, VXI-11 rev 1.0 B.6.12, from memory); a dropped session surfaces as our
 ``ConnectionClosed`` (pyvisa-py raises plain socket or ``RuntimeError`` errors), the session
 reconnects and re-applies its settings; and a link dropped while the bias is live ends the run with
 exit 3, one line naming the dropped link, and 0 V / output off read back when the link returns.
@@ -24,6 +26,7 @@ from drivers.sim.faults import FaultRunner
 from drivers.sim.hislip import HislipServer
 from drivers.sim.instrument import SimInstrument, command
 from drivers.sim.server import InstrumentServer
+from drivers.sim.vxi11 import Vxi11Server
 from drivers.transport import VisaTransport
 from tests.integration.safety_cli import (
     last_line,
@@ -42,10 +45,15 @@ EXIT_ABORT = 3  # DESIGN.md exit codes
 TOL = 0.1  # V, the engine's ramp tolerance
 
 
-def test_every_role_identifies_and_a_record_arrives_over_hislip():
+INSTR_LINKS = {"hislip": "::hislip0,", "vxi11": ",{port}::inst0::INSTR"}
+
+
+@pytest.mark.parametrize("link", sorted(INSTR_LINKS))
+def test_every_role_identifies_and_a_record_arrives_over_instr_links(link):
     with start_sim_bench(EXAMPLE) as sim:
-        mapping = sim.bench_mapping(link="hislip")
-        assert all("::hislip0," in e["address"] for e in mapping["instruments"].values())
+        mapping = sim.bench_mapping(link=link)
+        marker = INSTR_LINKS[link].split("{")[0]
+        assert all(marker in e["address"] for e in mapping["instruments"].values())
         spec = bench_from_mapping(mapping)
         with open_bench(spec) as bench:
             assert sorted(bench.identities()) == sorted(spec.instruments)
@@ -66,30 +74,48 @@ class BlockSource(SimInstrument):
         return [command("DATA", query=lambda c: b"#0" + self.payload)]
 
 
-def test_an_indefinite_block_keeps_its_newline_bytes_over_hislip():
-    instrument = BlockSource(instrument_id=1, serial="B-1")
-    lock = threading.Lock()
-    server = InstrumentServer(instrument, lock=lock, faults=FaultRunner((), lambda: 0.0))
-    hislip = HislipServer(server)
-    hislip.start()
+def serve_instr(instrument: SimInstrument, link: str, faults=()):
+    """``instrument`` served over ``link`` (hislip or vxi11): (stop callable, VISA address)."""
+    server = InstrumentServer(
+        instrument, lock=threading.Lock(), faults=FaultRunner(faults, lambda: 0.0)
+    )
+    front = HislipServer(server) if link == "hislip" else Vxi11Server(server)
+    front.start()
+    if link == "hislip":
+        address = f"TCPIP0::127.0.0.1::hislip0,{front.port}::INSTR"
+    else:
+        address = f"TCPIP0::127.0.0.1,{front.port}::inst0::INSTR"
+
+    def stop() -> None:
+        front.stop()
+        server.stop()
+
+    return stop, address
+
+
+@pytest.mark.parametrize("link", sorted(INSTR_LINKS))
+def test_an_indefinite_block_keeps_its_newline_bytes_over_instr_links(link):
+    stop, address = serve_instr(BlockSource(instrument_id=1, serial="B-1"), link)
     try:
-        address = f"TCPIP0::127.0.0.1::hislip0,{hislip.port}::INSTR"
         with ScpiSession(VisaTransport.open(address, timeout_ms=3000)) as session:
             assert session.query_block_bytes("DATA?") == BlockSource.payload
             assert session.query("*OPC?") == "1"  # in step after the block
     finally:
-        hislip.stop()
-        server.stop()
+        stop()
 
 
-def test_a_dropped_hislip_session_is_a_closed_link_and_reconnects(tmp_path):
+@pytest.mark.parametrize("link", sorted(INSTR_LINKS))
+def test_a_dropped_instr_session_is_a_closed_link_and_reconnects(tmp_path, link):
     # the supply closes its session once, after its 3rd message (pyvisa-py raises RuntimeError
-    # "Connection was dropped by server." on the next read)
+    # "Connection was dropped by server." on the next HiSLIP read; its VXI-11 client reports an
+    # I/O error once the RPC reply does not come)
     board = write_board(
         tmp_path, faults=[{"kind": "disconnect", "role": "bias", "after_commands": 3}]
     )
     with start_sim_bench(board) as sim:
-        spec = bench_from_mapping(sim.bench_mapping(link="hislip"))
+        mapping = sim.bench_mapping(link=link)
+        mapping["instruments"]["bias"]["timeout_ms"] = 1000  # a dead VXI-11 link costs one timeout
+        spec = bench_from_mapping(mapping)
         with open_bench(spec, roles=["bias"]) as bench:
             session = bench.bias.session
             session.retries = 0  # see the raw failure first
@@ -127,7 +153,7 @@ def test_link_dropped_while_live_over_hislip_ends_safe(tmp_path):
 
 
 @pytest.mark.slow
-def test_the_gain_qualification_gives_the_same_figures_over_hislip(tmp_path):
+def test_the_gain_qualification_gives_the_same_figures_over_instr_links(tmp_path):
     # the same board and seed over a raw socket and over HiSLIP: the same gains (the link carries
     # the same commands and bytes), within the gain tests' 2 % of the board file's truth
     from sequencer import compose
@@ -138,7 +164,7 @@ def test_the_gain_qualification_gives_the_same_figures_over_hislip(tmp_path):
 
     path = write_qual_board(tmp_path, "NR-PA8-T951", [channel(gain_x1=1.03), channel(gain_x1=0.98)])
     gains = {}
-    for link in ("socket", "hislip"):
+    for link in ("socket", "hislip", "vxi11"):
         plan = build_plan(load_procedure(PROCEDURES / "gain-linearity.yaml"),
                           small_board("NR-PA8-T951", 2))  # fmt: skip
         request = compose.RunRequest(operator="test", unattended=True, progress=False,
@@ -151,6 +177,7 @@ def test_the_gain_qualification_gives_the_same_figures_over_hislip(tmp_path):
                 for m in store.measurements(run_id=result.run_id)
                 if m.quantity == "gain"
             }
-    assert gains["hislip"][(1, "x1")] == pytest.approx(1.03, rel=0.02)
-    assert gains["hislip"][(2, "x1")] == pytest.approx(0.98, rel=0.02)
-    assert gains["hislip"] == pytest.approx(gains["socket"], rel=1e-9)
+    for link in ("hislip", "vxi11"):
+        assert gains[link][(1, "x1")] == pytest.approx(1.03, rel=0.02)
+        assert gains[link][(2, "x1")] == pytest.approx(0.98, rel=0.02)
+        assert gains[link] == pytest.approx(gains["socket"], rel=1e-9)
