@@ -9,6 +9,12 @@ Every function takes the database URL (an SQLAlchemy URL, as ``--db``) and the r
 ``board``, ``procedure``, ``batch``, ``since``, ``until``; the columns are those of
 ``benchwright export --what ...`` (``sequencer.results.tables``).  Needs the ``data`` extra
 (pandas, pyarrow): ``pip install 'benchwright[data]'``.
+
+A CSV export read back with pandas: CSV has no types, and ``pandas.read_csv`` guesses a number in
+any field that looks like one, quoted or not, so a version ``1.0`` would come back as the float 1.0
+(and ``1.10`` as 1.1).  Give it the text columns::
+
+    pandas.read_csv("m.csv", dtype=results.csv_dtypes("measurements"))
 """
 
 from __future__ import annotations
@@ -16,9 +22,27 @@ from __future__ import annotations
 from datetime import datetime
 from typing import Any
 
-from sequencer.results.tables import WHATS, Selection, Table, read_table
+from sequencer.results.tables import COLUMNS_OF, WHATS, Selection, Table, read_table
 
-__all__ = ["WHATS", "Selection", "Table", "measurements", "read_table", "runs", "series", "traces"]
+__all__ = [
+    "WHATS",
+    "Selection",
+    "Table",
+    "csv_dtypes",
+    "measurements",
+    "read_table",
+    "runs",
+    "series",
+    "traces",
+]
+
+
+def csv_dtypes(what: str = "measurements") -> dict[str, str]:
+    """``dtype=`` for ``pandas.read_csv`` of an export: every text column (versions, serials, step
+    paths) as pandas' ``string``, so that ``1.0`` stays the text it was written as."""
+    if what not in COLUMNS_OF:
+        raise ValueError(f"unknown table {what!r}: one of {', '.join(COLUMNS_OF)}")
+    return {c.name: "string" for c in COLUMNS_OF[what] if c.kind == "str"}
 
 
 def _frame(

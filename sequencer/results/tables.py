@@ -100,6 +100,14 @@ TRACE_COLUMNS = _columns((
     ("n_samples", "int"), ("samples_V", "samples"), ("labels", "str"),
 ))  # fmt: skip
 
+#: table name -> its columns (what ``export --what`` names)
+COLUMNS_OF: Mapping[str, tuple[Column, ...]] = {
+    "runs": RUN_COLUMNS,
+    "measurements": MEASUREMENT_COLUMNS,
+    "series": SERIES_COLUMNS,
+    "traces": TRACE_COLUMNS,
+}
+
 
 def _runs(store: Store, sel: Selection) -> list[Any]:
     """The selected runs, oldest first; a run id that does not exist is a ``StoreError``."""
