@@ -81,6 +81,7 @@ class Measurement:
     high: float | None = None
     verdict: Verdict = "info"
     qualifier: str = ""   # "" or "within uncertainty": value ± U straddles a limit (decision rule)
+    reason: str = ""      # why ``value`` is NaN: what the analysis refused (empty for a value)
 
 
 @dataclass(frozen=True)

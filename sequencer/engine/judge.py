@@ -12,6 +12,8 @@ from sequencer.quantities import QUANTITY_UNITS as UNITS
 
 from .context import RunContext
 
+NO_FINITE_VALUE = "the analysis gave no finite value"
+
 
 def channel_of(step: PlannedStep) -> int | None:
     value = step.labels.get("channel")
@@ -30,13 +32,19 @@ def measure(
     channel: Any = "from-labels",
     output: Any = "from-labels",
     aggressor: int | None = None,
+    reason: str = "",
 ) -> Measurement:
     """A ``Measurement`` of ``quantity`` judged against ``plan.limit_for(quantity, output)`` under
-    that limit set's decision rule (``sequencer.procedure.decision``)."""
+    that limit set's decision rule (``sequencer.procedure.decision``).
+
+    ``reason``: why ``value`` is NaN (the analysis's refusal).  A non-finite value given without
+    one is stored with :data:`NO_FINITE_VALUE`, so no missing value goes unexplained."""
     ch = channel_of(step) if channel == "from-labels" else channel
     out = output_of(step) if output == "from-labels" else output
     limit = ctx.plan.limit_for(quantity, out)
     value = float(value)
+    if not math.isfinite(value) and not reason:
+        reason = NO_FINITE_VALUE
     unc = None if uncertainty is None or not math.isfinite(uncertainty) else float(uncertainty)
     decision = None if limit is None else limit.decide(value, unc)
     return Measurement(
@@ -51,4 +59,5 @@ def measure(
         high=None if limit is None else limit.high,
         verdict="info" if decision is None else decision.verdict,
         qualifier="" if decision is None else decision.qualifier,
+        reason="" if math.isfinite(value) else reason,
     )

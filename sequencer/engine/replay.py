@@ -42,6 +42,8 @@ def measurement_from_store(m: Any) -> Measurement:
         low=m.low,
         high=m.high,
         verdict=m.verdict,
+        qualifier=getattr(m, "qualifier", "") or "",
+        reason=getattr(m, "reason", "") or "",
     )
 
 

@@ -5,7 +5,9 @@ data's canonical JSON (:func:`canonical_json`: sorted keys, no whitespace, ASCII
 as Python's shortest round-trip ``repr``) is embedded in the PDF and the HTML, and its SHA-256
 (:func:`data_sha256`) is printed on them; ``verify`` gathers the same data from the database again and
 compares.  Fields marked ``hashed=False`` (the raw samples of a plotted pulse) are left out of the
-canonical form; their digest (``trace_sha256``) is in it instead.
+canonical form; their digest (``trace_sha256``) is in it instead.  Fields marked ``omitted_empty``
+(a quantity's ``qualifier`` and ``reason``, added after certificates were first issued) are left out while empty,
+so a certificate issued before they existed still hashes as the data gathered again today.
 
 Certificate number scheme: ``BW-<run id, 6 digits>-<board serial>-CH<channel, 2 digits>``, e.g.
 ``BW-000042-NR-PA8-0001-CH03``: deterministic from the run and the channel, unique in one database.
@@ -77,7 +79,11 @@ class QuantityLine:
     low: float | None
     high: float | None
     verdict: str
-    note: str = ""  # why there is no value (the analysis step's recorded error)
+    note: str = ""  # why there is no value (the measurement's stored reason, else the step's error)
+    # "within uncertainty" when value ± U straddles a limit (decision rule); left out while empty
+    qualifier: str = field(default="", metadata={"omitted_empty": True})
+    # why the value could not be measured, as stored with it (revision 0006); printed beside it
+    reason: str = field(default="", metadata={"omitted_empty": True})
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -237,8 +243,12 @@ def _quantity_key(q: QuantityLine) -> tuple:
 def _quantity(m: Any, snap: RunSnapshot | None = None) -> QuantityLine:
     value = _float_or_none(m.value)
     step = snap.steps.get(m.path) if snap is not None and value is None else None
+    note = m.reason if value is None and m.reason else ""
     return QuantityLine(
-        note=missing_reason(step) if step is not None else "",
+        # runs recorded before measurements kept their reason (store revision 0006): the step's
+        note=note or (missing_reason(step) if step is not None else ""),
+        qualifier=m.qualifier,
+        reason=note,
         quantity=m.quantity,
         channel=m.channel,
         output=m.output,
@@ -297,6 +307,7 @@ def canonical_dict(data: Any) -> Any:
             f.name: canonical_dict(getattr(data, f.name))
             for f in fields(data)
             if f.metadata.get("hashed", True)
+            and not (f.metadata.get("omitted_empty") and getattr(data, f.name) == f.default)
         }
     return _plain(data)
 

@@ -60,8 +60,17 @@ def quantity_label(q: QuantityLine) -> str:
     return name
 
 
+def verdict_text(q: QuantityLine) -> str:
+    """``pass``, ``FAIL`` or ``info``, with the decision rule's qualifier when the value's interval
+    straddles a limit: ``FAIL (within uncertainty)``."""
+    text = VERDICT_TEXT.get(q.verdict, q.verdict)
+    return f"{text} ({q.qualifier})" if q.qualifier else text
+
+
 def quantity_cells(q: QuantityLine) -> tuple[str, ...]:
     value, unc = format_measured(q.value, q.uncertainty)
+    if q.value is None and q.reason:
+        value = f"{value} ({q.reason})"  # the refusal beside the value it explains
     return (
         quantity_label(q),
         q.output or "—",
@@ -69,7 +78,7 @@ def quantity_cells(q: QuantityLine) -> tuple[str, ...]:
         unc or "—",
         q.unit,
         format_limits(q.low, q.high),
-        VERDICT_TEXT.get(q.verdict, q.verdict),
+        verdict_text(q),
     )
 
 

@@ -26,8 +26,8 @@ if TYPE_CHECKING:
 EXPORT_COLUMNS: tuple[str, ...] = (
     "run_id", "started_at", "procedure", "procedure_version", "procedure_sha256", "bench", "board",
     "channel", "output", "aggressor", "quantity", "value", "uncertainty", "unit", "low", "high",
-    "verdict",
-)  # fmt: skip
+    "verdict", "qualifier", "reason",
+)  # DESIGN.md's columns, then the decision rule's qualifier and why a value is empty  # fmt: skip
 RUN_COLUMNS: tuple[str, ...] = (
     "id", "procedure", "board", "status", "start", "end", "verdict", "operator", "batch",
 )  # DESIGN.md's six, then the verdict (pass / fail / empty while not judged), operator, batch  # fmt: skip
@@ -38,7 +38,7 @@ _RUN_PART = (Run.id, Run.started_at, Run.procedure, Run.procedure_version, Run.p
 _MEASUREMENT_PART = (Measurement.run_id, Measurement.channel, Measurement.output,
                      Measurement.aggressor, Measurement.quantity, Measurement.value,
                      Measurement.uncertainty, Measurement.unit, Measurement.low, Measurement.high,
-                     Measurement.verdict)  # fmt: skip
+                     Measurement.verdict, Measurement.qualifier, Measurement.reason)  # fmt: skip
 
 
 def iso_utc(when: datetime | None) -> str | None:

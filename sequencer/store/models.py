@@ -16,6 +16,9 @@ the two.  Layout::
                   each a document; added in revision 0003
     step_labels   the labels of each completed step (channel, output, sweep values), typed; 0004
 
+Revision 0006 gives each measurement its decision-rule qualifier and, for a value it could not
+measure, the reason.
+
 Everything but ``runs`` is append-only; revision 0002 adds triggers that refuse UPDATE and DELETE.
 """
 
@@ -211,6 +214,9 @@ class Measurement(Base):
     low: Mapped[float | None] = mapped_column(Float)
     high: Mapped[float | None] = mapped_column(Float)
     verdict: Mapped[str] = mapped_column(String(8))
+    # 0006: "within uncertainty" when value ± U straddles a limit; why a NULL (NaN) value is missing
+    qualifier: Mapped[str] = mapped_column(String(40), server_default=text("''"))
+    reason: Mapped[str] = mapped_column(Text, server_default=text("''"))
 
 
 class SafetyRecord(Base):

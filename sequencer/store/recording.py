@@ -94,6 +94,8 @@ def measurement_rows(run_id: int, step_id: int, ms: list[Measurement]) -> list[d
             "low": _opt_float(m.low),
             "high": _opt_float(m.high),
             "verdict": m.verdict,
+            "qualifier": m.qualifier,
+            "reason": m.reason,
         }
         for m in ms
     ]

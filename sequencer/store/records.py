@@ -90,6 +90,8 @@ class StoredMeasurement:
     low: float | None
     high: float | None
     verdict: str
+    qualifier: str = ""  # "within uncertainty" when value ± U straddles a limit (decision rule)
+    reason: str = ""     # why the value is None (NaN): the analysis's refusal, in words
 
 
 @dataclass(frozen=True, kw_only=True)

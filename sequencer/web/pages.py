@@ -99,10 +99,17 @@ def _run_or_404(store: Any, run_id: int) -> Any:
 
 
 def measurement_rows(measurements: list[Any]) -> list[dict[str, Any]]:
+    """Cells of the run page's measurement table: the verdict with the decision rule's qualifier
+    (``fail (within uncertainty)``), and beside a value not measured, the reason it was refused."""
     rows = []
     for m in measurements:
         value, unc = format_measured(m.value, m.uncertainty)
-        rows.append({"m": m, "value": value, "uncertainty": unc, "limits": format_limits(m.low, m.high)})
+        qualifier = m.qualifier
+        rows.append({
+            "m": m, "value": value, "uncertainty": unc, "limits": format_limits(m.low, m.high),
+            "verdict": f"{m.verdict} ({qualifier})" if qualifier else m.verdict,
+            "reason": m.reason if m.value is None else "",
+        })  # fmt: skip
     return rows
 
 

@@ -20,11 +20,12 @@ ROOT = Path(__file__).resolve().parents[2]
 QUICK = ROOT / "procedures" / "examples" / "quick-gain.yaml"
 BOARD = ROOT / "drivers" / "sim" / "boards" / "example-pa8.yaml"
 
-# DESIGN.md "Export columns" (fixed interface), in this order.
+# DESIGN.md "Export columns" (fixed interface), in this order, then (issue 15) the decision rule's
+# qualifier and the reason a value is empty.
 EXPORT_COLUMNS = [
     "run_id", "started_at", "procedure", "procedure_version", "procedure_sha256", "bench", "board",
     "channel", "output", "aggressor", "quantity", "value", "uncertainty", "unit", "low", "high",
-    "verdict",
+    "verdict", "qualifier", "reason",
 ]
 LOCATED = re.compile(r"^(?P<file>[^:]+):(?P<line>\d+):(?P<col>\d+): .+$")
 

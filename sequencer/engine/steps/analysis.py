@@ -388,7 +388,8 @@ HANDLERS = {
 
 def failed_analysis(ctx: RunContext, step: PlannedStep, exc: Exception) -> StepResult:
     """An analysis that could not compute its figures: each produced quantity is NaN, verdict fail
-    (a dead channel is a failed channel, not a crashed run)."""
+    (a dead channel is a failed channel, not a crashed run), with the reason (``str(exc)``) on each
+    measurement as well as in the step's ``error``."""
     a = step.args
     extra: dict[str, Any] = {}
     if step.kind == "analyse.crosstalk":
@@ -396,7 +397,7 @@ def failed_analysis(ctx: RunContext, step: PlannedStep, exc: Exception) -> StepR
     if step.kind == "analyse.leakage":
         extra = {"channel": None, "output": None}
     ms = [
-        replace(measure(ctx, step, q, float("nan"), **extra), verdict="fail")
+        replace(measure(ctx, step, q, float("nan"), reason=str(exc), **extra), verdict="fail")
         for q in KINDS[step.kind].produces
     ]
     return StepResult(results={"error": str(exc)}, measurements=ms)

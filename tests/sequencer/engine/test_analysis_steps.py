@@ -246,6 +246,19 @@ def test_failed_analysis_gives_nan_fail_for_each_quantity():
     res = failed_analysis(ctx, s, ValueError("boom"))
     assert [m.quantity for m in res.measurements] == ["gain", "offset_mV", "inl_pct"]
     assert all(math.isnan(m.value) and m.verdict == "fail" for m in res.measurements)
+    # the reason travels with each value (stored per measurement) and with the step
+    assert [m.reason for m in res.measurements] == ["boom"] * 3 and res.results["error"] == "boom"
+
+
+def test_a_value_without_a_number_is_never_without_a_reason():
+    from sequencer.engine.judge import NO_FINITE_VALUE, measure
+
+    ctx = make_ctx(limits=[Limit("noise_in_mV", None, 0.6, "mV")])
+    s = step("noise/ch1/x1/noise", "analyse.noise", labels={"channel": 1, "output": "x1"},
+             traces="baseline")
+    assert measure(ctx, s, "noise_in_mV", float("nan")).reason == NO_FINITE_VALUE
+    assert measure(ctx, s, "noise_in_mV", float("nan"), reason="clipped").reason == "clipped"
+    assert measure(ctx, s, "noise_in_mV", 0.4, reason="stale").reason == ""  # a value: no reason
 
 
 def test_measurement_carries_the_decision_rule_qualifier():

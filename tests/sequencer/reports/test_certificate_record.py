@@ -211,6 +211,57 @@ def test_a_dead_channel_value_is_printed_with_its_reason(tmp_path: Path):
     assert data.verdict == "FAIL"
 
 
+def test_a_refused_value_prints_its_stored_reason_beside_it(tmp_path: Path):
+    # since store revision 0006 the reason is kept with the measurement: printed in the value
+    # cell and in the closing note, covered by verify in both formats
+    reason = "clipped: 12 % of samples at the rail"
+    dead = Measurement("gain", float("nan"), "V/V", None, 1, "x1", None, 0.95, 1.05, "fail",
+                       reason=reason)  # fmt: skip
+    with Store.open(f"sqlite:///{tmp_path / 'r.db'}") as store:
+        run_id = _one_channel_run(store, [dead], results={"error": "the step's own words"})
+        [data] = gather_certificates(store, run_id)
+        pdf, html = certify_run(store, run_id, tmp_path / "c", workers=1)
+        assert verify_certificate(store, html).ok and verify_certificate(store, pdf).ok
+    q = data.quantities[0]
+    assert (q.reason, q.note) == (reason, reason)  # the measurement's reason before the step's
+    [row] = [cells for key, _, cells in table_fields(data) if key == "quantities.0"]
+    assert row[2] == f"— ({reason})"
+    text = html.read_text(encoding="utf-8")
+    assert f"— ({reason})" in text and f"Not measured: Gain x1: {reason}" in text
+
+
+def test_a_value_within_uncertainty_of_its_limit_says_so(tmp_path: Path):
+    # ILAC-G8:09/2019: 1.06 ± 2·0.01 straddles the 1.05 limit: the verdict stays fail and the
+    # certificate prints the qualifier beside it; verify covers the printed text
+    near = Measurement("gain", 1.06, "V/V", 0.01, 1, "x1", None, 0.95, 1.05, "fail",
+                       qualifier="within uncertainty")  # fmt: skip
+    with Store.open(f"sqlite:///{tmp_path / 'r.db'}") as store:
+        run_id = _one_channel_run(store, [near])
+        [data] = gather_certificates(store, run_id)
+        pdf, html = certify_run(store, run_id, tmp_path / "c", workers=1)
+        assert verify_certificate(store, html).ok and verify_certificate(store, pdf).ok
+        text = html.read_text(encoding="utf-8")
+        edited = tmp_path / "edited.html"
+        edited.write_text(text.replace("FAIL (within uncertainty)", "FAIL"), encoding="utf-8")
+        result = verify_certificate(store, edited)
+    assert data.quantities[0].qualifier == "within uncertainty"
+    assert "FAIL (within uncertainty)" in text
+    assert not result.ok and any("quantities.0.verdict" in d for d in result.differences)
+
+
+def test_certificates_issued_before_qualifiers_still_verify(tmp_path: Path):
+    # data embedded before QuantityLine had qualifier/reason has no such keys: an empty qualifier
+    # and reason are left out of the canonical form, so the digest is the one printed then
+    from sequencer.reports.certificate_data import canonical_dict, data_sha256
+
+    plain = Measurement("gain", 1.01, "V/V", 0.002, 1, "x1", None, 0.95, 1.05, "pass")
+    with Store.open(f"sqlite:///{tmp_path / 'r.db'}") as store:
+        [data] = gather_certificates(store, _one_channel_run(store, [plain]))
+    line = canonical_dict(data)["quantities"][0]
+    assert "qualifier" not in line and "reason" not in line and "note" in line
+    assert data_sha256(data) == data_sha256(canonical_dict(data))
+
+
 def test_crosstalk_table_and_plot_name_victim_and_aggressor_alike(certified):
     """DESIGN.md: crosstalk_pct's ``channel`` is the victim, ``aggressor`` the driven one.  The
     results table lists this channel as the victim; the crosstalk plot draws this channel as the

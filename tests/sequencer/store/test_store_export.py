@@ -22,6 +22,8 @@ DESIGN_TEXT = (
     "output, aggressor, quantity, value, uncertainty, unit, low, high, verdict"
 )
 DESIGN_COLUMNS = DESIGN_TEXT.split(", ")
+# then (issue 15) the decision rule's qualifier and the reason a value is empty, after DESIGN's
+EXPORT_TAIL = ["qualifier", "reason"]
 
 AWKWARD = [
     Measurement("gain", 0.1 + 0.2, "V/V", 1 / 3, 1, "x1", None, 0.95, 1.05, "pass"),
@@ -53,7 +55,7 @@ def _run_with(
 
 
 def test_export_columns_are_exactly_those_of_design_md():
-    assert list(EXPORT_COLUMNS) == DESIGN_COLUMNS
+    assert list(EXPORT_COLUMNS) == DESIGN_COLUMNS + EXPORT_TAIL
     # DESIGN.md's six, in order, then what `runs` adds (issue 20): verdict, operator, batch
     assert RUN_COLUMNS == ("id", "procedure", "board", "status", "start", "end", "verdict", "operator", "batch")
 
@@ -61,7 +63,7 @@ def test_export_columns_are_exactly_those_of_design_md():
 def test_export_rows_carry_the_run_and_the_measurement(store):
     run_id = _run_with(store, AWKWARD)
     rows = export_rows(store, run_id=run_id)
-    assert [list(r) for r in rows] == [DESIGN_COLUMNS] * len(AWKWARD)
+    assert [list(r) for r in rows] == [DESIGN_COLUMNS + EXPORT_TAIL] * len(AWKWARD)
     first = rows[0]
     info = run_info()
     assert first["run_id"] == run_id
@@ -78,7 +80,7 @@ def test_csv_round_trips_every_value_exactly(store):
     run_id = _run_with(store, AWKWARD)
     text = format_rows(export_rows(store, run_id=run_id), "csv", EXPORT_COLUMNS)
     parsed = list(csv.DictReader(io.StringIO(text)))
-    assert list(parsed[0]) == DESIGN_COLUMNS
+    assert list(parsed[0]) == DESIGN_COLUMNS + EXPORT_TAIL
     for row, m in zip(parsed, AWKWARD, strict=True):
         for name in ("value", "uncertainty", "low", "high"):
             sent = getattr(m, name)
@@ -93,7 +95,7 @@ def test_csv_round_trips_every_value_exactly(store):
 def test_json_round_trips_every_value_exactly_with_nulls(store):
     run_id = _run_with(store, AWKWARD)
     parsed = json.loads(format_rows(export_rows(store, run_id=run_id), "json", EXPORT_COLUMNS))
-    assert [list(o) for o in parsed] == [DESIGN_COLUMNS] * len(AWKWARD)
+    assert [list(o) for o in parsed] == [DESIGN_COLUMNS + EXPORT_TAIL] * len(AWKWARD)
     for obj, m in zip(parsed, AWKWARD, strict=True):
         for name in ("value", "uncertainty", "low", "high", "channel", "output", "aggressor"):
             sent = getattr(m, name)
@@ -177,5 +179,5 @@ def test_unknown_format_is_refused():
 
 
 def test_empty_export_has_a_header_only():
-    assert format_rows([], "csv", EXPORT_COLUMNS) == ",".join(DESIGN_COLUMNS) + "\n"
+    assert format_rows([], "csv", EXPORT_COLUMNS) == ",".join(DESIGN_COLUMNS + EXPORT_TAIL) + "\n"
     assert json.loads(format_rows([], "json", EXPORT_COLUMNS)) == []
