@@ -60,7 +60,11 @@ in sine mode, when every scope input sees the generator directly):
 ============================  =========  ===========================================================
 
 Channel defaults: gain_x1 1.0, gain_x5 5.0, baseline_mV 0, noise_in_mV 0.3, saturation_mV 1500,
-discriminator_offset_mV 0, dead false.  Faults: see :mod:`drivers.sim.faults`.
+discriminator_offset_mV 0, dead false.  A channel may also give ``output_baseline_mV``, the DC level
+of named outputs (``{x1: 12, x5: -12}``; each between -5000 and 5000 mV): x1 and x5 sit behind
+different stages, so their levels differ on a real board; an output not named sits at
+``baseline_mV``.  The discriminator is AC-coupled and sees no DC level.  Faults: see
+:mod:`drivers.sim.faults`.
 """
 
 from __future__ import annotations
@@ -88,6 +92,12 @@ class ChannelSpec:
     saturation_mV: float = 1500.0
     discriminator_offset_mV: float = 0.0
     dead: bool = False
+    output_baseline_mV: Mapping[str, float] = field(default_factory=lambda: MappingProxyType({}))
+
+    def baseline(self, output: str) -> float:
+        """DC level (mV) of ``output``: ``output_baseline_mV`` when it names it, else
+        ``baseline_mV``."""
+        return float(self.output_baseline_mV.get(output, self.baseline_mV))
 
 
 @dataclass(frozen=True, kw_only=True)

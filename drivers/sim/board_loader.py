@@ -17,6 +17,7 @@ from drivers.errors import ConfigError, Problem
 from drivers.sim.board import (
     FAULT_KINDS,
     MAX_CHANNELS,
+    OUTPUT_INDEX,
     ROLES,
     BoardSpec,
     ChannelSpec,
@@ -127,6 +128,22 @@ class _Reader:
         return out
 
 
+def _output_levels(value: Any) -> Mapping[str, float]:
+    """``{output: DC level in mV}`` for outputs of ``OUTPUT_INDEX`` (x1, x5, shaped)."""
+    if not isinstance(value, Mapping):
+        raise _Bad(f"expected a mapping of output to mV, e.g. {{x1: 2.0, x5: -12.0}}, got {value!r}")
+    level = _number(-5000.0, 5000.0)
+    out: dict[str, float] = {}
+    for name, mV in value.items():
+        if name not in OUTPUT_INDEX:
+            raise _Bad(f"unknown output {name!r}; known outputs: {', '.join(OUTPUT_INDEX)}")
+        try:
+            out[str(name)] = level(mV)
+        except _Bad as exc:
+            raise _Bad(f"{name}: {exc}") from None
+    return MappingProxyType(out)
+
+
 _CHANNEL = {
     "gain_x1": _number(0.0, 1e4, above=True),
     "gain_x5": _number(0.0, 1e4, above=True),
@@ -135,6 +152,7 @@ _CHANNEL = {
     "saturation_mV": _number(0.0, 1e5, above=True),
     "discriminator_offset_mV": _number(-5000.0, 5000.0),
     "dead": _boolean,
+    "output_baseline_mV": _output_levels,
 }
 _SHAPER = {
     "order": _integer(1, 10),

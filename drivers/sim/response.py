@@ -1,10 +1,11 @@
 """The board's response to an injected test pulse, per channel and output (DESIGN.md physics).
 
 The fast output ``k`` (x1, x5) of channel ``c`` for an injected amplitude A (mV at the injection
-input) is ``baseline_mV + sign · S · tanh(gain_k · A / S) · p(t)`` with S = ``saturation_mV`` and p the
+input) is ``baseline + sign · S · tanh(gain_k · A / S) · p(t)`` with S = ``saturation_mV`` and p the
 unit fast pulse (:func:`drivers.sim.physics.fast_pulse`); ``sign`` is :meth:`BoardSpec.sign` of the
 output (-1 for ``polarity: negative``, flipped again by ``inverter: true``, or as
-``output_polarity`` names it).  The shaped output is ``baseline_mV + sign · S · tanh(gain_x1 ·
+``output_polarity`` names it); ``baseline`` is the output's DC level (``ChannelSpec.baseline``:
+``output_baseline_mV`` of that output, else ``baseline_mV``).  The shaped output is ``baseline + sign · S · tanh(gain_x1 ·
 shaper.gain · A / S) · h(t)`` with h the unit-peak CR-RCⁿ or CR²-RCⁿ response (positive-going
 unless ``output_polarity`` makes it negative).
 Channels c ± 1 see ``crosstalk_pct / 100`` times the aggressor's pulse on the same output.  A dead
@@ -52,7 +53,7 @@ def output_signal_mV(
 ) -> np.ndarray:
     """Noise-free output (mV) of ``output`` of ``channel`` at trigger-relative times ``t_ns``."""
     t = np.asarray(t_ns, dtype=float)
-    signal = np.full(t.shape, board.channels[channel - 1].baseline_mV)
+    signal = np.full(t.shape, board.channels[channel - 1].baseline(output))
     k = coupling(board, channel, injected)
     if k == 0.0 or injected is None:
         return signal

@@ -108,3 +108,34 @@ def test_output_polarity_per_output_and_its_errors(tmp_path):
     path.write_text("serial: NR-PA8-0009\noutput_polarity: {x5: inverted}\nchannels:\n  - {}\n")
     with pytest.raises(ConfigError, match=r"b.yaml:2:\d+: output_polarity.x5: expected one of"):
         load_board(path)
+
+
+def test_output_baselines_per_output_and_their_errors(tmp_path):
+    # issue 15: x1 and x5 sit behind different stages, so their DC levels differ; an output not
+    # named sits at the channel's baseline_mV
+    import numpy as np
+
+    from drivers.sim.response import output_signal_mV
+
+    path = tmp_path / "b.yaml"
+    path.write_text(
+        "serial: NR-PA8-0010\nchannels:\n"
+        "  - {baseline_mV: 0.5, output_baseline_mV: {x1: 12.0, x5: -12}}\n  - {baseline_mV: -3}\n"
+    )
+    board = load_board(path)
+    first, second = board.channels
+    assert [first.baseline(o) for o in ("x1", "x5", "shaped")] == [12.0, -12.0, 0.5]
+    assert [second.baseline(o) for o in ("x1", "x5", "shaped")] == [-3.0] * 3
+    quiet = output_signal_mV(board, 1, "x5", injected=None, amplitude_mV=0.0, t_ns=np.zeros(4))
+    assert np.all(quiet == -12.0)  # no pulse: the output's own DC level
+    path.write_text(
+        "serial: NR-PA8-0010\nchannels:\n  - {output_baseline_mV: {x9: 1.0}}\n"
+        "  - {output_baseline_mV: {x1: 9000}}\n  - {output_baseline_mV: 3}\n"
+    )
+    with pytest.raises(ConfigError) as exc:
+        load_board(path)
+    lines = str(exc.value).splitlines()
+    assert len(lines) == 3
+    assert ":3:" in lines[0] and "unknown output 'x9'" in lines[0]
+    assert ":4:" in lines[1] and "x1:" in lines[1] and "5000" in lines[1]
+    assert ":5:" in lines[2] and "expected a mapping" in lines[2]
