@@ -25,6 +25,7 @@ __all__ = [
     "ConnectionRefused",
     "InstrumentError",
     "InstrumentTimeout",
+    "LeaseLost",
     "LocatedError",
     "Location",
     "MissingExtra",
@@ -64,6 +65,11 @@ class StoreError(BenchwrightError):
 class StorageFault(StoreError):
     """The storage under the results database failed (disk full, I/O error, damaged file): not bad
     input; the CLI exits 3 (``sequencer.store.faults`` tells the causes apart)."""
+
+
+class LeaseLost(StoreError):
+    """This process no longer holds the run's lease (another took the run over): what it would
+    write is refused, so two processes never write one run."""
 
 
 class RunAborted(BenchwrightError):

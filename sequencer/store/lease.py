@@ -10,7 +10,9 @@ Who may say a running run's recorder is gone:
 
 The recorder refreshes ``heartbeat_at`` every ``DEFAULT_HEARTBEAT_S`` while it runs, and only
 while the row still holds its token: a run taken over by ``resume --take-over`` has another token,
-and the old recorder learns that it lost the lease at its next beat.
+and the old recorder learns that it lost the lease at its next beat.  Until then (a frozen process
+that comes back) every write it makes checks the token first (``holds``): its steps are refused and
+its final status is not written over the new owner's run, only noted beside it.
 """
 
 from __future__ import annotations
@@ -20,7 +22,7 @@ from dataclasses import dataclass
 from datetime import datetime, timedelta
 from typing import Any, Literal
 
-from sqlalchemy import Connection, update
+from sqlalchemy import Connection, select, update
 
 from sequencer.store.liveness import ProcessIdentity, process_alive
 from sequencer.store.models import Run
@@ -76,6 +78,13 @@ def beat(conn: Connection, run_id: int, token: str, at: datetime) -> bool:
         .values(heartbeat_at=at)
     )
     return result.rowcount == 1
+
+
+def holds(conn: Connection, run_id: int, token: str) -> bool:
+    """True while the run ``run_id`` is held under ``token`` (whatever its status): what every
+    write of a recorder checks, so a recorder that lost the run writes nothing over its new owner."""
+    held = conn.execute(select(Run.lease_token).where(Run.id == run_id)).scalar_one_or_none()
+    return held == token
 
 
 def stale_before(now: datetime, stale_after_s: float) -> datetime:

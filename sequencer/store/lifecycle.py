@@ -141,13 +141,34 @@ def _refuse_completed(run_id: int, status: str) -> None:
         raise StoreError(f"run {run_id} is completed and is never modified: repeat it as a new run")
 
 
-def finish_run(conn: Connection, run_id: int, status: str, at: datetime, reason: str) -> None:
-    """End a running run as completed, aborted or interrupted, with its reason."""
+def finish_run(
+    conn: Connection,
+    run_id: int,
+    status: str,
+    at: datetime,
+    reason: str,
+    *,
+    token: str | None = None,
+) -> bool:
+    """End a running run as completed, aborted or interrupted, with its reason; True when written.
+
+    ``token``: the lease the caller holds.  When the run is held under another token (taken over by
+    ``resume --take-over`` or ``safe --take-over``), nothing of the run is changed: the caller's
+    status is noted beside it (``lease_lost``) and False is returned.
+    """
     if status not in FINAL_STATUSES:
         raise StoreError(
             f"a run cannot finish as {status!r}: use one of {', '.join(FINAL_STATUSES)}"
         )
     row = _locked_run(conn, run_id)
+    if token is not None and row.lease_token != token:
+        text = (
+            f"a process that had lost this run's lease ended it as {status}; not written over "
+            f"the run, which is {row.status} under another process"
+        )
+        detail = {"status": status, "reason": reason, "run_status": row.status}
+        annotate(conn, run_id, kind="lease_lost", text=text, detail=detail, at=at)
+        return False
     _refuse_completed(run_id, row.status)
     if row.status != "running":
         raise StoreError(
@@ -158,6 +179,7 @@ def finish_run(conn: Connection, run_id: int, status: str, at: datetime, reason:
     )
     detail = {"from": row.status, "to": status, "reason": reason}
     annotate(conn, run_id, kind="finished", text=f"run {status}", detail=detail, at=at)
+    return True
 
 
 def reopen_run(

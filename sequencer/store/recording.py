@@ -9,6 +9,10 @@
 * ``StepFinished`` *replayed*: nothing is written (the step's row is there from the earlier attempt).
 * ``SafetyEvent``: written at once in its own transaction (it must survive an abort mid-step).
 * ``RunFinished``: the run's status, end and reason, plus an audit annotation.
+
+A run recorded under a lease (``hold``) is checked before each step and status write: once another
+process took the run over, a step is refused (``LeaseLost``) and the final status is only noted
+beside the run (``lifecycle.finish_run``), never written over the new owner's.
 """
 
 from __future__ import annotations
@@ -21,6 +25,7 @@ from typing import Any
 import numpy as np
 from sqlalchemy import Engine, Table, insert
 
+from sequencer.errors import LeaseLost
 from sequencer.events import (
     Event,
     Measurement,
@@ -31,7 +36,7 @@ from sequencer.events import (
     StepStarted,
     TraceCaptured,
 )
-from sequencer.store import lifecycle
+from sequencer.store import lease, lifecycle
 from sequencer.store.connect import writer
 from sequencer.store.models import Base
 from sequencer.store.tracecodec import ENCODING, encode_samples
@@ -134,6 +139,7 @@ class Recorder:
     def __init__(self, engine: Engine) -> None:
         self._engine = writer(engine)
         self._pending: dict[tuple[int, str], _Pending] = {}
+        self._tokens: dict[int, str] = {}  # run id -> the lease this process holds on it
         self._handlers: dict[type, Callable[[Any], None]] = {
             StepStarted: self._step_started,
             TraceCaptured: self._trace,
@@ -148,6 +154,18 @@ class Recorder:
         handler = self._handlers.get(type(event))
         if handler is not None:
             handler(event)
+
+    def hold(self, run_id: int, token: str) -> None:
+        """From now on, this recorder writes run ``run_id`` only while it holds ``token``."""
+        self._tokens[run_id] = token
+
+    def _check_lease(self, conn: Any, run_id: int) -> None:
+        token = self._tokens.get(run_id)
+        if token is not None and not lease.holds(conn, run_id, token):
+            raise LeaseLost(
+                f"run {run_id} was taken over by another process (its lease changed): "
+                "this process writes nothing more into it"
+            )
 
     def pending_paths(self, run_id: int) -> list[str]:
         """Steps of ``run_id`` that started and have not finished (their data is only in memory)."""
@@ -170,6 +188,7 @@ class Recorder:
         if e.status == "replayed":
             return
         with self._engine.begin() as conn:
+            self._check_lease(conn, e.run_id)
             step = {
                 "run_id": e.run_id,
                 "path": e.path,
@@ -202,4 +221,5 @@ class Recorder:
         for key in [k for k in self._pending if k[0] == e.run_id]:
             del self._pending[key]
         with self._engine.begin() as conn:
-            lifecycle.finish_run(conn, e.run_id, e.status, e.at, e.reason)
+            token = self._tokens.get(e.run_id)
+            lifecycle.finish_run(conn, e.run_id, e.status, e.at, e.reason, token=token)

@@ -115,8 +115,11 @@ class Store:
     # -- recording ---------------------------------------------------------------------------
     def create_run(self, info: RunInfo, started_at: datetime, *, lease_token: str = "") -> int:
         """A new run in status ``running`` (this host, pid and the lease token); returns its id."""
+        token = lease_token or lease.new_token()
         with self._write(f"cannot record run of {info.procedure} on {info.board}") as conn:
-            return lifecycle.insert_run(conn, info, started_at, this_process(), lease_token)
+            run_id = lifecycle.insert_run(conn, info, started_at, this_process(), token)
+        self._recorder.hold(run_id, token)
+        return run_id
 
     def handle(self, event: Event) -> None:
         """Record one of the runner's events (see ``recording.py`` for what is written when)."""
@@ -136,11 +139,13 @@ class Store:
     def reopen_run(self, run_id: int, *, lease_token: str = "", take_over: bool = False) -> None:
         """Set an aborted/interrupted (or dead-recorder running) run to running under a new
         lease, audited; ``take_over`` also a running run whose recorder looks live."""
+        token = lease_token or lease.new_token()
         with self._write(f"cannot reopen run {run_id}") as conn:
             lifecycle.reopen_run(
                 conn, run_id, this_process(), datetime.now(UTC),
-                token=lease_token, take_over=take_over,
+                token=token, take_over=take_over,
             )
+        self._recorder.hold(run_id, token)
 
     def mark_stale_runs_interrupted(
         self, *, stale_after_s: float = lease.DEFAULT_STALE_AFTER_S

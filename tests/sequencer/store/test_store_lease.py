@@ -73,3 +73,36 @@ def test_take_over_is_explicit_recorded_and_the_old_recorder_loses_its_lease(sto
     assert store.beat(run_id, "new" + "0" * 29) is True
     trail = store.audit_trail(run_id)
     assert trail[-1].kind == "resumed" and trail[-1].text.startswith("taken over from ")
+
+
+def test_after_a_take_over_the_old_recorder_writes_nothing_over_the_new_owners_run(db_url):
+    """Two recorders (two stores, as two processes would have) on one run: once the second took
+    the run over, the first one's steps are refused and its final "aborted" is only noted beside
+    the run; the new owner's steps and status are what the run keeps."""
+    from sequencer.errors import LeaseLost
+
+    from .scenario import finished, step_events
+
+    with Store.open(db_url) as old, Store.open(db_url) as new:
+        run_id = old.create_run(run_info(), datetime.now(UTC))
+        for event in step_events(run_id, "steps/1", index=0):
+            old.handle(event)
+        new.reopen_run(run_id, take_over=True)  # same process: it looks live, so take over
+        late = step_events(run_id, "steps/2", index=1)
+        for event in late[:-1]:
+            old.handle(event)  # buffered in memory only
+        with pytest.raises(LeaseLost, match="taken over by another process"):
+            old.handle(late[-1])
+        old.handle(finished(run_id, "aborted", "stop requested"))  # no error: noted only
+        assert new.get_run(run_id).status == "running"
+        for event in step_events(run_id, "steps/2", index=1, seed=1):
+            new.handle(event)
+        new.handle(finished(run_id, "completed"))
+        old.handle(finished(run_id, "aborted", "came back after the end"))  # still nothing
+        run = new.get_run(run_id)
+        assert run.status == "completed" and run.reason == ""
+        assert [s.path for s in new.steps(run_id)] == ["steps/1", "steps/2"]
+        noted = [a for a in new.audit_trail(run_id) if a.kind == "lease_lost"]
+        assert [a.detail["status"] for a in noted] == ["aborted", "aborted"]
+        assert [a.detail["run_status"] for a in noted] == ["running", "completed"]
+        assert [a.kind for a in new.audit_trail(run_id)].count("finished") == 1
