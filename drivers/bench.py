@@ -20,7 +20,7 @@ from drivers.benchfile import (
     instrument_warnings,
     load_bench,
 )
-from drivers.dialect import Dialect, load_dialect
+from drivers.dialect import Dialect, load_dialect, parse_dialect
 from drivers.errors import BenchwrightError, ConfigError, Problem
 from drivers.roles import (
     ROLE_CLASSES,
@@ -192,7 +192,9 @@ def open_bench(
 
 def open_role(spec: InstrumentSpec, opener: Opener = open_transport) -> tuple[Any, Identity]:
     """Open one instrument: link, ``*IDN?``, then the role driver (which sends its set-up)."""
-    dialect = load_dialect(spec.dialect)
+    dialect = (
+        parse_dialect(spec.dialect_text, spec.dialect) if spec.dialect_text else load_dialect(spec.dialect)
+    )
     session = open_session(spec, dialect, opener)
     try:
         identity = session.identify()

@@ -30,7 +30,7 @@ from pathlib import Path
 from typing import Any
 
 from drivers.capabilities import role_problems
-from drivers.dialect import GENERIC, Dialect, load_dialect, shipped_dialect_path
+from drivers.dialect import GENERIC, Dialect, parse_dialect, shipped_dialect_path
 from drivers.errors import ConfigError, Location, Problem
 from drivers.scpi.session import Identity
 from drivers.transport import (
@@ -84,6 +84,9 @@ class InstrumentSpec:
     #: How a hardware interlock is wired to the supply's inhibit input (bias only; required when
     #: the dialect cannot read the interlock, and then acknowledged for each run).
     hardware_interlock: str = ""
+    #: The dialect's text as read once when the bench was loaded (or as stored with a run): the
+    #: text the instrument is driven by and the text the run keeps are the same bytes.
+    dialect_text: str = field(default="", repr=False)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -128,11 +131,16 @@ def parse_bench_text(
     *,
     base_dir: Path | None = None,
     allowed_visa_libraries: Collection[str] = (),
+    dialect_texts: Mapping[str, str] | None = None,
 ) -> BenchSpec:
-    """Check a bench file's text (e.g. the copy recorded with a run)."""
+    """Check a bench file's text (e.g. the copy recorded with a run).
+
+    ``dialect_texts`` (role -> text): dialects to use instead of reading the files the bench names,
+    e.g. the texts stored with a run, so a repeat drives the instruments as the run did."""
     data = load_yaml(text, source, error=ConfigError)
     spec = bench_from_mapping(
-        data, source=source, base_dir=base_dir, allowed_visa_libraries=allowed_visa_libraries
+        data, source=source, base_dir=base_dir, allowed_visa_libraries=allowed_visa_libraries,
+        dialect_texts=dialect_texts,
     )
     raw = text.decode("utf-8") if isinstance(text, bytes) else text
     return dataclasses.replace(spec, text=raw)
@@ -144,6 +152,7 @@ def bench_from_mapping(
     *,
     base_dir: Path | None = None,
     allowed_visa_libraries: Collection[str] = (),
+    dialect_texts: Mapping[str, str] | None = None,
 ) -> BenchSpec:
     """Check a bench mapping (from :func:`drivers.yamlsafe.load_yaml` for located errors)."""
     problems: list[Problem] = []
@@ -174,7 +183,8 @@ def bench_from_mapping(
         _unknown(entries, ROLES, "role", problems, source)
         for role in ROLES:
             if role in entries:
-                spec = _instrument(role, entries[role], entries, problems, source, base_dir)
+                spec = _instrument(role, entries[role], entries, problems, source, base_dir,
+                                   (dialect_texts or {}).get(role))
                 if spec is not None and not _visa_library_allowed(
                     spec, entries[role], allowed_visa_libraries, problems, source
                 ):
@@ -228,6 +238,7 @@ def _instrument(
     problems: list[Problem],
     source: str,
     base_dir: Path | None,
+    stored_dialect: str | None = None,
 ) -> InstrumentSpec | None:
     if not isinstance(entry, Mapping):
         problems.append(
@@ -259,7 +270,9 @@ def _instrument(
     values["busy_poll_us"] = check.integer("busy_poll_us", DEFAULT_BUSY_POLL_US, 0, 100_000)
     values["read_termination"] = check.termination("read_termination")
     values["write_termination"] = check.termination("write_termination")
-    values["dialect"], dialect = _dialect(role, entry, problems, source, base_dir)
+    values["dialect"], dialect, values["dialect_text"] = _dialect(
+        role, entry, problems, source, base_dir, stored_dialect
+    )
     if role == "bias":
         for key in ("max_volts", "max_ramp_V_per_s", "max_current_uA"):
             values[key] = check.positive(key, required=key != "max_current_uA")
@@ -310,29 +323,48 @@ def _resolved(path: str) -> str:
 
 
 def _dialect(
-    role: str, entry: Mapping, problems: list[Problem], source: str, base_dir: Path | None
-) -> tuple[str, Dialect | None]:
-    """The dialect's name or resolved path, and the dialect itself when it loads."""
+    role: str,
+    entry: Mapping,
+    problems: list[Problem],
+    source: str,
+    base_dir: Path | None,
+    stored: str | None = None,
+) -> tuple[str, Dialect | None, str]:
+    """The dialect's name or resolved path, the dialect itself when it loads, and its text.
+
+    The text is read once, here, and kept with the spec: the instrument is driven by the same bytes
+    the run stores.  ``stored`` (the text a recorded run used) replaces the file on disk."""
     name = entry.get("dialect", GENERIC)
     where = _where(entry, "dialect", source)
     if not isinstance(name, str) or not name.strip():
         problems.append(
             Problem(where, f"{role}: dialect must be 'generic' or the path of a dialect file")
         )
-        return GENERIC, None
+        return GENERIC, None, ""
     is_path = name.endswith((".yaml", ".yml")) or "/" in name or "\\" in name
     path = Path(name) if is_path else shipped_dialect_path(name)
     if is_path and not path.is_absolute() and base_dir is not None:
         path = base_dir / path
-    if not path.is_file():
-        problems.append(Problem(where, f"{role}: dialect {name!r} not found ({path})"))
-        return name, None
+    label = str(path) if is_path else name
+    if stored is not None:
+        text, origin = stored, f"{label} (as stored with the run)"
+    else:
+        if not path.is_file():
+            problems.append(Problem(where, f"{role}: dialect {name!r} not found ({path})"))
+            return name, None, ""
+        try:
+            text = read_bounded(path).decode("utf-8")
+        except (OSError, UnicodeDecodeError) as exc:
+            why = exc.strerror if isinstance(exc, OSError) else "not UTF-8 text"
+            problems.append(Problem(where, f"{role}: cannot read dialect {path}: {why}"))
+            return name, None, ""
+        origin = str(path)
     dialect = None
     try:
-        dialect = load_dialect(path)
+        dialect = parse_dialect(text, origin)
     except ConfigError as exc:
         problems.extend(exc.problems)
-    return (str(path) if is_path else name), dialect
+    return label, dialect, text
 
 
 class _Checker:

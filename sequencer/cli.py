@@ -169,7 +169,7 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
         log_path: str | None, allow_visa_library: tuple[str, ...],
         override_instrument_checks: bool) -> None:
     """Run a procedure on a bench (or the simulator) for one board and record everything."""
-    from sequencer import compose
+    from sequencer import compose, rerun_inputs
     from sequencer.procedure import load_procedure
 
     if procedure and repeat is not None:
@@ -183,7 +183,7 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
         record = compose.check_store(store, repeat) if repeat is not None else None
         stored = store.run_inputs(repeat) if repeat is not None else ()
         if record is not None:
-            proc = compose.stored_procedure(record, stored, warn)
+            proc = rerun_inputs.stored_procedure(record, stored, warn)
         elif procedure:
             proc = load_procedure(procedure)
         else:
@@ -208,11 +208,13 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
             warn=warn, override_instrument_checks=override_instrument_checks,
         )
         if record is not None and not (bench_path or sim_board):
-            bench_cm = compose.recorded_bench(record.id, record.bench_text,
-                                              allowed_visa_libraries=allow_visa_library)
+            bench_cm = compose.recorded_bench(record.id, record.bench_text, allowed_visa_libraries=allow_visa_library,
+                                              dialects=rerun_inputs.stored_dialects(stored))
         else:
             bench_cm = compose.bench_for(bench_path, sim_board, allowed_visa_libraries=allow_visa_library)
         with bench_cm as spec:
+            if record is not None:
+                spec = rerun_inputs.rerun_dialects(spec, record, stored, warn)
             result = compose.execute(plan_, spec, store, request)
     sys.exit(_summarise(result.run_id, result.outcome))
 
@@ -238,7 +240,7 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
            take_over: bool, allow_visa_library: tuple[str, ...],
            override_instrument_checks: bool) -> None:
     """Continue an interrupted or aborted run from its last completed step."""
-    from sequencer import compose
+    from sequencer import compose, rerun_inputs
 
     with compose.open_existing_store(db, env(), upgrade=True) as store:
         store.mark_stale_runs_interrupted()
@@ -246,7 +248,7 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
         if record.status == "completed":
             raise StoreError(f"run {run_id} is completed; a completed run is never resumed (use run --repeat)")
         stored = store.run_inputs(run_id)
-        proc = compose.stored_procedure(record, stored, lambda line: click.echo(f"warning: {line}", err=True))
+        proc = rerun_inputs.stored_procedure(record, stored, lambda line: click.echo(f"warning: {line}", err=True))
         from sequencer.procedure.board_choice import LabFiles
 
         plan_ = compose.plan_for(proc, record.board, board_type=record.board_type or None, stored=stored,
@@ -259,9 +261,10 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
         if bench_path or sim_board:
             bench_cm = compose.bench_for(bench_path, sim_board, allowed_visa_libraries=allow_visa_library)
         else:
-            bench_cm = compose.recorded_bench(run_id, record.bench_text,
-                                              allowed_visa_libraries=allow_visa_library)
+            bench_cm = compose.recorded_bench(run_id, record.bench_text, allowed_visa_libraries=allow_visa_library,
+                                              dialects=rerun_inputs.stored_dialects(stored))
         with bench_cm as spec:
+            spec = rerun_inputs.rerun_dialects(spec, record, stored, lambda line: click.echo(f"warning: {line}", err=True))
             from sequencer.resume_checks import check_resume_target
 
             serial = compose.sim_board_serial(sim_board)[0] if sim_board else None

@@ -15,7 +15,6 @@ from pathlib import Path
 from typing import Any
 
 from drivers.bench import BenchSpec, bench_from_mapping, load_bench, open_bench
-from drivers.dialect import shipped_dialect_path
 from sequencer.engine import (
     Caution,
     Runner,
@@ -31,16 +30,16 @@ from sequencer.engine.progress import ProgressDisplay
 from sequencer.errors import ConfigError, Location, OptionError, Problem, ProcedureError, StoreError
 from sequencer.events import Event, RunFinished
 from sequencer.heartbeat import Heartbeat
-from sequencer.inputs import RunInput, is_released, loader_files, text_digest
+from sequencer.inputs import RunInput, is_released, text_digest
 from sequencer.procedure import (
     Plan,
     Procedure,
     build_plan,
-    load_procedure_text,
     unjudged_warnings,
 )
 from sequencer.procedure.board_choice import LabFiles, choose_board
 from sequencer.procedure.textrules import MAX_NAME, text_problem
+from sequencer.rerun_inputs import bench_inputs
 from sequencer.store import Store, default_url
 from sequencer.store.lease import DEFAULT_HEARTBEAT_S, new_token
 
@@ -137,40 +136,6 @@ def check_sim_board(plan: Plan, sim_board: str) -> None:
         )
 
 
-def stored_procedure(record: Any, inputs: Sequence[RunInput], warn: Callable[[str], None] | None) -> Procedure:
-    """The procedure exactly as a recorded run used it: its text, fragments and limit set as stored.
-
-    A run recorded before the inputs were kept (schema 0003) stored only the procedure file; its
-    fragments and limits are read from today's disk, with a warning.
-    """
-    path = record.procedure_path or f"run-{record.id}.yaml"
-    if not inputs:
-        if warn is not None:
-            warn(f"run {record.id} was recorded without its fragments and limit set: they are read "
-                 "from today's files, so the rerun may differ")
-        return load_procedure_text(record.procedure_text, path)
-    return load_procedure_text(record.procedure_text, path, files=loader_files(inputs))
-
-
-def bench_inputs(spec: BenchSpec) -> tuple[RunInput, ...]:
-    """The bench file (as read, or the text recorded for a simulated bench) and each role's dialect."""
-    found: list[RunInput] = []
-    if spec.text:
-        found.append(RunInput("bench", "bench", spec.text))
-    for role, inst in sorted(spec.instruments.items()):
-        name = str(inst.dialect)
-        is_path = name.endswith((".yaml", ".yml")) or "/" in name or "\\" in name
-        path = Path(name) if is_path else shipped_dialect_path(name)
-        try:
-            text = path.read_text(encoding="utf-8")
-        except (OSError, UnicodeDecodeError) as exc:
-            raise ConfigError(
-                [Problem(Location(spec.source or "<bench>", 1, 1), f"{role}: cannot read dialect {path}: {exc}")]
-            ) from None
-        found.append(RunInput("dialect", role, text))
-    return tuple(found)
-
-
 def check_text_unchanged(store: Store, plan: Plan) -> str:
     """Compare the procedure's text with the texts stored under its name and version.
 
@@ -239,11 +204,17 @@ def simulated_bench_text(sim_board: str, mapping: Mapping[str, Any]) -> str:
 
 
 def recorded_bench(
-    run_id: int, bench_text: str, *, allowed_visa_libraries: Sequence[str] = ()
+    run_id: int,
+    bench_text: str,
+    *,
+    allowed_visa_libraries: Sequence[str] = (),
+    dialects: Mapping[str, str] | None = None,
 ) -> contextlib.AbstractContextManager[BenchSpec]:
     """The bench a run was recorded on: its bench file, or the simulator of the same board file.
 
     The recorded text is checked like a file: a VISA library path in it needs the same permission.
+    ``dialects`` (role -> text, :func:`stored_dialects`) are the dialects the run used, read in place
+    of the files the bench names (which may have changed or gone); see :func:`rerun_dialects`.
     """
     first = bench_text.splitlines()[0] if bench_text else ""
     if first.startswith(SIM_MARK):
@@ -257,7 +228,8 @@ def recorded_bench(
 
     return contextlib.nullcontext(
         parse_bench_text(
-            bench_text, f"<bench of run {run_id}>", allowed_visa_libraries=allowed_visa_libraries
+            bench_text, f"<bench of run {run_id}>", allowed_visa_libraries=allowed_visa_libraries,
+            dialect_texts=dialects,
         )
     )
 

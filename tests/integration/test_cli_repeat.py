@@ -170,3 +170,42 @@ def test_procedure_and_repeat_together_is_an_error(tmp_path: Path, bench) -> Non
     assert code == 2
     assert "not both" in out
     assert not (tmp_path / "r.db").exists()
+
+
+def test_a_dialect_given_by_path_is_rerun_from_its_stored_text(tmp_path: Path, bench) -> None:
+    # issue 16: dialects named by path were read again from disk on --repeat / resume; the run keeps
+    # the text it was driven by and a rerun on the same bench is driven by that text again
+    import yaml
+
+    from drivers.dialect import shipped_dialect_path
+    from drivers.sim import start_sim_bench
+
+    board, db = bench
+    proc = _write(tmp_path / "p")
+    dialect = tmp_path / "lab" / "scope-dialect.yaml"
+    dialect.parent.mkdir()
+    original = shipped_dialect_path("generic").read_text(encoding="utf-8")
+    dialect.write_text(original, encoding="utf-8")
+    with start_sim_bench(board) as sim:
+        mapping = sim.bench_mapping()
+        mapping["instruments"]["scope"]["dialect"] = str(dialect)
+        bench_file = tmp_path / "bench.yaml"
+        bench_file.write_text(yaml.safe_dump(mapping, sort_keys=False))
+        code, out = _invoke("run", str(proc), "--bench", str(bench_file), "--board", "NR-TT2-0001",
+                            "--db", db, "--yes")
+        assert code == 0, out
+        # the lab edits its dialect file: a repeat on the same bench file says so and uses the stored text
+        dialect.write_text(original + "# tuned for the new scope firmware\n", encoding="utf-8")
+        code, out = _invoke("run", "--repeat", "1", "--bench", str(bench_file), "--db", db, "--yes")
+        assert code == 0, out
+        assert f"scope: dialect {dialect} differs from the text run 1 used" in out
+        # the file is gone: a repeat on the recorded bench still runs, from the stored text
+        dialect.unlink()
+        code, out = _invoke("run", "--repeat", "1", "--db", db, "--yes")
+        assert code == 0, out
+    with Store.open(db) as store:
+        runs = store.list_runs()
+        assert [r.repeat_of for r in runs] == [None, 1, 1]
+        scope_texts = [{i.name: i.text for i in store.run_inputs(r.id) if i.kind == "dialect"}["scope"]
+                       for r in runs]
+    assert scope_texts == [original, original, original]
