@@ -88,6 +88,17 @@ def _debug(debug: bool) -> None:
         traceback.print_exc()
 
 
+def open_listing(db: str | None, *, mark_stale: bool = False) -> Any:
+    """Runs, batches and measurements of the existing database for a read-only command
+    (``store.listing``): an SQLite file is read with the standard library's sqlite3 (no
+    SQLAlchemy, alembic or numpy to import), anything else through the ``Store``.  A missing
+    database is ``StoreError``; nothing is created."""
+    from sequencer.store.listing import open_listing as open_it
+    from sequencer.store.sqlite_files import default_url
+
+    return open_it(db or default_url(env()), mark_stale=mark_stale)
+
+
 def open_existing_store(db: str | None) -> Any:
     """The store for a command that only reads (``runs``, ``batches``, ``export``, ``verify``): a
     missing database is ``StoreError`` and nothing is created.  The same as

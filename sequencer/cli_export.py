@@ -18,6 +18,7 @@ from sequencer.cli_common import (
     fail,
     handles_errors,
     open_existing_store,
+    open_listing,
 )
 
 FORMATS = ("csv", "json", "parquet", "root")
@@ -33,11 +34,8 @@ def _utc(moment: Any) -> Any:
 
 def _text(store: Any, what: str, fmt: str, sel: Any) -> str:
     from sequencer.results.tables import read_table
-    from sequencer.store import EXPORT_COLUMNS, export_rows, format_rows
+    from sequencer.store import format_rows
 
-    if what == "measurements":  # the fixed export (ISO times, repr floats)
-        rows = export_rows(store, run_id=sel.run_id, **sel.run_filters())
-        return format_rows(rows, fmt, EXPORT_COLUMNS)
     if what == "traces" and fmt == "csv":
         fail(EXIT_INPUT, "error: traces carry a sample array per row: use --format json, parquet or root")
     table = read_table(store, what, sel)
@@ -67,14 +65,22 @@ def export(db: str | None, whats: tuple[str, ...], run_id: int | None, board: st
            procedure: str | None, batch: str | None, since: Any, until: Any, fmt: str,
            out_file: str | None) -> None:
     """Results in open formats: one row per value (or curve point, trace, run) with its keys."""
-    from sequencer.results.tables import Selection, read_table
-
     if fmt in BINARY and not out_file:
         raise click.UsageError(f"--format {fmt} writes a file: give --out FILE")
     whats = tuple(dict.fromkeys(whats))
     if len(whats) > 1 and fmt != "root":
         raise click.UsageError("several --what tables go into one file only with --format root")
     what = whats[0]
+    if what == "measurements" and fmt not in BINARY:  # the fixed export: the light path can read it
+        from sequencer.store.rows import EXPORT_COLUMNS, format_rows
+
+        with open_listing(db) as listing:
+            rows = listing.export_rows(run_id=run_id, board=board, procedure=procedure, batch=batch,
+                                       since=_utc(since), until=_utc(until))
+        _emit(format_rows(rows, fmt, EXPORT_COLUMNS), out_file)  # type: ignore[arg-type]
+        return
+    from sequencer.results.tables import Selection, read_table
+
     sel = Selection(run_id=run_id, board=board, procedure=procedure, batch=batch,
                     since=_utc(since), until=_utc(until))
     with open_existing_store(db) as store:
@@ -91,6 +97,10 @@ def export(db: str | None, whats: tuple[str, ...], run_id: int | None, board: st
                 click.echo(f"{len(table.rows)} {table.name} row(s) written to {path}", err=True)
             return
         text = _text(store, what, fmt, sel)
+    _emit(text, out_file)
+
+
+def _emit(text: str, out_file: str | None) -> None:
     if out_file:
         Path(out_file).write_text(text, encoding="utf-8")
     else:

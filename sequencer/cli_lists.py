@@ -7,7 +7,7 @@ from typing import Any
 
 import click
 
-from sequencer.cli_common import db_option, handles_errors, open_existing_store
+from sequencer.cli_common import db_option, handles_errors, open_listing
 
 FORMATS = ["table", "csv", "json"]
 BATCH_COLUMNS = ("batch", "boards", "runs", "running", "passed", "failed", "first", "last")
@@ -36,15 +36,12 @@ def _utc(moment: Any) -> Any:
 def runs(db: str | None, fmt: str, board: str | None, procedure: str | None, batch: str | None,
          operator: str | None, status: str | None, verdict: str | None, since: Any, until: Any) -> None:
     """Past runs: id, procedure, board, status, start, end, verdict, operator, batch."""
-    from sequencer.store import RUN_COLUMNS, format_rows, run_rows
-    from sequencer.store.overview import run_counts, run_lines
+    from sequencer.store.rows import RUN_COLUMNS, format_rows, run_rows
 
-    with open_existing_store(db) as store:
-        store.mark_stale_runs_interrupted()
-        with store.engine.connect() as conn:
-            lines = run_lines(conn, newest_first=False, board=board, procedure=procedure, batch=batch,
-                              operator=operator, status=status, since=_utc(since), until=_utc(until))  # fmt: skip
-            counts = run_counts(conn, [r.id for r in lines], steps=False)
+    with open_listing(db, mark_stale=True) as listing:
+        lines = listing.run_lines(newest_first=False, board=board, procedure=procedure, batch=batch,
+                                  operator=operator, status=status, since=_utc(since), until=_utc(until))  # fmt: skip
+        counts = listing.run_counts([r.id for r in lines])
     verdicts = {r.id: counts[r.id].verdict(r.status) for r in lines}
     if verdict is not None:
         wanted = "" if verdict == "open" else verdict
@@ -75,15 +72,13 @@ def maybe_live_note(lines: Any) -> str:
 @handles_errors
 def batches(db: str | None, fmt: str) -> None:
     """Batches in the database: boards, runs, how many pass or fail, first and last run."""
-    from sequencer.store import format_rows
-    from sequencer.store.export import iso_utc
-    from sequencer.store.overview import batch_lines, run_counts, run_lines
+    from sequencer.store.rows import format_rows, iso_utc
 
     rows = []
-    with open_existing_store(db) as store, store.engine.connect() as conn:
-        for b in batch_lines(conn):
-            lines = run_lines(conn, batch=b.batch)
-            counts = run_counts(conn, [r.id for r in lines], steps=False)
+    with open_listing(db) as listing:
+        for b in listing.batch_lines():
+            lines = listing.run_lines(batch=b.batch)
+            counts = listing.run_counts([r.id for r in lines])
             verdicts = [counts[r.id].verdict(r.status) for r in lines]
             rows.append({
                 "batch": b.batch, "boards": b.boards, "runs": b.runs, "running": b.running,

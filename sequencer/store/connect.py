@@ -25,17 +25,19 @@ from sqlalchemy.engine import URL
 from sqlalchemy.exc import ArgumentError, NoSuchModuleError
 
 from sequencer.errors import StoreError
+from sequencer.store.sqlite_files import (
+    DEFAULT_BUSY_TIMEOUT_S,
+    DEFAULT_URL,
+    NETWORK_FILESYSTEMS,
+    default_url,
+    network_filesystem,
+)
 
-DEFAULT_URL = "sqlite:///benchwright.db"
-DEFAULT_BUSY_TIMEOUT_S = 30.0
 DEFAULT_CONNECT_TIMEOUT_S = 10  # PostgreSQL: an unreachable server fails in seconds, not minutes
-NETWORK_FILESYSTEMS = frozenset({"nfs", "nfs4", "cifs", "smb3", "smbfs", "9p", "fuse.sshfs", "afs"})
 WRITE_OPTION = "benchwright_write"
 
-
-def default_url(env: Mapping[str, str]) -> str:
-    """The database URL: ``BENCHWRIGHT_DB`` from ``env`` if set and not empty, else the default."""
-    return env.get("BENCHWRIGHT_DB") or DEFAULT_URL
+__all__ = ["DEFAULT_BUSY_TIMEOUT_S", "DEFAULT_URL", "NETWORK_FILESYSTEMS", "database_exists",
+           "default_url", "dump_json", "network_filesystem", "open_engine", "parse_url", "writer"]
 
 
 def parse_url(url: str) -> URL:
@@ -56,21 +58,6 @@ def parse_url(url: str) -> URL:
     raise StoreError(
         f"unsupported database {parsed.drivername!r}: use sqlite:/// or postgresql+psycopg://"
     )
-
-
-def network_filesystem(path: Path, mounts_text: str) -> str | None:
-    """The network filesystem type ``path`` lies on, from ``/proc/mounts`` text, or None."""
-    best, best_type = "", None
-    target = str(path.resolve())
-    for line in mounts_text.splitlines():
-        fields = line.split()
-        if len(fields) < 3:
-            continue
-        mount_point = fields[1].replace("\\040", " ")
-        inside = target == mount_point or target.startswith(mount_point.rstrip("/") + "/")
-        if inside and len(mount_point) >= len(best):
-            best, best_type = mount_point, fields[2]
-    return best_type if best_type in NETWORK_FILESYSTEMS else None
 
 
 def _check_sqlite_file(url: URL) -> None:

@@ -1,37 +1,31 @@
-"""Rows for ``benchwright export`` and ``benchwright runs``, and their csv / json / table text.
+"""Rows for ``benchwright export`` read through SQLAlchemy (any database); their text is ``rows.py``'s.
 
-The export columns and their order are fixed by DESIGN.md.  Values keep their exact meaning:
-floats are written with ``repr`` (shortest text that reads back to the same double), empty fields are
-empty strings in CSV and ``null`` in JSON, times are ISO 8601 in UTC.
+The export columns and their order are fixed by DESIGN.md (``rows.EXPORT_COLUMNS``).
 """
 
 from __future__ import annotations
 
-import csv
-import io
-import json
-import math
-from collections.abc import Iterable, Mapping, Sequence
 from datetime import datetime
-from typing import TYPE_CHECKING, Any, Literal
+from typing import TYPE_CHECKING, Any
 
 from sqlalchemy import select
 
 from sequencer.store.models import Measurement, Run
 from sequencer.store.queries import run_filters
+from sequencer.store.rows import (
+    EXPORT_COLUMNS,
+    RUN_COLUMNS,
+    Format,
+    format_rows,
+    iso_utc,
+    run_rows,
+)
 
 if TYPE_CHECKING:
     from sequencer.store.store import Store
 
-EXPORT_COLUMNS: tuple[str, ...] = (
-    "run_id", "started_at", "procedure", "procedure_version", "procedure_sha256", "bench", "board",
-    "channel", "output", "aggressor", "quantity", "value", "uncertainty", "unit", "low", "high",
-    "verdict", "qualifier", "reason",
-)  # DESIGN.md's columns, then the decision rule's qualifier and why a value is empty  # fmt: skip
-RUN_COLUMNS: tuple[str, ...] = (
-    "id", "procedure", "board", "status", "start", "end", "verdict", "operator", "batch",
-)  # DESIGN.md's six, then the verdict (pass / fail / empty while not judged), operator, batch  # fmt: skip
-Format = Literal["csv", "json", "table"]
+__all__ = ["EXPORT_COLUMNS", "RUN_COLUMNS", "Format", "export_rows", "format_rows", "iso_utc",
+           "run_rows"]
 
 _RUN_PART = (Run.id, Run.started_at, Run.procedure, Run.procedure_version, Run.procedure_sha256,
              Run.bench, Run.board)  # fmt: skip
@@ -39,11 +33,6 @@ _MEASUREMENT_PART = (Measurement.run_id, Measurement.channel, Measurement.output
                      Measurement.aggressor, Measurement.quantity, Measurement.value,
                      Measurement.uncertainty, Measurement.unit, Measurement.low, Measurement.high,
                      Measurement.verdict, Measurement.qualifier, Measurement.reason)  # fmt: skip
-
-
-def iso_utc(when: datetime | None) -> str | None:
-    """ISO 8601 text of an aware UTC datetime (``2025-03-04T09:30:00.250000+00:00``)."""
-    return None if when is None else when.isoformat()
 
 
 def export_rows(
@@ -74,64 +63,3 @@ def export_rows(
         return [
             dict(zip(columns, runs[m[0]] + tuple(m[1:]), strict=True)) for m in conn.execute(query)
         ]
-
-
-def run_rows(runs: Iterable[Any], verdicts: Mapping[int, str] | None = None) -> list[dict[str, Any]]:
-    """One dict per run keyed by ``RUN_COLUMNS`` (for ``benchwright runs``); ``verdicts`` maps run
-    id to its verdict (``store.overview.RunCounts.verdict``), empty where not given."""
-    given = verdicts or {}
-    return [
-        {
-            "id": r.id,
-            "procedure": r.procedure,
-            "board": r.board,
-            "status": r.status,
-            "start": iso_utc(r.started_at),
-            "end": iso_utc(r.ended_at),
-            "verdict": given.get(r.id, ""),
-            "operator": r.operator,
-            "batch": r.batch,
-        }
-        for r in runs
-    ]
-
-
-def _text(value: Any) -> str:
-    if value is None:
-        return ""
-    if isinstance(value, float):
-        return repr(value)
-    if isinstance(value, datetime):
-        return value.isoformat()
-    return str(value)
-
-
-def _json_value(value: Any) -> Any:
-    if isinstance(value, float) and not math.isfinite(value):
-        return None  # JSON has no inf / nan
-    if isinstance(value, datetime):
-        return value.isoformat()
-    return value
-
-
-def format_rows(rows: Sequence[Mapping[str, Any]], fmt: Format, columns: Sequence[str]) -> str:
-    """``rows`` as CSV (header line, ``\\n`` line ends), a JSON array of objects, or an aligned table."""
-    if fmt == "csv":
-        out = io.StringIO()
-        w = csv.writer(out, lineterminator="\n")
-        w.writerow(columns)
-        w.writerows([_text(row.get(c)) for c in columns] for row in rows)
-        return out.getvalue()
-    if fmt == "json":
-        objects = [{c: _json_value(row.get(c)) for c in columns} for row in rows]
-        return json.dumps(objects, indent=2, allow_nan=False) + "\n"
-    if fmt == "table":
-        cells = [[_text(row.get(c)) for c in columns] for row in rows]
-        widths = [max([len(c), *(len(r[i]) for r in cells)]) for i, c in enumerate(columns)]
-        lines = ["  ".join(c.ljust(w) for c, w in zip(columns, widths, strict=True)).rstrip()]
-        lines.append("  ".join("-" * w for w in widths))
-        lines += [
-            "  ".join(v.ljust(w) for v, w in zip(r, widths, strict=True)).rstrip() for r in cells
-        ]
-        return "\n".join(lines) + "\n"
-    raise ValueError(f"unknown format {fmt!r}: use csv, json or table")

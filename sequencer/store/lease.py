@@ -18,56 +18,26 @@ its final status is not written over the new owner's run, only noted beside it.
 from __future__ import annotations
 
 import secrets
-from dataclasses import dataclass
 from datetime import datetime, timedelta
-from typing import Any, Literal
 
 from sqlalchemy import Connection, select, update
 
-from sequencer.store.liveness import ProcessIdentity, process_alive
+from sequencer.store.liveness import (
+    DEFAULT_HEARTBEAT_S,
+    DEFAULT_STALE_AFTER_S,
+    Judgement,
+    State,
+    judge,
+)
 from sequencer.store.models import Run
 
-#: Seconds between two heartbeats of a running run.
-DEFAULT_HEARTBEAT_S = 5.0
-#: A heartbeat older than this (12 missed beats) means the recorder is gone.
-DEFAULT_STALE_AFTER_S = 60.0
-
-State = Literal["live", "dead", "stale"]
+__all__ = ["DEFAULT_HEARTBEAT_S", "DEFAULT_STALE_AFTER_S", "Judgement", "State", "beat",
+           "holds", "judge", "new_token", "stale_before"]
 
 
 def new_token() -> str:
     """A lease token: 128 random bits (``secrets``), unique across PCs, boots and processes."""
     return secrets.token_hex(16)
-
-
-def _boot(tag: str) -> str:
-    return tag.split(":", 1)[0] if ":" in tag else ""
-
-
-@dataclass(frozen=True)
-class Judgement:
-    state: State
-    why: str  # one line: what was seen
-
-
-def judge(row: Any, me: ProcessIdentity, now: datetime, stale_after_s: float) -> Judgement:
-    """Whether the recorder of the running run ``row`` is live, dead (its process is gone) or
-    stale (no heartbeat for ``stale_after_s``).  ``row`` has host, pid, process_tag,
-    heartbeat_at and started_at (and may have last_step_at)."""
-    same_boot = row.host == me.host and _boot(row.process_tag) and (
-        _boot(row.process_tag) == _boot(me.tag)
-    )
-    if same_boot:
-        if process_alive(row.pid, row.process_tag):
-            return Judgement("live", f"its process {row.pid} on {row.host} is running")
-        return Judgement("dead", f"its process {row.pid} on {row.host} has ended")
-    last = max(
-        t for t in (row.heartbeat_at, getattr(row, "last_step_at", None), row.started_at) if t
-    )
-    age = (now - last).total_seconds()
-    if age > stale_after_s:
-        return Judgement("stale", f"no heartbeat from {row.host} for {age:.0f} s")
-    return Judgement("live", f"{row.host} (pid {row.pid}) gave a heartbeat {max(age, 0):.0f} s ago")
 
 
 def beat(conn: Connection, run_id: int, token: str, at: datetime) -> bool:

@@ -2,6 +2,9 @@
 
 The tag is ``boot_id:start_ticks`` read from ``/proc`` on Linux ("" elsewhere): a pid reused after
 a reboot or by a later process has another tag, so a stale run is recognised as such.
+
+``judge`` decides from these (and the heartbeat) whether a running run's recorder is live; it lives
+here, free of SQLAlchemy, so that the light read path (``store.light``) can ask it too.
 """
 
 from __future__ import annotations
@@ -9,9 +12,15 @@ from __future__ import annotations
 import os
 import socket
 from dataclasses import dataclass
+from datetime import datetime
 from pathlib import Path
+from typing import Any, Literal
 
 PROC = Path("/proc")
+#: Seconds between two heartbeats of a running run.
+DEFAULT_HEARTBEAT_S = 5.0
+#: A heartbeat older than this (12 missed beats) means the recorder is gone.
+DEFAULT_STALE_AFTER_S = 60.0
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -61,3 +70,36 @@ def process_alive(pid: int, tag: str) -> bool:
     if fields and fields[0] == "Z":
         return False  # killed, not yet reaped by its parent
     return not tag or process_tag(pid) in ("", tag)
+
+
+State = Literal["live", "dead", "stale"]
+
+
+def _boot(tag: str) -> str:
+    return tag.split(":", 1)[0] if ":" in tag else ""
+
+
+@dataclass(frozen=True)
+class Judgement:
+    state: State
+    why: str  # one line: what was seen
+
+
+def judge(row: Any, me: ProcessIdentity, now: datetime, stale_after_s: float) -> Judgement:
+    """Whether the recorder of the running run ``row`` is live, dead (its process is gone) or
+    stale (no heartbeat for ``stale_after_s``).  ``row`` has host, pid, process_tag,
+    heartbeat_at and started_at (and may have last_step_at)."""
+    same_boot = row.host == me.host and _boot(row.process_tag) and (
+        _boot(row.process_tag) == _boot(me.tag)
+    )
+    if same_boot:
+        if process_alive(row.pid, row.process_tag):
+            return Judgement("live", f"its process {row.pid} on {row.host} is running")
+        return Judgement("dead", f"its process {row.pid} on {row.host} has ended")
+    last = max(
+        t for t in (row.heartbeat_at, getattr(row, "last_step_at", None), row.started_at) if t
+    )
+    age = (now - last).total_seconds()
+    if age > stale_after_s:
+        return Judgement("stale", f"no heartbeat from {row.host} for {age:.0f} s")
+    return Judgement("live", f"{row.host} (pid {row.pid}) gave a heartbeat {max(age, 0):.0f} s ago")

@@ -10,35 +10,19 @@ from __future__ import annotations
 
 import dataclasses
 from collections.abc import Sequence
-from dataclasses import dataclass
 from datetime import UTC, datetime
 from typing import Any
 
 from sqlalchemy import Connection, case, func, select
 
+from sequencer.store.lines import LINE_COLUMNS, BatchLine, RunCounts, RunLine
 from sequencer.store.models import Measurement, Run, Step, Trace
 from sequencer.store.queries import run_filters
 from sequencer.store.records import StoredTrace
 from sequencer.store.tracecodec import decode_samples
 
-
-@dataclass(frozen=True, kw_only=True)
-class RunCounts:
-    """What a run has stored so far."""
-
-    run_id: int
-    measurements: int = 0
-    failed: int = 0
-    steps_done: int = 0
-    steps_failed: int = 0
-    last_step: str = ""
-    last_step_at: datetime | None = None
-
-    def verdict(self, status: str) -> str:
-        """``fail`` if any value is outside its limits, ``pass`` if completed without, else ``""``."""
-        if self.failed:
-            return "fail"
-        return "pass" if status == "completed" else ""
+__all__ = ["BatchLine", "RunCounts", "RunLine", "batch_lines", "count_runs", "last_position",
+           "latest_trace", "run_counts", "run_lines"]
 
 
 def run_counts(
@@ -100,29 +84,7 @@ def run_counts(
     return out
 
 
-@dataclass(frozen=True, slots=True)
-class RunLine:
-    """A run as a listing shows it: no documents, no instruments (cheap for thousands of runs).
-    Fields in the order of ``_LINE_COLUMNS`` (rows are unpacked into it positionally)."""
-
-    id: int
-    procedure: str
-    procedure_version: str
-    board: str
-    board_type: str
-    batch: str
-    operator: str
-    bench: str
-    status: str
-    reason: str
-    started_at: datetime
-    ended_at: datetime | None
-
-
-_LINE_COLUMNS = (
-    Run.id, Run.procedure, Run.procedure_version, Run.board, Run.board_type, Run.batch,
-    Run.operator, Run.bench, Run.status, Run.reason, Run.started_at, Run.ended_at,
-)  # fmt: skip
+_LINE_COLUMNS = tuple(getattr(Run, name) for name in LINE_COLUMNS)
 
 
 def run_lines(
@@ -150,18 +112,6 @@ def count_runs(conn: Connection, *, operator: str | None = None, **filters: Any)
     if operator is not None:
         clauses.append(Run.operator == operator)
     return int(conn.execute(select(func.count(Run.id)).where(*clauses)).scalar_one())
-
-
-@dataclass(frozen=True, kw_only=True)
-class BatchLine:
-    """A batch as the listing shows it: its runs and boards, first and last start."""
-
-    batch: str
-    runs: int
-    boards: int
-    running: int
-    first_started: datetime
-    last_started: datetime
 
 
 def batch_lines(conn: Connection) -> list[BatchLine]:

@@ -16,6 +16,8 @@ import pytest
 from sequencer.store import Store
 
 HEAVY = ("matplotlib", "scipy", "pyvisa")
+# an SQLite store is read with the standard library (store.light): no database toolkit either
+STORE_TOOLKIT = ("sqlalchemy", "alembic", "numpy")
 
 PROBE = """
 import json, sys
@@ -46,8 +48,20 @@ def test_read_only_commands_import_neither_plotting_nor_analysis_nor_visa(
         pass
     seen = _run_entry_point(*command, "--db", url)
     assert seen["code"] == 0
-    assert "sqlalchemy" in seen["modules"]          # the command did open the store
-    assert [m for m in HEAVY if m in seen["modules"]] == []
+    assert "sqlite3" in seen["modules"]          # the command did open the store
+    assert [m for m in HEAVY + STORE_TOOLKIT if m in seen["modules"]] == []
+
+
+def test_a_store_the_light_path_cannot_read_goes_through_sqlalchemy(tmp_path: Path) -> None:
+    # Control for the test above: a URL with driver options (here pysqlite's busy timeout) is
+    # left to the Store, so the same probe sees SQLAlchemy and alembic loaded -- and the command
+    # still answers.
+    url = f"sqlite:///{tmp_path / 'small.db'}"
+    with Store.open(url):
+        pass
+    seen = _run_entry_point("runs", "--db", url + "?timeout=20")
+    assert seen["code"] == 0
+    assert {"sqlalchemy", "alembic"} <= set(seen["modules"])
 
 
 def test_the_probe_sees_heavy_modules_when_a_command_needs_them() -> None:
