@@ -38,6 +38,7 @@ from sequencer.procedure import (
     load_procedure,
 )
 from sequencer.procedure.board_choice import LabFiles
+from sequencer.quantities import judged_channels
 
 Mount = Literal["go", "skip", "stop"]
 BoardStatus = Literal["passed", "failed", "aborted", "skipped", "not run"]
@@ -119,11 +120,12 @@ def completed_run(store: Any, batch: str, serial: str) -> int | None:
 
 
 def channel_tally(store: Any, run_id: int) -> tuple[int, int]:
-    """(channels measured, channels passed) of one run (see the module docstring)."""
+    """(channels measured, channels passed) of one run (see the module docstring); a module whose
+    values all belong to it as a whole (a coincidence unit) is one channel, as in the summary."""
     record = store.get_run(run_id)
     ms = store.measurements(run_id=run_id)
     board_failed = any(m.channel is None and m.verdict == "fail" for m in ms)
-    channels = {m.channel for m in ms if m.channel is not None}
+    channels = set(judged_channels(m.channel for m in ms))
     failed = {m.channel for m in ms if m.channel is not None and m.verdict == "fail"}
     if board_failed or record.status != "completed":
         return len(channels), 0
@@ -134,11 +136,16 @@ def _outcome(
     store: Any, serial: str, run_id: int, status: BoardStatus, note: str = ""
 ) -> BoardOutcome:
     channels, passed = channel_tally(store, run_id)
-    if status == "passed" and passed < channels:
+    if status == "passed" and (passed < channels or _board_failed(store, run_id)):
         status = "failed"
     return BoardOutcome(
         serial=serial, status=status, run_id=run_id, channels=channels, passed=passed, note=note
     )
+
+
+def _board_failed(store: Any, run_id: int) -> bool:
+    """A value of the board as a whole failed (it fails the board even with no channel measured)."""
+    return any(m.channel is None and m.verdict == "fail" for m in store.measurements(run_id=run_id))
 
 
 class _BatchRun:
@@ -157,7 +164,10 @@ class _BatchRun:
         self.batch = batch
         self.store = store
         self.options = options
-        self.procedure: Procedure = load_procedure(batch.procedure)
+        # every procedure of the batch (a board may name its own) read before the first board
+        self.procedures: dict[str, Procedure] = {}
+        for path in dict.fromkeys(batch.procedure_of(b) for b in batch.boards):
+            self.procedures[path] = load_procedure(path)
         self.bench: BenchSpec | None = (
             load_bench(options.bench_path, allowed_visa_libraries=options.allowed_visa_libraries)
             if options.bench_path
@@ -266,11 +276,11 @@ class _BatchRun:
 
     def _plan(self, board: BatchBoard) -> Plan:
         return compose.plan_for(
-            self.procedure,
+            self.procedures[self.batch.procedure_of(board)],
             board.serial,
             board_type=board.board_type,
             lab=self.options.lab,
-            overrides=self.options.overrides,
+            overrides={**self.batch.parameters_of(board), **self.options.overrides},
         )
 
     def _aborted_run(self, serial: str) -> int | None:
@@ -280,13 +290,14 @@ class _BatchRun:
     def _report(self, index: int, count: int, outcome: BoardOutcome) -> None:
         channels, passed = self._yield_so_far()
         share = f"{100.0 * passed / channels:.1f} %" if channels else "-"
-        run = f"run {outcome.run_id}, " if outcome.run_id is not None else ""
+        run = f"run {outcome.run_id}" if outcome.run_id is not None else ""
         detail = f"{outcome.passed}/{outcome.channels} channels passed" if outcome.channels else ""
-        note = "; ".join(x for x in (detail, outcome.note) if x)
+        said = ", ".join(x for x in (run, "; ".join(x for x in (detail, outcome.note) if x)) if x)
+        said = f" ({said})" if said else ""
         left = describe_left(time_left(index, count, time.monotonic() - self._t0)) if index < count else ""
         pace = f" - {left} for the batch at the pace so far" if left else ""
         self.options.echo(
-            f"[{index}/{count}] {outcome.serial}: {outcome.status.upper()} ({run}{note}) "
+            f"[{index}/{count}] {outcome.serial}: {outcome.status.upper()}{said} "
             f"- running yield {passed}/{channels} channels ({share}){pace}"
         )
 

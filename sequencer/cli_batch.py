@@ -142,10 +142,12 @@ def batch(
 )
 @handles_errors
 def demo(out_dir: str) -> None:
-    """Qualify an invented batch of four PA8 boards on the simulator, end to end.
+    """Qualify invented batches on the simulator, end to end: preamp boards, scintillator modules,
+    a coincidence unit and a fast digitizer.
 
-    One board has a dead channel, one a saturating channel and one high crosstalk: the demo shows
-    them failing, and exits 0 all the same (it is a demonstration).
+    One board has a dead channel, one a saturating channel and one high crosstalk; a module has a
+    sensor off, another a poor fibre; the coincidence unit resolves too wide and the digitizer has
+    a missing code: the demo shows them failing, and exits 0 all the same (it is a demonstration).
     """
     from sequencer.demo import run_demo
     from sequencer.demo.scenario import describe

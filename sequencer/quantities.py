@@ -6,8 +6,21 @@ the reports print it.
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Iterable, Mapping
 from types import MappingProxyType
+
+#: The "channel" of a run whose measurements all belong to the module as a whole (a coincidence
+#: unit, a digitizer's converter): its certificate is numbered ``CH00`` and a batch counts it once.
+MODULE_CHANNEL = 0
+
+
+def judged_channels(channels: Iterable[int | None]) -> list[int]:
+    """The channels a run's measurements belong to (``channels``: each measurement's channel, None
+    for a value of the board as a whole), sorted; ``[MODULE_CHANNEL]`` when there are measurements
+    but none of a channel (a module measured as a whole); ``[]`` when there are none."""
+    seen = list(channels)
+    found = sorted({int(c) for c in seen if c is not None})
+    return found or ([MODULE_CHANNEL] if seen else [])
 
 QUANTITY_UNITS: Mapping[str, str] = MappingProxyType(
     {
@@ -53,5 +66,6 @@ QUANTITY_UNITS: Mapping[str, str] = MappingProxyType(
         "dnl_max_lsb": "LSB",
         "inl_max_lsb": "LSB",
         "missing_codes": "1",
+        "bandwidth_mhz": "MHz",
     }
 )

@@ -63,7 +63,9 @@ Channel defaults: gain_x1 1.0, gain_x5 5.0, baseline_mV 0, noise_in_mV 0.3, satu
 discriminator_offset_mV 0, dead false.  A channel may also give ``output_baseline_mV``, the DC level
 of named outputs (``{x1: 12, x5: -12}``; each between -5000 and 5000 mV): x1 and x5 sit behind
 different stages, so their levels differ on a real board; an output not named sits at
-``baseline_mV``.  The discriminator is AC-coupled and sees no DC level.  Faults: see
+``baseline_mV``.  The discriminator is AC-coupled and sees no DC level.  ``channels`` may also be a
+count (``channels: 4``): that many channels with these defaults, for a module whose inputs have no
+per-channel physics of their own (a digitizer's inputs, a coincidence unit).  Faults: see
 :mod:`drivers.sim.faults`.
 """
 

@@ -314,8 +314,17 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
 def _channels(reader: _Reader, data: Any, raw: Any) -> tuple[ChannelSpec, ...]:
     if raw is None:
         return ()
+    if isinstance(raw, int) and not isinstance(raw, bool) and 1 <= raw <= MAX_CHANNELS:
+        # a module whose inputs have no per-channel physics (a digitizer's inputs, a coincidence
+        # unit's): the count alone, each channel with the documented defaults
+        return tuple(ChannelSpec() for _ in range(raw))
     if not isinstance(raw, list) or not raw:
-        reader.problem(data, "channels", "channels must be a non-empty list of mappings")
+        reader.problem(
+            data,
+            "channels",
+            "channels must be a non-empty list of mappings, or a count "
+            f"1..{MAX_CHANNELS} of channels with the default keys",
+        )
         return ()
     if len(raw) > MAX_CHANNELS:
         reader.problem(

@@ -27,6 +27,8 @@ from sequencer.store import Store
 DEMO_BATCH = "batch.yaml"
 DEMO_MODULE_BATCH = "modules.yaml"
 """The scintillator modules of the scenario, tested with cosmic rays after the preamp boards."""
+DEMO_TRIGGER_BATCH = "trigger.yaml"
+"""The trigger and digitizer chain: a coincidence unit and a fast digitizer, each with a fault."""
 DEFAULT_OUT = Path("benchwright-demo")
 
 
@@ -47,6 +49,7 @@ class DemoResult:
     outcome: BatchOutcome
     seconds: float
     module_outcome: BatchOutcome | None = None
+    trigger_outcome: BatchOutcome | None = None
 
 
 def run_demo(
@@ -73,13 +76,18 @@ def run_demo(
         )
         module_outcome, module_certificates = _qualify(store, modules, out, echo, workers)
         certificates += module_certificates
-        text = "\n\n".join(batch_summary(store, b.name).to_text() for b in (batch, modules))
+        trigger = load_batch(demo_dir() / DEMO_TRIGGER_BATCH)
+        echo(
+            f"demo: batch {trigger.name} ({len(trigger.boards)} invented trigger-chain modules: "
+            "a coincidence unit, a fast digitizer)"
+        )
+        trigger_outcome, trigger_certificates = _qualify(store, trigger, out, echo, workers)
+        certificates += trigger_certificates
+        batches = (batch, modules, trigger)
+        text = "\n\n".join(batch_summary(store, b.name).to_text() for b in batches)
         summary_path = out / "batch-summary.txt"
         summary_path.write_text(text + "\n", encoding="utf-8")
-        report = [
-            *batch_report(store, batch.name, out / "batch-report"),
-            *batch_report(store, modules.name, out / "batch-report"),
-        ]
+        report = [p for b in batches for p in batch_report(store, b.name, out / "batch-report")]
     echo("")
     echo(text)
     return DemoResult(
@@ -91,6 +99,7 @@ def run_demo(
         outcome=outcome,
         seconds=time.perf_counter() - start,
         module_outcome=module_outcome,
+        trigger_outcome=trigger_outcome,
     )
 
 

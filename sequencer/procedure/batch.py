@@ -6,18 +6,26 @@
     procedure: ../procedures/qualify-pa8.yaml   # relative to this file
     board_type: PA8                    # default for every board
     operator: A. Example               # default for every board
+    parameters: {points: 6}            # optional: procedure parameters for every board
     boards:
       - serial: NR-PA8-0001
         sim_board: sim/NR-PA8-0001.yaml          # optional: simulated board file (relative)
       - {serial: NR-PA8-0002, operator: B. Example}
+      - serial: NR-DGZ4-0003                     # a module of another type in the same batch:
+        board_type: DGZ4                         # its own procedure (relative to this file) and
+        procedure: ../procedures/digitizer.yaml  # its own parameters (the batch's are for the
+        parameters: {hist_points: 200000}        # batch's procedure; a board's own win over them)
 
-Serials must be unique; paths are resolved relative to the batch file.
+Serials must be unique; paths are resolved relative to the batch file.  Parameters are the
+procedure's own (``parameters:`` of the procedure file); a name the procedure does not have is
+refused when the board's plan is built.  What a run used (the resolved parameters) is kept with it.
 """
 
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
+from collections.abc import Mapping
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -29,8 +37,8 @@ from .checking import check_keys, require_keys
 from .expressions import MAX_TEXT
 from .textrules import MAX_NAME, text_problem
 
-BATCH_KEYS = ("batch", "procedure", "board_type", "operator", "description", "boards")
-BOARD_KEYS = ("serial", "board_type", "operator", "sim_board")
+BATCH_KEYS = ("batch", "procedure", "board_type", "operator", "description", "parameters", "boards")
+BOARD_KEYS = ("serial", "board_type", "operator", "sim_board", "procedure", "parameters")
 SERIAL = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
 
 
@@ -43,6 +51,8 @@ class BatchBoard:
     operator: str
     sim_board: str | None = None  # path of a simulated board file, resolved
     location: Location | None = None
+    procedure: str | None = None  # this board's own procedure (path, resolved); None: the batch's
+    parameters: Mapping[str, Any] = field(default_factory=dict)  # over the batch's parameters
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -54,6 +64,16 @@ class Batch:
     boards: tuple[BatchBoard, ...]
     description: str = ""
     source_path: str = ""
+    parameters: Mapping[str, Any] = field(default_factory=dict)  # for every board's procedure
+
+    def procedure_of(self, board: BatchBoard) -> str:
+        """The procedure file that qualifies ``board``: its own, else the batch's."""
+        return board.procedure or self.procedure
+
+    def parameters_of(self, board: BatchBoard) -> dict[str, Any]:
+        """The parameter overrides of ``board``'s plan: the batch's (unless the board has its own
+        procedure, which the batch's parameters were not written for), then the board's own."""
+        return {**({} if board.procedure else self.parameters), **board.parameters}
 
 
 def _text(data: YamlMap, key: str, problems: list[Problem], default: str = "") -> str:
@@ -93,6 +113,8 @@ def _board(
             problems.append(
                 Problem(entry.where(), f"board needs a {key} (here or at the top of the batch)")
             )
+    procedure = _text(entry, "procedure", problems) if "procedure" in entry else None
+    parameters = _parameters(entry, problems)
     sim = entry.get("sim_board")
     if sim is not None and (not isinstance(sim, str) or not sim.strip()):
         problems.append(
@@ -101,8 +123,49 @@ def _board(
     if len(problems) != before:
         return None
     return BatchBoard(
-        serial=serial, sim_board=str(base / sim) if sim else None, location=at, **values
+        serial=serial,
+        sim_board=str(base / sim) if sim else None,
+        location=at,
+        procedure=str(base / procedure) if procedure else None,
+        parameters=parameters,
+        **values,
     )
+
+
+def _parameters(data: YamlMap, problems: list[Problem]) -> dict[str, Any]:
+    """``parameters:`` of a batch or a board: a mapping of names to values (texts, numbers, lists)."""
+    raw = data.get("parameters")
+    if raw is None:
+        return {}
+    if not isinstance(raw, YamlMap):
+        problems.append(
+            Problem(data.where("parameters"), "parameters: needs a mapping such as {points: 6}")
+        )
+        return {}
+    out: dict[str, Any] = {}
+    for key, value in raw.items():
+        ok = isinstance(key, str) and _parameter_value(value)
+        if not ok:
+            problems.append(
+                Problem(
+                    raw.where(key),
+                    f"parameters: {key!r} needs a text, a number or a list of them",
+                )
+            )
+            continue
+        out[key] = list(value) if isinstance(value, YamlSeq) else value
+    return out
+
+
+def _parameter_value(value: Any) -> bool:
+    scalar = (str, int, float)
+    if isinstance(value, bool):
+        return False
+    if isinstance(value, YamlSeq | list):
+        return bool(value) and all(
+            isinstance(v, scalar) and not isinstance(v, bool) for v in value
+        )
+    return isinstance(value, scalar)
 
 
 def parse_batch_text(text: str | bytes, file: str) -> Batch:
@@ -120,6 +183,7 @@ def parse_batch_text(text: str | bytes, file: str) -> Batch:
     procedure = _text(data, "procedure", problems)
     defaults = {k: _text(data, k, problems) for k in ("board_type", "operator")}
     description = _text(data, "description", problems)
+    parameters = _parameters(data, problems)
     boards: list[BatchBoard] = []
     raw = data.get("boards")
     if "boards" in data and (not isinstance(raw, YamlSeq) or not raw):
@@ -148,6 +212,7 @@ def parse_batch_text(text: str | bytes, file: str) -> Batch:
         boards=tuple(boards),
         description=description,
         source_path=file,
+        parameters=parameters,
     )
 
 

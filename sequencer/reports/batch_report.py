@@ -3,7 +3,8 @@
 Which runs: for each board of the batch, its latest completed run (its latest run of any status if
 none completed).  A channel *passes* when its run completed and none of its values - nor the
 board's own values (``channel`` empty, e.g. ``leakage_nA``) - failed; yield = passing channels /
-channels.
+channels.  A run whose values all belong to the module as a whole (a coincidence unit) counts as
+one "channel", the module (``MODULE_CHANNEL``, printed ``module``).
 
 Outliers (robust, also inside the limits): a value is an outlier when
 ``|x - median| > outlier_sigma · 1.4826 · MAD`` over the batch's values of that quantity and output,
@@ -25,6 +26,8 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+
+from sequencer.quantities import MODULE_CHANNEL, judged_channels
 
 from .quantities import format_limits, format_number, quantity_rank
 from .reading import StoreReader
@@ -108,7 +111,7 @@ def batch_summary(
             if m.value is not None and math.isfinite(m.value):
                 groups[(m.quantity, m.output, value_group(m))].append((run.board, m))
         board_fails = [_reason(m) for m in ms if m.channel is None and m.verdict == "fail"]
-        for ch in sorted({m.channel for m in ms if m.channel is not None}):
+        for ch in judged_channels(m.channel for m in ms):  # a module as a whole: once
             channels += 1
             reasons = board_fails + [
                 _reason(m) for m in ms if m.channel == ch and m.verdict == "fail"
@@ -259,7 +262,8 @@ def failed_rows(s: BatchSummary) -> list[tuple[str, ...]]:
     rows: list[tuple[str, ...]] = []
     for f in s.failed:
         for i, reason in enumerate(f.reasons or ("",)):
-            who = (f.board, str(f.run_id), str(f.channel)) if i == 0 else ("", "", "")
+            channel = "module" if f.channel == MODULE_CHANNEL else str(f.channel)
+            who = (f.board, str(f.run_id), channel) if i == 0 else ("", "", "")
             rows.append((*who, reason))
     return rows
 

@@ -19,6 +19,8 @@ from typing import Any
 
 import numpy as np
 
+from sequencer.quantities import judged_channels
+
 from .certificate_context import decision_rule
 from .reading import StoreReader
 
@@ -60,9 +62,6 @@ class PulseShape:
     samples_mV: tuple[float, ...] = field(default=(), metadata={"hashed": False}, repr=False)
 
 
-#: The certificate "channel" of a run whose measurements all belong to the module as a whole (a
-#: coincidence unit, a digitizer's converter): numbered ``CH00``.
-MODULE_CHANNEL = 0
 
 
 class RunSnapshot:
@@ -80,9 +79,8 @@ class RunSnapshot:
         inputs = store.run_inputs(run_id)
         self.limit_quantities = _limit_quantities(inputs)
         self.decision_rule, self.coverage = decision_rule(inputs)
-        self.channels = sorted({int(m.channel) for m in self.measurements if m.channel is not None})
-        if not self.channels and self.measurements:
-            self.channels = [MODULE_CHANNEL]  # a module measured as a whole: one certificate
+        # a module measured as a whole gets one certificate, CH00
+        self.channels = judged_channels(m.channel for m in self.measurements)
 
 
 def _limit_quantities(inputs: Iterable[Any]) -> frozenset[str]:

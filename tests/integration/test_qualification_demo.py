@@ -1,7 +1,8 @@
 """``benchwright demo``: the invented batch qualified end to end on the simulator.
 
 The full demo takes about 95 s on 2 cores for five 8-channel boards with real-time bias ramps and 80
-certificates, and about 90 s more for the three scintillator modules: marked slow.  Its time goal (under two minutes) is measured by
+certificates, about 90 s more for the three scintillator modules and a few seconds for the
+trigger-chain modules (short scans): marked slow.  Its time goal (under two minutes) is measured by
 tests/benchmarks/bench_demo.py, not asserted here.  The quick test checks the scenario itself:
 invented serials, one fault of each kind, the batch file naming the shipped procedure, and a board
 of the inverted board type PA8N judged as such (issue 15).
@@ -14,7 +15,7 @@ import yaml
 from click.testing import CliRunner
 
 from sequencer.cli import attach_commands, cli
-from sequencer.demo import DEMO_BATCH, DEMO_MODULE_BATCH, demo_dir
+from sequencer.demo import DEMO_BATCH, DEMO_MODULE_BATCH, DEMO_TRIGGER_BATCH, demo_dir
 from sequencer.procedure import load_batch, load_procedure
 
 
@@ -50,6 +51,22 @@ def test_the_module_scenario_has_a_sensor_off_and_a_poor_fibre():
     assert len(off) == len(poor) == 1 and off != poor  # and one healthy module
 
 
+def test_the_trigger_scenario_has_a_wide_coincidence_unit_and_a_missing_code():
+    batch = load_batch(demo_dir() / DEMO_TRIGGER_BATCH)
+    unit, digitizer = batch.boards
+    assert load_procedure(batch.procedure_of(unit)).name == "coincidence-unit"
+    assert load_procedure(batch.procedure_of(digitizer)).name == "digitizer"
+    files = [yaml.safe_load((demo_dir() / f"{b.serial}.yaml").read_text()) for b in batch.boards]
+    assert [f["board_type"] for f in files] == ["IDC4", "DGZ4"]
+    # channel-less modules: the count alone
+    assert all(f["channels"] == 4 for f in files)
+    # IDC4 limits accept 18..22 ns for the 20 ns window (procedures/limits/IDC4.yaml)
+    assert files[0]["coincidence"]["resolving_extra_ns"] > 2.0
+    assert len(files[1]["converter"]["missing_codes"]) == 1
+    # short scans for the demo's time (kept with each run), smaller than the shipped defaults
+    assert batch.parameters_of(digitizer)["hist_points"] < 10**6
+
+
 @pytest.mark.slow
 def test_demo_runs_end_to_end(tmp_path):
     attach_commands()
@@ -57,12 +74,16 @@ def test_demo_runs_end_to_end(tmp_path):
     assert result.exit_code == 0, result.output  # a demonstration: 0 although boards fail
     out = tmp_path / "demo"
     assert (out / "results.db").is_file()
-    # 5 boards x 8 channels, then 3 modules x 2 sensors
-    assert len(list((out / "certificates").glob("*.pdf"))) == 40 + 6
-    assert len(list((out / "certificates").glob("*.html"))) == 40 + 6
+    # 5 boards x 8 channels, then 3 modules x 2 sensors, then a coincidence unit (one module
+    # certificate) and a digitizer (4 inputs)
+    assert len(list((out / "certificates").glob("*.pdf"))) == 40 + 6 + 5
+    assert len(list((out / "certificates").glob("*.html"))) == 40 + 6 + 5
     summary = (out / "batch-summary.txt").read_text()
     # 8 healthy + 7 (dead channel 5) + 7 (saturating channel 3) + 0 (crosstalk into every channel)
     # + 7 (PA8N, inverted outputs judged as such; channel 6 sits at -12 mV)
     assert "40 channels, 29 passed" in summary
     assert "LX-M2-0102" in summary and "LX-M2-0103" in summary  # the two failing modules
+    # the trigger chain: both modules fail on their fault, the unit counted once
+    assert "batch NR-2026-W14T: 2 boards, 5 channels, 0 passed" in summary
+    assert "resolving_time_ns" in summary and "missing_codes" in summary
     assert str(out / "certificates") in result.output

@@ -139,3 +139,14 @@ def test_output_baselines_per_output_and_their_errors(tmp_path):
     assert ":3:" in lines[0] and "unknown output 'x9'" in lines[0]
     assert ":4:" in lines[1] and "x1:" in lines[1] and "5000" in lines[1]
     assert ":5:" in lines[2] and "expected a mapping" in lines[2]
+
+
+def test_channels_as_a_count_take_the_defaults(tmp_path):
+    from drivers.sim import board_from_mapping
+    from drivers.sim.board import ChannelSpec
+
+    board = board_from_mapping({"serial": "X", "channels": 4})
+    assert board.channels == (ChannelSpec(),) * 4
+    for bad in (0, 100, True, "4"):
+        with pytest.raises(ConfigError, match=r"or a count 1\.\.99"):
+            board_from_mapping({"serial": "X", "channels": bad})

@@ -91,3 +91,37 @@ def test_batch_errors_located(tmp_path: Path):
     assert f"{path}:4:5: board needs a board_type (here or at the top of the batch)" in messages
     assert f"{path}:6:6: unknown key 'serail' in a batch board (did you mean 'serial'?)" in messages
     assert f"{path}:6:5: a batch board needs 'serial'" in messages
+
+
+def test_batch_parameters_and_a_boards_own_procedure(tmp_path: Path):
+    path = tmp_path / "batch.yaml"
+    path.write_text(
+        "batch: NR-T\nprocedure: coincidence-unit.yaml\nboard_type: IDC4\noperator: A\n"
+        "parameters: {delays: 21, window: 25 ns}\n"
+        "boards:\n  - serial: NR-1\n  - serial: NR-2\n    board_type: DGZ4\n"
+        "    procedure: digitizer.yaml\n    parameters: {hist_points: 200000, amplitudes: [1, 2]}\n"
+    )
+    batch = load_batch(path)
+    first, second = batch.boards
+    assert batch.procedure_of(first) == str(tmp_path / "coincidence-unit.yaml")
+    assert batch.procedure_of(second) == str(tmp_path / "digitizer.yaml")
+    assert batch.parameters_of(first) == {"delays": 21, "window": "25 ns"}
+    # a board with its own procedure takes only its own parameters
+    assert batch.parameters_of(second) == {"hist_points": 200000, "amplitudes": [1, 2]}
+
+
+def test_batch_parameters_errors_located(tmp_path: Path):
+    path = tmp_path / "batch.yaml"
+    path.write_text(
+        "batch: b\nprocedure: q.yaml\nboard_type: PA8\noperator: A\nparameters: [1, 2]\n"
+        "boards:\n  - {serial: NR-1, parameters: {points: true, top: {a: 1}, n: []}}\n"
+    )
+    with pytest.raises(ProcedureError) as exc:
+        load_batch(path)
+    messages = [str(p) for p in exc.value.problems]
+    assert f"{path}:5:13: parameters: needs a mapping such as {{points: 6}}" in messages
+    for key in ("points", "top", "n"):
+        assert any(
+            m.startswith(f"{path}:7:") and f"parameters: {key!r} needs a text" in m
+            for m in messages
+        ), key
