@@ -1,7 +1,8 @@
 """Simulated pulse generator: the test pulse injected into the board (through the channel switch).
 
 Settings (SI units on the wire) and their ``*RST`` defaults: amplitude 0.1 V (±5 V), width 10 ns,
-leading/trailing edges 1 ns, frequency 1 kHz (1 mHz - 50 MHz), burst of 1 cycle, burst off, trigger
+leading/trailing edges 1 ns, frequency 1 kHz (1 mHz - 1 GHz: a generator's sine range, so the
+effective bandwidth of a digitizer can be scanned past its corner), burst of 1 cycle, burst off, trigger
 source IMMediate, output off, function PULSe, offset 0 V (±5 V).  The board treats the pulse as a
 charge injection: its width and edges are kept and reported but do not change the board's pulse
 shape.  ``*TRG`` counts bus triggers.
@@ -84,7 +85,7 @@ class Pulser(SimInstrument):
         width = self._number_field("width_s", 1e-9, 1e-3)
         lead = self._number_field("leading_s", 1e-10, 1e-3)
         trail = self._number_field("trailing_s", 1e-10, 1e-3)
-        freq = self._number_field("frequency_hz", 1e-3, 50e6)
+        freq = self._number_field("frequency_hz", 1e-3, 1e9)
         offset = self._number_field("offset_V", -5.0, 5.0)
         return [
             command("[SOURce:]VOLTage[:LEVel][:IMMediate][:AMPLitude]", write=amp[0], query=amp[1]),

@@ -7,6 +7,7 @@ raise ValueError with a message that names the argument.
 
 from __future__ import annotations
 
+from .bandwidth import Bandwidth, aliased_frequency, effective_bandwidth
 from .codedensity import CodeDensity, code_density, dnl_from_transitions
 from .coincidence import (
     DelayCurve,
@@ -62,6 +63,7 @@ from .transfer import TransferFit, transfer_curve
 __all__ = [
     "ELEMENTARY_CHARGE_C",
     "LANDAU_MODE",
+    "Bandwidth",
     "BreakdownFit",
     "CodeDensity",
     "DelayCurve",
@@ -81,6 +83,7 @@ __all__ = [
     "TransferFit",
     "Walk",
     "accidental_rate_hz",
+    "aliased_frequency",
     "average_traces",
     "baseline_level",
     "baseline_rms",
@@ -98,6 +101,7 @@ __all__ = [
     "crrc_fwhm_tau",
     "dark_count_staircase",
     "dnl_from_transitions",
+    "effective_bandwidth",
     "enc_electrons",
     "enob",
     "estimate_frequency",

@@ -3,7 +3,8 @@
 References: an ideal N-bit converter's ENOB within 0.1 bit of N and SINAD 6.02N + 1.76 dB
 (REFERENCES.md "Digitizers", IEEE Std 1241); white noise σ (LSB) adds to the quantisation variance
 1/12, so ENOB falls by ½·log2(1 + 12σ²) (IEEE 1241 noise relation, from memory); a missing code has
-DNL −1 and is counted by the code-density test (IEEE 1241 histogram test, clause from memory).
+DNL −1 and is counted by the code-density test (IEEE 1241 histogram test, clause from memory); a
+one-pole input of corner f_c has |H(f_c)| = 1/√2, −3.0103 dB (circuit theory, standard).
 """
 
 from __future__ import annotations
@@ -65,3 +66,20 @@ def test_missing_codes_fail_the_digitizer(tmp_path):
     assert values["missing_codes"].value == 2 and values["missing_codes"].verdict == "fail"
     assert values["dnl_max_lsb"].value == pytest.approx(1.0)  # DNL −1 at a missing code
     assert values["dnl_max_lsb"].verdict == "fail"
+
+
+@pytest.mark.parametrize("corner_mhz", [150.0, 250.0])
+def test_bandwidth_of_a_one_pole_input(tmp_path, corner_mhz):
+    board = digitizer_file(tmp_path, "NR-DGZ4-9003", noise_lsb=0.3, bandwidth_mhz=corner_mhz)
+    values = run_input_1(board, tmp_path / "r.db")
+    bandwidth = values["bandwidth_mhz"]
+    # interpolated in (log f, dB) between scan points ~50 MHz apart: within 3 % (our tolerance)
+    assert bandwidth.value == pytest.approx(corner_mhz, rel=0.03)
+    assert bandwidth.verdict == ("fail" if corner_mhz < 200 else "pass")  # DGZ4 limit: >= 200 MHz
+
+
+def test_an_input_wider_than_the_scan_is_not_given_a_bandwidth(tmp_path):
+    # bandwidth_mhz 0: unlimited; the gain never reaches -3 dB up to 401.3 MHz
+    values = run_input_1(digitizer_file(tmp_path, "NR-DGZ4-9004"), tmp_path / "r.db")
+    assert values["bandwidth_mhz"].value is None  # stored NaN reads back empty, never a number
+    assert values["bandwidth_mhz"].verdict == "fail"

@@ -1,5 +1,6 @@
-"""Handlers of the digitizer analyses (``analyse.sine``, ``analyse.code_density``): the traces of a
-digitizer under test, captured while the pulser runs in sine mode, judged as IEEE 1241 figures.
+"""Handlers of the digitizer analyses (``analyse.sine``, ``analyse.code_density``,
+``analyse.bandwidth``): the traces of a digitizer under test, captured while the pulser runs in sine
+mode, judged as IEEE 1241 figures.
 
 The code-density test needs the converter's own codes: they are recovered from the calibrated
 samples as ``(mV − offset)/(range/2^bits) + 2^(bits−1)``, and refused when the samples are not on
@@ -113,4 +114,38 @@ def analyse_code_density(ctx: RunContext, step: PlannedStep) -> StepResult:
     )
 
 
-HANDLERS = {"analyse.sine": analyse_sine, "analyse.code_density": analyse_code_density}
+def analyse_bandwidth(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """Amplitude of each record (four-parameter fit started at the sine's alias) against its
+    frequency; the −3 dB point of the mean amplitude per frequency (``an.effective_bandwidth``)."""
+    items = _records(ctx, step)
+    x = step.args["x"]
+    amplitudes: dict[float, list[float]] = {}
+    for item in items:
+        if x not in item.labels:
+            raise DigitizerInputError(f"sweep variable {x!r} is not among the labels")
+        f = float(item.labels[x])
+        fs = 1.0 / item.trace.dt_s
+        fit = an.fit_sine_4(item.trace.mV, fs, an.aliased_frequency(f, fs))
+        if not fit.converged:
+            raise DigitizerInputError(f"the sine fit did not converge at {f / 1e6:g} MHz")
+        amplitudes.setdefault(f, []).append(fit.amplitude)
+    freqs = sorted(amplitudes)
+    result = an.effective_bandwidth(freqs, [float(np.mean(amplitudes[f])) for f in freqs])
+    results: dict[str, object] = {
+        "series": {"frequency_hz": result.frequencies_hz.tolist(), "gain_db": result.gain_db.tolist()}
+    }
+    if result.reason:  # NaN, judged fail, the reason stored with the step
+        results["error"] = result.reason
+    return StepResult(
+        results=results,
+        measurements=[
+            measure(ctx, step, "bandwidth_mhz", result.frequency_3db_hz / 1e6, output=None)
+        ],
+    )
+
+
+HANDLERS = {
+    "analyse.sine": analyse_sine,
+    "analyse.code_density": analyse_code_density,
+    "analyse.bandwidth": analyse_bandwidth,
+}
