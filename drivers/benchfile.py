@@ -17,6 +17,11 @@ native code that pyvisa would load into this process, so a file alone never choo
 must also be allowed by whoever runs the command (``allowed_visa_libraries``, from the command
 line's ``--allow-visa-library PATH``).  Text values (address, expect_id, visa_library) may hold no
 control characters: a newline in an address would end the VISA resource string early.
+
+``lab: DIR`` (optional) names the lab's own folder of board types and limit sets (``DIR/boards``,
+``DIR/limits``; ``sequencer.procedure.board_choice.LabFiles``), resolved against the bench file's
+folder like a dialect path and checked to be a folder at load.  The environment variable
+``BENCHWRIGHT_LAB`` wins over it when set.
 """
 
 from __future__ import annotations
@@ -98,6 +103,8 @@ class BenchSpec:
     #: where things stand in the file: ``instruments`` (the key), ``<role>`` (the role's key) and
     #: ``<role>.<key>`` (a value); empty for a bench built from a plain mapping
     locations: Mapping[str, Location] = field(default_factory=dict, repr=False, compare=False)
+    #: the lab's own folder of board types and limit sets (``lab:``), resolved; None when not named
+    lab: Path | None = None
 
     def where(self, role: str | None = None, key: str | None = None) -> Location:
         """The place in the bench file to point at: the value of ``role``'s ``key`` if it is written,
@@ -165,7 +172,8 @@ def bench_from_mapping(
                 )
             ]
         )
-    _unknown(data, ("bench", "instruments"), "key", problems, source)
+    _unknown(data, ("bench", "instruments", "lab"), "key", problems, source)
+    lab = _lab(data, problems, source, base_dir) if "lab" in data else None
     name = data.get("bench")
     if not isinstance(name, str) or not name.strip():
         problems.append(Problem(_where(data, "bench", source), "'bench:' must name the bench"))
@@ -194,8 +202,26 @@ def bench_from_mapping(
     if problems:
         raise ConfigError(problems)
     return BenchSpec(
-        name=name, instruments=instruments, source=source, locations=_locations(data, entries)
+        name=name, instruments=instruments, source=source, locations=_locations(data, entries),
+        lab=lab,
     )
+
+
+def _lab(data: Mapping, problems: list[Problem], source: str, base_dir: Path | None) -> Path | None:
+    """The ``lab:`` folder, relative paths against the bench file's folder.  Checked to exist only
+    for a bench read from a file (``base_dir``): a recorded copy names a folder of another time."""
+    value = data.get("lab")
+    where = _where(data, "lab", source)
+    if not isinstance(value, str) or not value.strip() or _first_control(value) is not None:
+        problems.append(Problem(where, "lab: must be the path of a folder (with boards/, limits/)"))
+        return None
+    folder = Path(value.strip()).expanduser()
+    if base_dir is not None:
+        folder = folder if folder.is_absolute() else base_dir / folder
+        if not folder.is_dir():
+            problems.append(Problem(where, f"lab folder {value!r} not found ({folder})"))
+            return None
+    return folder
 
 
 def _locations(data: Mapping, entries: Mapping) -> dict[str, Location]:

@@ -159,7 +159,8 @@ def _summarise(run_id: int, outcome: Any) -> int:
 @click.option("--repeat", "repeat", type=int, default=None, metavar="RUN_ID", help="Rerun the procedure text stored for that run.")
 @click.option("--board-type", default=None,
               help="Board type of this board (default: the procedure's); its limits judge the run. "
-                   "A lab's own types: BENCHWRIGHT_LAB=DIR (DIR/boards, DIR/limits).")
+                   "A lab's own types: 'lab: DIR' in the bench file or BENCHWRIGHT_LAB=DIR "
+                   "(DIR/boards, DIR/limits; the environment wins).")
 @click.option("--log", "log_path", type=click.Path(dir_okay=False), default=None, help="Append a plain-text event log here.")
 @visa_library_option
 @override_option
@@ -194,10 +195,10 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
             serial = record.board
         if not serial:
             raise click.UsageError("give --board SERIAL")
-        from sequencer.procedure.board_choice import LabFiles
-
-        plan_ = compose.plan_for(proc, serial, board_type=board_type, stored=stored,
-                                 lab=LabFiles.from_env(env()))
+        lab = compose.lab_for(env(), bench_path, allowed_visa_libraries=allow_visa_library)
+        if lab.warning():
+            warn(lab.warning())
+        plan_ = compose.plan_for(proc, serial, board_type=board_type, stored=stored, lab=lab)
         if sim_board:
             compose.check_sim_board(plan_, sim_board)
         request = compose.RunRequest(
@@ -249,10 +250,9 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
             raise StoreError(f"run {run_id} is completed; a completed run is never resumed (use run --repeat)")
         stored = store.run_inputs(run_id)
         proc = rerun_inputs.stored_procedure(record, stored, lambda line: click.echo(f"warning: {line}", err=True))
-        from sequencer.procedure.board_choice import LabFiles
-
         plan_ = compose.plan_for(proc, record.board, board_type=record.board_type or None, stored=stored,
-                                 lab=LabFiles.from_env(env()))
+                                 lab=compose.lab_for(env(), bench_path,
+                                                     allowed_visa_libraries=allow_visa_library))
         request = compose.RunRequest(operator=operator or record.operator, unattended=yes,
                                      acknowledge=acknowledge_on_terminal(), prompt=prompt_on_terminal(),
                                      override_instrument_checks=override_instrument_checks,

@@ -16,7 +16,6 @@ from sequencer.cli_common import (
     handles_errors,
     visa_library_option,
 )
-from sequencer.procedure.board_choice import LabFiles
 
 
 def _mount_on_terminal(bench: bool) -> Any:
@@ -104,6 +103,9 @@ def batch(
     terminal = sys.stdin.isatty()
     if bench_path and not yes and not terminal:
         raise click.UsageError("a bench batch needs a terminal to prompt for each board, or --yes")
+    lab = compose.lab_for(env(), bench_path, allowed_visa_libraries=allow_visa_library)
+    if lab.warning():
+        click.echo(f"warning: {lab.warning()}", err=True)
     options = BatchOptions(
         bench_path=bench_path,
         allowed_visa_libraries=allow_visa_library,
@@ -115,7 +117,7 @@ def batch(
         acknowledge=acknowledge_on_terminal(),
         prompt=prompt_on_terminal(),
         echo=click.echo,
-        lab=LabFiles.from_env(env()),
+        lab=lab,
         override_instrument_checks=override_instrument_checks,
     )
     with compose.open_store(db, env()) as store:

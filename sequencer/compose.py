@@ -167,6 +167,17 @@ def check_option_text(option: str, value: str, *, max_length: int = MAX_NAME) ->
         raise OptionError(problem)
 
 
+def lab_for(
+    env: Mapping[str, str], bench_path: str | None, *, allowed_visa_libraries: Sequence[str] = ()
+) -> LabFiles:
+    """The lab's folder of board types and limit sets for a run (``board_choice`` states the
+    precedence): ``BENCHWRIGHT_LAB``, else the ``lab:`` of the bench file at ``bench_path``."""
+    if not bench_path:
+        return LabFiles.from_env(env)
+    spec = load_bench(bench_path, allowed_visa_libraries=allowed_visa_libraries)
+    return LabFiles.named(env, spec.lab, spec.source)
+
+
 MISSING_BENCH = "give --bench FILE (a real bench) or --sim BOARD.yaml (a simulated board)"
 
 

@@ -5,10 +5,16 @@ The run's board type decides the board (channels, outputs, nominal gains, polari
 procedure names its limits by board type (``limits: PA8``), the limit set: the run's type's limits,
 with the procedure's inline ``set:`` on top.
 
-A lab keeps its own board types and limit sets in a folder of its own, named once (the
-environment variable ``BENCHWRIGHT_LAB``, read by the command line and passed down): files in
+A lab keeps its own board types and limit sets in a folder of its own, named once: in the bench
+file (``lab: DIR``, relative to the bench file's folder) or in the environment variable
+``BENCHWRIGHT_LAB`` (both read by the command line and passed down).  Files in
 ``<folder>/boards/<type>.yaml`` and ``<folder>/limits/<type>.yaml`` are found before the shipped
 ones of the same name.
+
+Precedence: ``BENCHWRIGHT_LAB`` when set, else the bench file's ``lab:``, else the shipped files
+only.  The environment wins as it does over any file setting: one shell can try another folder
+without editing the bench file (the command line warns that it shadows the bench file's).  Either
+way the run stores the board-type and limit texts it used, so the choice is never lost.
 """
 
 from __future__ import annotations
@@ -36,11 +42,34 @@ class LabFiles:
     """Where a lab keeps its own board types and limit sets (None: only the shipped ones)."""
 
     folder: Path | None = None
+    origin: str = ""  # who named it: LAB_ENV or "bench file <path>"; "" when none
+    #: the bench file's folder when the environment named another one (for a warning)
+    shadowed: Path | None = None
 
     @classmethod
     def from_env(cls, env: Mapping[str, str]) -> LabFiles:
         value = env.get(LAB_ENV, "").strip()
-        return cls(folder=Path(value) if value else None)
+        return cls(folder=Path(value), origin=LAB_ENV) if value else cls()
+
+    @classmethod
+    def named(cls, env: Mapping[str, str], bench_lab: Path | None, bench_source: str = "") -> LabFiles:
+        """The lab folder of a run (module docstring): ``BENCHWRIGHT_LAB`` when set, else the
+        bench file's ``lab:`` (``bench_lab``, already resolved), else none."""
+        from_env = cls.from_env(env)
+        if from_env.folder is None:
+            if bench_lab is None:
+                return cls()
+            return cls(folder=bench_lab, origin=f"bench file {bench_source}".strip())
+        if bench_lab is not None and bench_lab.resolve() != from_env.folder.resolve():
+            return dataclasses.replace(from_env, shadowed=bench_lab)
+        return from_env
+
+    def warning(self) -> str:
+        """What the command line says when the environment shadows the bench file's folder."""
+        if self.shadowed is None:
+            return ""
+        return (f"{LAB_ENV}={self.folder} is used; the bench file's lab: {self.shadowed} is not "
+                f"(the environment wins; unset {LAB_ENV} to use the bench file's)")
 
     def find(self, kind: str, name: str) -> Path:
         """``<lab>/<kind>/<name>.yaml`` when it exists, else the shipped file (``kind``: boards,
