@@ -137,7 +137,10 @@ class Runner:
             if not isinstance(exc, BenchwrightError | KeyboardInterrupt):
                 failure.__cause__ = exc
         unsafe = guard.make_safe(ctx.path) if failure is not None else ""
-        cleanup_error = self._cleanup(ctx, aborted=failure is not None)
+        try:
+            cleanup_error = self._cleanup(ctx, aborted=failure is not None)
+        except BaseException as exc:  # a subscriber failed on a cleanup step's failure: the
+            cleanup_error = self._as_abort(exc, ctx.path)  # safe state below still runs
         if failure is not None or guard.touched:
             unsafe = unsafe or guard.make_safe("")
         if failure is None and (cleanup_error or unsafe):

@@ -274,3 +274,37 @@ def test_safety_events_the_store_refused_are_reported_not_lost_silently():
     (warning,) = out.warnings
     assert "safety event(s) not recorded" in warning and "safe_state" in warning
     assert "database is locked" in warning
+
+
+def test_a_subscriber_failing_in_the_cleanup_block_does_not_skip_the_safe_state():
+    # The main block leaves the bias live at 5 V (the safe state at the end brings it down).  The
+    # store refuses the cleanup step's record -- and again the record of its failure (a run taken
+    # over by another process: every write refused).  The run must still end at 0 V, output off.
+    from sequencer.errors import LeaseLost
+    from sequencer.events import StepFinished
+
+    state = BenchState()
+
+    def refusing_store(event):
+        if isinstance(event, StepFinished) and event.path.startswith("end/"):
+            raise LeaseLost("run 3 was taken over by another process")
+
+    p = plan(
+        [
+            step("hv/limit", "bias.limit", current=50.0),
+            step("hv/up", "bias.ramp", volts=5.0, rate=5.0),
+            step("end/pause", "wait", block="cleanup", seconds=0.0),
+        ],
+        hazards=("bias",),
+        max_bias_volts=5.0,
+    )
+    options = RunOptions(
+        operator="A. Technician", ramp_poll_s=0.001, interlock_interval_s=0.01, unattended=True
+    )
+    runner = Runner(p, scripted_bench(state), run_id=3, subscribers=[refusing_store],
+                    options=options)
+    with pytest.raises(RunAborted, match="taken over by another process"):
+        runner.run()
+    cmds = state.sent("bias")
+    assert cmds.index(VOLT + " 0") > cmds.index(VOLT + " 5")  # brought down after going up
+    assert state.bias["output"] is False and state.bias["setpoint"] == 0.0
