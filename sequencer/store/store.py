@@ -20,8 +20,8 @@ from sqlalchemy.exc import SQLAlchemyError
 from sequencer.errors import StoreError
 from sequencer.events import Event, RunInfo
 from sequencer.inputs import RunInput
-from sequencer.store import lease, lifecycle, queries
-from sequencer.store.connect import database_exists, open_engine, writer
+from sequencer.store import bench_lease, lease, lifecycle, queries
+from sequencer.store.connect import DEFAULT_BUSY_TIMEOUT_S, database_exists, open_engine, writer
 from sequencer.store.faults import as_store_error, refuse_damaged
 from sequencer.store.liveness import this_process
 from sequencer.store.migrate import current_revisions, ensure_schema, refuse_old_schema
@@ -56,7 +56,14 @@ class Store:
         self._recorder = Recorder(engine)
 
     @classmethod
-    def open(cls, url: str, *, create: bool = True, upgrade: bool | None = None) -> Store:
+    def open(
+        cls,
+        url: str,
+        *,
+        create: bool = True,
+        upgrade: bool | None = None,
+        busy_timeout_s: float = DEFAULT_BUSY_TIMEOUT_S,
+    ) -> Store:
         """Connect, create or upgrade the schema; ``StoreError`` if unreachable or newer.
 
         ``create=False`` refuses, with ``no database at URL``, a database that is not there or holds
@@ -64,12 +71,13 @@ class Store:
         says whether an older schema may be carried forward on the way in: the read-only commands
         (``runs``, ``export``, ``verify``, ``certify``, ...) leave it False, so opening never writes;
         an older database is then refused with the command that upgrades it.  ``run --repeat`` and
-        ``resume`` write into an existing database and pass ``upgrade=True``.
+        ``resume`` write into an existing database and pass ``upgrade=True``.  ``busy_timeout_s``
+        (SQLite): how long a statement waits for another writer's lock (``safe`` waits briefly).
         """
         if not create and not database_exists(url):
             raise StoreError(f"no database at {url}")
         may_upgrade = create if upgrade is None else upgrade
-        engine = open_engine(url)
+        engine = open_engine(url, busy_timeout_s=busy_timeout_s)
         where = engine.url.render_as_string(hide_password=True)
         try:
             with _as_store_error(f"cannot open the results database {where}"):
@@ -160,6 +168,17 @@ class Store:
         (the run was taken over, or is no longer running)."""
         with self._write(f"cannot refresh the heartbeat of run {run_id}") as conn:
             return lease.beat(conn, run_id, lease_token, datetime.now(UTC))
+
+    def bench_holders(self, bench: str) -> list[bench_lease.BenchHolder]:
+        """The runs recorded as running on ``bench``, each judged by its lease (live or not)."""
+        with self._read(f"cannot read the runs on bench {bench}") as conn:
+            return bench_lease.holders(conn, bench, this_process(), datetime.now(UTC))
+
+    def take_bench(self, holder: bench_lease.BenchHolder) -> None:
+        """``safe --take-over``: the run ``holder`` becomes interrupted under a revoked lease,
+        audited (``bench_lease.take_over``)."""
+        with self._write(f"cannot record the take-over of run {holder.run_id}") as conn:
+            bench_lease.take_over(conn, holder, this_process(), datetime.now(UTC))
 
     def add_note(self, run_id: int, text: str, author: str) -> None:
         """Append an operator's note to a run (any status; notes are additions, never edits)."""
