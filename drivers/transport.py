@@ -37,7 +37,13 @@ from pyvisa import constants
 from pyvisa.errors import InvalidSession, VisaIOError
 
 from drivers import sockio
-from drivers.errors import ConnectionClosed, ConnectionRefused, InstrumentTimeout, TransportError
+from drivers.errors import (
+    ConnectionClosed,
+    ConnectionRefused,
+    InstrumentTimeout,
+    ProtocolError,
+    TransportError,
+)
 from drivers.link_faults import MAPPED_ERRORS as _MAPPED_ERRORS
 from drivers.link_faults import ErrorMap as _ErrorMap
 from drivers.link_faults import check_connected as _check_connected
@@ -208,6 +214,12 @@ class VisaTransport:
             data = self._pyvisa_read_bytes(self._visa(resource), n)
         except _MAPPED_ERRORS as exc:
             raise self._translate(exc, self._last_command) from exc
+        if len(data) != n and _message_based(self.address):
+            raise ProtocolError(  # the link marked the message's end: the rest will not come
+                f"the message ended after {len(data)} of {n} bytes (a short block)",
+                address=self.address,
+                command=self._last_command,
+            )
         if len(data) != n:
             raise InstrumentTimeout(
                 f"expected {n} bytes, got {len(data)}",
@@ -218,7 +230,9 @@ class VisaTransport:
 
     def _pyvisa_read_bytes(self, resource: Any, n: int) -> bytes:
         if _message_based(self.address):  # termination character already off (see _open_resource)
-            return resource.read_bytes(n, break_on_termchar=False)
+            # stop at END: pyvisa-py's HiSLIP read past a DataEnd returns b"" at once, so reading
+            # on for bytes a short block never sends would spin in pyvisa's loop forever
+            return resource.read_bytes(n, break_on_termchar=True)
         attr = constants.ResourceAttribute.termchar_enabled
         resource.set_visa_attribute(attr, constants.VI_FALSE)
         try:
@@ -278,12 +292,21 @@ class VisaTransport:
         pyvisa-py's own ``clear`` reads until the link has been quiet for 0.1 s, which never
         happens while an instrument floods it (an endless ``#0`` block).  An instrument still
         sending after the timeout is reported as :class:`ConnectionClosed`, so the session reopens
-        the link (dropping the flood) before its next use."""
+        the link (dropping the flood) before its next use.
+
+        On an INSTR link the device is cleared (VXI-11 ``device_clear``, HiSLIP's device-clear
+        exchange), which discards its pending output.  pyvisa-py's HiSLIP client first needs the
+        unread rest of a reply it began (a malformed block's tail) read off the channel, or its
+        clear reads that tail as the acknowledgement and fails ("protocol synchronization error"):
+        it is read to the message's end here, bounded by the link timeout."""
         resource = self._live()
         sock = _socket_of(resource)
         if sock is None:
             with self._mapped("<clear>"):
-                self._visa(resource).clear()
+                visa = self._visa(resource)
+                if _partial_message_pending(resource):
+                    visa.read_raw()
+                visa.clear()
             return
         pending = getattr(_pyvisa_py_session(resource), "_pending_buffer", None)
         if isinstance(pending, bytearray):
@@ -447,6 +470,17 @@ def _socket_of(resource: Any) -> socket.socket | None:
     except InvalidSession:
         return None
     return interface if isinstance(interface, socket.socket) else None
+
+
+def _partial_message_pending(resource: Any) -> bool:
+    """True when pyvisa-py's HiSLIP client has begun a reply and not read it to its DataEnd
+    (its ``_payload_remaining``, a private attribute of pyvisa-py 0.8; absent elsewhere)."""
+    try:
+        interface = getattr(_pyvisa_py_session(resource), "interface", None)
+    except InvalidSession:
+        return False
+    remaining = getattr(interface, "_payload_remaining", 0)
+    return isinstance(remaining, int) and remaining > 0
 
 
 def _rpc_socket_of(resource: Any) -> socket.socket | None:
