@@ -78,6 +78,7 @@ def open_session(
         error_query=common("next_error", "SYSTem:ERRor:NEXT?"),
         clear_command=common("clear", "*CLS"),
         opc_query=common("operation_complete", "*OPC?"),
+        policy=dialect.messages,
     )
 
 

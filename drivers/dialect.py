@@ -19,6 +19,7 @@ from drivers.capabilities import faked_state_problems
 from drivers.dialect_ops import Operation, Reader, check_template, hint, map_value, read_value_maps
 from drivers.dialect_waveform import WaveformSpec, read_waveform
 from drivers.errors import ConfigError, Location, Problem
+from drivers.scpi.messages import PLAIN, MessagePolicy
 from drivers.scpi.templates import ExpressionError, Template
 from drivers.yamlsafe import YamlMap, YamlSeq, load_yaml, read_bounded
 
@@ -102,7 +103,8 @@ OPERATIONS: dict[str, dict[str, OpSpec]] = {
 TABLES: dict[str, tuple[str, ...]] = {"switch": ("outputs",)}
 
 _TOP_KEYS_1 = ("dialect", "version", "common", "roles", "binary")
-_TOP_KEYS_2 = ("dialect", "format", "version", "check_errors", "common", "roles")
+_TOP_KEYS_2 = ("dialect", "format", "version", "check_errors", "messages", "common", "roles")
+_MESSAGE_KEYS = ("skip_unchanged", "join", "errors_per_group")
 _ROLE_KEYS_2 = ("at_open", "values", "waveform")
 _BINARY_KEYS = ("data_format", "kind", "byte_order")
 GENERIC = "generic"
@@ -139,6 +141,7 @@ class Dialect:
     version: int = 1
     format: int = 1
     check_errors: bool = True
+    messages: MessagePolicy = PLAIN  # round-trip savings the instrument allows
     operations: Mapping[tuple[str, str], Operation] = field(default_factory=dict)
     tables: Mapping[tuple[str, str], Mapping[str, int]] = field(default_factory=dict)
     binary: BinaryFormat = BinaryFormat()
@@ -249,6 +252,7 @@ def parse_dialect(text: str | bytes, source: str) -> Dialect:
             Problem(data.where("check_errors"), "'check_errors:' must be true or false")
         )
         check = True
+    messages = _read_messages(data, problems)
     parts = _Parts()
     common = data.get("common", YamlMap())
     if _is_map(common, data, "common", problems):
@@ -271,6 +275,7 @@ def parse_dialect(text: str | bytes, source: str) -> Dialect:
     if problems:
         raise ConfigError(problems)
     return Dialect(name=name, source=source, version=version, format=fmt, check_errors=check,
+                   messages=messages,
                    operations=parts.operations, tables=parts.tables, binary=binary,
                    open_commands=parts.open_commands, waveform=parts.waveform,
                    roles=tuple(r for r in OPERATIONS if r != "common" and r in (roles or {})))  # fmt: skip
@@ -363,6 +368,23 @@ def _read_table(
         else:
             out[str(key)] = value
     return out
+
+
+def _read_messages(data: YamlMap, problems: list[Problem]) -> MessagePolicy:
+    """The ``messages:`` section (format 2): which round-trip savings the instrument allows
+    (:mod:`drivers.scpi.messages`); each key true or false, all false when absent."""
+    entry = data.get("messages")
+    if entry is None or not _is_map(entry, data, "messages", problems):
+        return PLAIN
+    _unknown_keys(entry, _MESSAGE_KEYS, "key of messages", problems)
+    flags: dict[str, bool] = {}
+    for key in _MESSAGE_KEYS:
+        value = entry.get(key, False)
+        if not isinstance(value, bool):
+            problems.append(Problem(entry.where(key), f"'messages.{key}:' must be true or false"))
+            value = False
+        flags[key] = value
+    return MessagePolicy(**flags)
 
 
 def _read_binary(

@@ -22,6 +22,9 @@ class RoleDriver:
     """
 
     role = ""
+    #: Whether unchanged settings may be skipped (the dialect's ``messages.skip_unchanged``).  A
+    #: role whose state a safety decision rests on (the bias supply) sets False: always sent.
+    tracks_settings = True
 
     def __init__(
         self, session: ScpiSession, dialect: Dialect, spec: InstrumentSpec | None = None
@@ -51,8 +54,9 @@ class RoleDriver:
     ) -> None:
         operation = self.dialect.operation(self.role, op)
         values = {**self.settings, **fields}
+        track = self.tracks_settings and not (key or "").endswith(":output")
         perform(self.session, self.dialect, operation, values, reapply=reapply, key=key,
-                timeout_ms=timeout_ms)  # fmt: skip
+                timeout_ms=timeout_ms, track=track)  # fmt: skip
         if op.startswith("set_") and fields:
             self.settings[op[4:]] = list(fields.values())[-1]
 

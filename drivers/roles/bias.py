@@ -34,6 +34,7 @@ class BiasSupply(RoleDriver):
     """Volts, V/s and µA in the API; V, V/s and A on the wire."""
 
     role = "bias"
+    tracks_settings = False  # a safety decision reads the supply back; nothing is skipped
 
     def __init__(
         self, session: ScpiSession, dialect: Dialect, spec: InstrumentSpec | None = None

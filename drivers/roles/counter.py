@@ -46,8 +46,9 @@ class Counter(RoleDriver):
             timeout_ms = int(self.gate_s() * 1000) + max(
                 GATE_MARGIN_MS, self.session.transport.timeout_ms
             )
-            self._write("select_channel", channel=int(channel))
-            self._write("start", reapply=False)
+            with self.session.group():
+                self._write("select_channel", channel=int(channel))
+                self._write("start", reapply=False)
             return int(self._query("counts", timeout_ms=timeout_ms))
 
     def rate_hz(self, channel: int) -> float:

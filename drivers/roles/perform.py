@@ -32,8 +32,10 @@ def perform(
     reapply: bool = True,
     key: str | None = None,
     timeout_ms: int | None = None,
+    track: bool = True,
 ) -> Any:
-    """Run ``op`` with ``values`` (fields and current settings); the last query's parsed reply."""
+    """Run ``op`` with ``values`` (fields and current settings); the last query's parsed reply.
+    ``track``: whether its writes may be skipped when unchanged (see :meth:`ScpiSession.write`)."""
     result: Any = None
     wait_ms = op.timeout_ms or timeout_ms
     with session.lock:
@@ -49,7 +51,7 @@ def perform(
             if step.action == "write":
                 step_key = key if index == 0 or key is None else f"{key}#{index}"
                 session.write(text, reapply=reapply, key=step_key, check=op.check_errors,
-                              timeout_ms=step_ms)  # fmt: skip
+                              timeout_ms=step_ms, track=track)  # fmt: skip
             elif step.action == "query":
                 result = query(session, text, op.returns or "str", _rule(op, step), step_ms)
             else:

@@ -57,8 +57,10 @@ class Scope(RoleDriver):
         span = check_range("range_mV", range_mV, 0.0, 1e6)
         if span <= 0:
             raise ValueError("range_mV must be above 0")
-        self._write("set_range", input=n, volts=span * 1e-3)
-        self._write("set_offset", input=n, volts=check_finite("offset_mV", offset_mV) * 1e-3)
+        offset = check_finite("offset_mV", offset_mV) * 1e-3
+        with self.session.group():
+            self._write("set_range", input=n, volts=span * 1e-3)
+            self._write("set_offset", input=n, volts=offset)
 
     def set_timebase(
         self, *, sample_rate_hz: float, points: int, pretrigger_ns: float = 0.0
@@ -69,21 +71,22 @@ class Scope(RoleDriver):
             raise ValueError("sample_rate_hz must be above 0")
         if int(points) != points or not 1 <= points <= 1 << 28:
             raise ValueError(f"points={points!r} must be a whole number from 1")
+        delay = check_range("pretrigger_ns", pretrigger_ns, 0.0, 1e12) * 1e-9
         # the record length first: a dialect may compute the time base from it
-        self._write("set_points", count=int(points))
-        self._write("set_sample_rate", hertz=rate)
-        self._write(
-            "set_trigger_delay",
-            seconds=check_range("pretrigger_ns", pretrigger_ns, 0.0, 1e12) * 1e-9,
-        )
+        with self.session.group():
+            self._write("set_points", count=int(points))
+            self._write("set_sample_rate", hertz=rate)
+            self._write("set_trigger_delay", seconds=delay)
 
     def sample_rate_hz(self) -> float:
         return float(self._query("get_sample_rate"))
 
     def set_trigger(self, source: str, level_mV: float = 0.0) -> None:
         """Trigger source (``EXTernal``, ``CHANnel1``..., ``IMMediate``) and level in mV."""
-        self._write("set_trigger_source", source=check_word("source", source))
-        self._write("set_trigger_level", volts=check_finite("level_mV", level_mV) * 1e-3)
+        word, volts = check_word("source", source), check_finite("level_mV", level_mV) * 1e-3
+        with self.session.group():
+            self._write("set_trigger_source", source=word)
+            self._write("set_trigger_level", volts=volts)
 
     def set_averages(self, count: int) -> None:
         """Acquisitions averaged per record (1 = none)."""

@@ -41,10 +41,14 @@ class Switch(RoleDriver):
 
     def close_channels(self, channels: Sequence[int]) -> None:
         """Close raw channel-list entries, e.g. ``[1203, 103]``."""
-        self._write("close", reapply=False, channels=format_channel_list(channels))
+        with self.session.lock:
+            self._write("close", reapply=False, channels=format_channel_list(channels))
+            self.session.forget("switch:")  # a raw close may undo a remembered route
 
     def open_channels(self, channels: Sequence[int]) -> None:
-        self._write("open", reapply=False, channels=format_channel_list(channels))
+        with self.session.lock:
+            self._write("open", reapply=False, channels=format_channel_list(channels))
+            self.session.forget("switch:")
 
     def open_all(self) -> None:
         with self.session.lock:

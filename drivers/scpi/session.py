@@ -10,6 +10,10 @@
   transport) and the cached settings re-applied -- outputs are never switched on again by this layer.
 * One re-entrant lock per instrument: every public method holds it, and a role holds it around a
   compound operation (``with session.lock:``), so two threads never interleave on one link.
+* Fewer round trips (:mod:`drivers.scpi.messages`, as the dialect allows): unchanged settings are not
+  sent again, the error query joins its command's message, and a :meth:`ScpiSession.group` of
+  configuring commands goes out as one message with one error check.  ``messages`` counts the program
+  messages sent (one exchange each), ``skipped`` the settings not re-sent.
 """
 
 from __future__ import annotations
@@ -17,7 +21,6 @@ from __future__ import annotations
 import contextlib
 import threading
 from collections.abc import Callable, Iterator
-from dataclasses import dataclass
 from types import TracebackType
 from typing import Protocol, TypeVar
 
@@ -41,6 +44,17 @@ from drivers.scpi.blockread import (
     read_block,
 )
 from drivers.scpi.blocks import MAX_BLOCK_BYTES, decode_payload
+from drivers.scpi.messages import PLAIN, MessagePolicy, absolute, join_units
+from drivers.scpi.plain import (
+    Identity,
+    header_of,
+    parse_error_entry,
+    parse_identity,
+    to_bool,
+    to_csv,
+    to_float,
+    to_int,
+)
 
 DEFAULT_OPC_TIMEOUT_MS = 10_000
 DEFAULT_RETRIES = 1
@@ -67,56 +81,6 @@ class Transport(Protocol):
     def close(self) -> None: ...
 
 
-@dataclass(frozen=True)
-class Identity:
-    """The four fields of an IEEE 488.2 ``*IDN?`` reply (§4.1.3.6, from memory), and the raw text."""
-
-    maker: str
-    model: str
-    serial: str
-    firmware: str
-    raw: str
-
-    def __str__(self) -> str:
-        return f"{self.maker} {self.model} (serial {self.serial}, firmware {self.firmware})"
-
-
-def parse_identity(reply: str) -> Identity:
-    """Split ``maker,model,serial,firmware``; missing fields are empty, extra commas stay in firmware.
-
-    A reply holding control characters is not an identity but a garbled reply (identities are
-    plain text fields; common practice): ``ProtocolError``.
-    """
-    text = reply.strip()
-    if not text:
-        raise ProtocolError("empty *IDN? reply")
-    if any((c < " " and c != "\t") or c == "\x7f" for c in text):
-        raise ProtocolError(f"*IDN? reply {text[:40]!r} holds control characters (garbled?)")
-    fields = [f.strip() for f in text.split(",", 3)]
-    fields += [""] * (4 - len(fields))
-    return Identity(
-        maker=fields[0], model=fields[1], serial=fields[2], firmware=fields[3], raw=text
-    )
-
-
-def parse_error_entry(reply: str) -> tuple[int, str]:
-    """``-113,"Undefined header"`` -> ``(-113, "Undefined header")`` (SCPI-1999 SYSTem:ERRor format)."""
-    code_text, sep, message = reply.strip().partition(",")
-    try:
-        code = int(code_text.strip())
-    except ValueError:
-        raise ProtocolError(f"error queue reply {reply!r} does not start with a number") from None
-    message = message.strip()
-    if len(message) >= 2 and message[0] == message[-1] == '"':
-        message = message[1:-1].replace('""', '"')
-    return code, message if sep else ""
-
-
-def header_of(command: str) -> str:
-    """The program header of a command (up to the first space), upper-cased: the settings-cache key."""
-    return command.strip().split(" ", 1)[0].upper()
-
-
 class ScpiSession:
     """One instrument spoken to in SCPI over a :class:`Transport`."""
 
@@ -133,8 +97,10 @@ class ScpiSession:
         max_block_bytes: int = MAX_BLOCK_BYTES,
         min_transfer_Bps: float = DEFAULT_MIN_TRANSFER_BPS,
         block_chunk_bytes: int = DEFAULT_BLOCK_CHUNK,
+        policy: MessagePolicy = PLAIN,
     ) -> None:
         self.transport = transport
+        self.policy = policy
         self.check_errors = check_errors
         self.opc_timeout_ms = opc_timeout_ms
         self.retries = retries
@@ -149,11 +115,18 @@ class ScpiSession:
         self.stop_check: StopCheck | None = None
         self.lock = threading.RLock()
         self._settings: dict[str, str] = {}
+        #: What the instrument is known to hold (key -> command), for ``policy.skip_unchanged``.
+        self._known: dict[str, str] = {}
+        #: Configuring commands held back by :meth:`group`: (command, key or None, check).
+        self._pending: list[tuple[str, str | None, bool]] | None = None
         self._out_of_step = False
         self._link_lost = False
         #: How often the link was reopened / the input resynchronised (for logs and tests).
         self.reconnects = 0
         self.resyncs = 0
+        #: Program messages sent (each one exchange on the link) and settings not re-sent.
+        self.messages = 0
+        self.skipped = 0
 
     @property
     def address(self) -> str:
@@ -168,6 +141,7 @@ class ScpiSession:
         key: str | None = None,
         check: bool | None = None,
         timeout_ms: int | None = None,
+        track: bool = True,
     ) -> None:
         """Send a configuring command, then check the error queue.
 
@@ -176,17 +150,86 @@ class ScpiSession:
         ``check``: whether the error queue is read after it (default: the session's
         ``check_errors``); ``timeout_ms``: how long that check may wait (an acquisition's error
         check waits for the acquisition on many instruments: pass the operation-complete timeout).
+        ``track``: with the policy's ``skip_unchanged``, a remembered setting equal to ``command``
+        is not sent again; pass ``False`` for anything a safety decision rests on.
         """
+        name = key or header_of(command)
+        checked = self.check_errors if check is None else check
         with self.lock:
-            self._call(lambda: self._write_checked(command, check, timeout_ms), retry=reapply)
+            if header_of(command) == "*RST":
+                self._known.clear()
+            tracked = reapply and track and self.policy.skip_unchanged
+            if tracked and self._known.get(name) == command:
+                self.skipped += 1
+                return
+            if self._pending is not None and timeout_ms is None:
+                self._pending.append((command, name if reapply else None, checked))
+                self._known.pop(name, None)
+                return
+            try:
+                self._call(lambda: self._write_checked(command, checked, timeout_ms), retry=reapply)
+            except BaseException:
+                self._known.clear()
+                raise
             if reapply:
-                self._settings[key or header_of(command)] = command
+                self._settings[name] = command
+                if tracked:
+                    self._known[name] = command
+
+    @contextlib.contextmanager
+    def group(self) -> Iterator[None]:
+        """Hold the configuring writes made inside and send them together at the end: joined into
+        one message when the policy allows (``join``), the error queue read once for the group
+        when it allows (``errors_per_group``), else one by one as :meth:`write` would.  Writes
+        with their own timeout (acquisitions) are not held.  If the body raises, nothing held is
+        sent.  Nested groups join the outer one."""
+        with self.lock:
+            if self._pending is not None:
+                yield
+                return
+            self._pending = []
+            try:
+                yield
+                pending = self._pending
+            finally:
+                self._pending = None
+            if pending:
+                self._send_group(pending)
+
+    def _send_group(self, pending: list[tuple[str, str | None, bool]]) -> None:
+        commands = [c for c, _, _ in pending]
+        checked = any(ch for _, _, ch in pending)
+        retry = all(k is not None for _, k, _ in pending)
+        try:
+            if self.policy.join:
+                text = join_units(commands)
+                self._call(lambda: self._write_checked(text, checked, None), retry=retry)
+            elif self.policy.errors_per_group:
+                self._call(lambda: self._write_all(commands, checked), retry=retry)
+            else:
+                for command, _, ch in pending:
+                    self._call(lambda c=command, k=ch: self._write_checked(c, k, None), retry=retry)
+        except BaseException:
+            self._known.clear()
+            raise
+        for command, name, _ in pending:
+            if name is not None:
+                self._settings[name] = command
+                if self.policy.skip_unchanged:
+                    self._known[name] = command
+
+    def _write_all(self, commands: list[str], checked: bool) -> None:
+        for command in commands[:-1]:
+            self._send(command)
+        self._write_checked(commands[-1], checked, None, group="; ".join(commands))
 
     def forget(self, prefix: str) -> None:
         """Drop cached settings whose key starts with ``prefix`` (e.g. after ``ROUTe:OPEN:ALL``)."""
         with self.lock:
             for k in [k for k in self._settings if k.startswith(prefix)]:
                 del self._settings[k]
+            for k in [k for k in self._known if k.startswith(prefix)]:
+                del self._known[k]
 
     @property
     def cached_settings(self) -> list[str]:
@@ -200,16 +243,16 @@ class ScpiSession:
             return self._call(lambda: self._ask(command, timeout_ms), retry=retry)
 
     def query_float(self, command: str, *, timeout_ms: int | None = None) -> float:
-        return self.query_parsed(command, _to_float, timeout_ms=timeout_ms)
+        return self.query_parsed(command, to_float, timeout_ms=timeout_ms)
 
     def query_int(self, command: str, *, timeout_ms: int | None = None) -> int:
-        return self.query_parsed(command, _to_int, timeout_ms=timeout_ms)
+        return self.query_parsed(command, to_int, timeout_ms=timeout_ms)
 
     def query_bool(self, command: str, *, timeout_ms: int | None = None) -> bool:
-        return self.query_parsed(command, _to_bool, timeout_ms=timeout_ms)
+        return self.query_parsed(command, to_bool, timeout_ms=timeout_ms)
 
     def query_csv(self, command: str, *, timeout_ms: int | None = None) -> list[float]:
-        return self.query_parsed(command, _to_csv, timeout_ms=timeout_ms)
+        return self.query_parsed(command, to_csv, timeout_ms=timeout_ms)
 
     def query_parsed(
         self, command: str, parse: Callable[[str], T], *, timeout_ms: int | None = None
@@ -307,6 +350,9 @@ class ScpiSession:
 
     # -- recovery --------------------------------------------------------------------------------
     def _call(self, op: Callable[[], T], *, retry: bool) -> T:
+        if self._pending:  # anything else sent inside a group goes after the writes held so far
+            pending, self._pending = self._pending, []
+            self._send_group(pending)
         if self._link_lost or self._out_of_step:
             self._recover_if_needed()
         attempts = 1 + (max(0, self.retries) if retry else 0)
@@ -333,6 +379,7 @@ class ScpiSession:
         raise AssertionError("unreachable")  # pragma: no cover
 
     def _recover_if_needed(self) -> None:
+        self._known.clear()  # whatever went wrong, what the instrument holds is no longer known
         if self._out_of_step and not self._link_lost:
             try:
                 self._resync()
@@ -360,6 +407,7 @@ class ScpiSession:
 
     # -- wire ------------------------------------------------------------------------------------
     def _send(self, command: str) -> None:
+        self.messages += 1
         self.transport.write(command)
 
     def _ask(self, command: str, timeout_ms: int | None = None) -> str:
@@ -380,21 +428,39 @@ class ScpiSession:
             )
 
     def _write_checked(
-        self, command: str, check: bool | None = None, timeout_ms: int | None = None
+        self,
+        command: str,
+        check: bool | None = None,
+        timeout_ms: int | None = None,
+        *,
+        group: str | None = None,
     ) -> None:
-        self._send(command)
         if not (self.check_errors if check is None else check):
+            self._send(command)
             return
+        joined = self.policy.join and group is None
         try:
             with self._timeout(timeout_ms):
-                entries = self._drain_errors()
+                if joined:  # the error query in the command's own message: one exchange
+                    first = self._ask(f"{command};{absolute(self.error_query)}")
+                    entries = self._error_entries(first)
+                else:
+                    self._send(command)
+                    entries = self._drain_errors()
         except TransportError as exc:  # the news is the command before the check (INIT, ...)
             raise exc.checking_after(command) from exc
         if entries:
             code, message = entries[0]
-            error = InstrumentError(code, message, address=self.address, command=command)
+            error = InstrumentError(code, message, address=self.address, command=group or command)
             error.queued = entries  # type: ignore[attr-defined]  # every entry drained, in order
             raise error
+
+    def _error_entries(self, first_reply: str) -> list[tuple[int, str]]:
+        """The error queue from its first entry (already read) on."""
+        code, message = parse_error_entry(first_reply)
+        if code == 0:
+            return []
+        return [(code, message), *self._drain_errors()]
 
     def _drain_errors(self) -> list[tuple[int, str]]:
         entries: list[tuple[int, str]] = []
@@ -438,29 +504,3 @@ class ScpiSession:
         finally:
             with contextlib.suppress(TransportError):
                 self.transport.timeout_ms = before
-
-
-def _to_float(text: str) -> float:
-    return float(text.strip())
-
-
-def _to_int(text: str) -> int:
-    with contextlib.suppress(ValueError):
-        return int(text.strip())
-    value = float(text.strip())
-    if not value.is_integer():
-        raise ValueError("not an integer")
-    return int(value)
-
-
-def _to_bool(text: str) -> bool:
-    word = text.strip().upper()
-    if word in ("1", "+1", "ON"):
-        return True
-    if word in ("0", "+0", "OFF"):
-        return False
-    raise ValueError("expected 1/0 or ON/OFF")
-
-
-def _to_csv(text: str) -> list[float]:
-    return [float(part) for part in text.strip().split(",") if part.strip()]

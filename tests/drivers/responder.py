@@ -138,6 +138,17 @@ class Responder:
             self._threads.append(thread)
             thread.start()
 
+    def _answer(self, line: str) -> Reply:
+        """One program message: a plain line as it is; ``;``-joined units (a leading ``:`` read
+        from the root) each handled and recorded in turn, their replies joined (IEEE 488.2 §7.3)."""
+        units = [line] if ";" not in line else [u.strip().removeprefix(":") for u in line.split(";")]
+        replies: list[Reply] = []
+        for unit in units:
+            self.received.append(unit.strip())
+            with self.instrument.lock:
+                replies.append(self.instrument.handle(unit))
+        return replies[0] if len(units) == 1 else _joined(replies)
+
     def _serve(self, client: socket.socket) -> None:
         client.settimeout(0.05)
         buffer = b""
@@ -154,10 +165,8 @@ class Responder:
             while b"\n" in buffer:
                 raw, buffer = buffer.split(b"\n", 1)
                 line = raw.decode("ascii", "replace")
-                self.received.append(line.strip())
                 try:
-                    with self.instrument.lock:
-                        reply = self.instrument.handle(line)
+                    reply = self._answer(line)
                 except DropLink:
                     client.close()
                     return
@@ -172,6 +181,15 @@ class Responder:
                         client.sendall(reply)
                 except OSError:
                     return
+
+
+def _joined(replies: list[Reply]) -> Reply:
+    """The replies of one program message's queries as one response message (``;``-joined)."""
+    texts = [r for r in replies if r]
+    if len(texts) <= 1:
+        return texts[0] if texts else None
+    parts = [b"".join(r) if isinstance(r, list) else r for r in texts]
+    return b";".join(p.rstrip(b"\n") for p in parts) + b"\n"
 
 
 def wait_until(predicate: Callable[[], bool], timeout_s: float = 2.0) -> bool:

@@ -76,18 +76,21 @@ def test_bias_limits_come_from_the_bench_file(sim_bench):
 def test_recovers_from_a_dropped_link_and_a_garbled_reply(tmp_path):
     text = BOARD.read_text().replace(
         "faults: []",
-        "faults: [{kind: disconnect, role: scope, after_commands: 5},"
-        " {kind: garbled_reply, role: threshold, after_commands: 3}]",
+        "faults: [{kind: disconnect, role: scope, after_commands: 3},"
+        " {kind: garbled_reply, role: threshold, after_commands: 1}]",
     )
     board = tmp_path / "faulty.yaml"
     board.write_text(text)
     with sim.start_sim_bench(board) as running:
         spec = bench_from_mapping(running.bench_mapping())
         with open_bench(spec, roles=["scope", "threshold"]) as bench:
-            bench.scope.set_input(1, range_mV=500.0)  # 6th message: the link is dropped
+            # the generic dialect joins commands and their error query (drivers/scpi/messages.py):
+            # *IDN?, two set-up messages at open, then set_input in one message (the 4th): dropped
+            bench.scope.set_input(1, range_mV=500.0)
             assert bench.scope.sample_rate_hz() > 0
             assert bench.scope.session.reconnects == 1
-            bench.threshold.set_level(1, 12.5)  # its error-queue reply (4th message) is garbled
+            # *IDN?, then the level and its error query in one message: that reply is garbled
+            bench.threshold.set_level(1, 12.5)
             assert bench.threshold.level_mV(1) == pytest.approx(12.5)
             assert bench.threshold.session.resyncs == 1 and bench.threshold.session.reconnects == 0
 

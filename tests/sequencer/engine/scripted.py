@@ -29,15 +29,23 @@ class ScriptedTransport:
         return "\n"
 
     def write(self, text: str) -> None:
-        self.state.log.append((self.role, text))
-        fault = self.state.fault_for(self.role, text)
-        if fault == "disconnect":
-            raise ConnectionClosed("peer closed", address=self.address, command=text)
-        if fault == "no_reply":
-            self.state.silent.add(self.role)
-        reply = self.state.answer(self.role, text.strip())
-        if reply is not None:
-            self._replies.append(reply.encode())
+        """One program message: its units (``;``-separated, a leading ``:`` read from the root)
+        each logged and answered in turn, the replies joined with ``;`` (IEEE 488.2 §7.3, from
+        memory), as the generic dialect's joined messages expect."""
+        replies: list[str] = []
+        for unit in text.split(";"):
+            unit = unit.strip().removeprefix(":")
+            self.state.log.append((self.role, unit))
+            fault = self.state.fault_for(self.role, unit)
+            if fault == "disconnect":
+                raise ConnectionClosed("peer closed", address=self.address, command=unit)
+            if fault == "no_reply":
+                self.state.silent.add(self.role)
+            reply = self.state.answer(self.role, unit)
+            if reply is not None:
+                replies.append(reply)
+        if replies:
+            self._replies.append(";".join(replies).encode())
 
     def read(self) -> bytes:
         if self.role in self.state.silent or not self._replies:
