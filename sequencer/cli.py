@@ -80,15 +80,19 @@ def validate(procedures: tuple[str, ...], fragment: bool, board_type: str | None
 @click.option("--board-type", default=None, help="Board type (default: the procedure's).")
 @click.option("--timing-from", "timing_run", type=int, default=None, metavar="RUN_ID",
               help="Take each step's duration from that recorded run where it has the same path.")
+@click.option("--sim", "sim_board", type=click.Path(dir_okay=False), default=None,
+              help="Estimate with this simulated board file's timing: section (round trips, relays...).")
 @db_option
 @handles_errors
 def plan(
-    procedure: str, serial: str, board_type: str | None, timing_run: int | None, db: str | None
+    procedure: str, serial: str, board_type: str | None, timing_run: int | None,
+    sim_board: str | None, db: str | None,
 ) -> None:
     """Show the expanded step list with paths, counts and an estimated duration.
 
-    The estimate assumes a LAN bench (about 20 ms per command); --timing-from uses the durations
-    of a run already recorded on your bench instead.
+    The estimate follows the bench timing model the simulator runs by (drivers/timing.py: 1 ms a
+    message, acquisitions of averages / trigger rate, gates, relay settling, ramps); --sim takes a
+    board file's own timing, --timing-from the durations of a run already recorded on your bench.
     """
     from sequencer.compose import plan_for
     from sequencer.procedure import format_plan, load_procedure
@@ -97,6 +101,11 @@ def plan(
     planned = plan_for(
         load_procedure(procedure), serial, board_type=board_type, lab=LabFiles.from_env(env())
     )
+    if sim_board:
+        from sequencer.compose import sim_timing
+        from sequencer.procedure.estimate import EstimateSettings, estimate_plan
+
+        planned = estimate_plan(planned, EstimateSettings(timing=sim_timing(sim_board)))
     from sequencer.procedure import unjudged_warnings
 
     for line in unjudged_warnings(planned):
@@ -162,12 +171,15 @@ def _summarise(run_id: int, outcome: Any) -> int:
                    "A lab's own types: 'lab: DIR' in the bench file or BENCHWRIGHT_LAB=DIR "
                    "(DIR/boards, DIR/limits; the environment wins).")
 @click.option("--log", "log_path", type=click.Path(dir_okay=False), default=None, help="Append a plain-text event log here.")
+@click.option("--realtime", is_flag=True,
+              help="With --sim: the simulated instruments take the time a real bench would "
+                   "(acquisitions, gates, relays, round trips; the board file's timing: section).")
 @visa_library_option
 @override_option
 @handles_errors
 def run(procedure: str | None, bench_path: str | None, sim_board: str | None, serial: str | None,
         db: str | None, operator: str, yes: bool, repeat: int | None, board_type: str | None,
-        log_path: str | None, allow_visa_library: tuple[str, ...],
+        log_path: str | None, realtime: bool, allow_visa_library: tuple[str, ...],
         override_instrument_checks: bool) -> None:
     """Run a procedure on a bench (or the simulator) for one board and record everything."""
     from sequencer import compose, rerun_inputs
@@ -178,6 +190,8 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
                                "stored with that run")
     if repeat is None and not (bench_path or sim_board):
         raise click.UsageError(compose.MISSING_BENCH)
+    if realtime and not sim_board:
+        raise click.UsageError("--realtime paces a simulated bench: give --sim BOARD.yaml")
     warn = lambda line: click.echo(f"warning: {line}", err=True)  # noqa: E731
     opener = compose.open_store if repeat is None else partial(compose.open_existing_store, upgrade=True)
     with opener(db, env()) as store:
@@ -212,7 +226,8 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
             bench_cm = compose.recorded_bench(record.id, record.bench_text, allowed_visa_libraries=allow_visa_library,
                                               dialects=rerun_inputs.stored_dialects(stored))
         else:
-            bench_cm = compose.bench_for(bench_path, sim_board, allowed_visa_libraries=allow_visa_library)
+            bench_cm = compose.bench_for(bench_path, sim_board, allowed_visa_libraries=allow_visa_library,
+                                         realtime=realtime, report=click.echo)
         with bench_cm as spec:
             if record is not None:
                 spec = rerun_inputs.rerun_dialects(spec, record, stored, warn)
@@ -259,7 +274,8 @@ def resume(run_id: int, db: str | None, bench_path: str | None, sim_board: str |
                                      warn=lambda line: click.echo(f"warning: {line}", err=True),
                                      take_over=take_over)
         if bench_path or sim_board:
-            bench_cm = compose.bench_for(bench_path, sim_board, allowed_visa_libraries=allow_visa_library)
+            bench_cm = compose.bench_for(bench_path, sim_board, allowed_visa_libraries=allow_visa_library,
+                                         report=click.echo)
         else:
             bench_cm = compose.recorded_bench(run_id, record.bench_text, allowed_visa_libraries=allow_visa_library,
                                               dialects=rerun_inputs.stored_dialects(stored))

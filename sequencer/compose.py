@@ -183,11 +183,18 @@ MISSING_BENCH = "give --bench FILE (a real bench) or --sim BOARD.yaml (a simulat
 
 @contextlib.contextmanager
 def bench_for(
-    bench_path: str | None, sim_board: str | None, *, allowed_visa_libraries: Sequence[str] = ()
+    bench_path: str | None,
+    sim_board: str | None,
+    *,
+    allowed_visa_libraries: Sequence[str] = (),
+    realtime: bool = False,
+    report: Callable[[str], None] | None = None,
 ) -> Iterator[BenchSpec]:
     """The bench spec from a bench file, or a simulated bench started in-process for the run.
 
     ``allowed_visa_libraries``: library paths allowed on the command line (see drivers.benchfile).
+    ``realtime``: the simulated instruments take the time a real bench would (drivers/timing.py).
+    ``report``: told, after a run on the simulator, how long a real bench would have taken.
     """
     if bench_path and sim_board:
         raise OptionError("give --bench FILE or --sim BOARD.yaml, not both")
@@ -198,9 +205,28 @@ def bench_for(
         raise OptionError(MISSING_BENCH)
     from drivers.sim import start_sim_bench
 
-    with start_sim_bench(sim_board) as sim:
+    with start_sim_bench(sim_board, realtime=realtime) as sim:
         spec = bench_from_mapping(sim.bench_mapping(), source=f"<simulated bench for {sim_board}>")
         yield replace(spec, text=simulated_bench_text(sim_board, sim.bench_mapping()))
+        if report is not None:
+            report(describe_bench_time(sim.pace))
+
+
+def describe_bench_time(pace: Any) -> str:
+    """One line: the time the simulated bench accounted (what a real bench would take)."""
+    parts = ", ".join(f"{kind} {seconds:.1f} s" for kind, seconds in pace.breakdown().items() if seconds)
+    return (f"bench time (timing model, drivers/timing.py): {pace.seconds():.1f} s"
+            f" = {parts or 'nothing'}")  # fmt: skip
+
+
+def sim_timing(sim_board: str) -> Any:
+    """The ``timing:`` section of a simulated board file (the defaults for a sensor file)."""
+    from drivers.sim import load_sim_file
+    from drivers.sim.board import BoardSpec
+    from drivers.timing import DEFAULT_TIMING
+
+    spec = load_sim_file(sim_board)
+    return spec.timing if isinstance(spec, BoardSpec) else DEFAULT_TIMING
 
 
 SIM_MARK = "# benchwright simulated board: "

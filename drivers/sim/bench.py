@@ -22,6 +22,7 @@ import yaml
 from drivers.errors import TransportError
 from drivers.sim.bias import BiasSupply
 from drivers.sim.board import ROLES, BoardSpec
+from drivers.sim.clock import SimClock
 from drivers.sim.coincidence import CoincidenceUnit
 from drivers.sim.counter import Counter
 from drivers.sim.digitizer import Digitizer
@@ -37,6 +38,7 @@ from drivers.sim.switch import Switch
 from drivers.sim.threshold import ThresholdDac
 from drivers.sim.vxi11 import Vxi11Server
 from drivers.sim.wavescope import WaveformScope
+from drivers.timing import DEFAULT_TIMING
 
 DEFAULT_TIMEOUT_MS = 5000
 #: The links every simulated instrument is served over at once (see :meth:`SimBench.address`).
@@ -93,8 +95,13 @@ class SimBench:
         max_ramp_V_per_s: float = 10.0,
         max_current_uA: float = 100.0,
         clock: Callable[[], float] = time.monotonic,
+        realtime: bool = False,
     ) -> None:
         self.board = board
+        timing = board.timing if isinstance(board, BoardSpec) else DEFAULT_TIMING
+        #: The bench's time as a real one would take it (drivers/sim/clock.py); ``realtime``: the
+        #: instruments wait for it too (``benchwright run --realtime``).
+        self.pace = SimClock(timing, realtime=realtime)
         self.host = host
         self.bench_name = bench_name
         self.limits = {
@@ -103,6 +110,8 @@ class SimBench:
             "max_current_uA": max_current_uA,
         }
         self.instruments = self.make_instruments(board, clock)
+        for instrument in self.instruments.values():
+            instrument.pace = self.pace
         lock = threading.Lock()
         self._servers: dict[str, InstrumentServer] = {}
         self._hislip: dict[str, HislipServer] = {}
@@ -234,9 +243,12 @@ def start_sim_bench(
     max_ramp_V_per_s: float = 10.0,
     max_current_uA: float = 100.0,
     clock: Callable[[], float] = time.monotonic,
+    realtime: bool = False,
 ) -> SimBench:
     """Start the simulated instruments of ``board`` (a spec, a board file or a sensor file) in
-    background threads."""
+    background threads.  ``realtime``: acquisitions, gates, relays and round trips take the time
+    the board file's ``timing:`` (drivers/timing.py) says a real bench takes; else they are only
+    accounted on the bench's clock (``SimBench.pace``)."""
     spec = board if isinstance(board, BoardSpec | SensorSpec) else load_sim_file(board)
     from drivers.sim.sensor_bench import SensorBench  # it builds on SimBench
 
@@ -250,6 +262,7 @@ def start_sim_bench(
         max_ramp_V_per_s=max_ramp_V_per_s,
         max_current_uA=max_current_uA,
         clock=clock,
+        realtime=realtime,
     )
 
 

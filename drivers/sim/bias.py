@@ -31,6 +31,7 @@ import numpy as np
 from drivers.sim.board import BoardSpec
 from drivers.sim.instrument import Call, Command, SimInstrument, command
 from drivers.sim.scpi_parser import format_float, parse_bool, parse_number, scpi_error
+from drivers.timing import ramp_s
 
 MAX_VOLTS = 80.0
 
@@ -168,6 +169,8 @@ class BiasSupply(SimInstrument):
     def _set_voltage(self, call: Call) -> None:
         value = parse_number(call.arg(), lo=0.0, hi=MAX_VOLTS, default=0.0)
         self._restart_ramp(self.clock())
+        if self.settings.output_on:  # accounted only: the output already follows the slew in time
+            self.pace.spend("ramp", ramp_s(self.settings.ramp_from_V, value, self.settings.slew_V_per_s))
         self.settings.setpoint_V = value
         self.update()
 
@@ -192,6 +195,7 @@ class BiasSupply(SimInstrument):
             self.settings.output_on = True
             self.settings.ramp_from_V = 0.0
             self.settings.ramp_t0 = now
+            self.pace.spend("ramp", ramp_s(0.0, self.settings.setpoint_V, self.settings.slew_V_per_s))
             if self.first_on is None:
                 self.first_on = now
         self.update()

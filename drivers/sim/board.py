@@ -22,6 +22,10 @@ key                           default    meaning
 ``shaper.gain``               1.0        shaped peak = gain_x1 * A * shaper.gain (before tanh)
 ``adc_bits``                  12         digitizer resolution (6-16 bits)
 ``time_scale``                0.0        counter gates last gate_time * time_scale real seconds
+``timing.<role>.*``           (below)    the bench's pace (:mod:`drivers.timing`): per role
+                                         ``round_trip_ms`` (1), ``transfer_MBps`` (10),
+                                         ``relay_settle_ms`` (2), ``rearm_us`` (0); accounted
+                                         on the bench's clock, waited for with ``--realtime``
 ``discriminator_tau_ns``      5.0        noise bandwidth of the discriminator input, as CR-RC²
 ``dark_rate_hz``              0.0        rate of random dark pulses counted by the discriminator
 ``dark_height_mV``            10.0       their height at the x1 output
@@ -74,6 +78,8 @@ from __future__ import annotations
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from types import MappingProxyType
+
+from drivers.timing import DEFAULT_TIMING, BenchTiming
 
 #: The instrument roles, in port order (port_base + index).
 ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch", "coincidence")
@@ -194,6 +200,7 @@ class BoardSpec:
     bias_voltage_noise_mV: float = 1.0
     #: Command structure per role: ``{scope: wavescope, bias: sourcemeter}``; ``generic`` otherwise.
     command_sets: Mapping[str, str] = field(default_factory=lambda: MappingProxyType({}))
+    timing: BenchTiming = DEFAULT_TIMING
     source: str = "<board>"
 
     @property

@@ -28,6 +28,7 @@ from drivers.sim.board import (
     ShaperSpec,
 )
 from drivers.sim.physics import fast_time_constants
+from drivers.timing import DEFAULT_TIMING, KEYS, BenchTiming, InstrumentTiming
 from drivers.yamlsafe import YamlMap, load_yaml, read_bounded, where
 
 Check = Callable[[Any], Any]
@@ -215,6 +216,7 @@ _TOP: dict[str, Check] = {
     "faults": lambda v: v,
     "channels": lambda v: v,
     "command_sets": lambda v: v,
+    "timing": lambda v: v,
     "crosstalk_pct": _number(0.0, 100.0),
     "bias_resistance_Mohm": _number(0.0, 1e9, above=True),
     "seed": _integer(0, 2**63 - 1),
@@ -274,6 +276,7 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
         if "command_sets" in top
         else {}
     )
+    timing = _timing(reader, data, top.get("timing"))
     if "output_polarity" in top:
         polarity = _choice("positive", "negative")
         table = {name: polarity for name in ("x1", "x5", "shaped")}
@@ -295,6 +298,7 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
             "outputs",
             "faults",
             "command_sets",
+            "timing",
         )
     }
     return BoardSpec(
@@ -306,6 +310,7 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
         outputs=outputs,
         faults=faults,
         command_sets=MappingProxyType(dict(command_sets)),
+        timing=timing,
         source=source,
         **extras,
     )
@@ -355,6 +360,21 @@ def _outputs(reader: _Reader, data: Any, raw: Any) -> Mapping[str, float]:
         return MappingProxyType({"x1": 1.0, "x5": 5.0})
     table = {name: _number(0.0, 1e4, above=True) for name in ("x1", "x5", "shaped")}
     return MappingProxyType(reader.mapping(raw, table, "outputs"))
+
+
+_TIMING = {key: _number(0.0, 1e6) for key in KEYS}
+
+
+def _timing(reader: _Reader, data: Any, raw: Any) -> BenchTiming:
+    """The ``timing:`` section: per role, the keys of :mod:`drivers.timing` (each optional)."""
+    if raw is None:
+        return DEFAULT_TIMING
+    roles = reader.mapping(raw, {role: lambda v: v for role in ROLES}, "timing")
+    out: dict[str, InstrumentTiming] = {}
+    for role, entry in roles.items():
+        values = reader.mapping(entry, _TIMING, f"timing.{role}")
+        out[role] = InstrumentTiming(**{KEYS[k][0]: v * KEYS[k][1] for k, v in values.items()})
+    return BenchTiming(roles=MappingProxyType(out))
 
 
 _DEFAULT_ROLE = {"interlock_open": "bias"}

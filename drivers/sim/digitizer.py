@@ -56,6 +56,7 @@ from drivers.sim.scpi_parser import (
     scpi_error,
 )
 from drivers.sim.switch import SCOPE_INPUTS, Switch
+from drivers.timing import acquisition_s, transfer_s
 
 
 @dataclass(kw_only=True)
@@ -214,10 +215,26 @@ class Digitizer(SimInstrument):
         if self.pulser.sine_on and s.averages > 1:
             raise scpi_error(-221, "the converter model acquires single records of the sine")
         self.captures += 1
+        started = self.pace.mark()
         rng = np.random.default_rng([board.seed, self.instrument_id, self.captures])
         if self.pulser.sine_on:
             self._acquire_sine(rng)
-            return
+        else:
+            self._acquire_pulses(rng)
+        self.take("acquisition", self.acquisition_s(), since=started)
+
+    def acquisition_s(self) -> float:
+        """How long a real acquisition of the current settings takes (drivers/timing.py): the
+        external trigger comes from the pulser's sync output once per period (assumed to run with
+        the pulse output off too, as the noise captures need); any other source triggers at once."""
+        s = self.settings
+        rate = self.pulser.settings.frequency_hz if s.trigger_source == "EXT" else 0.0
+        return acquisition_s(averages=s.averages, points=s.points, sample_rate_hz=s.sample_rate_hz,
+                             trigger_rate_hz=rate, rearm_s=self.timing.rearm_s)  # fmt: skip
+
+    def _acquire_pulses(self, rng: np.random.Generator) -> None:
+        s = self.settings
+        board = self.board
         dt_ns = 1e9 / s.sample_rate_hz
         t_ns = -s.pretrigger_s * 1e9 + dt_ns * np.arange(s.points)
         on = self.pulser.settings.output_on
@@ -363,5 +380,8 @@ class Digitizer(SimInstrument):
             return format_block(b"")
         if self.settings.real32:
             volts = rec.codes[index] * rec.lsb_V[index] + rec.offset_V[index]
-            return format_block(volts, kind="float32", big_endian=self.big_endian)
-        return format_block(rec.codes[index], kind="int16", big_endian=self.big_endian)
+            block = format_block(volts, kind="float32", big_endian=self.big_endian)
+        else:
+            block = format_block(rec.codes[index], kind="int16", big_endian=self.big_endian)
+        self.take("transfer", transfer_s(len(block), self.timing))
+        return block

@@ -22,6 +22,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 from drivers.errors import InstrumentError
+from drivers.sim.clock import SimClock
 from drivers.sim.scpi_parser import (
     Pattern,
     Unit,
@@ -31,6 +32,7 @@ from drivers.sim.scpi_parser import (
     scpi_error,
     split_units,
 )
+from drivers.timing import InstrumentTiming
 
 #: The invented maker name every simulated instrument reports in ``*IDN?``.
 MAKER = "Larchmoor Test Systems (sim)"
@@ -106,6 +108,8 @@ class SimInstrument:
         self.serial = serial
         self.clock = clock
         self.sleep: Callable[[float], None] = time.sleep
+        #: The bench's clock (shared by the instruments of one bench; :mod:`drivers.sim.clock`).
+        self.pace = SimClock()
         self.errors: deque[tuple[int, str]] = deque()
         #: The program messages this instrument ran, oldest first (bounded; a read-only record for
         #: tests and logs, e.g. to prove that a refused run sent nothing).
@@ -134,6 +138,18 @@ class SimInstrument:
 
     def reset(self) -> None:
         """``*RST``: settings back to their defaults (the error queue is kept, IEEE 488.2 §10.32)."""
+
+    @property
+    def timing(self) -> InstrumentTiming:
+        """This instrument's pace in the timing model."""
+        return self.pace.timing.of(self.role)
+
+    def take(self, kind: str, seconds: float, since: float | None = None) -> None:
+        """Spend ``seconds`` of ``kind`` on the bench's clock, waiting for real (without the bench
+        lock) only when the clock runs in real time."""
+        wait = self.pace.spend(kind, seconds, since=since)
+        if wait > 0:
+            self.sleep(wait)
 
     # --- identity and errors -------------------------------------------------------------------
     def identity(self) -> str:

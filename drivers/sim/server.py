@@ -135,7 +135,19 @@ class InstrumentServer:
 
     def respond(self, message: bytes) -> tuple[bool, bytes | None]:
         """Run one program message through the faults and the instrument: (keep the link, the
-        reply or None).  Shared by every link kind (raw socket here, HiSLIP in ``hislip.py``)."""
+        reply or None).  Shared by every link kind (raw socket here, HiSLIP in ``hislip.py``).
+        Each message costs the instrument's round trip on the bench's clock (waited for, less the
+        time it already took, when the clock runs in real time)."""
+        pace = self.instrument.pace
+        started = pace.mark()
+        try:
+            return self._respond(message)
+        finally:
+            wait = pace.spend("round_trip", self.instrument.timing.round_trip_s, since=started)
+            if wait > 0:
+                self._stopping.wait(wait)
+
+    def _respond(self, message: bytes) -> tuple[bool, bytes | None]:
         with self.lock:
             effect = self.faults.on_message()
             if effect.disconnect:

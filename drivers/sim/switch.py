@@ -82,11 +82,16 @@ class Switch(SimInstrument):
         decoded = [
             self.decode(n) for n in parse_channel_list(call.arg())
         ]  # all valid before a relay moves
+        moved = False
         for scope_input, target in decoded:
             if scope_input == 0:
+                moved |= self.injected != target
                 self.injected = target  # type: ignore[assignment]
             else:
+                moved |= self.routes.get(scope_input) != target
                 self.routes[scope_input] = target  # type: ignore[assignment]
+        if moved:  # a relay moved: busy until it settles (drivers/timing.py)
+            self.take("settle", self.timing.relay_settle_s)
 
     def _open(self, call: Call) -> None:
         numbers = parse_channel_list(call.arg())

@@ -1,27 +1,32 @@
 """Time estimates of planned steps, following the bench state through the plan.
 
-* ``scope.capture``: ``averages`` acquisitions, each the longer of the record (points / sample rate) and
-  the pulse period (1 / pulser rate), plus the transfer of every input (points x 2 bytes over the link
-  plus a per-query overhead);
-* ``counter.count``: the gate time; ``bias.ramp``: |V - previous setpoint| / rate plus a settling check;
-* ``wait``: its time; ``prompt``: a typical operator reply; analysis: a few milliseconds;
-* any other configuring step: one command and its error-queue check.
+The figures come from the timing model the simulator paces itself by (:mod:`drivers.timing`), so
+``benchwright plan`` and a simulated run's bench clock agree:
 
-The figures are rough by design (common practice, no source): they make ``benchwright plan`` show
-whether a procedure takes minutes or hours, not a schedule.
+* ``scope.capture``: ``averages`` acquisitions, each the longer of the record (points / sample rate)
+  and the trigger period (1 / pulser rate) plus the scope's re-arm time; one message to start it,
+  then per input two queries (preamble, data) and the block's transfer (points x 2 bytes);
+* ``counter.count``: the gate time and two messages; ``bias.ramp``: |V - previous setpoint| / rate
+  plus a settling check; ``switch.route``/``inject``: one message and the relays' settling;
+* ``wait``: its time; ``prompt``: a typical operator reply; analysis: a few milliseconds;
+* any other configuring step: one message (the error query travels in it, drivers/scpi/messages.py);
+  a setting equal to the one already made costs nothing (the driver skips it).
+
+The defaults describe a LAN bench (drivers/timing.py); ``plan --sim BOARD.yaml`` takes the board
+file's ``timing:`` section, ``--timing-from RUN`` the durations of a recorded run.
 """
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
-from .plan_model import PlannedStep
+from drivers.timing import DEFAULT_TIMING, BenchTiming, acquisition_s, ramp_s, transfer_s
 
-DEFAULT_COMMAND_S = 0.02
-DEFAULT_QUERY_OVERHEAD_S = 0.005
-DEFAULT_LINK_BYTES_PER_S = 10e6
+from .plan_model import Plan, PlannedStep
+
 DEFAULT_PROMPT_S = 10.0
 DEFAULT_ANALYSIS_S = 0.005
 DEFAULT_BIAS_SETTLE_S = 0.5
@@ -29,15 +34,17 @@ DEFAULT_BIAS_SETTLE_S = 0.5
 
 @dataclass(frozen=True, kw_only=True)
 class EstimateSettings:
-    """Assumptions of the estimate."""
+    """Assumptions of the estimate: the bench's timing model and what software adds."""
 
-    command_s: float = DEFAULT_COMMAND_S
-    query_overhead_s: float = DEFAULT_QUERY_OVERHEAD_S
-    link_bytes_per_s: float = DEFAULT_LINK_BYTES_PER_S
+    timing: BenchTiming = DEFAULT_TIMING
     bytes_per_sample: int = 2
     prompt_s: float = DEFAULT_PROMPT_S
     analysis_s: float = DEFAULT_ANALYSIS_S
     bias_settle_s: float = DEFAULT_BIAS_SETTLE_S
+
+    def message_s(self, role: str) -> float:
+        """One program message to ``role`` and its reply."""
+        return self.timing.of(role).round_trip_s
 
 
 @dataclass
@@ -51,51 +58,69 @@ class _Bench:
     gate: float = 1.0
     coincidence_gate: float = 0.1
     bias_volts: float = 0.0
+    made: dict[str, Any] = field(default_factory=dict)  # step kind -> the last setting made
+
+
+Rule = Callable[[EstimateSettings, _Bench, dict[str, Any]], float]
 
 
 def _capture(s: EstimateSettings, b: _Bench, args: dict[str, Any]) -> float:
-    record = b.points / b.sample_rate if b.sample_rate > 0 else 0.0
-    period = 1.0 / b.pulse_rate if b.pulse_rate > 0 else 0.0
-    acquire = max(b.averages, 1) * max(record, period)
-    transfer = len(args.get("inputs", (1,))) * (
-        s.query_overhead_s + b.points * s.bytes_per_sample / s.link_bytes_per_s
-    )
-    return acquire + transfer
+    scope = s.timing.of("scope")
+    acquire = acquisition_s(averages=b.averages, points=b.points, sample_rate_hz=b.sample_rate,
+                            trigger_rate_hz=b.pulse_rate, rearm_s=scope.rearm_s)  # fmt: skip
+    per_input = 2 * scope.round_trip_s + transfer_s(b.points * s.bytes_per_sample, scope)
+    return acquire + scope.round_trip_s + len(args.get("inputs", (1,))) * per_input
 
 
 def _ramp(s: EstimateSettings, b: _Bench, args: dict[str, Any]) -> float:
     volts, rate = float(args["volts"]), float(args.get("rate") or 0.0)
-    took = abs(volts - b.bias_volts) / rate if rate > 0 else 0.0
+    took = ramp_s(b.bias_volts, volts, rate)
     b.bias_volts = volts
     return took + s.bias_settle_s
 
 
-def _track(name: str, attr: str) -> Callable[[EstimateSettings, _Bench, dict[str, Any]], float]:
-    def apply(s: EstimateSettings, b: _Bench, args: dict[str, Any]) -> float:
-        setattr(b, attr, args[name])
-        return s.command_s
+def _setting(role: str, apply: Callable[[_Bench, dict[str, Any]], None]) -> Rule:
+    """A configuring step: one message, nothing when it repeats the last setting of its kind."""
 
-    return apply
+    def rule(s: EstimateSettings, b: _Bench, args: dict[str, Any]) -> float:
+        key = f"{role}:{sorted(args.items())!r}"
+        if b.made.get(role) == key:
+            return 0.0
+        b.made[role] = key
+        apply(b, args)
+        return s.message_s(role.split(".", 1)[0])
+
+    return rule
 
 
-def _timebase(s: EstimateSettings, b: _Bench, args: dict[str, Any]) -> float:
+def _set(attr: str, name: str, kind: type) -> Callable[[_Bench, dict[str, Any]], None]:
+    return lambda b, a: setattr(b, attr, kind(a[name]))
+
+
+def _timebase(b: _Bench, args: dict[str, Any]) -> None:
     b.sample_rate, b.points = float(args["sample_rate"]), int(args["points"])
-    return s.command_s * 3
 
 
-_RULES: dict[str, Callable[[EstimateSettings, _Bench, dict[str, Any]], float]] = {
+def _relay(s: EstimateSettings, b: _Bench, args: dict[str, Any]) -> float:
+    switch = s.timing.of("switch")
+    return switch.round_trip_s + switch.relay_settle_s
+
+
+_RULES: dict[str, Rule] = {
     "scope.capture": _capture,
-    "scope.timebase": _timebase,
-    "scope.average": _track("count", "averages"),
-    "pulser.rate": _track("hz", "pulse_rate"),
-    "counter.gate": _track("seconds", "gate"),
-    "counter.count": lambda s, b, a: b.gate + s.command_s,
-    "coincidence.gate": _track("seconds", "coincidence_gate"),
-    "coincidence.count": lambda s, b, a: b.coincidence_gate + s.command_s,
+    "scope.timebase": _setting("scope.timebase", _timebase),
+    "scope.average": _setting("scope.average", _set("averages", "count", int)),
+    "pulser.rate": _setting("pulser.rate", _set("pulse_rate", "hz", float)),
+    "counter.gate": _setting("counter.gate", _set("gate", "seconds", float)),
+    "counter.count": lambda s, b, a: b.gate + 2 * s.message_s("counter"),
+    "coincidence.gate": _setting("coincidence.gate", _set("coincidence_gate", "seconds", float)),
+    "coincidence.count": lambda s, b, a: b.coincidence_gate + 2 * s.message_s("coincidence"),
+    "switch.route": _relay,
+    "switch.inject": _relay,
     "bias.ramp": _ramp,
-    "bias.read": lambda s, b, a: 2 * s.command_s,
-    "mca.acquire": lambda s, b, a: float(a.get("expected") or 0.0) + 6 * s.command_s,
-    "temperature.read": lambda s, b, a: s.command_s,
+    "bias.read": lambda s, b, a: 2 * s.message_s("bias"),
+    "mca.acquire": lambda s, b, a: float(a.get("expected") or 0.0) + 6 * s.message_s("mca"),
+    "temperature.read": lambda s, b, a: s.message_s("temperature"),
     "wait": lambda s, b, a: float(a["seconds"]),
     "prompt": lambda s, b, a: s.prompt_s,
 }
@@ -114,6 +139,15 @@ def estimate_steps(
         elif step.kind.startswith("analyse."):
             seconds = settings.analysis_s
         else:
-            seconds = settings.command_s
+            seconds = settings.message_s(step.kind.split(".", 1)[0])
         out.append(max(0.0, seconds))
     return out
+
+
+def estimate_plan(plan: Plan, settings: EstimateSettings) -> Plan:
+    """``plan`` with every step estimated under ``settings`` (e.g. a board file's timing)."""
+    estimates = estimate_steps(plan.steps, settings)
+    steps = tuple(
+        dataclasses.replace(s, estimate_s=e) for s, e in zip(plan.steps, estimates, strict=True)
+    )
+    return dataclasses.replace(plan, steps=steps)

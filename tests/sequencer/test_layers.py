@@ -13,7 +13,7 @@ SEQUENCER = Path(__file__).resolve().parents[2] / "sequencer"
 # Leaf modules every layer may use (DEVELOPERS.md).
 LEAVES = {
     "drivers.errors", "drivers.yamlsafe", "sequencer.errors", "sequencer.events", "sequencer.quantities",
-    "sequencer.inputs",
+    "sequencer.inputs", "drivers.timing",
 }
 
 # package -> project modules (prefixes) it may import, besides itself and the leaves.

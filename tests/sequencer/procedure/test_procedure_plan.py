@@ -121,12 +121,30 @@ def test_capture_and_count_estimates():
         "  - counter.gate: 0.25 s\n  - counter.count: {channel: 1, into: n}\n  - wait: 2 s\n"
     )
     capture, count, wait = plan.steps[3], plan.steps[5], plan.steps[6]
-    # 10 acquisitions x max(5000 / 1e9 s, 1 / 100 Hz) + 2 inputs x (5 ms + 5000 x 2 B / 10 MB/s)
-    assert capture.estimate_s == pytest.approx(10 * 0.01 + 2 * (0.005 + 0.001))
-    assert count.estimate_s == pytest.approx(0.25 + 0.02)
+    # the timing model's defaults (drivers/timing.py): 1 ms a message, 10 MB/s, no re-arm time.
+    # Acquisition = averages / trigger rate when the period exceeds the record (averaging N
+    # triggered records takes N trigger periods: standard): 10 x max(5000 / 1e9 s, 1 / 100 Hz);
+    # one message to start it, then 2 inputs x (preamble + data queries + 5000 x 2 B / 10 MB/s)
+    assert capture.estimate_s == pytest.approx(10 * 0.01 + 0.001 + 2 * (2 * 0.001 + 0.001))
+    assert count.estimate_s == pytest.approx(0.25 + 2 * 0.001)  # the gate + start + fetch
     assert wait.estimate_s == 2.0
     text = format_plan(plan)
     assert "scope.capture" in text and "estimated duration" in text and "7 steps" in text
+
+
+def test_a_repeated_setting_costs_nothing_and_a_board_file_timing_is_used():
+    from drivers.timing import BenchTiming, InstrumentTiming
+    from sequencer.procedure.estimate import EstimateSettings, estimate_plan
+
+    plan = plan_of(
+        HEAD + "steps:\n  - pulser.rate: 100 Hz\n  - pulser.rate: 100 Hz\n  - pulser.rate: 1 kHz\n"
+        "  - switch.inject: 2\n"
+    )
+    assert [s.estimate_s for s in plan.steps] == pytest.approx([0.001, 0.0, 0.001, 0.001 + 0.002])
+    slow = BenchTiming(roles={"pulser": InstrumentTiming(round_trip_s=0.01),
+                              "switch": InstrumentTiming(relay_settle_s=0.05)})  # fmt: skip
+    again = estimate_plan(plan, EstimateSettings(timing=slow))
+    assert [s.estimate_s for s in again.steps] == pytest.approx([0.01, 0.0, 0.01, 0.001 + 0.05])
 
 
 def test_overrides_replace_parameters():
