@@ -117,6 +117,10 @@ def load_yaml(
         raise error([Problem(start, f"file is {len(text)} characters, above the limit of {limits.max_bytes}")])
     if "\x00" in text:
         raise error([Problem(start, "file contains a NUL byte: not a text file")])
+    too_deep = flow_nesting_beyond(text, limits.max_depth)
+    if too_deep is not None:
+        where = _position(text, too_deep, file)
+        raise error([Problem(where, f"nesting deeper than {limits.max_depth} levels")])
     try:
         root = _compose(text, limits)
     except _Refused as exc:
@@ -156,6 +160,61 @@ def _reader_message(exc: yaml.reader.ReaderError) -> str:
     char = exc.character
     code = f"#x{char:04x}" if isinstance(char, int) else repr(char)
     return f"YAML syntax: unacceptable character {code}: {exc.reason}"
+
+
+_FLOW_MARKS = re.compile(r"[\[\]{}'\"#\n]")
+_QUOTE_MAY_FOLLOW = " \t\n[{,:"
+
+
+def flow_nesting_beyond(text: str, max_depth: int) -> int | None:
+    """The offset of the first ``[`` or ``{`` nested deeper than ``max_depth``, else None.
+
+    A linear look at the brackets before PyYAML sees the text: its scanner keeps every open
+    bracket as a possible simple key and re-examines them all at each token, so thousands of ``[``
+    on one line take seconds before the composer's own depth check is reached.  Brackets inside
+    quoted scalars and comments do not count; a text with few brackets is not looked at at all.
+    """
+    if text.count("[") + text.count("{") <= max_depth:
+        return None
+    depth = 0
+    quote = ""  # the quote character of the scalar we are in, or ''
+    in_comment = False
+    skip_to = -1
+    for match in _FLOW_MARKS.finditer(text):
+        pos = match.start()
+        if pos < skip_to:
+            continue
+        c = text[pos]
+        if in_comment:
+            in_comment = c != "\n"
+        elif quote == "'":
+            if c == "'":
+                if text.startswith("''", pos):  # an escaped quote inside '...'
+                    skip_to = pos + 2
+                else:
+                    quote = ""
+        elif quote == '"':
+            if c == '"' and _backslashes_before(text, pos) % 2 == 0:
+                quote = ""
+        elif c == "#":
+            in_comment = pos == 0 or text[pos - 1] in " \t\n"
+        elif c in "'\"":
+            if pos == 0 or text[pos - 1] in _QUOTE_MAY_FOLLOW:
+                quote = c
+        elif c in "[{":
+            depth += 1
+            if depth > max_depth:
+                return pos
+        elif c in "]}":
+            depth = max(0, depth - 1)
+    return None
+
+
+def _backslashes_before(text: str, pos: int) -> int:
+    n = 0
+    while pos - n > 0 and text[pos - n - 1] == "\\":
+        n += 1
+    return n
 
 
 class _Refused(yaml.YAMLError):

@@ -66,3 +66,61 @@ def test_size_cap_and_binary():
         load_yaml("a: " + "x" * 3_000_000, "big.yaml")
     with pytest.raises(LocatedError, match="UTF-8"):
         load_yaml(b"\xff\xfe\x00", "bin.yaml")
+
+
+def count_scanned_tokens(monkeypatch) -> list[int]:
+    """Count PyYAML's scanner work (one entry per ``fetch_more_tokens`` call)."""
+    import yaml.scanner
+
+    calls: list[int] = []
+    original = yaml.scanner.Scanner.fetch_more_tokens
+
+    def counting(self):
+        calls.append(1)
+        return original(self)
+
+    monkeypatch.setattr(yaml.scanner.Scanner, "fetch_more_tokens", counting)
+    return calls
+
+
+@pytest.mark.parametrize("opening", ["[", "{"])
+def test_deep_flow_nesting_is_refused_before_pyyaml_scans_it(monkeypatch, opening):
+    # PyYAML's scanner keeps each open bracket as a possible simple key and looks at all of them
+    # at every token: thousands of brackets on a line cost seconds before the composer's depth
+    # check.  Refused by a linear look first -- PyYAML never scans a token -- and located at the
+    # 65th bracket ("a: " is 3 characters, so column 3 + 64 + 1).
+    scanned = count_scanned_tokens(monkeypatch)
+    tracemalloc.start()
+    try:
+        with pytest.raises(LocatedError) as exc:
+            load_yaml("a: " + opening * 200_000 + "\n", "deep.yaml")
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert str(exc.value) == "deep.yaml:1:68: nesting deeper than 64 levels"
+    assert scanned == []
+    assert peak < 1_000_000  # nothing built from the 200,000 brackets
+
+
+def test_deep_nesting_over_many_lines_is_located_at_its_line(monkeypatch):
+    scanned = count_scanned_tokens(monkeypatch)
+    with pytest.raises(LocatedError) as exc:
+        load_yaml("a:\n" + "[\n" * 50_000, "lines.yaml")
+    assert str(exc.value) == "lines.yaml:66:1: nesting deeper than 64 levels"
+    assert scanned == []
+
+
+def test_brackets_in_quotes_and_comments_do_not_count_and_shallow_nesting_loads():
+    text = (
+        'a: "' + "[" * 100 + '\\" {"\n'
+        "b: '" + "{" * 100 + "''['\n"
+        "# " + "[" * 100 + "\n"
+        "c: " + "[" * 63 + "]" * 63 + "\n"  # 63 lists in the mapping: 64 levels, the limit
+    )
+    data = load_yaml(text, "ok.yaml")
+    assert data["a"] == "[" * 100 + '" {'
+    assert data["b"] == "{" * 100 + "'["
+    depth, node = 0, data["c"]
+    while isinstance(node, list) and node:
+        depth, node = depth + 1, node[0]
+    assert depth == 62 and node == []  # 63 lists: the innermost is empty
