@@ -28,7 +28,15 @@ from typing import Any, Literal
 
 from drivers.bench import BenchSpec, load_bench
 from sequencer import compose
-from sequencer.errors import ConfigError, Location, OptionError, Problem, RunAborted
+from sequencer.engine import bench_problems
+from sequencer.errors import (
+    ConfigError,
+    Location,
+    OptionError,
+    Problem,
+    ProcedureError,
+    RunAborted,
+)
 from sequencer.pace import describe_left, time_left
 from sequencer.procedure import (
     Batch,
@@ -177,6 +185,7 @@ class _BatchRun:
 
     def run(self) -> BatchOutcome:
         self._t0 = time.monotonic()
+        self._check_boards_first()
         self._check_instruments_first()
         self.store.mark_stale_runs_interrupted()
         count = len(self.batch.boards)
@@ -189,6 +198,29 @@ class _BatchRun:
             self.outcomes.append(outcome)
             self._report(index, count, outcome)
         return BatchOutcome(batch=self.batch.name, boards=tuple(self.outcomes), stopped=stopped)
+
+    def _check_boards_first(self) -> None:
+        """Every board of the batch planned for its board type, and on a bench file checked against
+        the bench's limits and roles, before the first board is mounted: a typo in board 9's type
+        or a bench that cannot do the procedure is found while nobody has mounted anything.  Each
+        problem is located at the board's entry in the batch file (or the bench file's key); the
+        boards left untested are named; then ``ProcedureError`` (exit 2)."""
+        problems: list[Problem] = []
+        for board in self.batch.boards:
+            try:
+                plan = self._plan(board)
+            except (ProcedureError, ConfigError) as exc:
+                problems += [_at_board(board, p) for p in exc.problems]
+                continue
+            if self.bench is not None:
+                problems += bench_problems(plan, self.bench)
+        if not problems:
+            return
+        self.options.echo(
+            f"batch {self.batch.name}: refused before the first board, no board was tested "
+            f"({len(self.batch.boards)} waiting: {', '.join(b.serial for b in self.batch.boards)})"
+        )
+        raise ProcedureError(list(dict.fromkeys(problems)))
 
     def _check_instruments_first(self) -> None:
         """A bench instrument past its calibration date or with another identity refuses the whole
@@ -303,6 +335,18 @@ class _BatchRun:
 
     def _yield_so_far(self) -> tuple[int, int]:
         return (sum(o.channels for o in self.outcomes), sum(o.passed for o in self.outcomes))
+
+
+def _at_board(board: BatchBoard, problem: Problem) -> Problem:
+    """``problem`` of planning ``board``, located at its entry in the batch file (where its serial
+    and board type are written), the original place kept in the message when it is elsewhere."""
+    if board.location is None or problem.location.file == board.location.file:
+        return problem
+    return Problem(
+        board.location,
+        f"board {board.serial} (board type {board.board_type}): {problem.message} "
+        f"(at {problem.location})",
+    )
 
 
 def qualify_batch(batch: Batch, store: Any, options: BatchOptions) -> BatchOutcome:

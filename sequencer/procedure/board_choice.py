@@ -30,6 +30,7 @@ from sequencer.errors import ProcedureError
 from sequencer.inputs import LIMITS_PREFIX, RunInput, loader_files, of_kind
 
 from .boards import board_info, board_type_input, board_type_of_input, board_type_path, shipped_dir
+from .checking import suggest
 from .limits import merge_limits, parse_limits_text
 from .model import Procedure
 from .plan_model import BoardInfo
@@ -106,6 +107,9 @@ def choose_board(
             raise ProcedureError([Problem(where, "the procedure names no board_type; cannot plan")])
         _check_accepted(procedure, name, where)
         path = lab.find("boards", name)
+        given_as_path = name.endswith((".yaml", ".yml")) or "/" in name or "\\" in name
+        if not given_as_path and not path.is_file():
+            raise ProcedureError([Problem(where, _unknown_type(name, lab))])
         board_in = RunInput("board_type", name, board_type_input(path).text)
         template = board_type_of_input(board_in, file=str(path))
     board = board_info(template, serial)
@@ -113,6 +117,17 @@ def choose_board(
     if procedure.limits_by_type and procedure.limits_by_type != board.board_type:
         procedure = _limits_of_type(procedure, board.board_type, lab, stored)
     return procedure, board, board_in
+
+
+def _unknown_type(name: str, lab: LabFiles) -> str:
+    """``board type 'PA9' is not known (did you mean 'PA8'?); known: ...``."""
+    folders = [shipped_dir("boards")] + ([lab.folder / "boards"] if lab.folder is not None else [])
+    known = sorted({p.stem for folder in folders if folder.is_dir() for p in folder.glob("*.yaml")})
+    where = f" or the lab's {lab.folder / 'boards'}" if lab.folder is not None else ""
+    return (
+        f"board type {name!r} is not known{suggest(name, known)}; known: {', '.join(known)} "
+        f"(a board-type file in procedures/boards/{where})"
+    )
 
 
 def _check_accepted(procedure: Procedure, name: str, where: Location) -> None:

@@ -88,3 +88,44 @@ def test_plan_summary_names_the_blocks_after_the_procedure_sections() -> None:
     assert code == 0
     assert re.search(r"\(setup \d+, steps \d+, cleanup \d+", out), out  # sections setup/steps/cleanup
     assert "main " not in out
+
+
+def test_batch_plans_every_board_before_the_first_board(tmp_path: Path) -> None:
+    # board 3's type is a typo: found before board 1 is run, at board 3's entry (line 8)
+    sims = tmp_path / "sims"
+    sims.mkdir()
+    for serial in ("NR-PA8-0001", "NR-PA8-0002", "NR-PA8-0003"):
+        (sims / f"{serial}.yaml").write_text(BOARD.read_text().replace("NR-PA8-0001", serial))
+    path = _batch_file(tmp_path, "  - serial: NR-PA8-0001\n  - serial: NR-PA8-0002\n"
+                                 "  - {serial: NR-PA8-0003, board_type: PA9}\n")
+    db = tmp_path / "results.db"
+    code, out, err = _invoke("batch", str(path), "--sim-dir", str(sims), "--yes", "--db", f"sqlite:///{db}")
+    assert code == 2, (out, err)
+    problems = [line for line in err.splitlines() if line.startswith(f"{path}:")]
+    assert problems and all(line.startswith(f"{path}:8:") for line in problems), err
+    assert "NR-PA8-0003" in problems[0] and "board type 'PA9' is not known (did you mean 'PA8'?)" in problems[0]
+    assert "refused before the first board" in out and "run 1" not in out
+    if db.exists():
+        with Store.open(f"sqlite:///{db}") as store:
+            assert store.list_runs() == []
+
+
+def test_batch_on_a_bench_without_a_needed_role_is_refused_at_its_instruments_key(tmp_path: Path) -> None:
+    # quick-gain.yaml needs pulser, scope and switch; this bench has no switch.  Nothing is opened
+    # (the addresses lead nowhere): the bench is checked against every board's plan first.
+    bench = tmp_path / "bench.yaml"
+    bench.write_text(
+        "bench: bench-9\n"
+        "instruments:\n"
+        '  pulser: {address: "TCPIP0::127.0.0.1::9::SOCKET", dialect: generic}\n'
+        '  scope: {address: "TCPIP0::127.0.0.1::9::SOCKET", dialect: generic}\n'
+    )
+    path = _batch_file(tmp_path, "  - serial: NR-PA8-0001\n  - serial: NR-PA8-0002\n")
+    code, out, err = _invoke("batch", str(path), "--bench", str(bench), "--yes",
+                             "--db", f"sqlite:///{tmp_path / 'r.db'}")
+    assert code == 2, (out, err)
+    lines = [line for line in err.splitlines() if line.strip()]
+    assert len(lines) == 1, err  # the same problem for both boards is said once
+    assert lines[0].startswith(f"{bench}:2:1: role 'switch' is not on bench 'bench-9'"), err
+    assert "add 'switch:' under instruments:" in lines[0]
+    assert "NR-PA8-0001, NR-PA8-0002" in out
