@@ -1,6 +1,8 @@
 """Conversion of a resolved value to what a step argument needs (``kinds.Arg.dimension``).
 
-Quantities become numbers in the canonical unit of the dimension; a bare number is taken in that unit;
+Quantities become numbers in the canonical unit of the dimension; a bare number (other than 0, the
+same in every unit) is refused with what to write instead ("write 20 ms or 20 s"), because a bare
+number would mean a different unit per argument (mV for a pulse, s for a wait);
 ``int`` arguments take whole numbers only; ``name`` arguments take identifiers (trace and value names).
 """
 
@@ -12,7 +14,15 @@ from typing import Any
 
 from .evaluate import describe, is_number
 from .kinds import Arg
-from .units import DIMENSIONS, Quantity, UnitError, canonical_unit, read_quantity, to_canonical
+from .units import (
+    DIMENSIONS,
+    Quantity,
+    UnitError,
+    canonical_unit,
+    format_number,
+    read_quantity,
+    to_canonical,
+)
 
 NAME_RE = re.compile(r"^[A-Za-z_][A-Za-z0-9_.-]*$")
 
@@ -48,6 +58,8 @@ def _quantity(value: Any, dimension: str, name: str) -> float:
         raise ConversionError(
             f"{name}: needs a value in {canonical_unit(dimension)}, got {describe(value)}"
         )
+    if not isinstance(value, Quantity) and value != 0:
+        raise ConversionError(f"{name}: {format_number(value)} has no unit: {unit_hint(value, dimension)}")
     try:
         number = to_canonical(value, dimension)
     except UnitError as exc:
@@ -55,6 +67,25 @@ def _quantity(value: Any, dimension: str, name: str) -> float:
     if not math.isfinite(number):
         raise ConversionError(f"{name}: not a finite number")
     return number
+
+
+#: two units a value of each dimension is commonly written in, for "write 20 ms or 20 s"
+_HINT_UNITS: dict[str, tuple[str, ...]] = {
+    "voltage": ("mV", "V"),
+    "bias_voltage": ("V", "mV"),
+    "time": ("ns", "us"),
+    "duration": ("ms", "s"),
+    "frequency": ("Hz", "kHz"),
+    "slew": ("V/s",),
+    "current": ("uA", "nA"),
+    "percent": ("%",),
+}
+
+
+def unit_hint(value: float | int, dimension: str) -> str:
+    """``write 20 ms or 20 s``: what to write instead of a bare number of ``dimension``."""
+    number = format_number(value)
+    return "write " + " or ".join(f"{number} {u}" for u in _HINT_UNITS[dimension])
 
 
 def _int(value: Any, name: str) -> int:

@@ -37,7 +37,8 @@ _UNIT_DIMS = (
 def _arg_schema(arg: Arg) -> dict[str, Any]:
     dim = arg.dimension
     if dim in _UNIT_DIMS:
-        schema: dict[str, Any] = {"anyOf": [{"type": "number"}, _STRING]}
+        # a physical value carries its unit ("20 ms"); a bare number is refused, except 0
+        schema: dict[str, Any] = {"anyOf": [{"const": 0}, _STRING]}
     elif dim == "int":
         schema = {"anyOf": [{"type": "integer"}, _EXPR]}
     elif dim == "float":
@@ -163,7 +164,7 @@ def procedure_schema() -> dict[str, Any]:
             "defaults": {
                 "type": "object",
                 "additionalProperties": False,
-                "properties": {k: {"type": ["number", "string"]} for k in DEFAULT_KEYS},
+                "properties": {k: _STRING for k in DEFAULT_KEYS},
             },
             "limits": {
                 "anyOf": [

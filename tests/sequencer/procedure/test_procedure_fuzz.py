@@ -56,8 +56,8 @@ values = st.recursive(
 
 
 PLAUSIBLE = {
-    "voltage": ["40 mV", 10, "{amp}", "{2 * amp}"],
-    "bias_voltage": ["20 V", 5],
+    "voltage": ["40 mV", "10 mV", "{amp}", "{2 * amp}"],
+    "bias_voltage": ["20 V", "5 V"],
     "time": ["50 ns"],
     "duration": ["0.01 s", "{0.5 ms}"],
     "frequency": ["1 kHz"],
