@@ -71,6 +71,7 @@ class BatchOptions:
     overrides: Mapping[str, Any] = field(default_factory=dict)  # procedure parameters
     lab: LabFiles = field(default_factory=LabFiles)  # a lab's own board types and limit sets
     override_instrument_checks: bool = False  # run past calibration due / wrong identity (a caveat)
+    default_operator: str = ""  # for a board the batch file names no operator for (the login name)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -275,7 +276,7 @@ class _BatchRun:
                 ), False
         plan = self._plan(board)
         request = compose.RunRequest(
-            operator=board.operator,
+            operator=board.operator or opts.default_operator,
             unattended=opts.unattended,
             acknowledge=opts.acknowledge,
             prompt=opts.prompt,

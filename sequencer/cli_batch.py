@@ -14,6 +14,7 @@ from sequencer.cli_common import (
     db_option,
     env,
     handles_errors,
+    login_name,
     visa_library_option,
 )
 
@@ -119,6 +120,7 @@ def batch(
         echo=click.echo,
         lab=lab,
         override_instrument_checks=override_instrument_checks,
+        default_operator=login_name(),
     )
     with compose.open_store(db, env()) as store:
         outcome = qualify_batch(spec, store, options)

@@ -5,7 +5,7 @@
     batch: NR-2025-W27                 # batch name
     procedure: ../procedures/qualify-pa8.yaml   # relative to this file
     board_type: PA8                    # default for every board
-    operator: A. Example               # default for every board
+    operator: A. Example               # default for every board (none: the login name)
     parameters: {points: 6}            # optional: procedure parameters for every board
     boards:
       - serial: NR-PA8-0001
@@ -108,11 +108,11 @@ def _board(
             )
         )
     values = {k: _text(entry, k, problems, defaults[k]) for k in ("board_type", "operator")}
-    for key, value in values.items():
-        if not value:
-            problems.append(
-                Problem(entry.where(), f"board needs a {key} (here or at the top of the batch)")
-            )
+    # no operator here or at the top: the batch command records the login name (as `run` does)
+    if not values["board_type"]:
+        problems.append(
+            Problem(entry.where(), "board needs a board_type (here or at the top of the batch)")
+        )
     procedure = _text(entry, "procedure", problems) if "procedure" in entry else None
     parameters = _parameters(entry, problems)
     sim = entry.get("sim_board")

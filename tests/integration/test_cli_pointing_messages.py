@@ -83,6 +83,22 @@ def test_the_operator_defaults_to_the_login_name(tmp_path: Path) -> None:
         assert store.get_run(1).operator == "t.newcomer"
 
 
+def test_a_batch_without_an_operator_records_the_login_name(tmp_path: Path) -> None:
+    # getpass.getuser reads LOGNAME first (Python docs, getpass.getuser)
+    sims = tmp_path / "sims"
+    sims.mkdir()
+    (sims / "NR-PA8-0001.yaml").write_text(BOARD.read_text())
+    path = tmp_path / "batch.yaml"
+    path.write_text(f"batch: NR-B09\nprocedure: {QUICK}\nboard_type: PA8\nboards:\n  - serial: NR-PA8-0001\n")
+    url = f"sqlite:///{tmp_path / 'results.db'}"
+    result = CliRunner(env={"LOGNAME": "t.newcomer"}).invoke(
+        cli, ["batch", str(path), "--sim-dir", str(sims), "--yes", "--db", url], catch_exceptions=False)
+    assert result.exit_code == 0, result.stdout + result.stderr
+    with Store.open(url) as store:
+        (run,) = store.list_runs(batch="NR-B09")
+        assert run.operator == "t.newcomer"
+
+
 def test_plan_summary_names_the_blocks_after_the_procedure_sections() -> None:
     code, out, _ = _invoke("plan", str(QUICK))
     assert code == 0
