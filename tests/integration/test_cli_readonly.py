@@ -10,6 +10,7 @@ import sqlalchemy as sa
 from click.testing import CliRunner
 
 from sequencer.cli import attach_commands, cli
+from tests.sequencer.store.conftest import pg_admin, pg_url  # noqa: F401  (PostgreSQL fixtures)
 
 attach_commands()
 
@@ -147,3 +148,32 @@ def test_a_writing_command_on_an_existing_database_may_upgrade_it(tmp_path: Path
     with Store.open(url, create=False, upgrade=True) as store:
         assert store.get_run(run_id).board == "NR-PA8-0009"
     assert _revision(url) == (head_revision(),)
+
+
+@pytest.mark.postgres
+def test_on_postgresql_an_older_schema_is_refused_by_runs_and_carried_forward_by_upgrade(
+    request: pytest.FixtureRequest,
+) -> None:
+    # the same migration path as the SQLite tests above, on a real PostgreSQL schema (skipped,
+    # with the reason, when BENCHWRIGHT_TEST_PG_URL is not set)
+    url = request.getfixturevalue("pg_url")
+    from sequencer.store.connect import open_engine
+    from sequencer.store.migrate import head_revision, upgrade_to
+    from tests.sequencer.store.test_store_schema import _insert_revision_1_run
+
+    engine = open_engine(url)
+    try:
+        upgrade_to(engine, "0001")
+        run_id = _insert_revision_1_run(engine)
+    finally:
+        engine.dispose()
+    refused = CliRunner().invoke(cli, ["runs", "--db", url], catch_exceptions=False)
+    assert refused.exit_code == 2, refused.output
+    assert "schema revision 0001, older than" in refused.stderr
+    assert _revision(url) == ("0001",)  # untouched
+    upgraded = CliRunner().invoke(cli, ["upgrade", "--db", url], catch_exceptions=False)
+    assert upgraded.exit_code == 0, upgraded.output
+    assert _revision(url) == (head_revision(),)
+    listed = CliRunner().invoke(cli, ["runs", "--db", url, "--format", "csv"], catch_exceptions=False)
+    rows = listed.stdout.strip().splitlines()
+    assert len(rows) == 2 and rows[1].startswith(f"{run_id},") and "NR-PA8-0009" in rows[1]

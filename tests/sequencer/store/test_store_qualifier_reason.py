@@ -90,7 +90,7 @@ def test_open_formats_and_results_carry_qualifier_and_reason(tmp_path: Path):
     assert list(zip(df["qualifier"], df["reason"], strict=True)) == want
 
 
-def test_rows_recorded_before_0006_read_empty(sqlite_url):
+def test_rows_recorded_before_0006_read_empty(db_url):
     # rows recorded, the schema taken back to 0005 (no such columns), then opened by this version:
     # the upgrade gives the old rows the columns' default, empty (no qualifier, no reason)
     from alembic import command
@@ -98,7 +98,7 @@ def test_rows_recorded_before_0006_read_empty(sqlite_url):
     from sequencer.store.connect import writer
     from sequencer.store.migrate import _config
 
-    engine = open_engine(sqlite_url)
+    engine = open_engine(db_url)
     try:
         upgrade_to(engine)
         run_id = _record(Store(engine))  # the constructor does not migrate
@@ -110,7 +110,7 @@ def test_rows_recorded_before_0006_read_empty(sqlite_url):
         assert not {"qualifier", "reason"} & cols
     finally:
         engine.dispose()
-    with Store.open(sqlite_url) as store:
+    with Store.open(db_url) as store:
         with store.engine.connect() as conn:
             assert current_revisions(conn) == (head_revision(),)
         stored = store.measurements(run_id=run_id)
