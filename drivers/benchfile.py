@@ -3,7 +3,8 @@
 ```yaml
 bench: bench-2
 instruments:   # roles: pulser, scope, threshold, counter, bias, switch, coincidence
-  pulser: {address: "TCPIP0::127.0.0.1::5025::SOCKET", dialect: generic, expect_id: "", calibration_due: 2027-06-30}
+  pulser: {address: "TCPIP0::127.0.0.1::5025::SOCKET", dialect: generic, expect_id: "",
+           calibrated: 2026-06-30, calibration_due: 2027-06-30}
   bias:   {address: "TCPIP0::127.0.0.1::5029::SOCKET", dialect: generic, max_volts: 60, max_ramp_V_per_s: 5}
 ```
 Per instrument also ``read_termination``, ``write_termination`` (a string, or ``LF``/``CR``/``CRLF``),
@@ -58,6 +59,7 @@ _KEYS = (
     "dialect",
     "visa_library",
     "expect_id",
+    "calibrated",
     "calibration_due",
     "timeout_ms",
     "read_termination",
@@ -77,6 +79,7 @@ class InstrumentSpec:
     dialect: str = GENERIC
     visa_library: str = DEFAULT_VISA_LIBRARY
     expect_id: str = ""
+    calibrated: dt.date | None = None  # date of the last calibration (printed on certificates)
     calibration_due: dt.date | None = None
     timeout_ms: int = DEFAULT_TIMEOUT_MS
     read_termination: str = "\n"
@@ -239,7 +242,8 @@ def _locations(data: Mapping, entries: Mapping) -> dict[str, Location]:
 def instrument_warnings(
     spec: InstrumentSpec, identity: Identity | None, today: dt.date
 ) -> list[str]:
-    """Identity not matching ``expect_id`` (case-insensitive substring of ``*IDN?``); calibration past due."""
+    """Identity not matching ``expect_id`` (case-insensitive substring of ``*IDN?``); calibration past
+    due; a calibration date after today (a typo or a wrong clock: nothing to trust the due date by)."""
     out: list[str] = []
     if (
         identity is not None
@@ -249,6 +253,8 @@ def instrument_warnings(
         out.append(
             f"{spec.role}: identity {identity.raw!r} does not match expect_id {spec.expect_id!r}"
         )
+    if spec.calibrated is not None and spec.calibrated > today:
+        out.append(f"{spec.role}: calibrated {spec.calibrated.isoformat()} is after today {today.isoformat()}")
     if spec.calibration_due is not None and spec.calibration_due < today:
         days = (today - spec.calibration_due).days
         out.append(
@@ -290,7 +296,11 @@ def _instrument(
     values["address"] = check.text("address", required=True)
     values["visa_library"] = check.text("visa_library", default=DEFAULT_VISA_LIBRARY)
     values["expect_id"] = check.text("expect_id", default="", allow_empty=True)
+    values["calibrated"] = check.date("calibrated")
     values["calibration_due"] = check.date("calibration_due")
+    if values["calibrated"] and values["calibration_due"] and values["calibrated"] > values["calibration_due"]:
+        check.bad("calibrated", f"{values['calibrated'].isoformat()} is after calibration_due "
+                                f"{values['calibration_due'].isoformat()}")
     values["timeout_ms"] = check.integer("timeout_ms", DEFAULT_TIMEOUT_MS, 1, 3_600_000)
     values["chunk_size"] = check.integer("chunk_size", DEFAULT_CHUNK_SIZE, 1024, 1 << 30)
     values["busy_poll_us"] = check.integer("busy_poll_us", DEFAULT_BUSY_POLL_US, 0, 100_000)
@@ -398,6 +408,10 @@ class _Checker:
 
     def __init__(self, role: str, entry: Mapping, problems: list[Problem], source: str) -> None:
         self.role, self.entry, self.problems, self.source = role, entry, problems, source
+
+    def bad(self, key: str, message: str) -> None:
+        """A problem with ``key`` at its line and column."""
+        self._bad(key, message)
 
     def _bad(self, key: str, message: str) -> None:
         self.problems.append(

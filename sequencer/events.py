@@ -41,6 +41,7 @@ class InstrumentInfo:
     serial: str = ""
     firmware: str = ""
     calibration_due: str = ""   # ISO date or ""
+    calibrated: str = ""        # ISO date of the last calibration, or ""
 
 
 @dataclass(frozen=True)

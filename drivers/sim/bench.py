@@ -192,6 +192,7 @@ class SimBench:
     def bench_mapping(self, link: str = "socket") -> dict[str, Any]:
         """The bench-file data (DESIGN.md "Bench file") describing this simulated bench."""
         due = dt.date.today() + dt.timedelta(days=365)
+        calibrated = dt.date.today() - dt.timedelta(days=30)  # invented: a simulator is not calibrated
         instruments: dict[str, Any] = {}
         for role, inst in self.instruments.items():
             entry: dict[str, Any] = {
@@ -201,6 +202,7 @@ class SimBench:
                 "write_termination": "\n",
                 "timeout_ms": DEFAULT_TIMEOUT_MS,
                 "expect_id": f"{MAKER},{inst.model}",
+                "calibrated": calibrated,
                 "calibration_due": due,
             }
             if role == "bias":

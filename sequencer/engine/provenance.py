@@ -24,6 +24,7 @@ def describe_run(
     for role, spec in bench.spec.instruments.items():
         ident = ids.get(role)
         due = getattr(spec, "calibration_due", None)
+        calibrated = getattr(spec, "calibrated", None)
         instruments.append(
             InstrumentInfo(
                 role=role,
@@ -33,6 +34,7 @@ def describe_run(
                 serial=getattr(ident, "serial", ""),
                 firmware=getattr(ident, "firmware", ""),
                 calibration_due="" if due is None else str(due),
+                calibrated="" if calibrated is None else str(calibrated),
             )
         )
     return RunInfo(

@@ -63,6 +63,9 @@ class InstrumentLine:
     firmware: str
     calibration_due: str
     address: str
+    # the date of the last calibration; left out of the canonical record when empty, so the data of
+    # certificates printed before it was kept hashes as it did
+    calibrated: str = field(default="", metadata={"omitted_empty": True})
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -270,6 +273,7 @@ def _instrument(i: Any) -> InstrumentLine:
         serial=i.serial or "",
         firmware=i.firmware or "",
         calibration_due=str(i.calibration_due or ""),
+        calibrated=str(getattr(i, "calibrated", "") or ""),
         address=i.address or "",
     )
 

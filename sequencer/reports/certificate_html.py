@@ -18,14 +18,14 @@ from pathlib import Path
 from .certificate_data import CertificateData, canonical_json, data_sha256
 from .certificate_pdf import CLOSING_SECTIONS, FIGURE_CAPTIONS, metadata_keywords
 from .certificate_view import (
-    INSTRUMENT_COLUMNS,
-    INSTRUMENT_HEADER,
     QUANTITY_COLUMN_KEYS,
     QUANTITY_HEADER,
     closing_fields,
     crosstalk_out_rows,
     field_slug,
     identity_rows,
+    instrument_columns,
+    instrument_header,
     instrument_rows,
     overall_text,
     printed_fields,
@@ -82,7 +82,7 @@ def render_html(data: CertificateData, images: Mapping[str, bytes | None], path:
         _quantities(data),
         _crosstalk_out(data),
         "<h2>Instruments</h2>",
-        _table(INSTRUMENT_HEADER, instrument_rows(data), "instruments", INSTRUMENT_COLUMNS),
+        _table(instrument_header(data), instrument_rows(data), "instruments", instrument_columns(data)),
         *(_figure(key, images.get(key), caption) for key, caption in FIGURE_CAPTIONS.items()),
         *_closing(data),
         "<h2>Data integrity</h2>",

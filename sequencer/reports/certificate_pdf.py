@@ -15,15 +15,16 @@ from typing import Any
 
 from .certificate_data import SCHEMA, CertificateData, canonical_json, data_sha256
 from .certificate_view import (
-    INSTRUMENT_HEADER,
     QUANTITY_HEADER,
     closing_fields,
     crosstalk_out_rows,
     identity_rows,
+    instrument_header,
     instrument_rows,
     overall_text,
     printed_fields,
     quantity_rows,
+    shows_calibrated,
     table_fields,
 )
 from .pdf_layout import (
@@ -103,7 +104,8 @@ def render_pdf(
         section(pdf, f"Crosstalk caused by this channel (channel {data.channel} driven)")
         _quantities(pdf, data, caused)
     section(pdf, "Instruments")
-    table(pdf, INSTRUMENT_HEADER, instrument_rows(data), (22, 34, 34, 32, 30, 28))
+    widths = (20, 30, 30, 28, 24, 24, 24) if shows_calibrated(data) else (22, 34, 34, 32, 30, 28)
+    table(pdf, instrument_header(data), instrument_rows(data), widths)
     for key, caption in FIGURE_CAPTIONS.items():
         png = images.get(key)
         if png:

@@ -89,7 +89,26 @@ def quantity_rows(d: CertificateData) -> list[QuantityRow]:
     ]
 
 
+def shows_calibrated(d: CertificateData) -> bool:
+    """Whether the instruments table has a ``calibrated`` column: when the run kept any instrument's
+    calibration date (a bench file without the key, and every run recorded before it was kept,
+    print the table as they always did, so their certificates still verify)."""
+    return any(i.calibrated for i in d.instruments)
+
+
+def instrument_header(d: CertificateData) -> tuple[str, ...]:
+    return (*INSTRUMENT_HEADER[:-1], "calibrated", INSTRUMENT_HEADER[-1]) if shows_calibrated(d) else INSTRUMENT_HEADER
+
+
+def instrument_columns(d: CertificateData) -> tuple[str, ...]:
+    """The field keys of the instruments table's columns (``instruments.N.<column>``)."""
+    if shows_calibrated(d):
+        return (*INSTRUMENT_COLUMNS[:-1], "calibrated", INSTRUMENT_COLUMNS[-1])
+    return INSTRUMENT_COLUMNS
+
+
 def instrument_rows(d: CertificateData) -> list[tuple[str, ...]]:
+    dated = shows_calibrated(d)
     return [
         (
             i.role,
@@ -97,6 +116,7 @@ def instrument_rows(d: CertificateData) -> list[tuple[str, ...]]:
             i.model or "—",
             i.serial or "—",
             i.firmware or "—",
+            *((i.calibrated or "—",) if dated else ()),
             i.calibration_due or "—",
         )
         for i in d.instruments
@@ -168,7 +188,8 @@ def table_fields(d: CertificateData) -> list[tuple[str, tuple[str, ...], tuple[s
     as the victim for crosstalk), crosstalk this channel caused, then instruments."""
     rows = [(r.key, QUANTITY_COLUMN_KEYS, r.cells) for r in quantity_rows(d)]
     rows += [(r.key, QUANTITY_COLUMN_KEYS, r.cells) for r in crosstalk_out_rows(d)]
-    rows += [(f"instruments.{i}", INSTRUMENT_COLUMNS, c) for i, c in enumerate(instrument_rows(d))]
+    columns = instrument_columns(d)
+    rows += [(f"instruments.{i}", columns, c) for i, c in enumerate(instrument_rows(d))]
     return rows
 
 

@@ -115,6 +115,7 @@ def insert_run(
                     "serial": i.serial,
                     "firmware": i.firmware,
                     "calibration_due": i.calibration_due,
+                    "calibrated": i.calibrated,
                 }
                 for i in info.instruments
             ],

@@ -6,7 +6,8 @@ the two.  Layout::
     documents     procedure / bench YAML texts, stored once, keyed by the SHA-256 of their UTF-8 text
     runs          one row per run: provenance and its current status (the only row that changes, and
                   only while the run is not completed; every change also writes an annotation)
-    instruments   the bench's instruments of a run (identity, serial, calibration due date)
+    instruments   the bench's instruments of a run (identity, serial, calibration due date and, from
+                  revision 0007, the date of the last calibration)
     steps         one row per finished step (completed, failed or skipped), with settings and results
     traces        captured waveforms of a completed step (npy + zlib, dtype as captured)
     measurements  judged values of a completed step (DESIGN.md quantity names)
@@ -142,6 +143,7 @@ class Instrument(Base):
     serial: Mapped[str] = mapped_column(String(200))
     firmware: Mapped[str] = mapped_column(String(200))
     calibration_due: Mapped[str] = mapped_column(String(32))
+    calibrated: Mapped[str] = mapped_column(String(32), server_default=text("''"))
 
 
 class Step(Base):

@@ -113,6 +113,7 @@ def _run_records(conn: Connection, runs: Select[Any]) -> list[RunRecord]:
                 serial=i["serial"],
                 firmware=i["firmware"],
                 calibration_due=i["calibration_due"],
+                calibrated=i["calibrated"],
             )
         )
     return [

@@ -292,3 +292,28 @@ def test_bench_keys_are_located_by_role_and_key(tmp_path):
     assert spec.where("bias", "max_current_uA") == spec.where("bias")  # not written: the role
     assert (spec.where("bias").line, spec.where("bias").column) == (4, 3)
     assert spec.where("scope") == spec.where()  # no such role: the instruments key
+
+
+def test_the_calibration_date_is_read_and_checked_against_the_due_date(tmp_path):
+    # issue 16: certificates print each instrument's calibration date beside its due date
+    text = GOOD.replace("calibration_due: 2027-06-30", "calibrated: 2026-06-30, calibration_due: 2027-06-30")
+    spec = load_bench(write(tmp_path, text))
+    assert spec.instruments["pulser"].calibrated == dt.date(2026, 6, 30)
+    assert spec.instruments["bias"].calibrated is None
+    found = problems(tmp_path, GOOD.replace("calibration_due: 2027-06-30",
+                                            "calibrated: 2027-07-01, calibration_due: 2027-06-30"))
+    line = textwrap.dedent(GOOD).splitlines()[2].replace(
+        "calibration_due: 2027-06-30", "calibrated: 2027-07-01, calibration_due: 2027-06-30")
+    column = line.index("2027-07-01") + 1  # the located value of `calibrated`
+    assert found == [f"bench.yaml:3:{column}: pulser: calibrated 2027-07-01 is after calibration_due 2027-06-30"]
+
+
+def test_a_calibration_date_after_today_is_not_trusted():
+    from drivers.bench import InstrumentSpec
+
+    spec = InstrumentSpec(role="scope", address="A", calibrated=dt.date(2026, 3, 2),
+                          calibration_due=dt.date(2027, 3, 2))
+    assert instrument_warnings(spec, None, dt.date(2026, 3, 1)) == [
+        "scope: calibrated 2026-03-02 is after today 2026-03-01"
+    ]
+    assert instrument_warnings(spec, None, dt.date(2026, 3, 2)) == []  # calibrated today is fine

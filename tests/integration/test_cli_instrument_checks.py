@@ -45,7 +45,8 @@ def _bench(tmp_path: Path, mapping: dict, role: str, **change: object) -> Path:
 @pytest.mark.parametrize(
     ("change", "message"),
     [
-        ({"calibration_due": dt.date(2020, 1, 31)}, "scope: calibration was due 2020-01-31"),
+        ({"calibrated": dt.date(2019, 1, 31), "calibration_due": dt.date(2020, 1, 31)},
+         "scope: calibration was due 2020-01-31"),
         ({"expect_id": "OTHERMAKER,XYZ"}, "scope: identity"),
     ],
 )
@@ -63,7 +64,8 @@ def test_a_bench_with_a_problem_is_refused_before_the_run(tmp_path, sim, change,
 
 def test_the_override_is_recorded_and_printed_on_every_certificate(tmp_path, sim):
     db = f"sqlite:///{tmp_path / 'r.db'}"
-    bench = _bench(tmp_path, sim, "scope", calibration_due=dt.date(2020, 1, 31))
+    calibrated = dt.date(2019, 1, 31).isoformat()
+    bench = _bench(tmp_path, sim, "scope", calibrated=dt.date(2019, 1, 31), calibration_due=dt.date(2020, 1, 31))
     code, out = _invoke("run", str(QUICK), "--bench", str(bench), "--board", "NR-PA8-0001",
                         "--db", db, "--yes", "--operator", "k.berg", "--override-instrument-checks")
     assert code in (0, 1), out
@@ -79,6 +81,8 @@ def test_the_override_is_recorded_and_printed_on_every_certificate(tmp_path, sim
         text = html.read_text(encoding="utf-8")
         assert f"Caveat: {caveat}" in text
         assert "2020-01-31" in text  # the scope's calibration due date in the instruments table
+        # and its calibration date beside it (row 4: roles sorted, the scope after the pulser)
+        assert f'data-field="instruments.4.calibrated">{calibrated}<' in text
         # test conditions: quick-gain.yaml's parameters as resolved for the run
         assert "Test condition: top = 160 mV" in text
         assert "Test condition: points = 5" in text
@@ -99,7 +103,7 @@ def test_a_batch_on_an_overdue_bench_is_refused_before_the_first_board(tmp_path,
     # issue 16: the refusal used to come with the first board's run (after mounting it) and end the
     # batch without a word on the boards left; now it comes before any board, with that summary
     db = tmp_path / "r.db"
-    bench = _bench(tmp_path, sim, "scope", calibration_due=dt.date(2020, 1, 31))
+    bench = _bench(tmp_path, sim, "scope", calibrated=dt.date(2019, 1, 31), calibration_due=dt.date(2020, 1, 31))
     batch = _batch(tmp_path, ["NR-PA8-0001", "NR-PA8-0002"])
     code, out = _invoke("batch", str(batch), "--bench", str(bench), "--db", f"sqlite:///{db}", "--yes")
     assert code == 2, out
@@ -114,7 +118,7 @@ def test_a_batch_on_an_overdue_bench_is_refused_before_the_first_board(tmp_path,
 
 def test_a_batch_with_the_override_runs_and_records_the_caveat(tmp_path, sim):
     db = f"sqlite:///{tmp_path / 'r.db'}"
-    bench = _bench(tmp_path, sim, "scope", calibration_due=dt.date(2020, 1, 31))
+    bench = _bench(tmp_path, sim, "scope", calibrated=dt.date(2019, 1, 31), calibration_due=dt.date(2020, 1, 31))
     batch = _batch(tmp_path, ["NR-PA8-0001"])
     code, out = _invoke("batch", str(batch), "--bench", str(bench), "--db", db, "--yes",
                         "--override-instrument-checks")

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import hashlib
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import UTC, datetime, timedelta
 from typing import Any
 
@@ -104,6 +104,7 @@ def run_info(spec: RunSpec) -> RunInfo:
                 serial="NRP-0007",
                 firmware="1.4",
                 calibration_due="2026-01-31",
+                calibrated="2025-01-31",
             ),
             InstrumentInfo(
                 role="scope",
@@ -113,6 +114,7 @@ def run_info(spec: RunSpec) -> RunInfo:
                 serial="NRS-0042",
                 firmware="2.1",
                 calibration_due="2026-06-30",
+                calibrated="2025-06-30",
             ),
             InstrumentInfo(
                 role="bias",
@@ -122,6 +124,7 @@ def run_info(spec: RunSpec) -> RunInfo:
                 serial="NRH-0003",
                 firmware="3.0",
                 calibration_due="2025-12-31",
+                calibrated="2024-12-31",
             ),
         ),
         batch=spec.batch,
@@ -206,12 +209,19 @@ def shaped_pulse(
 
 
 def record_run(
-    store: Any, spec: RunSpec, tweak: Callable[[str, int, str | None, float], float] | None = None
+    store: Any,
+    spec: RunSpec,
+    tweak: Callable[[str, int, str | None, float], float] | None = None,
+    *,
+    instruments: tuple[InstrumentInfo, ...] | None = None,
 ) -> int:
     """Record a run of ``spec``; ``tweak(quantity, channel, output, value)`` may alter a figure
-    before it is judged (drift injection).  Returns the run id."""
+    before it is judged (drift injection); ``instruments`` replace the bench's.  Returns the run id."""
     rng = np.random.default_rng(spec.seed)
-    run_id = store.create_run(run_info(spec), started_at=spec.started_at)
+    info = run_info(spec)
+    if instruments is not None:
+        info = replace(info, instruments=instruments)
+    run_id = store.create_run(info, started_at=spec.started_at)
     rec = _Recorder(store, run_id, spec.started_at)
     fix = tweak or (lambda q, c, o, v: v)
     if spec.full:

@@ -80,7 +80,7 @@ def test_every_printed_field_of_the_html_is_marked(certified):
     expected |= {f"{row}.{col}" for row, columns, _ in table_fields(data) for col in columns}
     assert marked == expected
     assert {"header.board_serial", "header.operator", "instruments.0.calibration_due",
-            "quantities.0.limits", "quantities.0.uncertainty", "verdict", "caveats.0",
+            "instruments.0.calibrated", "quantities.0.limits", "quantities.0.uncertainty", "verdict", "caveats.0",
             "decision_rule", "bias.peak_bias_voltage", "approval.tested_by"} <= marked
 
 
@@ -151,7 +151,8 @@ def test_an_edit_of_each_printed_pdf_field_is_named(certified, tmp_path: Path):
     } - {"header.certificate_number"}
     # (the decision rule wraps over two lines of the PDF, so it is not one string to edit here)
     assert {"verdict", "caveats.0", "data_sha256", "instruments.0.serial",
-            "instruments.0.calibration_due", "bias.interlock", "approval.tested_by"} <= set(checked)
+            "instruments.0.calibration_due", "instruments.0.calibrated", "bias.interlock",
+            "approval.tested_by"} <= set(checked)
     for col in ("value", "uncertainty", "limits"):
         assert any(k.startswith("quantities.") and k.endswith("." + col) for k in checked), col
 
@@ -299,3 +300,34 @@ def test_the_decision_rule_the_stored_limit_set_states_is_printed(tmp_path: Path
     assert data.decision_rule.startswith("guarded acceptance (ILAC-G8:09/2019)")
     assert "k = 3" in data.coverage
     assert "Decision rule: guarded acceptance" in html.read_text(encoding="utf-8")
+
+
+def test_a_run_without_calibration_dates_prints_and_hashes_as_before(tmp_path: Path):
+    # the calibration date (bench key `calibrated`, issue 16) is a column only when the run kept one:
+    # a run recorded before it was kept prints the six columns its certificates always had, and its
+    # canonical record has no `calibrated` key, so certificates printed before still verify
+    import json
+
+    from sequencer.reports.certificate_data import canonical_json
+
+    with Store.open(f"sqlite:///{tmp_path / 'results.db'}") as store:
+        info = run_info(RunSpec(channels=1))
+        undated = tuple(replace(i, calibrated="") for i in info.instruments)
+        run_id = record_run(store, RunSpec(channels=1), instruments=undated)
+        pdf, html, *_ = certify_run(store, run_id, tmp_path / "certs", workers=1)
+        data = gather_certificates(store, run_id)[0]
+        assert all("calibrated" not in i for i in json.loads(canonical_json(data))["instruments"])
+        [(_, columns, _)] = [r for r in table_fields(data) if r[0] == "instruments.0"]
+        assert columns == ("role", "maker", "model", "serial", "firmware", "calibration_due")
+        assert "calibrated" not in html.read_text(encoding="utf-8")
+        assert verify_certificate(store, html).ok and verify_certificate(store, pdf).ok
+
+
+def test_the_calibration_date_is_printed_beside_the_due_date(certified):
+    _, data, pdf, _ = certified
+    [(_, columns, cells)] = [r for r in table_fields(data) if r[0] == "instruments.0"]
+    row = dict(zip(columns, cells, strict=True))  # the bias supply of simulated_runs (roles sorted)
+    assert (row["role"], row["calibrated"], row["calibration_due"]) == ("bias", "2024-12-31", "2025-12-31")
+    assert columns[-2:] == ("calibrated", "calibration_due")
+    page = " ".join(" ".join(p.extract_text() for p in PdfReader(str(pdf)).pages).split())
+    assert "2024-12-31" in page and "2025-12-31" in page

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 
 import pytest
@@ -220,3 +221,26 @@ def test_sqlite_write_transactions_take_the_lock_at_begin_and_reads_do_not(sqlit
                     other.execute("BEGIN IMMEDIATE")
         finally:
             other.close()
+
+
+def test_upgrade_keeps_instruments_and_adds_their_calibration_date_empty(db_url):
+    # revision 0007 (issue 16): instruments.calibrated; rows written before keep every field
+    engine = open_engine(db_url)
+    try:
+        upgrade_to(engine, "0001")
+        old_id = _insert_revision_1_run(engine)
+        with engine.begin() as conn:
+            conn.execute(sa.text(
+                "INSERT INTO instruments (run_id, role, address, maker, model, serial, firmware,"
+                " calibration_due) VALUES (:r, 'scope', 'TCPIP0::10.0.0.5::INSTR', 'NORDRING',"
+                " 'DSO-4', 'NRS-0042', '2.1', '2026-06-30')"), {"r": old_id})
+        upgrade_to(engine, "0006")  # the schema of the release before this revision
+    finally:
+        engine.dispose()
+    with Store.open(db_url) as s:
+        [scope] = s.get_run(old_id).instruments
+        assert (scope.serial, scope.calibration_due, scope.calibrated) == ("NRS-0042", "2026-06-30", "")
+        new_id = s.create_run(replace(run_info(), instruments=(
+            replace(scope, calibrated="2025-06-30"),)), T0)
+        [again] = s.get_run(new_id).instruments
+        assert again.calibrated == "2025-06-30"
