@@ -31,13 +31,16 @@ from sequencer.store.sqlite_files import (
     NETWORK_FILESYSTEMS,
     default_url,
     network_filesystem,
+    read_only_location,
+    read_only_uri,
 )
 
 DEFAULT_CONNECT_TIMEOUT_S = 10  # PostgreSQL: an unreachable server fails in seconds, not minutes
 WRITE_OPTION = "benchwright_write"
 
 __all__ = ["DEFAULT_BUSY_TIMEOUT_S", "DEFAULT_URL", "NETWORK_FILESYSTEMS", "database_exists",
-           "default_url", "dump_json", "network_filesystem", "open_engine", "parse_url", "writer"]
+           "default_url", "dump_json", "is_read_only", "network_filesystem", "open_engine", "parse_url",
+           "writer"]
 
 
 def parse_url(url: str) -> URL:
@@ -102,8 +105,10 @@ def _finite(value: Any) -> Any:
     return value
 
 
-def _sqlite_engine(url: URL, busy_timeout_s: float) -> Engine:
+def _sqlite_engine(url: URL, busy_timeout_s: float, *, read_only: bool = False) -> Engine:
     _check_sqlite_file(url)
+    if read_only:  # a file: URI that only reads (sqlite_files.read_only_uri)
+        url = url.set(database=read_only_uri(Path(url.database or "")), query={"uri": "true"})
     engine = create_engine(url, json_serializer=dump_json)
 
     @event.listens_for(engine, "connect")
@@ -114,8 +119,11 @@ def _sqlite_engine(url: URL, busy_timeout_s: float) -> Engine:
         cur = dbapi_conn.cursor()
         cur.execute(f"PRAGMA busy_timeout = {int(busy_timeout_s * 1000)}")
         cur.execute("PRAGMA foreign_keys = ON")
-        cur.execute("PRAGMA journal_mode = WAL")
-        cur.execute("PRAGMA synchronous = FULL")
+        if read_only:
+            cur.execute("PRAGMA query_only = ON")
+        else:
+            cur.execute("PRAGMA journal_mode = WAL")
+            cur.execute("PRAGMA synchronous = FULL")
         cur.close()
 
     @event.listens_for(engine, "begin")
@@ -144,12 +152,29 @@ def _postgres_engine(url: URL) -> Engine:
         raise StoreError(f"cannot load the driver for {url.drivername}") from exc
 
 
-def open_engine(url: str, *, busy_timeout_s: float = DEFAULT_BUSY_TIMEOUT_S) -> Engine:
-    """An engine for ``url`` with benchwright's connection settings (see the module docstring)."""
+def open_engine(
+    url: str, *, busy_timeout_s: float = DEFAULT_BUSY_TIMEOUT_S, reader: bool = False
+) -> Engine:
+    """An engine for ``url`` with benchwright's connection settings (see the module docstring).
+
+    ``reader``: the caller only reads.  An SQLite file that cannot be written (a read-only mount)
+    is then opened through a read-only URI instead of failing on the ``-shm`` file SQLite cannot
+    create beside it; ``is_read_only(engine)`` tells."""
     parsed = parse_url(url)
     if parsed.get_backend_name() == "sqlite":
-        return _sqlite_engine(parsed, busy_timeout_s)
+        database = parsed.database or ""
+        plain_file = database not in ("", ":memory:") and not database.startswith("file:")
+        read_only = reader and plain_file and read_only_location(Path(database))
+        return _sqlite_engine(parsed, busy_timeout_s, read_only=read_only)
     return _postgres_engine(parsed)
+
+
+def is_read_only(engine: Engine) -> bool:
+    """True for an engine ``open_engine`` opened read-only (a database on a read-only mount)."""
+    database = engine.url.database or ""
+    return engine.url.get_backend_name() == "sqlite" and database.startswith("file:") and (
+        "mode=ro" in database
+    )
 
 
 def database_exists(url: str) -> bool:

@@ -10,7 +10,8 @@ out.  Results are the same dataclasses and dicts (a test compares both paths on 
 Anything unusual is left to the SQLAlchemy path, which knows what to say about it: a URL with
 options, PostgreSQL, a file on a network filesystem, a database at another revision (to upgrade or
 refuse), no schema, a damaged or locked file. ``open`` returns None for those.  The connection is
-opened ``mode=rw`` (never creates a file) with ``PRAGMA query_only`` (never writes).
+opened ``mode=rw`` (never creates a file) with ``PRAGMA query_only`` (never writes); a file that
+cannot be written (a read-only mount) through ``sqlite_files.read_only_uri``.
 """
 
 from __future__ import annotations
@@ -25,7 +26,12 @@ from urllib.parse import quote
 from sequencer.errors import StoreError
 from sequencer.store.lines import LINE_COLUMNS, BatchLine, RunCounts, RunLine
 from sequencer.store.rows import EXPORT_COLUMNS, iso_utc
-from sequencer.store.sqlite_files import DEFAULT_BUSY_TIMEOUT_S, network_filesystem
+from sequencer.store.sqlite_files import (
+    DEFAULT_BUSY_TIMEOUT_S,
+    network_filesystem,
+    read_only_location,
+    read_only_uri,
+)
 
 #: As ``liveness.DEFAULT_STALE_AFTER_S`` (a test checks); ``liveness`` (socket, /proc) is imported
 #: only when there is a running run to judge.
@@ -112,8 +118,9 @@ class LightReader:
         if network_filesystem(file, mounts):
             return None
         try:
-            conn = sqlite3.connect(f"file:{quote(str(file.resolve()))}?mode=rw", uri=True,
-                                   timeout=DEFAULT_BUSY_TIMEOUT_S)
+            uri = (read_only_uri(file) if read_only_location(file)  # a read-only mount
+                   else f"file:{quote(str(file.resolve()))}?mode=rw")
+            conn = sqlite3.connect(uri, uri=True, timeout=DEFAULT_BUSY_TIMEOUT_S)
         except sqlite3.Error:
             return None
         try:

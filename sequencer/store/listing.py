@@ -71,7 +71,7 @@ def open_listing(url: str, *, mark_stale: bool = False) -> Listing:
 
     store = Store.open(url, create=False)
     try:
-        if mark_stale:
+        if mark_stale and not store.read_only:  # a read-only database is shown as it is
             store.mark_stale_runs_interrupted()
     except BaseException:
         store.close()

@@ -21,7 +21,13 @@ from sequencer.errors import StoreError
 from sequencer.events import Event, RunInfo
 from sequencer.inputs import RunInput
 from sequencer.store import bench_lease, lease, lifecycle, queries
-from sequencer.store.connect import DEFAULT_BUSY_TIMEOUT_S, database_exists, open_engine, writer
+from sequencer.store.connect import (
+    DEFAULT_BUSY_TIMEOUT_S,
+    database_exists,
+    is_read_only,
+    open_engine,
+    writer,
+)
 from sequencer.store.faults import as_store_error, refuse_damaged
 from sequencer.store.liveness import this_process
 from sequencer.store.migrate import current_revisions, ensure_schema, refuse_old_schema
@@ -52,6 +58,8 @@ class Store:
     def __init__(self, engine: Engine) -> None:
         """Wrap an engine whose schema is at head (``Store.open`` makes sure of that)."""
         self.engine = engine
+        #: Opened read-only (an SQLite file on a read-only mount, for a command that only reads).
+        self.read_only = is_read_only(engine)
         self._writer = writer(engine)
         self._recorder = Recorder(engine)
 
@@ -73,11 +81,14 @@ class Store:
         an older database is then refused with the command that upgrades it.  ``run --repeat`` and
         ``resume`` write into an existing database and pass ``upgrade=True``.  ``busy_timeout_s``
         (SQLite): how long a statement waits for another writer's lock (``safe`` waits briefly).
+        A reader's SQLite file that cannot be written (a read-only mount) is opened read-only
+        (``read_only``), instead of failing on the index file SQLite cannot create beside it.
         """
         if not create and not database_exists(url):
             raise StoreError(f"no database at {url}")
         may_upgrade = create if upgrade is None else upgrade
-        engine = open_engine(url, busy_timeout_s=busy_timeout_s)
+        reader = not create and not may_upgrade
+        engine = open_engine(url, busy_timeout_s=busy_timeout_s, reader=reader)
         where = engine.url.render_as_string(hide_password=True)
         try:
             with _as_store_error(f"cannot open the results database {where}"):
