@@ -9,6 +9,8 @@
       x1: {nominal_gain: 1.0}
       x5: {nominal_gain: 5.0, polarity: negative}   # polarity: positive (default) or negative
       shaped: {}
+    input_range: [0 mV, 1 V]      # optional: test-pulse amplitudes the input accepts (checked
+                                  # against every pulser.amplitude and pulser.sine of a plan)
 
 :func:`load_board_type` gives a :class:`BoardInfo` template (serial empty); :func:`board_info` fills in
 the serial of the board under test.
@@ -29,8 +31,9 @@ from sequencer.inputs import RunInput
 
 from .checking import check_keys, require_keys
 from .plan_model import BoardInfo
+from .units import Quantity, read_quantity
 
-BOARD_KEYS = ("board_type", "description", "channels", "outputs")
+BOARD_KEYS = ("board_type", "description", "channels", "outputs", "input_range")
 OUTPUT_KEYS = ("nominal_gain", "polarity", "description")
 POLARITIES = {"positive": 1, "negative": -1}
 MAX_CHANNELS = 1024
@@ -80,6 +83,7 @@ def parse_board_type(text: str | bytes, file: str) -> BoardInfo:
             )
         )
     outputs, gains, signs = _outputs(data, problems)
+    input_range = _input_range(data, problems)
     if problems:
         raise ProcedureError(problems)
     return BoardInfo(
@@ -90,7 +94,34 @@ def parse_board_type(text: str | bytes, file: str) -> BoardInfo:
         nominal_gain=gains,
         polarity=signs,
         source=file,
+        input_range_mV=input_range,
+        input_range_at=str(data.where("input_range")) if input_range else "",
     )
+
+
+def _input_range(data: YamlMap, problems: list[Problem]) -> tuple[float, float] | None:
+    """``input_range: [low, high]`` in volts with units (``[0 mV, 1 V]``) as mV, low < high."""
+    raw = data.get("input_range")
+    if raw is None:
+        return None
+    bounds: list[float] = []
+    if isinstance(raw, list) and len(raw) == 2:
+        for item in raw:
+            value = read_quantity(item) if isinstance(item, str) else item
+            if isinstance(value, Quantity) and value.dimension == "V":
+                bounds.append(value.si * 1e3)
+            elif value == 0 and not isinstance(value, bool):
+                bounds.append(0.0)
+    if len(bounds) != 2 or not bounds[0] < bounds[1]:
+        problems.append(
+            Problem(
+                data.where("input_range"),
+                "input_range: needs [low, high] voltages with units, low below high, "
+                "e.g. [0 mV, 1 V]",
+            )
+        )
+        return None
+    return (bounds[0], bounds[1])
 
 
 def _outputs(

@@ -26,6 +26,7 @@ class StepChecks:
         self.problems = problems
         self.produced: set[str] = set()
         self.swept: set[str] = set()
+        self.out_of_range: set[object] = set()  # locations already reported (a sweep repeats)
 
     def _add(self, step: Leaf, key: str, message: str) -> None:
         self.problems.append(Problem(step.args[key].location, f"{step.kind}: {message}"))
@@ -43,6 +44,7 @@ class StepChecks:
         if "output" in step.args and args["output"] not in board.outputs:
             hint = suggest(args["output"], board.outputs)
             self._add(step, "output", f"{board.board_type} has no output {args['output']!r}{hint}")
+        self._input_range(step, args)
         if step.kind.startswith("analyse."):
             for key in CAPTURE_REFS:
                 if key in step.args and args[key] not in self.produced:
@@ -63,6 +65,39 @@ class StepChecks:
             if value is not None:
                 self.produced.update(value if isinstance(value, tuple) else (value,))
         self.swept.update(k for k in labels if k not in ("channel", "output"))
+
+    def _input_range(self, step: Leaf, args: Mapping[str, Any]) -> None:
+        """A pulser setting outside the input range the board type declares (once per place)."""
+        allowed = self.board.input_range_mV
+        peaks = _peaks(step.kind, args)
+        if allowed is None or peaks is None:
+            return
+        key, low, high = peaks
+        if allowed[0] <= low and high <= allowed[1]:
+            return
+        where = step.args[key].location if key in step.args else step.location
+        if where in self.out_of_range:
+            return
+        self.out_of_range.add(where)
+        shown = f"{high:g} mV" if low == high else f"{low:g} to {high:g} mV"
+        self.problems.append(
+            Problem(
+                where,
+                f"{step.kind}: {shown} is outside the input range {allowed[0]:g} to "
+                f"{allowed[1]:g} mV of board type {self.board.board_type} (input_range at "
+                f"{self.board.input_range_at})",
+            )
+        )
+
+
+def _peaks(kind: str, args: Mapping[str, Any]) -> tuple[str, float, float] | None:
+    """(argument, lowest, highest) voltage a pulser step puts on the board's input, in mV."""
+    if kind == "pulser.amplitude":
+        return "mV", args["mV"], args["mV"]
+    if kind == "pulser.sine":
+        offset = args.get("offset", 0.0)
+        return "amplitude", offset - args["amplitude"], offset + args["amplitude"]
+    return None
 
 
 def check_unique(steps: list[PlannedStep], problems: list[Problem]) -> None:

@@ -30,6 +30,10 @@ class BoardInfo:
     nominal_gain: Mapping[str, float] = field(default_factory=dict)   # output -> V/V
     polarity: Mapping[str, int] = field(default_factory=dict)   # output -> +1 / -1 (absent: +1)
     source: str = ""                 # the board-type file it came from
+    #: test-pulse amplitudes the board's injection input accepts, mV (None: not declared), and
+    #: where the board-type file declares it (for messages)
+    input_range_mV: tuple[float, float] | None = None
+    input_range_at: str = ""
 
     def sign(self, output: str | None) -> int:
         """+1 for a positive-going output (the default), -1 for a negative-going one."""
