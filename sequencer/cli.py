@@ -53,8 +53,13 @@ def cli(debug: bool) -> None:
                    "fragment.schema.json is checked as one anyway.")
 @click.option("--board-type", default=None,
               help="Plan fragments for this board type too (a procedure names its own).")
+@click.option("--bench", "bench_path", type=click.Path(dir_okay=False), default=None,
+              help="Also check each procedure against this bench file: the roles it needs, bias "
+                   "voltages, ramp rates and current limits (nothing is opened).")
 @handles_errors
-def validate(procedures: tuple[str, ...], fragment: bool, board_type: str | None) -> None:
+def validate(
+    procedures: tuple[str, ...], fragment: bool, board_type: str | None, bench_path: str | None
+) -> None:
     """Check procedure files; print file:line:column: message per problem (exit 2 if any)."""
     from sequencer.procedure import validate_paths
 
@@ -64,14 +69,39 @@ def validate(procedures: tuple[str, ...], fragment: bool, board_type: str | None
     from sequencer.compose import plan_for
     from sequencer.procedure import is_fragment_text, load_procedure, unjudged_warnings
 
+    spec = _bench_to_check(bench_path)
+    lines: list[str] = []
     for path in procedures:
         if fragment or is_fragment_text(Path(path).read_text(encoding="utf-8")):
             planned = f"planned for {board_type}" if board_type else "give --board-type to plan it"
-            click.echo(f"{path}: ok (fragment; {planned})")
+            lines.append(f"{path}: ok (fragment; {planned})")
             continue
-        for line in unjudged_warnings(plan_for(load_procedure(path), "VALIDATE-ONLY")):
+        plan = plan_for(load_procedure(path), "VALIDATE-ONLY")
+        problems += _bench_problems(plan, spec)
+        for line in unjudged_warnings(plan):
             click.echo(f"{path}: warning: {line}", err=True)
-        click.echo(f"{path}: ok")
+        lines.append(f"{path}: ok" + (f" (and on bench {spec.name!r})" if spec else ""))
+    if problems:
+        fail(EXIT_INPUT, "\n".join(str(p) for p in dict.fromkeys(problems)))
+    click.echo("\n".join(lines))
+
+
+def _bench_to_check(bench_path: str | None) -> Any:
+    """The bench file ``validate``/``plan --bench`` check against (None: no bench given)."""
+    if bench_path is None:
+        return None
+    from drivers.bench import load_bench
+
+    return load_bench(bench_path)
+
+
+def _bench_problems(plan: Any, spec: Any) -> list[Any]:
+    """What the bench file forbids of ``plan``, located at the bench keys (none without a bench)."""
+    if spec is None:
+        return []
+    from sequencer.engine import bench_problems
+
+    return bench_problems(plan, spec)
 
 
 @cli.command()
@@ -82,11 +112,13 @@ def validate(procedures: tuple[str, ...], fragment: bool, board_type: str | None
               help="Take each step's duration from that recorded run where it has the same path.")
 @click.option("--sim", "sim_board", type=click.Path(dir_okay=False), default=None,
               help="Estimate with this simulated board file's timing: section (round trips, relays...).")
+@click.option("--bench", "bench_path", type=click.Path(dir_okay=False), default=None,
+              help="Also check the plan against this bench file (roles, bias limits); nothing is opened.")
 @db_option
 @handles_errors
 def plan(
     procedure: str, serial: str, board_type: str | None, timing_run: int | None,
-    sim_board: str | None, db: str | None,
+    sim_board: str | None, bench_path: str | None, db: str | None,
 ) -> None:
     """Show the expanded step list with paths, counts and an estimated duration.
 
@@ -108,6 +140,9 @@ def plan(
         planned = estimate_plan(planned, EstimateSettings(timing=sim_timing(sim_board)))
     from sequencer.procedure import unjudged_warnings
 
+    problems = _bench_problems(planned, _bench_to_check(bench_path))
+    if problems:
+        fail(EXIT_INPUT, "\n".join(str(p) for p in dict.fromkeys(problems)))
     for line in unjudged_warnings(planned):
         click.echo(f"warning: {line}", err=True)
     if timing_run is None:

@@ -145,3 +145,30 @@ def test_batch_on_a_bench_without_a_needed_role_is_refused_at_its_instruments_ke
     assert lines[0].startswith(f"{bench}:2:1: role 'switch' is not on bench 'bench-9'"), err
     assert "add 'switch:' under instruments:" in lines[0]
     assert "NR-PA8-0001, NR-PA8-0002" in out
+
+
+def test_validate_and_plan_check_a_procedure_against_a_bench_file(tmp_path: Path) -> None:
+    # bias-leakage.yaml ramps to 30 V at 10 V/s; this bench allows 20 V at 5 V/s.  Nothing is opened.
+    bench = tmp_path / "bench.yaml"
+    bench.write_text(
+        "bench: bench-3\n"
+        "instruments:\n"
+        "  bias:\n"
+        '    address: "TCPIP0::127.0.0.1::9::SOCKET"\n'
+        "    max_volts: 20\n"
+        "    max_ramp_V_per_s: 5\n"
+    )
+    leakage = ROOT / "procedures" / "bias-leakage.yaml"
+    for command in ("validate", "plan"):
+        code, out, err = _invoke(command, str(leakage), "--bench", str(bench))
+        assert code == 2, (command, out, err)
+        lines = err.strip().splitlines()
+        assert any(line.startswith(f"{bench}:5:16: ") and "30 V exceeds the bench limit 20 V" in line
+                   for line in lines), err
+        assert any(line.startswith(f"{bench}:6:23: ") and "10 V/s exceeds" in line for line in lines), err
+        assert "ok" not in out
+    roomy = tmp_path / "roomy.yaml"
+    roomy.write_text(bench.read_text().replace("max_volts: 20", "max_volts: 60").replace(
+        "max_ramp_V_per_s: 5", "max_ramp_V_per_s: 10"))
+    code, out, err = _invoke("validate", str(leakage), "--bench", str(roomy))
+    assert code == 0 and "ok (and on bench 'bench-3')" in out, err
