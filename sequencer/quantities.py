@@ -67,5 +67,7 @@ QUANTITY_UNITS: Mapping[str, str] = MappingProxyType(
         "inl_max_lsb": "LSB",
         "missing_codes": "1",
         "bandwidth_mhz": "MHz",
+        "zero_crossing_ns": "ns",
+        "zero_crossing_walk_ns": "ns",
     }
 )

@@ -175,10 +175,21 @@ class _Loader:
 
     @staticmethod
     def _limits_by_type(data: YamlMap) -> str:
-        """The board type the limits were named by (``limits: PA8`` or ``{file: PA8}``), else ""."""
+        """The board type the limits were named by (``limits: PA8`` or ``{file: PA8}``), else "".
+
+        Only a name the procedure declares as a board type (``board_type``, ``board_types``) is
+        one: a set of its own beside the type's (``limits: PA8-shaper``) stays the procedure's
+        whatever the run's type, instead of being swapped for the type's general set."""
         raw = data.get("limits")
         ref = raw.get("file") if isinstance(raw, YamlMap) else raw
-        if isinstance(ref, str) and not ref.endswith((".yaml", ".yml")) and "/" not in ref:
+        types = data.get("board_types")
+        declared = {data.get("board_type"), *(types if isinstance(types, list) else ())}
+        if (
+            isinstance(ref, str)
+            and not ref.endswith((".yaml", ".yml"))
+            and "/" not in ref
+            and ref in declared
+        ):
             return ref
         return ""
 

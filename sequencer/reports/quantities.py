@@ -29,6 +29,9 @@ READABLE: dict[str, str] = {
     "rise_time_ns": "Rise time (10-90 %)",
     "leakage_nA": "Leakage current",
     "baseline_mV": "Baseline",
+    "zero_crossing_ns": "Zero crossing (from onset)",
+    "zero_crossing_walk_ns": "Zero-crossing walk",
+    "bandwidth_mhz": "Bandwidth (-3 dB)",
 }
 """Names printed on certificates (the unit is its own column, so it is not repeated in the name);
 a quantity not listed is printed by its DESIGN.md name."""

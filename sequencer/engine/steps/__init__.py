@@ -14,6 +14,7 @@ from ..records import StepResult
 from . import (
     analysis,
     bias,
+    bipolar,
     coincidence,
     counter,
     digitizer,
@@ -37,7 +38,7 @@ def handler_table() -> Mapping[str, Handler]:
     table: dict[str, Handler] = {}
     for family in (
         pulser, scope, threshold, counter, coincidence, bias, switch, flow, analysis, sensors,
-        sensor_analysis, module_analysis, digitizer, discriminator_timing, shaper_adc,
+        sensor_analysis, module_analysis, digitizer, discriminator_timing, shaper_adc, bipolar,
     ):
         table.update(family.HANDLERS)
     return table

@@ -139,7 +139,14 @@ def analyse_bandwidth(ctx: RunContext, step: PlannedStep) -> StepResult:
     return StepResult(
         results=results,
         measurements=[
-            measure(ctx, step, "bandwidth_mhz", result.frequency_3db_hz / 1e6, output=None)
+            measure(
+                ctx,
+                step,
+                "bandwidth_mhz",
+                result.frequency_3db_hz / 1e6,
+                output=None,
+                reason=result.reason,
+            )
         ],
     )
 
