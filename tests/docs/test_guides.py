@@ -148,10 +148,10 @@ def test_batch_guide_files_load_and_every_board_plans(tmp_path: Path):
     assert paths
     for path in paths:
         batch = load_batch(path)
-        procedure = load_procedure(batch.procedure)
-        for board in batch.boards:
+        for board in batch.boards:  # a board may name its own procedure and parameters
+            procedure = load_procedure(batch.procedure_of(board))
             chosen, info, _ = choose_board(procedure, board.serial, board.board_type)
-            build_plan(chosen, info)
+            build_plan(chosen, info, overrides=batch.parameters_of(board))
         assert {b.board_type for b in batch.boards} == {"PA8", "PA8N"}
 
 
