@@ -197,12 +197,14 @@ APPROVAL = ("Reviewed by ______________________________", "Date ________________
 
 
 def closing_fields(d: CertificateData) -> list[tuple[str, str]]:
-    """What a certificate prints after its tables: why values are missing, the bias record
-    summarised, and the approval block (tested by; reviewed by and date are signed by hand)."""
+    """What a certificate prints after its tables: why values are missing (for values recorded
+    before their reason was kept with them; a stored reason is printed in the value's own cell),
+    the bias record summarised, and the approval block (tested by; reviewed by and date are signed
+    by hand)."""
     out = [
         (f"notes.{i}", f"Not measured: {quantity_label(q)} {q.output or ''}: {q.note}".replace("  ", " "))
         for i, q in enumerate(d.quantities)
-        if q.note
+        if q.note and not q.reason
     ]
     out += [(f"bias.{field_slug(label)}", f"{label}: {text}") for label, text in d.bias]
     out.append(("approval.tested_by", f"Tested by {d.operator or '—'}"))
