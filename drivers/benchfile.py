@@ -109,6 +109,13 @@ class BenchSpec:
     #: the lab's own folder of board types and limit sets (``lab:``), resolved; None when not named
     lab: Path | None = None
 
+    def place_of(self, warning: str) -> Location:
+        """Where in the bench file an :func:`instrument_warnings` line points: the key it is about
+        (``expect_id``, ``calibrated``, ``calibration_due``) of the role it names."""
+        role, _, text = warning.partition(": ")
+        key = next((k for k, words in WARNING_KEYS if words in text), None)
+        return self.where(role if role in self.instruments else None, key)
+
     def where(self, role: str | None = None, key: str | None = None) -> Location:
         """The place in the bench file to point at: the value of ``role``'s ``key`` if it is written,
         else the role's entry, else the ``instruments:`` key, else the file's start."""
@@ -237,6 +244,14 @@ def _locations(data: Mapping, entries: Mapping) -> dict[str, Location]:
         if isinstance(entry, YamlMap):
             out.update({f"{role}.{key}": entry.where(key) for key in entry})
     return out
+
+
+#: (bench key, words of the instrument_warnings line about it), for BenchSpec.place_of
+WARNING_KEYS = (
+    ("expect_id", "does not match expect_id"),
+    ("calibrated", "is after today"),
+    ("calibration_due", "calibration was due"),
+)
 
 
 def instrument_warnings(

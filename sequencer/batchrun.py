@@ -249,8 +249,8 @@ class _BatchRun:
         echo(f"no board was tested ({len(todo)} of {len(self.batch.boards)} waiting: "
              f"{', '.join(b.serial for b in todo)}); fix the bench file, or run again with "
              "--override-instrument-checks, which every certificate of the batch will state")
-        at = Location(self.bench.source or "<bench>", 1, 1)
-        raise ConfigError([Problem(at, f"{p}: batch refused before the first board") for p in problems])
+        raise ConfigError([Problem(self.bench.place_of(p), f"{p}: batch refused before the first board")
+                           for p in problems])
 
     def _board(self, board: BatchBoard, index: int, count: int) -> tuple[BoardOutcome, bool]:
         opts = self.options

@@ -380,9 +380,8 @@ def check_instruments(problems: Sequence[str], spec: BenchSpec, request: RunRequ
     if not problems:
         return ()
     if not request.override_instrument_checks:
-        at = Location(spec.source or "<bench>", 1, 1)
         raise ConfigError([
-            Problem(at, f"{p}: refused before the run (fix the bench, or run with "
+            Problem(spec.place_of(p), f"{p}: refused before the run (fix the bench, or run with "
                         "--override-instrument-checks, which every certificate of the run will state)")
             for p in problems
         ])
@@ -439,8 +438,9 @@ def roles_needed(plan: Plan, spec: BenchSpec) -> list[str]:
         raise ConfigError(
             [
                 Problem(
-                    Location(spec.source or "<bench>", 1, 1),
-                    f"the procedure needs role(s) {', '.join(missing)} that the bench file does not define",
+                    spec.where(),
+                    f"the procedure needs role(s) {', '.join(missing)} that the bench file does not "
+                    "define: add them under instruments:",
                 )
             ]
         )

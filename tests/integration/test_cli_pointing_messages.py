@@ -172,3 +172,26 @@ def test_validate_and_plan_check_a_procedure_against_a_bench_file(tmp_path: Path
         "max_ramp_V_per_s: 5", "max_ramp_V_per_s: 10"))
     code, out, err = _invoke("validate", str(leakage), "--bench", str(roomy))
     assert code == 0 and "ok (and on bench 'bench-3')" in out, err
+
+
+def test_an_overdue_instrument_is_located_at_its_calibration_due(tmp_path: Path) -> None:
+    import datetime as dt
+
+    import yaml
+
+    from drivers.sim import start_sim_bench
+
+    with start_sim_bench(BOARD) as sim:
+        mapping = sim.bench_mapping()
+        mapping["instruments"]["scope"]["calibration_due"] = dt.date(2020, 1, 31)
+        mapping["instruments"]["scope"]["calibrated"] = dt.date(2019, 1, 31)
+        bench = tmp_path / "bench.yaml"
+        bench.write_text(yaml.safe_dump(mapping, sort_keys=False))
+        code, out, err = _invoke("run", str(QUICK), "--bench", str(bench), "--board", "NR-PA8-0001",
+                                 "--db", f"sqlite:///{tmp_path / 'r.db'}", "--yes")
+    assert code == 2, (out, err)
+    text = bench.read_text().splitlines()
+    scope = text.index("  scope:")
+    line = next(i for i, t in enumerate(text, start=1) if i > scope and "calibration_due" in t)
+    column = text[line - 1].index("2020-01-31") + 1
+    assert err.startswith(f"{bench}:{line}:{column}: scope: calibration was due 2020-01-31"), err
