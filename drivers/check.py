@@ -2,9 +2,12 @@
 instrument, each reply printed as parsed -- the first thing a lab runs after writing a dialect.
 
 Nothing that matters is changed: only queries are sent (plus the dialect's ``at_open`` commands
-and, on a scope, one acquisition of one record with its present settings); the bias supply is
-never written to, so its output stays as it is (off, on a bench at rest).  Queries that wait for a
-measurement gate, need a channel list, or read binary blocks are listed as skipped, with why.
+and, on a scope, one acquisition of one record with its present settings, whose binary block is
+the fetch query's reply); the bias supply is never written to, so its output stays as it is (off,
+on a bench at rest).  A channel-list query asks about one relay (board channel 1's injection); a query that waits for a
+measurement gate is asked after one gate with the instrument's present gate time on channel 1
+(a counter's input select is the one setting written), or skipped, with why, when that gate is
+longer than a check waits (:data:`MAX_CHECK_GATE_S`).
 """
 
 from __future__ import annotations
@@ -19,10 +22,14 @@ from drivers.capabilities import absences
 from drivers.errors import BenchwrightError
 from drivers.roles.perform import perform
 
-#: Fields a query may be asked with during a check (input 1, channel 1).
-CHECK_FIELDS: dict[str, Any] = {"input": 1, "channel": 1}
-#: Queries that start or wait for a measurement gate: asked by a run, not by a check.
+#: Fields a query may be asked with during a check: input 1, channel 1, and as a channel list
+#: the injection relay of board channel 1 (``101`` in the switch numbering of
+#: ``drivers/roles/switch.py``; a switch numbered otherwise answers with an error, shown FAILED).
+CHECK_FIELDS: dict[str, Any] = {"input": 1, "channel": 1, "channels": "101"}
+#: Queries that wait for a measurement gate: asked through the role after one gate.
 WAITS_FOR_A_GATE = {("counter", "counts"), ("coincidence", "counts")}
+#: The longest gate a check waits for (seconds); a longer present gate is left to a run.
+MAX_CHECK_GATE_S = 2.0
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -82,10 +89,9 @@ def _ask(driver: Any, name: str, op: Any) -> CheckLine:
     if skip:
         return CheckLine(role=role, op=name, skipped=skip)
     fields = {f: CHECK_FIELDS[f] for f in _fields(role, name)}
-    step = op.single
-    command = (
-        driver.dialect.render(op, step.template, fields) if step and step.template else "(sequence)"
-    )
+    command = _command(driver, op, fields)
+    if (role, name) in WAITS_FOR_A_GATE:
+        return _after_a_gate(driver, name, op, command)
     try:
         value = perform(driver.session, driver.dialect, op, fields)
     except BenchwrightError as exc:
@@ -95,9 +101,33 @@ def _ask(driver: Any, name: str, op: Any) -> CheckLine:
     return CheckLine(role=role, op=name, command=command, value=f"{value!r} ({op.returns})")
 
 
+def _command(driver: Any, op: Any, fields: dict[str, Any]) -> str:
+    step = op.single
+    if step is None or step.template is None:
+        return "(sequence)"
+    return str(driver.dialect.render(op, step.template, fields))
+
+
+def _after_a_gate(driver: Any, name: str, op: Any, command: str) -> CheckLine:
+    """A gated count through the role (its present gate time, channel 1 on a counter)."""
+    role = driver.role
+    try:
+        gate = float(driver.gate_s())
+        if not 0 < gate <= MAX_CHECK_GATE_S:
+            return CheckLine(role=role, op=name, skipped=(
+                f"the present gate of {gate:g} s is longer than a check waits "
+                f"({MAX_CHECK_GATE_S:g} s); a run exercises it"))  # fmt: skip
+        counted = driver.count(1) if role == "counter" else driver.count()
+    except BenchwrightError as exc:
+        return CheckLine(role=role, op=name, command=command, error=str(exc).splitlines()[0])
+    except ValueError as exc:
+        return CheckLine(role=role, op=name, command=command, error=str(exc))
+    where = " on channel 1" if role == "counter" else ""
+    return CheckLine(role=role, op=name, command=command,
+                     value=f"{counted!r} ({op.returns}) over one {gate:g} s gate{where}")  # fmt: skip
+
+
 def _why_skip(role: str, name: str, op: Any) -> str:
-    if (role, name) in WAITS_FOR_A_GATE:
-        return "waits for a measurement gate (a run exercises it)"
     if op.returns == "block":
         return "binary block (read by the capture below)" if role == "scope" else "binary block"
     missing = [f for f in _fields(role, name) if f not in CHECK_FIELDS]

@@ -109,6 +109,26 @@ def test_instruments_check_asks_every_query_and_leaves_the_bias_alone(sim_bench)
     assert "bias.measure_voltage" in text and "scope.preamble" in text
     capture = next(line for line in lines if "scope.capture" in line)
     assert " points, " in capture and "FAILED" not in capture
-    assert "counter.counts" in text and "skipped: waits for a measurement gate" in text
+    # the gated queries after one gate of the present gate time (the sim's 0.1 s, read back on the
+    # get_gate_time line); the channel-list query about one relay, parsed as the list it is
+    gate = (
+        next(line for line in lines if "counter.get_gate_time" in line).split("-> ")[1].split()[0]
+    )
+    counts = next(line for line in lines if "counter.counts" in line)
+    assert f"(int) over one {gate} s gate on channel 1" in counts, counts
+    assert int(counts.split("-> ")[1].split()[0]) >= 0
+    assert "(csv) over one " in next(line for line in lines if "coincidence.counts" in line)
+    assert "'ROUTe:CLOSe? (@101)' -> [0.0] (csv)" in text  # nothing routed to injection at rest
     with open_bench(spec, roles=["bias"]) as bench:
         assert (bench.bias.output_on(), bench.bias.setpoint()) == before  # nothing changed
+
+
+def test_instruments_check_leaves_a_long_gate_to_a_run(sim_bench):
+    from drivers.check import MAX_CHECK_GATE_S, check_bench
+
+    spec = bench_from_mapping(sim_bench.bench_mapping())
+    with open_bench(spec, roles=["counter"]) as bench:
+        bench.counter.set_gate(MAX_CHECK_GATE_S * 2)
+    lines = check_bench(spec)
+    counts = next(line for line in lines if "counter.counts" in line)
+    assert f"skipped: the present gate of {MAX_CHECK_GATE_S * 2:g} s is longer" in counts, counts
