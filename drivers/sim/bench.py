@@ -165,6 +165,12 @@ class SimBench:
             return f"TCPIP0::{self.host},{self._vxi11[role].port}::inst0::INSTR"
         return f"TCPIP0::{self.host}::{self.ports[role]}::SOCKET"
 
+    def restore_link(self, role: str) -> None:
+        """End a ``link_down`` fault of ``role``'s instrument (and a silent one): the link is back."""
+        server = self._servers[role]
+        with server.lock:
+            server.faults.lift()
+
     def stop(self) -> None:
         """Stop every server and close every client connection (idempotent)."""
         servers, self._servers = self._servers, {}

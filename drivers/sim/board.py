@@ -85,7 +85,14 @@ from drivers.timing import DEFAULT_TIMING, BenchTiming
 ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch", "coincidence")
 #: Board outputs and the digit k of the switch route numbers.
 OUTPUT_INDEX = MappingProxyType({"x1": 1, "x5": 2, "shaped": 3})
-FAULT_KINDS = ("interlock_open", "no_reply", "disconnect", "garbled_reply", "scpi_error")
+FAULT_KINDS = (
+    "interlock_open",
+    "no_reply",
+    "disconnect",
+    "link_down",
+    "garbled_reply",
+    "scpi_error",
+)
 MAX_CHANNELS = 99  # the switch numbers channels with two digits
 
 
@@ -164,6 +171,9 @@ class FaultSpec:
     role: str
     after_s: float | None = None
     after_commands: int | None = None
+    #: Count ``after_s`` / ``after_commands`` from the first message starting with this text
+    #: (case-insensitive), not from the first message: a fault placed at a stage of a procedure.
+    after_message: str | None = None
     code: int = -300
     message: str = ""
 

@@ -197,6 +197,7 @@ _FAULT = {
     "role": _choice(*ROLES),
     "after_s": _number(0.0, 1e7),
     "after_commands": _integer(0, 10**9),
+    "after_message": _text,
     "code": _integer(-999, 999),
     "message": _text,
 }

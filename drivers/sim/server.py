@@ -149,7 +149,7 @@ class InstrumentServer:
 
     def _respond(self, message: bytes) -> tuple[bool, bytes | None]:
         with self.lock:
-            effect = self.faults.on_message()
+            effect = self.faults.on_message(message)
             if effect.disconnect:
                 return False, None
             for code, text in effect.errors:

@@ -89,3 +89,29 @@ def test_after_s_counts_from_the_first_message(bench_of):
     assert s.threshold.query("SYST:ERR?") == '0,"No error"'
     time.sleep(0.25)
     assert s.threshold.query("SYST:ERR?") == '-300,"Device-specific error"'
+
+
+def test_link_down_from_a_given_message_until_lifted(bench_of, rm):
+    # counted from the first message starting with "OUTP" (case-insensitive): that message + 1
+    faults = [{"kind": "link_down", "role": "pulser", "after_message": "outp", "after_commands": 1}]
+    s = bench_of(make_board(faults=faults))
+    pulser = s.pulser
+    pulser.timeout = 1000
+    for _ in range(3):  # messages before the marker do not count
+        assert pulser.query("*IDN?").startswith(MAKER)
+    assert pulser.query("OUTPut:STATe?") in ("0", "1")  # the marker itself: 1 of 1 allowed
+    with pytest.raises(pyvisa.errors.VisaIOError):
+        pulser.query("*IDN?")  # the link goes down here ...
+    again = open_role(rm, s.bench, "pulser")
+    again.timeout = 1000
+    try:
+        with pytest.raises(pyvisa.errors.VisaIOError):
+            again.query("*IDN?")  # ... and stays down: a new connection's first message drops it
+    finally:
+        again.close()
+    s.bench.restore_link("pulser")
+    back = open_role(rm, s.bench, "pulser")
+    try:
+        assert back.query("*IDN?").startswith(MAKER)
+    finally:
+        back.close()
