@@ -86,7 +86,12 @@ def bias_summary(events: Iterable[Any]) -> tuple[tuple[str, str], ...]:
 def _interlock(events: list[Any]) -> str:
     if not events:
         return "not checked"
-    states = [bool(dict(e.detail).get("closed", dict(e.detail).get("interlock_closed"))) for e in events]
+    values = [dict(e.detail).get("closed", dict(e.detail).get("interlock_closed")) for e in events]
+    states = [bool(v) for v in values if v is not None]  # None: a supply that cannot tell
+    if not states:
+        hardware = _hardware(events)
+        declared = f"; hardware interlock declared: {hardware}" if hardware else ""
+        return f"not readable from the supply{declared}"
     opened = states.count(False)
     return "closed at every check" if not opened else f"found open {opened} time(s) of {len(states)}"
 
@@ -95,7 +100,15 @@ def _acknowledgement(events: list[Any]) -> str:
     if not events:
         return "none recorded"
     d = dict(events[-1].detail)
-    return f"{d.get('mode', '?')} by {d.get('operator') or 'an unnamed operator'} at {d.get('at', '?')}"
+    said = f"{d.get('mode', '?')} by {d.get('operator') or 'an unnamed operator'} at {d.get('at', '?')}"
+    if d.get("hardware"):  # the run rested on a hardware interlock the software cannot read
+        said += f", with the hardware interlock declared: {d['hardware']}"
+    return said
+
+
+def _hardware(events: list[Any]) -> str:
+    """The bench's hardware-interlock declaration recorded with the run's events, or ''."""
+    return next((str(dict(e.detail)["hardware"]) for e in events if dict(e.detail).get("hardware")), "")
 
 
 def _finite(value: Any) -> bool:

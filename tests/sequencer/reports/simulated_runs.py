@@ -81,6 +81,9 @@ class RunSpec:
     full: bool = True  # False: only gain of each channel and output (quick weekly repeats)
     status: str = "completed"
     distant_control: bool = False  # crosstalk also into a far channel (the floor, ~0.02 %)
+    #: A supply whose interlock cannot be read: the bench's declaration, recorded with the run's
+    #: interlock check and acknowledgement as the bias guard records them ('' = a readable one).
+    hardware_interlock: str = ""
 
 
 def run_info(spec: RunSpec) -> RunInfo:
@@ -225,6 +228,11 @@ def record_run(
     rec = _Recorder(store, run_id, spec.started_at)
     fix = tweak or (lambda q, c, o, v: v)
     if spec.full:
+        if spec.hardware_interlock:
+            wired = {"hardware": spec.hardware_interlock}
+            rec.safety("bias/ramp", "interlock", closed=None, **wired)
+            rec.safety("bias/ramp", "acknowledgement", operator=spec.operator, mode="interactive",
+                       unattended=False, max_volts=42.0, at=rec.clock.isoformat(), **wired)  # fmt: skip
         rec.safety("bias/ramp", "ramp_start", volts=0.0, target_V=42.0, rate_V_per_s=5.0)
         rec.step("bias/ramp", "bias.ramp", settings={"volts": 42.0, "rate": 5.0})
         rec.safety("bias/ramp", "ramp_end", volts=42.0)

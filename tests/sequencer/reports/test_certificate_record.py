@@ -332,3 +332,26 @@ def test_the_calibration_date_is_printed_beside_the_due_date(certified):
     assert columns[-2:] == ("calibrated", "calibration_due")
     page = " ".join(" ".join(p.extract_text() for p in PdfReader(str(pdf)).pages).split())
     assert "2024-12-31" in page and "2025-12-31" in page
+
+
+def test_a_declared_hardware_interlock_is_printed_and_verified(tmp_path: Path):
+    # a supply that cannot report its interlock (issue 14): the run rests on the bench's declared
+    # hardware interlock, acknowledged by the operator; the certificate says so instead of
+    # "found open" (the unread state is not an open interlock), and verify covers the lines
+    wired = "door switch in series with INHIBIT, tested 2026-11-30"
+    with Store.open(f"sqlite:///{tmp_path / 'results.db'}") as store:
+        run_id = record_run(store, RunSpec(channels=1, hardware_interlock=wired))
+        pdf, html, *_ = certify_run(store, run_id, tmp_path / "certs", workers=1)
+        text = html.read_text(encoding="utf-8")
+        assert f"Interlock: not readable from the supply; hardware interlock declared: {wired}" in text
+        assert f"by i.lindqvist at {T0.isoformat()}, with the hardware interlock declared: {wired}" in text
+        assert "found open" not in text
+        assert verify_certificate(store, html).ok and verify_certificate(store, pdf).ok
+        for key in ("bias.interlock", "bias.acknowledgement"):  # the printed line, not the data
+            at = text.index(f'data-field="{key}">')
+            edited = text[at:].replace("tested 2026-11-30", "tested 2026-12-01", 1)
+            forged = tmp_path / "forged.html"
+            forged.write_text(text[:at] + edited, encoding="utf-8")
+            result = verify_certificate(store, forged)
+            assert not result.ok
+            assert any(d.startswith(f"printed {key}: ") for d in result.differences), result
