@@ -72,6 +72,7 @@ class BatchOptions:
     lab: LabFiles = field(default_factory=LabFiles)  # a lab's own board types and limit sets
     override_instrument_checks: bool = False  # run past calibration due / wrong identity (a caveat)
     default_operator: str = ""  # for a board the batch file names no operator for (the login name)
+    on_board: Callable[[BoardOutcome], None] | None = None  # after each board (the demo certifies)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -198,6 +199,8 @@ class _BatchRun:
             outcome, stopped = self._board(board, index, count)
             self.outcomes.append(outcome)
             self._report(index, count, outcome)
+            if self.options.on_board is not None:
+                self.options.on_board(outcome)
         return BatchOutcome(batch=self.batch.name, boards=tuple(self.outcomes), stopped=stopped)
 
     def _check_boards_first(self) -> None:

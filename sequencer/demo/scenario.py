@@ -20,7 +20,7 @@ from pathlib import Path
 from typing import Any
 
 from sequencer.batchrun import BatchOptions, BatchOutcome, qualify_batch
-from sequencer.pace import describe_left, time_left
+from sequencer.pace import describe_left
 from sequencer.procedure import load_batch
 from sequencer.store import Store
 
@@ -67,27 +67,31 @@ def run_demo(
     batch = load_batch(demo_dir() / DEMO_BATCH)
     db_url = f"sqlite:///{(out / 'results.db').resolve()}"
     echo(f"demo: batch {batch.name} ({len(batch.boards)} invented boards) on the simulator")
-    with Store.open(db_url) as store:
-        outcome, certificates = _qualify(store, batch, out, echo, workers)
+    from sequencer.reports.certify_pool import CertificatePool
+
+    progress = _CertificateProgress(echo)
+    with Store.open(db_url) as store, CertificatePool(workers, on_progress=progress) as pool:
+        # the workers draw each board's certificates while the next board is qualified
+        outcome = _qualify(store, batch, out, echo, pool)
         modules = load_batch(demo_dir() / DEMO_MODULE_BATCH)
         echo(
             f"demo: batch {modules.name} ({len(modules.boards)} invented scintillator modules, "
             "cosmic rays on the simulator's fast clock)"
         )
-        module_outcome, module_certificates = _qualify(store, modules, out, echo, workers)
-        certificates += module_certificates
+        module_outcome = _qualify(store, modules, out, echo, pool)
         trigger = load_batch(demo_dir() / DEMO_TRIGGER_BATCH)
         echo(
             f"demo: batch {trigger.name} ({len(trigger.boards)} invented trigger-chain modules: "
             "a coincidence unit, a fast digitizer)"
         )
-        trigger_outcome, trigger_certificates = _qualify(store, trigger, out, echo, workers)
-        certificates += trigger_certificates
+        trigger_outcome = _qualify(store, trigger, out, echo, pool)
         batches = (batch, modules, trigger)
         text = "\n\n".join(batch_summary(store, b.name).to_text() for b in batches)
         summary_path = out / "batch-summary.txt"
         summary_path.write_text(text + "\n", encoding="utf-8")
         report = [p for b in batches for p in batch_report(store, b.name, out / "batch-report")]
+        progress.waiting = True
+        certificates = pool.wait()
     echo("")
     echo(text)
     return DemoResult(
@@ -104,23 +108,38 @@ def run_demo(
 
 
 def _qualify(
-    store: Store, batch: Any, out: Path, echo: Callable[[str], None], workers: int | None
-) -> tuple[BatchOutcome, list[Path]]:
-    """Qualify one batch of the scenario on the simulator and certify every run."""
-    from sequencer.reports import certify_run
+    store: Store, batch: Any, out: Path, echo: Callable[[str], None], pool: Any
+) -> BatchOutcome:
+    """Qualify one batch of the scenario on the simulator; each board's run goes to the
+    certificate pool as soon as it ends."""
 
-    options = BatchOptions(sim_dir=str(demo_dir()), unattended=True, requalify=True, echo=echo)
-    outcome = qualify_batch(batch, store, options)
-    certificates: list[Path] = []
-    start_certs = time.perf_counter()
-    for k, run_id in enumerate(outcome.run_ids, start=1):
-        certificates += certify_run(store, run_id, out / "certificates", workers=workers)
-        left = describe_left(time_left(k, len(outcome.run_ids), time.perf_counter() - start_certs))
-        echo(
-            f"demo: certificates of run {run_id} written ({k}/{len(outcome.run_ids)} runs"
-            + (f", {left} at the pace so far)" if left and k < len(outcome.run_ids) else ")")
-        )
-    return outcome, certificates
+    def certify(board: Any) -> None:
+        if board.run_id is not None:
+            pool.submit_run(store, board.run_id, out / "certificates")
+
+    options = BatchOptions(
+        sim_dir=str(demo_dir()), unattended=True, requalify=True, echo=echo, on_board=certify
+    )
+    return qualify_batch(batch, store, options)
+
+
+class _CertificateProgress:
+    """Progress lines of the certificate pool: once the batches are done (``waiting``), about every
+    eighth of the certificates, with the time left at the pace so far."""
+
+    def __init__(self, echo: Callable[[str], None]) -> None:
+        self.echo = echo
+        self.waiting = False
+        self._told = -1
+
+    def __call__(self, done: int, total: int, seconds_left: float | None) -> None:
+        if not self.waiting or done == self._told:
+            return
+        if done < total and self._told >= 0 and done - self._told < max(1, total // 8):
+            return
+        self._told = done
+        left = describe_left(seconds_left) if done < total else ""
+        self.echo(f"demo: certificates {done}/{total} written" + (f", {left}" if left else ""))
 
 
 def describe(result: DemoResult) -> list[str]:

@@ -1,20 +1,17 @@
 """``certify_run``: the certificates of a run, one PDF and one HTML per channel.
 
 The data of every channel is read from the store in this process (one snapshot of the run); the
-rendering (plots, PDF, HTML) runs in a process pool, one chunk of channels per worker, so that each
-worker builds its figures once and reuses them for its whole chunk.  Workers start with
-``forkserver`` (``spawn`` where that is missing): never ``fork``, which is unsafe in a process that
-runs threads (the simulated bench does).
+rendering (plots, PDF, HTML) runs in a :class:`~sequencer.reports.certify_pool.CertificatePool`
+whose workers build their figures once and reuse them for every certificate they draw.
 """
 
 from __future__ import annotations
 
-import multiprocessing
 import os
 import re
 from collections.abc import Callable
-from concurrent.futures import ProcessPoolExecutor, as_completed
 from pathlib import Path
+from typing import Any
 
 from .certificate_data import CertificateData, gather_certificates
 from .reading import StoreReader
@@ -42,9 +39,9 @@ def certify_run(
     """Write ``<number>.pdf`` and ``<number>.html`` for every channel of run ``run_id`` into
     ``out_dir``; returns the paths, PDF then HTML per channel, in channel order.
 
-    ``workers``: processes to render with (default: the CPU count); 1 renders in this process.
-    ``on_progress(done, total)`` is called as certificates are written (then each worker gets two
-    smaller chunks instead of one, so that progress moves more than once per worker).
+    ``workers``: processes to render with (default: the CPU count, through a
+    :class:`~sequencer.reports.certify_pool.CertificatePool`); 1 renders in this process.
+    ``on_progress(done, total)`` is called as certificates are written.
     """
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
@@ -53,39 +50,35 @@ def certify_run(
         return []
     n = max(1, min(workers or os.cpu_count() or 1, len(datas) // MIN_PER_WORKER or 1))
     report = on_progress or (lambda done, total: None)
-    if n == 1 and on_progress is None:
-        return [Path(p) for p in render_certificates(datas, str(out), paper)]
     if n == 1:  # one at a time, so that progress can be told
         written_here: list[Path] = []
+        plotter = None
         for i, data in enumerate(datas, start=1):
-            written_here += [Path(p) for p in render_certificates([data], str(out), paper)]
+            if plotter is None:
+                from .plots import Plotter
+
+                plotter = Plotter()
+            written_here += [Path(p) for p in render_certificates([data], str(out), paper, plotter=plotter)]
             report(i, len(datas))
         return written_here
-    parts = n if on_progress is None else min(len(datas), 2 * n)
-    chunks = [datas[i::parts] for i in range(parts)]
-    methods = multiprocessing.get_all_start_methods()
-    context = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
-    written: set[str] = set()
-    with ProcessPoolExecutor(max_workers=n, mp_context=context) as pool:
-        futures = [pool.submit(render_certificates, chunk, str(out), paper) for chunk in chunks]
-        for future in as_completed(futures):
-            written.update(future.result())
-            report(len(written) // 2, len(datas))
-    paths = [out / f"{certificate_stem(d)}{suffix}" for d in datas for suffix in (".pdf", ".html")]
-    missing = [p for p in paths if str(p) not in written]
-    if missing:
-        raise RuntimeError(f"certificate workers did not write {missing[0]}")
-    return paths
+    from .certify_pool import CertificatePool
+
+    with CertificatePool(n, paper=paper, on_progress=lambda d, t, _left: report(d, t)) as pool:
+        pool.submit(datas, out)
+        return pool.wait()
 
 
-def render_certificates(datas: list[CertificateData], out_dir: str, paper: str = "A4") -> list[str]:
-    """Render ``datas`` with one :class:`~sequencer.reports.plots.Plotter`; PDF then HTML paths."""
+def render_certificates(
+    datas: list[CertificateData], out_dir: str, paper: str = "A4", *, plotter: Any = None
+) -> list[str]:
+    """Render ``datas`` with one :class:`~sequencer.reports.plots.Plotter` (``plotter``, or a new
+    one); PDF then HTML paths."""
     from .certificate_html import render_html
     from .certificate_pdf import render_pdf
     from .plots import Plotter
     from .spectra import plot_spectra
 
-    plotter = Plotter()
+    plotter = plotter or Plotter()
     written: list[str] = []
     for d in datas:
         images = {
