@@ -105,7 +105,9 @@ def _finite(value: Any) -> Any:
     return value
 
 
-def _sqlite_engine(url: URL, busy_timeout_s: float, *, read_only: bool = False) -> Engine:
+def _sqlite_engine(
+    url: URL, busy_timeout_s: float, *, read_only: bool = False, wait_for_disk: bool = True
+) -> Engine:
     _check_sqlite_file(url)
     if read_only:  # a file: URI that only reads (sqlite_files.read_only_uri)
         url = url.set(database=read_only_uri(Path(url.database or "")), query={"uri": "true"})
@@ -123,7 +125,10 @@ def _sqlite_engine(url: URL, busy_timeout_s: float, *, read_only: bool = False) 
             cur.execute("PRAGMA query_only = ON")
         else:
             cur.execute("PRAGMA journal_mode = WAL")
-            cur.execute("PRAGMA synchronous = FULL")
+            # FULL: a commit returns once the disk has it (fsync); NORMAL (WAL): survives a crash
+            # of the program, may lose the last commits on a power cut (https://www.sqlite.org/
+            # pragma.html#pragma_synchronous) -- only for a throwaway database (the demo)
+            cur.execute(f"PRAGMA synchronous = {'FULL' if wait_for_disk else 'NORMAL'}")
         cur.close()
 
     @event.listens_for(engine, "begin")
@@ -153,19 +158,26 @@ def _postgres_engine(url: URL) -> Engine:
 
 
 def open_engine(
-    url: str, *, busy_timeout_s: float = DEFAULT_BUSY_TIMEOUT_S, reader: bool = False
+    url: str,
+    *,
+    busy_timeout_s: float = DEFAULT_BUSY_TIMEOUT_S,
+    reader: bool = False,
+    wait_for_disk: bool = True,
 ) -> Engine:
     """An engine for ``url`` with benchwright's connection settings (see the module docstring).
 
     ``reader``: the caller only reads.  An SQLite file that cannot be written (a read-only mount)
     is then opened through a read-only URI instead of failing on the ``-shm`` file SQLite cannot
-    create beside it; ``is_read_only(engine)`` tells."""
+    create beside it; ``is_read_only(engine)`` tells.  ``wait_for_disk=False``: SQLite commits
+    without waiting for the disk (``synchronous=NORMAL``; the demo's throwaway database)."""
     parsed = parse_url(url)
     if parsed.get_backend_name() == "sqlite":
         database = parsed.database or ""
         plain_file = database not in ("", ":memory:") and not database.startswith("file:")
         read_only = reader and plain_file and read_only_location(Path(database))
-        return _sqlite_engine(parsed, busy_timeout_s, read_only=read_only)
+        return _sqlite_engine(
+            parsed, busy_timeout_s, read_only=read_only, wait_for_disk=wait_for_disk
+        )
     return _postgres_engine(parsed)
 
 

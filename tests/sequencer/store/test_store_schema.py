@@ -244,3 +244,13 @@ def test_upgrade_keeps_instruments_and_adds_their_calibration_date_empty(db_url)
             replace(scope, calibrated="2025-06-30"),)), T0)
         [again] = s.get_run(new_id).instruments
         assert again.calibrated == "2025-06-30"
+
+
+@pytest.mark.parametrize(("wait_for_disk", "expected"), [(True, 2), (False, 1)])
+def test_sqlite_commits_wait_for_the_disk_unless_told_not_to(tmp_path, wait_for_disk, expected):
+    # PRAGMA synchronous reads 2 for FULL and 1 for NORMAL (https://www.sqlite.org/pragma.html
+    # #pragma_synchronous); the demo's throwaway database is the one opened without waiting
+    url = f"sqlite:///{tmp_path / 'r.db'}"
+    with Store.open(url, wait_for_disk=wait_for_disk) as store, store.engine.connect() as conn:
+        assert conn.exec_driver_sql("PRAGMA synchronous").scalar() == expected
+        assert conn.exec_driver_sql("PRAGMA journal_mode").scalar() == "wal"
