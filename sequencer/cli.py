@@ -126,13 +126,13 @@ def plan(
     message, acquisitions of averages / trigger rate, gates, relay settling, ramps); --sim takes a
     board file's own timing, --timing-from the durations of a run already recorded on your bench.
     """
-    from sequencer.compose import plan_for
+    from sequencer.compose import lab_for, plan_for
     from sequencer.procedure import format_plan, load_procedure
-    from sequencer.procedure.board_choice import LabFiles
 
-    planned = plan_for(
-        load_procedure(procedure), serial, board_type=board_type, lab=LabFiles.from_env(env())
-    )
+    lab = lab_for(env(), bench_path)  # the bench file's lab: folder, unless BENCHWRIGHT_LAB is set
+    if lab.warning():
+        click.echo(f"warning: {lab.warning()}", err=True)
+    planned = plan_for(load_procedure(procedure), serial, board_type=board_type, lab=lab)
     if sim_board:
         from sequencer.compose import sim_timing
         from sequencer.procedure.estimate import EstimateSettings, estimate_plan

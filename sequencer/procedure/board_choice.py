@@ -123,7 +123,10 @@ def _unknown_type(name: str, lab: LabFiles) -> str:
     """``board type 'PA9' is not known (did you mean 'PA8'?); known: ...``."""
     folders = [shipped_dir("boards")] + ([lab.folder / "boards"] if lab.folder is not None else [])
     known = sorted({p.stem for folder in folders if folder.is_dir() for p in folder.glob("*.yaml")})
-    where = f" or the lab's {lab.folder / 'boards'}" if lab.folder is not None else ""
+    where = (
+        f" or the lab's {lab.folder / 'boards'}" if lab.folder is not None
+        else f", or a lab's own folder named by 'lab: DIR' in the bench file or {LAB_ENV}"
+    )
     return (
         f"board type {name!r} is not known{suggest(name, known)}; known: {', '.join(known)} "
         f"(a board-type file in procedures/boards/{where})"

@@ -117,6 +117,17 @@ def test_precedence_environment_then_bench_then_shipped(site, tmp_path):
     assert lab_for({}, str(bench)).find("boards", "PA4L") == root / "benches" / ".." / "lab" / "boards" / "PA4L.yaml"
 
 
+def test_plan_finds_the_lab_type_through_the_bench_file(site):
+    _, bench = site
+    attach_commands()
+    args = ["plan", str(PROCEDURES / "noise.yaml"), "--board-type", "PA4L", "--board", SERIAL]
+    planned = CliRunner().invoke(cli, [*args, "--bench", str(bench)], env={LAB_ENV: ""})
+    assert planned.exit_code == 0, planned.output
+    assert "ch4/" in planned.output and "ch5/" not in planned.output  # PA4L: 4 channels
+    unknown = CliRunner().invoke(cli, args, env={LAB_ENV: ""})  # no bench file: shipped types only
+    assert unknown.exit_code == 2 and "PA4L" in unknown.output
+
+
 def test_a_lab_folder_that_is_not_there_is_located(tmp_path):
     bench = tmp_path / "bench.yaml"
     bench.write_text("bench: b\nlab: nowhere\ninstruments:\n  pulser: {address: 'TCPIP0::127.0.0.1::5025::SOCKET'}\n")
