@@ -7,6 +7,7 @@ raise ValueError with a message that names the argument.
 
 from __future__ import annotations
 
+from .adaptive import AdaptiveSCurve, ScanTargets
 from .bandwidth import Bandwidth, aliased_frequency, effective_bandwidth
 from .codedensity import CodeDensity, code_density, dnl_from_transitions
 from .coincidence import (
@@ -63,6 +64,7 @@ from .transfer import TransferFit, transfer_curve
 __all__ = [
     "ELEMENTARY_CHARGE_C",
     "LANDAU_MODE",
+    "AdaptiveSCurve",
     "Bandwidth",
     "BreakdownFit",
     "CodeDensity",
@@ -76,6 +78,7 @@ __all__ = [
     "Measured",
     "Reconstruction",
     "SCurveFit",
+    "ScanTargets",
     "SineFit",
     "Staircase",
     "ThresholdCalibration",

@@ -106,6 +106,15 @@ def _relay(s: EstimateSettings, b: _Bench, args: dict[str, Any]) -> float:
     return switch.round_trip_s + switch.relay_settle_s
 
 
+#: Gates an adaptive S-curve typically takes after its coarse look: 4-5 on simulated boards at
+#: the fixed grid's uncertainties (tests/integration/test_adaptive_scans.py); 6 allows for more.
+TYPICAL_SCAN_GATES = 6
+
+
+def _scan_gates(args: dict[str, Any]) -> int:
+    return min(int(args.get("max_gates") or 60), int(args.get("coarse") or 5) + TYPICAL_SCAN_GATES)
+
+
 _RULES: dict[str, Rule] = {
     "scope.capture": _capture,
     "scope.timebase": _setting("scope.timebase", _timebase),
@@ -115,6 +124,7 @@ _RULES: dict[str, Rule] = {
     "counter.count": lambda s, b, a: b.gate + 2 * s.message_s("counter"),
     "coincidence.gate": _setting("coincidence.gate", _set("coincidence_gate", "seconds", float)),
     "coincidence.count": lambda s, b, a: b.coincidence_gate + 2 * s.message_s("coincidence"),
+    "counter.scan": lambda s, b, a: _scan_gates(a) * (b.gate + 3 * s.message_s("counter")),
     "switch.route": _relay,
     "switch.inject": _relay,
     "bias.ramp": _ramp,

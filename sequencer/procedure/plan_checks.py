@@ -65,6 +65,8 @@ class StepChecks:
             if value is not None:
                 self.produced.update(value if isinstance(value, tuple) else (value,))
         self.swept.update(k for k in labels if k not in ("channel", "output"))
+        if step.kind == "counter.scan":  # an adaptive scan sweeps its thresholds itself
+            self.swept.add(args.get("x") or "thr")
 
     def _input_range(self, step: Leaf, args: Mapping[str, Any]) -> None:
         """A pulser setting outside the input range the board type declares (once per place)."""

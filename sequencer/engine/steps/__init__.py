@@ -22,6 +22,7 @@ from . import (
     flow,
     module_analysis,
     pulser,
+    scan,
     scope,
     sensor_analysis,
     sensors,
@@ -37,7 +38,7 @@ def handler_table() -> Mapping[str, Handler]:
     """Every kind name of ``sequencer.procedure.kinds.KINDS`` mapped to its handler."""
     table: dict[str, Handler] = {}
     for family in (
-        pulser, scope, threshold, counter, coincidence, bias, switch, flow, analysis, sensors,
+        pulser, scope, threshold, counter, scan, coincidence, bias, switch, flow, analysis, sensors,
         sensor_analysis, module_analysis, digitizer, discriminator_timing, shaper_adc, bipolar,
     ):
         table.update(family.HANDLERS)

@@ -246,29 +246,37 @@ def analyse_crosstalk(ctx: RunContext, step: PlannedStep) -> StepResult:
     return StepResult(results={"pairs": len(agg)}, measurements=[m])
 
 
+def _curve_points(items: Sequence[Reading], var: str) -> tuple[np.ndarray, list[float]]:
+    """Thresholds and counts of an S-curve: from the labels of a fixed sweep's readings, or from
+    the gates an adaptive scan (``counter.scan``) kept in its reading."""
+    if items and all(isinstance(i.value, Mapping) and "x" in i.value for i in items):
+        x = np.concatenate([np.asarray(i.value["x"], dtype=float) for i in items])
+        fired = [float(k) for i in items for k in i.value["fired"]]
+        return x, fired
+    return _sweep(items, var), [float(i.value) for i in items]
+
+
 def _s_curve(
-    ctx: RunContext, step: PlannedStep, thresholds: np.ndarray, items: list[Reading]
+    ctx: RunContext, step: PlannedStep, thresholds: np.ndarray, counts: Sequence[float]
 ) -> tuple[an.SCurveFit, float]:
     """The S-curve fit and its signed 50 % point.  A negative-going output fires when the pulse
     goes below the threshold: its efficiency rises with the threshold, so the fit runs on the
     thresholds mirrored (the model of fit_s_curve falls with threshold) and μ is mirrored back."""
     sign = polarity(ctx, output_of(step))
-    fit = an.fit_s_curve(
-        sign * thresholds, [float(i.value) for i in items], int(step.args["trials"])
-    )
+    fit = an.fit_s_curve(sign * thresholds, list(counts), int(step.args["trials"]))
     return fit, sign * fit.mu
 
 
 def analyse_s_curve(ctx: RunContext, step: PlannedStep) -> StepResult:
     a = step.args
     items = _readings(ctx, step, a["counts"])
-    x, counts = _sweep(items, a["x"]), [float(i.value) for i in items]
-    fit, mu = _s_curve(ctx, step, x, items)
+    x, counts = _curve_points(items, a["x"])
+    fit, mu = _s_curve(ctx, step, x, counts)
     curve = s_curve_series(
         channel_of(step), "S-curve", x, counts, int(a["trials"]), replace(fit, mu=mu)
     )
     return StepResult(
-        results={"points": len(items), "chi2_ndf": fit.chi2_ndf, "series": [curve]},
+        results={"points": len(x), "chi2_ndf": fit.chi2_ndf, "series": [curve]},
         measurements=[
             measure(ctx, step, "threshold_mV", mu, uncertainty=fit.mu_err),
             measure(ctx, step, "threshold_sigma_mV", fit.sigma, uncertainty=fit.sigma_err),
@@ -286,8 +294,8 @@ def analyse_discriminator(ctx: RunContext, step: PlannedStep) -> StepResult:
     gain = _gain(ctx, step, "x1")
     mus, errs, curves = [], [], []
     for amp, group in groups.items():
-        x, counts = _sweep(group, a["x"]), [float(i.value) for i in group]
-        fit, mu = _s_curve(ctx, step, x, group)
+        x, counts = _curve_points(group, a["x"])
+        fit, mu = _s_curve(ctx, step, x, counts)
         mus.append(mu)
         errs.append(fit.mu_err)
         label = f"{a['amplitude']} = {amp:g} mV"

@@ -147,6 +147,17 @@ def test_a_repeated_setting_costs_nothing_and_a_board_file_timing_is_used():
     assert [s.estimate_s for s in again.steps] == pytest.approx([0.01, 0.0, 0.01, 0.001 + 0.05])
 
 
+def test_an_adaptive_scan_is_estimated_at_its_typical_gates():
+    plan = plan_of(
+        HEAD + "steps:\n  - counter.gate: 0.05 s\n"
+        "  - counter.scan: {channel: 1, centre: 30 mV, window: 7 mV, trials: 500, target: 0.02 mV,"
+        " target_sigma: 0.02 mV, into: s}\n"
+    )
+    # 5 coarse gates + 6 typical ones (tests/integration/test_adaptive_scans.py sees 3-5), each the
+    # gate and three messages (level, start, fetch)
+    assert plan.steps[1].estimate_s == pytest.approx(11 * (0.05 + 3 * 0.001))
+
+
 def test_overrides_replace_parameters():
     text = HEAD + "parameters: {amp: 40 mV}\nsteps:\n  - pulser.amplitude: '{amp}'\n"
     assert plan_of(text, overrides={"amp": "25 mV"}).steps[0].args == {"mV": 25.0}
