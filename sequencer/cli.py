@@ -365,13 +365,16 @@ def instruments(bench_path: str, check: bool, allow_visa_library: tuple[str, ...
 @click.option("--link", type=click.Choice(["socket", "hislip", "vxi11"]), default="socket",
               show_default=True,
               help="Addresses in the bench file: raw sockets, HiSLIP or VXI-11 (all are served).")
+@click.option("--realtime", is_flag=True,
+              help="The instruments take the time a real bench would (the board file's timing:).")
 @handles_errors
-def sim(board_path: str, host: str, port_base: int, bench_out: str | None, link: str) -> None:
+def sim(board_path: str, host: str, port_base: int, bench_out: str | None, link: str,
+        realtime: bool) -> None:
     """Serve the simulated instruments of a board file until interrupted."""
     from drivers.sim import serve
 
     serve(board_path, host=host, port_base=port_base, bench_out=Path(bench_out) if bench_out else None,
-          on_ready=None, link=link)
+          on_ready=None, link=link, realtime=realtime)
 
 
 # name -> "module:attribute"; each module is imported only when its command runs (or for --help)

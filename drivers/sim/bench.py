@@ -283,6 +283,7 @@ def serve(
     on_ready: Callable[[SimBench], None] | None = None,
     stop_event: threading.Event | None = None,
     link: str = "socket",
+    realtime: bool = False,
 ) -> None:
     """Serve the simulated bench of ``board_path`` until SIGINT or SIGTERM, then stop cleanly.
 
@@ -300,7 +301,7 @@ def serve(
         {s: signal.signal(s, on_signal) for s in (signal.SIGINT, signal.SIGTERM)} if in_main else {}
     )
     try:
-        with start_sim_bench(board_path, host=host, port_base=port_base) as bench:
+        with start_sim_bench(board_path, host=host, port_base=port_base, realtime=realtime) as bench:
             if bench_out is not None:
                 bench.write_bench(bench_out, link)
             print(f"simulated bench for board {bench.board.serial}:")
