@@ -11,6 +11,7 @@
       shaped: {}
     input_range: [0 mV, 1 V]      # optional: test-pulse amplitudes the input accepts (checked
                                   # against every pulser.amplitude and pulser.sine of a plan)
+    threshold_range: [-1 V, 1 V]  # optional: discriminator thresholds it accepts (threshold.level)
 
 :func:`load_board_type` gives a :class:`BoardInfo` template (serial empty); :func:`board_info` fills in
 the serial of the board under test.
@@ -33,7 +34,9 @@ from .checking import check_keys, require_keys
 from .plan_model import BoardInfo
 from .units import Quantity, read_quantity
 
-BOARD_KEYS = ("board_type", "description", "channels", "outputs", "input_range")
+BOARD_KEYS = (
+    "board_type", "description", "channels", "outputs", "input_range", "threshold_range",
+)
 OUTPUT_KEYS = ("nominal_gain", "polarity", "description")
 POLARITIES = {"positive": 1, "negative": -1}
 MAX_CHANNELS = 1024
@@ -83,7 +86,8 @@ def parse_board_type(text: str | bytes, file: str) -> BoardInfo:
             )
         )
     outputs, gains, signs = _outputs(data, problems)
-    input_range = _input_range(data, problems)
+    input_range = _voltage_range(data, "input_range", problems)
+    threshold_range = _voltage_range(data, "threshold_range", problems)
     if problems:
         raise ProcedureError(problems)
     return BoardInfo(
@@ -96,12 +100,14 @@ def parse_board_type(text: str | bytes, file: str) -> BoardInfo:
         source=file,
         input_range_mV=input_range,
         input_range_at=str(data.where("input_range")) if input_range else "",
+        threshold_range_mV=threshold_range,
+        threshold_range_at=str(data.where("threshold_range")) if threshold_range else "",
     )
 
 
-def _input_range(data: YamlMap, problems: list[Problem]) -> tuple[float, float] | None:
-    """``input_range: [low, high]`` in volts with units (``[0 mV, 1 V]``) as mV, low < high."""
-    raw = data.get("input_range")
+def _voltage_range(data: YamlMap, key: str, problems: list[Problem]) -> tuple[float, float] | None:
+    """``key: [low, high]``, voltages with units (``[0 mV, 1 V]``), as mV; low below high."""
+    raw = data.get(key)
     if raw is None:
         return None
     bounds: list[float] = []
@@ -115,9 +121,8 @@ def _input_range(data: YamlMap, problems: list[Problem]) -> tuple[float, float] 
     if len(bounds) != 2 or not bounds[0] < bounds[1]:
         problems.append(
             Problem(
-                data.where("input_range"),
-                "input_range: needs [low, high] voltages with units, low below high, "
-                "e.g. [0 mV, 1 V]",
+                data.where(key),
+                f"{key}: needs [low, high] voltages with units, low below high, e.g. [0 mV, 1 V]",
             )
         )
         return None

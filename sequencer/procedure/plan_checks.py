@@ -69,13 +69,18 @@ class StepChecks:
             self.swept.add(args.get("x") or "thr")
 
     def _input_range(self, step: Leaf, args: Mapping[str, Any]) -> None:
-        """A pulser setting outside the input range the board type declares (once per place)."""
-        allowed = self.board.input_range_mV
+        """A pulser or threshold setting outside the range the board type declares for it (once
+        per place in the file, however many times a loop repeats it)."""
         peaks = _peaks(step.kind, args)
-        if allowed is None or peaks is None:
+        if peaks is None:
             return
-        key, low, high = peaks
-        if allowed[0] <= low and high <= allowed[1]:
+        which, key, low, high = peaks
+        allowed, declared = (
+            (self.board.input_range_mV, self.board.input_range_at)
+            if which == "input"
+            else (self.board.threshold_range_mV, self.board.threshold_range_at)
+        )
+        if allowed is None or (allowed[0] <= low and high <= allowed[1]):
             return
         where = step.args[key].location if key in step.args else step.location
         if where in self.out_of_range:
@@ -85,20 +90,22 @@ class StepChecks:
         self.problems.append(
             Problem(
                 where,
-                f"{step.kind}: {shown} is outside the input range {allowed[0]:g} to "
-                f"{allowed[1]:g} mV of board type {self.board.board_type} (input_range at "
-                f"{self.board.input_range_at})",
+                f"{step.kind}: {shown} is outside the {which} range {allowed[0]:g} to "
+                f"{allowed[1]:g} mV of board type {self.board.board_type} ({which}_range at "
+                f"{declared})",
             )
         )
 
 
-def _peaks(kind: str, args: Mapping[str, Any]) -> tuple[str, float, float] | None:
-    """(argument, lowest, highest) voltage a pulser step puts on the board's input, in mV."""
+def _peaks(kind: str, args: Mapping[str, Any]) -> tuple[str, str, float, float] | None:
+    """(which range, argument, lowest, highest) voltage a step asks of the board, in mV."""
     if kind == "pulser.amplitude":
-        return "mV", args["mV"], args["mV"]
+        return "input", "mV", args["mV"], args["mV"]
     if kind == "pulser.sine":
         offset = args.get("offset", 0.0)
-        return "amplitude", offset - args["amplitude"], offset + args["amplitude"]
+        return "input", "amplitude", offset - args["amplitude"], offset + args["amplitude"]
+    if kind == "threshold.level":
+        return "threshold", "mV", args["mV"], args["mV"]
     return None
 
 

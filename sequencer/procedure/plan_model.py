@@ -34,6 +34,9 @@ class BoardInfo:
     #: where the board-type file declares it (for messages)
     input_range_mV: tuple[float, float] | None = None
     input_range_at: str = ""
+    #: discriminator thresholds the board's threshold inputs accept, mV, and where declared
+    threshold_range_mV: tuple[float, float] | None = None
+    threshold_range_at: str = ""
 
     def sign(self, output: str | None) -> int:
         """+1 for a positive-going output (the default), -1 for a negative-going one."""

@@ -58,3 +58,11 @@ def test_a_board_type_without_a_range_checks_nothing_and_a_bad_range_is_located(
     (problem,) = exc.value.problems
     assert (problem.location.line, problem.location.column) == (4, 14)
     assert "e.g. [0 mV, 1 V]" in problem.message
+
+
+def test_a_threshold_outside_the_declared_range_is_refused():
+    assert PA8.threshold_range_mV == (-1000.0, 1000.0)
+    assert problems("  - threshold.level: {channel: 1, mV: -500 mV}\n") == []
+    (found,) = problems("  - threshold.level: {channel: 1, mV: 1.5 V}\n")
+    assert found.startswith("t.yaml:5:39: threshold.level: 1500 mV is outside the threshold range")
+    assert "threshold_range at " in found
