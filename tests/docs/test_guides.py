@@ -32,6 +32,7 @@ from sequencer.procedure import (
 from sequencer.procedure.batch import parse_batch_text
 from sequencer.procedure.board_choice import choose_board
 from sequencer.procedure.kinds import KINDS
+from sequencer.procedure.kinds_doc import kinds_table
 
 ROOT = Path(__file__).resolve().parents[2]
 DOCS = ROOT / "docs"
@@ -131,8 +132,10 @@ def test_mistake_table_lines_are_what_validate_says(tmp_path: Path):
 
 
 def test_the_guide_names_every_step_kind_with_its_arguments():
+    # after adding a kind: python -m sequencer.procedure.kinds_doc docs/procedures.md
     text = (DOCS / "procedures.md").read_text(encoding="utf-8")
     table = text.split("## Step kinds", 1)[1]
+    assert text.endswith(kinds_table()), "run: python -m sequencer.procedure.kinds_doc docs/procedures.md"
     rows = {m[1]: m[0] for m in re.finditer(r"^\| `([a-z_.]+)` \|.*$", table, re.MULTILINE)}
     assert set(rows) == set(KINDS), set(KINDS) ^ set(rows)
     for name, kind in KINDS.items():
