@@ -36,7 +36,7 @@ import pyvisa
 from pyvisa import constants
 from pyvisa.errors import InvalidSession, VisaIOError
 
-from drivers import sockio
+from drivers import instr_links, sockio
 from drivers.errors import (
     ConnectionClosed,
     ConnectionRefused,
@@ -58,18 +58,6 @@ from drivers.transport_settings import (
     MAX_MESSAGE_BYTES,
     TransportSettings,
 )
-
-__all__ = [
-    "DEFAULT_BUSY_POLL_US",
-    "DEFAULT_CHUNK_SIZE",
-    "DEFAULT_RECONNECT_ATTEMPTS",
-    "DEFAULT_RECONNECT_BACKOFF_S",
-    "DEFAULT_TIMEOUT_MS",
-    "DEFAULT_VISA_LIBRARY",
-    "MAX_MESSAGE_BYTES",
-    "TransportSettings",
-    "VisaTransport",
-]
 
 _TIMEOUT_CODES = {constants.StatusCode.error_timeout}
 _CLOSED_CODES = {
@@ -100,6 +88,7 @@ class VisaTransport:
         #: Why the last close of the resource failed ('' when it did not); the link is dropped
         #: either way (a backend may raise anything while closing a dead session).
         self.close_error = ""
+        self._held = instr_links.HeldBytes()  # what a VXI-11 wait took off the link
 
     # -- opening -------------------------------------------------------------------------------
     @classmethod
@@ -162,7 +151,7 @@ class VisaTransport:
         """
         resource = self._live()
         link = self._fast_link(resource)
-        if link is None and _peer_closed(_socket_of(resource) or _rpc_socket_of(resource)):
+        if link is None and _peer_closed(_socket_of(resource) or instr_links.rpc_socket(_session(resource))):
             raise ConnectionClosed(
                 "the instrument closed the link", address=self.address, command=text
             )
@@ -178,32 +167,35 @@ class VisaTransport:
 
     def read(self) -> bytes:
         """One message up to the read termination, the terminator stripped."""
+        if not self._held:
+            data = self._receive_message()
+        else:  # a VXI-11 wait took the reply's first byte(s) off the link
+            held, ended = self._held.take(1 << 30)
+            data = held if ended else held + self._receive_message()
+        term = self._read_term
+        return data[: -len(term)] if term and data.endswith(term) else data
+
+    def _receive_message(self) -> bytes:
         resource = self._live()
         term = self._read_term
         link = self._fast_link(resource) if term else None  # no terminator: pyvisa reads to END
         try:
             if link is None:
-                data = self._visa(resource).read_raw()
-            else:
-                pending, sock = link
-                data = sockio.receive_message(
-                    pending,
-                    sock,
-                    term[-1:],
-                    self._timeout_ms / 1000.0,
-                    MAX_MESSAGE_BYTES,
-                    self._poll_s,
-                )
+                return self._visa(resource).read_raw()  # type: ignore[no-any-return]
+            pending, sock = link
+            return sockio.receive_message(
+                pending, sock, term[-1:], self._timeout_ms / 1000.0, MAX_MESSAGE_BYTES, self._poll_s
+            )
         except _MAPPED_ERRORS as exc:
             raise self._translate(exc, self._last_command) from exc
-        if term and data.endswith(term):
-            data = data[: -len(term)]
-        return data
 
     def read_bytes(self, n: int) -> bytes:
         """Exactly ``n`` raw bytes, with the termination character off (binary data)."""
         if n <= 0:
             return b""
+        if self._held:
+            head, _ = self._held.take(n)
+            return head if len(head) == n else head + self.read_bytes(n - len(head))
         resource = self._live()
         link = self._fast_link(resource)
         try:
@@ -214,7 +206,7 @@ class VisaTransport:
             data = self._pyvisa_read_bytes(self._visa(resource), n)
         except _MAPPED_ERRORS as exc:
             raise self._translate(exc, self._last_command) from exc
-        if len(data) != n and _message_based(self.address):
+        if len(data) != n and instr_links.message_based(self.address):
             raise ProtocolError(  # the link marked the message's end: the rest will not come
                 f"the message ended after {len(data)} of {n} bytes (a short block)",
                 address=self.address,
@@ -229,7 +221,7 @@ class VisaTransport:
         return data
 
     def _pyvisa_read_bytes(self, resource: Any, n: int) -> bytes:
-        if _message_based(self.address):  # termination character already off (see _open_resource)
+        if instr_links.message_based(self.address):  # termination character already off (see _open_resource)
             # stop at END: pyvisa-py's HiSLIP read past a DataEnd returns b"" at once, so reading
             # on for bytes a short block never sends would spin in pyvisa's loop forever
             return resource.read_bytes(n, break_on_termchar=True)
@@ -256,6 +248,8 @@ class VisaTransport:
 
     def more_pending(self, wait_s: float = 0.005) -> bool:
         """True when more input is waiting (or arrives within ``wait_s``); best effort."""
+        if self._held:
+            return True
         resource = self._live()
         session = _pyvisa_py_session(resource)
         if session is not None and getattr(session, "_pending_buffer", None):
@@ -271,19 +265,32 @@ class VisaTransport:
 
     def wait_for_input(self, timeout_s: float) -> bool | None:
         """True when input (or end-of-file) is waiting or arrives within ``timeout_s``, False when
-        none does, None when this link cannot tell (not a pyvisa-py SOCKET session).  Lets a long
-        read wait in short slices and look at the stop flag in between."""
+        none does, None when this link cannot tell (not pyvisa-py SOCKET, HiSLIP or VXI-11).  Lets
+        a long read wait in short slices and look at the stop flag in between."""
+        if self._held:
+            return True
         resource = self._live()
         session = _pyvisa_py_session(resource)
         if session is not None and getattr(session, "_pending_buffer", None):
             return True
-        sock = _socket_of(resource)
+        sock = _socket_of(resource) or instr_links.hislip_socket(session)
         if sock is None:
-            return None
+            return self._probe_vxi11(session, timeout_s)
         try:
             return bool(select.select([sock], [], [], max(0.0, timeout_s))[0])
         except (OSError, ValueError):
             return True  # the read that follows reports what is wrong
+
+    def _probe_vxi11(self, session: Any, timeout_s: float) -> bool | None:
+        """``wait_for_input`` on a VXI-11 session (``instr_links``); None on any other link."""
+        if not instr_links.is_vxi11(session):
+            return None
+        try:
+            probe = instr_links.probe_vxi11(session, timeout_s)
+        except _MAPPED_ERRORS as exc:
+            raise self._translate(exc, self._last_command) from exc
+        self._held.keep(probe)
+        return bool(probe.data) or probe.error != instr_links.VXI11_IO_TIMEOUT
 
     def drain(self) -> None:
         """Discard any input waiting (a late or partial reply), so the next reply is in step.
@@ -299,12 +306,13 @@ class VisaTransport:
         unread rest of a reply it began (a malformed block's tail) read off the channel, or its
         clear reads that tail as the acknowledgement and fails ("protocol synchronization error"):
         it is read to the message's end here, bounded by the link timeout."""
+        self._held.clear()
         resource = self._live()
         sock = _socket_of(resource)
         if sock is None:
             with self._mapped("<clear>"):
                 visa = self._visa(resource)
-                if _partial_message_pending(resource):
+                if instr_links.partial_message_pending(_session(resource)):
                     visa.read_raw()
                 visa.clear()
             return
@@ -362,9 +370,10 @@ class VisaTransport:
         return self._resource
 
     def _close_resource(self) -> None:
+        self._held.clear()
         resource, self._resource = self._resource, None
         if resource is not None:
-            rpc_sock = _rpc_socket_of(resource)
+            rpc_sock = instr_links.rpc_socket(_session(resource))
             if rpc_sock is not None and _peer_closed(rpc_sock):
                 # pyvisa-py's VXI-11 close asks destroy_link and waits 5 s for a reply from a
                 # peer that is gone; shut down, the call fails at once (EPIPE) and it closes
@@ -431,7 +440,7 @@ def _open_resource(address: str, settings: TransportSettings) -> Any:
         resource.read_termination = settings.read_termination or None
         resource.write_termination = settings.write_termination
         resource.chunk_size = settings.chunk_size
-        if _message_based(address):
+        if instr_links.message_based(address):
             # an INSTR link marks each message's end (VXI-11 END flag, HiSLIP DataEnd): a read
             # ends there, not at a newline byte inside an indefinite #0 block (a VXI-11 device
             # honours the term character when asked to, ending the read at the first 0x0A)
@@ -446,12 +455,6 @@ def _open_resource(address: str, settings: TransportSettings) -> Any:
             resource.close()
         raise
     return resource
-
-
-def _message_based(address: str) -> bool:
-    """A LAN INSTR resource (VXI-11 or HiSLIP), whose messages end at END, not a newline."""
-    upper = address.upper()
-    return upper.startswith("TCPIP") and upper.endswith("::INSTR")
 
 
 def _pyvisa_py_session(resource: Any) -> Any:
@@ -472,25 +475,12 @@ def _socket_of(resource: Any) -> socket.socket | None:
     return interface if isinstance(interface, socket.socket) else None
 
 
-def _partial_message_pending(resource: Any) -> bool:
-    """True when pyvisa-py's HiSLIP client has begun a reply and not read it to its DataEnd
-    (its ``_payload_remaining``, a private attribute of pyvisa-py 0.8; absent elsewhere)."""
+def _session(resource: Any) -> Any:
+    """The pyvisa-py session under ``resource``, None when there is none (or it is closed)."""
     try:
-        interface = getattr(_pyvisa_py_session(resource), "interface", None)
-    except InvalidSession:
-        return False
-    remaining = getattr(interface, "_payload_remaining", 0)
-    return isinstance(remaining, int) and remaining > 0
-
-
-def _rpc_socket_of(resource: Any) -> socket.socket | None:
-    """The TCP socket under a pyvisa-py VXI-11 session (its RPC client's), else ``None``; only
-    looked at for a closed peer, never read: its bytes are RPC records."""
-    try:
-        sock = getattr(getattr(_pyvisa_py_session(resource), "interface", None), "sock", None)
+        return _pyvisa_py_session(resource)
     except InvalidSession:
         return None
-    return sock if isinstance(sock, socket.socket) else None
 
 
 def _peer_closed(sock: socket.socket | None) -> bool:

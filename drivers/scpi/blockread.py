@@ -90,7 +90,9 @@ class BlockReader:
     # -- the reply ------------------------------------------------------------------------------
     def header(self) -> int | None:
         """Read ``#<n><len>`` (a little whitespace before it is skipped); the declared length or
-        None for ``#0``."""
+        None for ``#0``.  The wait for it -- the instrument acquiring, often the longest part --
+        is sliced like the data's, so a stop request is seen while the instrument is silent."""
+        self._await_data(0, None, self.bounds.deadline(0, self.start))
         head = self.transport.read_bytes(2)
         for _ in range(8):  # tolerate a little whitespace before '#'
             if head[:1] not in (b" ", b"\r", b"\n", b"\t"):
