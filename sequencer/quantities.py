@@ -69,5 +69,7 @@ QUANTITY_UNITS: Mapping[str, str] = MappingProxyType(
         "bandwidth_mhz": "MHz",
         "zero_crossing_ns": "ns",
         "zero_crossing_walk_ns": "ns",
+        "disc_walk_ns": "ns",
+        "disc_jitter_ns": "ns",
     }
 )

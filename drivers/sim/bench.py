@@ -63,7 +63,7 @@ def _instruments(board: BoardSpec, clock: Callable[[], float]) -> dict[str, SimI
     return {
         "pulser": pulser,
         "scope": SCOPES[board.command_sets.get("scope", "generic")](
-            board=board, pulser=pulser, switch=switch, **common("scope")
+            board=board, pulser=pulser, switch=switch, threshold=threshold, **common("scope")
         ),
         "threshold": threshold,
         "counter": Counter(

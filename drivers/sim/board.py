@@ -34,6 +34,7 @@ key                           default    meaning
 ``bias_voltage_noise_mV``     1.0        RMS noise of the voltage meter
 ``coincidence.*``             (below)    the coincidence unit (:mod:`drivers.sim.coincidence`)
 ``converter.*``               (below)    the digitizer's converter with a sine input
+``discriminator.*``           (below)    the discriminator's logic output ``disc``
 ============================  =========  ===========================================================
 
 Section ``coincidence`` (every key optional):
@@ -63,6 +64,20 @@ in sine mode, when every scope input sees the generator directly):
 ``bandwidth_mhz``             0.0        one-pole analogue bandwidth (MHz); 0: unlimited
 ============================  =========  ===========================================================
 
+Section ``discriminator`` (every key optional; :mod:`drivers.sim.disc_output`; the logic output
+``disc`` of each channel, routed to the scope like any output):
+
+============================  ==============  ======================================================
+``mode``                      leading_edge    ``leading_edge`` or ``constant_fraction``
+``fraction``                  0.3             constant fraction f
+``delay_ns``                  2.0             constant-fraction delay d (ns)
+``propagation_ns``            5.0             input crossing to output edge (ns)
+``width_ns``                  20.0            logic pulse width (ns)
+``logic_mV``                  800.0           logic level (mV, positive-going)
+``edge_ns``                   0.5             logic pulse edges, 0-100 % (ns)
+``logic_noise_mV``            1.0             RMS noise on the logic output (mV)
+============================  ==============  ======================================================
+
 Channel defaults: gain_x1 1.0, gain_x5 5.0, baseline_mV 0, noise_in_mV 0.3, saturation_mV 1500,
 discriminator_offset_mV 0, dead false.  A channel may also give ``output_baseline_mV``, the DC level
 of named outputs (``{x1: 12, x5: -12}``; each between -5000 and 5000 mV): x1 and x5 sit behind
@@ -84,7 +99,7 @@ from drivers.timing import DEFAULT_TIMING, BenchTiming
 #: The instrument roles, in port order (port_base + index).
 ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch", "coincidence")
 #: Board outputs and the digit k of the switch route numbers.
-OUTPUT_INDEX = MappingProxyType({"x1": 1, "x5": 2, "shaped": 3})
+OUTPUT_INDEX = MappingProxyType({"x1": 1, "x5": 2, "shaped": 3, "disc": 4})
 FAULT_KINDS = (
     "interlock_open",
     "no_reply",
@@ -163,6 +178,23 @@ class ConverterSpec:
     bandwidth_mhz: float = 0.0
 
 
+DISCRIMINATOR_MODES = ("leading_edge", "constant_fraction")
+
+
+@dataclass(frozen=True, kw_only=True)
+class DiscriminatorSpec:
+    """The discriminator's logic output ``disc`` (keys in the table above)."""
+
+    mode: str = "leading_edge"
+    fraction: float = 0.3
+    delay_ns: float = 2.0
+    propagation_ns: float = 5.0
+    width_ns: float = 20.0
+    logic_mV: float = 800.0
+    edge_ns: float = 0.5
+    logic_noise_mV: float = 1.0
+
+
 @dataclass(frozen=True, kw_only=True)
 class FaultSpec:
     """One injected fault; exactly one of ``after_s`` / ``after_commands`` is set."""
@@ -192,6 +224,7 @@ class BoardSpec:
     pulse: PulseSpec = field(default_factory=PulseSpec)
     coincidence: CoincidenceSpec = field(default_factory=CoincidenceSpec)
     converter: ConverterSpec = field(default_factory=ConverterSpec)
+    discriminator: DiscriminatorSpec = field(default_factory=DiscriminatorSpec)
     crosstalk_pct: float = 0.0
     bias_resistance_Mohm: float = 5000.0
     seed: int = 0

@@ -15,6 +15,7 @@ from typing import Any
 
 from drivers.errors import ConfigError, Problem
 from drivers.sim.board import (
+    DISCRIMINATOR_MODES,
     FAULT_KINDS,
     MAX_CHANNELS,
     OUTPUT_INDEX,
@@ -23,6 +24,7 @@ from drivers.sim.board import (
     ChannelSpec,
     CoincidenceSpec,
     ConverterSpec,
+    DiscriminatorSpec,
     FaultSpec,
     PulseSpec,
     ShaperSpec,
@@ -192,6 +194,16 @@ _CONVERTER = {
     "aperture_jitter_ps": _number(0.0, 1e6),
     "bandwidth_mhz": _number(0.0, 1e5),
 }
+_DISCRIMINATOR = {
+    "mode": _choice(*DISCRIMINATOR_MODES),
+    "fraction": _number(0.0, 1.0, above=True),
+    "delay_ns": _number(0.0, 1e3, above=True),
+    "propagation_ns": _number(0.0, 1e4),
+    "width_ns": _number(0.0, 1e5, above=True),
+    "logic_mV": _number(0.0, 5000.0, above=True),
+    "edge_ns": _number(0.0, 1e3, above=True),
+    "logic_noise_mV": _number(0.0, 1e3),
+}
 _FAULT = {
     "kind": _choice(*FAULT_KINDS),
     "role": _choice(*ROLES),
@@ -214,6 +226,7 @@ _TOP: dict[str, Check] = {
     "pulse": lambda v: v,
     "coincidence": lambda v: v,
     "converter": lambda v: v,
+    "discriminator": lambda v: v,
     "faults": lambda v: v,
     "channels": lambda v: v,
     "command_sets": lambda v: v,
@@ -270,6 +283,11 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
         if "converter" in top
         else ConverterSpec()
     )
+    discriminator = (
+        DiscriminatorSpec(**reader.mapping(top["discriminator"], _DISCRIMINATOR, "discriminator"))
+        if "discriminator" in top
+        else DiscriminatorSpec()
+    )
     outputs = _outputs(reader, data, top.get("outputs"))
     faults = _faults(reader, data, top.get("faults"))
     command_sets = (
@@ -296,6 +314,7 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
             "pulse",
             "coincidence",
             "converter",
+            "discriminator",
             "outputs",
             "faults",
             "command_sets",
@@ -308,6 +327,7 @@ def board_from_mapping(data: Any, source: str = "<board>") -> BoardSpec:
         pulse=pulse,
         coincidence=coincidence,
         converter=converter,
+        discriminator=discriminator,
         outputs=outputs,
         faults=faults,
         command_sets=MappingProxyType(dict(command_sets)),

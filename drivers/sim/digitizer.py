@@ -27,7 +27,8 @@ acquisition comes from ``np.random.default_rng([seed, instrument_id, capture_cou
 While the pulser runs in sine mode every input digitises the generator's sine through the converter
 model of the board's ``converter`` section (:mod:`drivers.sim.converter`: DNL pattern, missing codes,
 noise, aperture jitter, bandwidth); such records are single acquisitions (an average count above 1
-is refused with -221).
+is refused with -221).  So are captures of a discriminator's logic output ``disc``
+(:mod:`drivers.sim.disc_output`), drawn once per capture from the noisy pulse the discriminator saw.
 """
 
 from __future__ import annotations
@@ -42,6 +43,7 @@ from drivers.scpi.blocks import format_block
 from drivers.sim.adc import CODES_16, digitize
 from drivers.sim.board import BoardSpec
 from drivers.sim.converter import convert, sine_volts, transitions
+from drivers.sim.disc_output import fire_time_ns, logic_mV
 from drivers.sim.instrument import Call, Command, SimInstrument, command
 from drivers.sim.physics import band_limited_noise
 from drivers.sim.pulser import Pulser
@@ -56,6 +58,7 @@ from drivers.sim.scpi_parser import (
     scpi_error,
 )
 from drivers.sim.switch import SCOPE_INPUTS, Switch
+from drivers.sim.threshold import ThresholdDac
 from drivers.timing import acquisition_s, transfer_s
 
 
@@ -107,11 +110,18 @@ class Digitizer(SimInstrument):
     model = "LTS-DG4"
 
     def __init__(
-        self, *, board: BoardSpec, pulser: Pulser, switch: Switch, **kwargs: object
+        self,
+        *,
+        board: BoardSpec,
+        pulser: Pulser,
+        switch: Switch,
+        threshold: ThresholdDac | None = None,
+        **kwargs: object,
     ) -> None:
         self.board = board
         self.pulser = pulser
         self.switch = switch
+        self.threshold = threshold  # the discriminators' levels, for the logic output ``disc``
         self.settings = ScopeSettings()
         self.record: Record | None = None
         self.captures = 0
@@ -214,6 +224,9 @@ class Digitizer(SimInstrument):
         board = self.board
         if self.pulser.sine_on and s.averages > 1:
             raise scpi_error(-221, "the converter model acquires single records of the sine")
+        routed = (self.switch.source_of(i) for i in range(1, SCOPE_INPUTS + 1))
+        if s.averages > 1 and any(src is not None and src[0] == "disc" for src in routed):
+            raise scpi_error(-221, "a discriminator's logic output is captured single-shot")
         self.captures += 1
         started = self.pace.mark()
         rng = np.random.default_rng([board.seed, self.instrument_id, self.captures])
@@ -249,6 +262,11 @@ class Digitizer(SimInstrument):
                 rows.append(-1)
                 continue
             output, channel = source
+            if output == "disc":  # the discriminator's logic output, drawn once per capture
+                volts[i - 1] = 1e-3 * self._logic(channel, injected, t_ns, rng)
+                sigma[i - 1] = 1e-3 * board.discriminator.logic_noise_mV
+                rows.append(streams.setdefault((channel, "disc"), len(streams)))
+                continue
             volts[i - 1] = 1e-3 * output_signal_mV(
                 board,
                 channel,
@@ -324,6 +342,17 @@ class Digitizer(SimInstrument):
             averages=1,
         )
 
+    def _logic(
+        self, channel: int, injected: int | None, t_ns: np.ndarray, rng: np.random.Generator
+    ) -> np.ndarray:
+        """The logic output of ``channel``'s discriminator for this capture (no injection, no
+        pulse: the noise-only firings are the counter's business)."""
+        if injected != channel or self.threshold is None:
+            return logic_mV(self.board, None, t_ns)
+        level = self.threshold.level_mV(channel)
+        fired = fire_time_ns(self.board, channel, self.pulser.amplitude_mV, level, rng)
+        return logic_mV(self.board, fired, t_ns)
+
     def _noise(
         self,
         rng: np.random.Generator,
@@ -334,10 +363,14 @@ class Digitizer(SimInstrument):
     ) -> np.ndarray:
         """Unit-RMS noise per input: x1 and x5 of one channel share their preamp's stream."""
         drawn = np.zeros((max(len(streams), 1), points))
-        for kind in ("fast", "shaped"):
+        for kind in ("fast", "shaped", "disc"):
             members = [row for (channel, k), row in streams.items() if k == kind]
             if members:
-                tau = noise_tau_ns(self.board, "shaped" if kind == "shaped" else "x1")
+                tau = (
+                    self.board.discriminator.edge_ns
+                    if kind == "disc"
+                    else noise_tau_ns(self.board, "shaped" if kind == "shaped" else "x1")
+                )
                 drawn[members] = band_limited_noise(rng, len(members), points, dt_ns, tau)
         noise = np.zeros((SCOPE_INPUTS, points))
         for i, row in enumerate(rows):

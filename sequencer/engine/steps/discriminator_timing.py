@@ -1,6 +1,9 @@
 """Handlers of the discriminator-timing analyses (``analyse.walk``, ``analyse.jitter``): leading-edge
 and constant-fraction times of captured fast pulses, judged as ``time_walk_ns``, ``cf_walk_ns`` and
-``timing_jitter_ns``.
+``timing_jitter_ns``; and of the discriminator's own logic output (``analyse.output_walk``,
+``analyse.output_jitter``): the leading edge of each logic pulse at half its swing, judged as
+``disc_walk_ns`` and ``disc_jitter_ns`` - what the module's discriminator (leading-edge or
+constant-fraction, as built) does, not what an analysis of its input would.
 
 Times are taken on each trace's own axis (t = 0 the trigger), so they compare across captures.  The
 jitter step also states what the standard estimate σ_noise/(dV/dt) predicts from the same traces
@@ -117,4 +120,50 @@ def analyse_jitter(ctx: RunContext, step: PlannedStep) -> StepResult:
     )
 
 
-HANDLERS = {"analyse.walk": analyse_walk, "analyse.jitter": analyse_jitter}
+def _output_times(ctx: RunContext, step: PlannedStep) -> tuple[list[NamedTrace], np.ndarray]:
+    """Leading-edge times of the discriminator's logic pulses at ``level`` (half the logic swing)
+    above their baseline; NaN where a capture holds no output pulse."""
+    items, rows, dt = _traces(ctx, step)
+    t0, nb = items[0].trace.t0_ns, _baseline(step, items)
+    level = float(step.args["level"])
+    return items, an.leading_edge_times(rows, dt, level, t0_ns=t0, n_baseline=nb)
+
+
+def analyse_output_walk(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """Walk of the discriminator's OUTPUT over an amplitude sweep (its mode's walk, as built)."""
+    items, times = _output_times(ctx, step)
+    try:
+        amps = np.array([float(i.labels[step.args["x"]]) for i in items])
+    except KeyError:
+        raise TimingInputError(f"sweep variable {step.args['x']!r} is not among the labels") from None
+    missing = int(np.count_nonzero(~np.isfinite(times)))
+    if missing:
+        raise TimingInputError(f"no output pulse in {missing} of {times.size} captures")
+    walk = an.time_walk(amps, times)
+    return StepResult(
+        results={"amplitudes_mV": walk.amplitudes_mV.tolist(), "output_ns": walk.mean_ns.tolist()},
+        measurements=[measure(ctx, step, "disc_walk_ns", walk.walk_ns, output=None)],
+    )
+
+
+def analyse_output_jitter(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """RMS of the discriminator's OUTPUT time over single captures at one amplitude."""
+    items, times = _output_times(ctx, step)
+    jitter = an.timing_jitter(times)
+    return StepResult(
+        results={"captures": len(items), "refused": jitter.refused, "mean_ns": jitter.mean_ns},
+        measurements=[
+            measure(
+                ctx, step, "disc_jitter_ns", jitter.rms_ns, uncertainty=jitter.uncertainty_ns,
+                output=None,
+            )
+        ],
+    )
+
+
+HANDLERS = {
+    "analyse.walk": analyse_walk,
+    "analyse.jitter": analyse_jitter,
+    "analyse.output_walk": analyse_output_walk,
+    "analyse.output_jitter": analyse_output_jitter,
+}
