@@ -97,11 +97,12 @@ class Responder:
         return self
 
     def drop_clients(self) -> None:
-        """Close every client connection (a dropped LAN link, seen from the instrument)."""
+        """Drop every client connection (a dropped LAN link, seen from the instrument).  Shut down
+        only: each serving thread closes its own socket when it sees the end, so no thread is left
+        using a file descriptor another one closed (the warning seen at teardown)."""
         for client in list(self._clients):
             with contextlib.suppress(OSError):
                 client.shutdown(socket.SHUT_RDWR)
-            client.close()
         self._clients.clear()
 
     def stop(self) -> None:
@@ -150,6 +151,14 @@ class Responder:
         return replies[0] if len(units) == 1 else _joined(replies)
 
     def _serve(self, client: socket.socket) -> None:
+        try:
+            self._serve_client(client)
+        except OSError:  # shut down under it (drop_clients, stop): the link is gone
+            pass
+        finally:
+            client.close()
+
+    def _serve_client(self, client: socket.socket) -> None:
         client.settimeout(0.05)
         buffer = b""
         while not self._stop.is_set():
@@ -168,8 +177,7 @@ class Responder:
                 try:
                     reply = self._answer(line)
                 except DropLink:
-                    client.close()
-                    return
+                    return  # closed by _serve
                 if not reply:
                     continue
                 try:
