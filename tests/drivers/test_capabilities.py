@@ -152,7 +152,15 @@ class SupplyLink:
         pass
 
 
-def test_a_supply_without_a_slew_command_is_ramped_in_software():
+def test_a_supply_without_a_slew_command_is_ramped_in_software(monkeypatch):
+    # the driver's clock advances 0.2 s per read-back here, whatever the machine's load: at
+    # 5 V/s five read-backs plan 5 V of the 10 V ramp (no wall-clock bound hidden in the test)
+    import types
+
+    import drivers.roles.bias as bias_module
+
+    now = [1000.0]
+    monkeypatch.setattr(bias_module, "time", types.SimpleNamespace(monotonic=lambda: now[0]))
     link = SupplyLink()
     spec = InstrumentSpec(role="bias", address=link.address, max_volts=60, max_ramp_V_per_s=5)
     bias = BiasSupply(ScpiSession(link), no_slew_dialect(), spec)
@@ -166,6 +174,7 @@ def test_a_supply_without_a_slew_command_is_ramped_in_software():
     # the 10 V target at once (a read-back of the set point itself stays within the plan)
     seen = []
     for _ in range(5):
+        now[0] += 0.2
         bias.follow_ramp(link.setpoint)
         seen.append(link.setpoint)
     assert seen == sorted(seen) and seen[0] >= 0.0 and seen[-1] < 10.0
