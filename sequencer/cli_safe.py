@@ -28,7 +28,8 @@ from sequencer.cli_common import (
     visa_library_option,
 )
 
-#: SQLite: how long ``safe`` waits for another writer's lock before it goes ahead without the check.
+#: SQLite: how long ``safe`` waits for another writer's lock before it goes ahead without the check;
+#: PostgreSQL: how long it waits for the server to answer (libpq ``connect_timeout``, seconds).
 LEASE_CHECK_BUSY_S = 2.0
 
 
@@ -99,7 +100,7 @@ def check_bench_lease(bench: str, bench_path: str, db: str | None, *, take_over:
     from sequencer.errors import StoreError
     from sequencer.store import Store, default_url
 
-    url = db or default_url(env())
+    url = with_short_connect_timeout(db or default_url(env()))
     try:
         store: Any = Store.open(url, create=False, busy_timeout_s=LEASE_CHECK_BUSY_S)
     except StoreError as exc:
@@ -132,3 +133,11 @@ def check_bench_lease(bench: str, bench_path: str, db: str | None, *, take_over:
             except StoreError as exc:
                 click.echo(f"note: the take-over of run {holder.run_id} was not recorded ({exc}); "
                            "going ahead", err=True)
+
+
+def with_short_connect_timeout(url: str) -> str:
+    """A PostgreSQL URL with libpq's ``connect_timeout`` set to ``LEASE_CHECK_BUSY_S`` unless it
+    names one: an unreachable server must not hold a live supply for the store's usual 10 s."""
+    if not url.startswith("postgresql") or "connect_timeout=" in url:
+        return url
+    return f"{url}{'&' if '?' in url else '?'}connect_timeout={int(LEASE_CHECK_BUSY_S)}"

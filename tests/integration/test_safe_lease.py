@@ -65,3 +65,19 @@ def test_safe_refuses_a_bench_held_by_a_live_run_and_takes_it_over_when_told(tmp
     assert "safe_take_over" in trail and "lease_lost" in trail
     assert trail.index("safe_take_over") < trail.index("lease_lost")
     assert "finished" not in trail  # the old run's "aborted" was not written over the record
+
+
+def test_the_lease_check_waits_briefly_for_a_postgresql_server():
+    # libpq's connect_timeout is in seconds and at least 2 (PostgreSQL docs, "Connection
+    # Strings", parameter connect_timeout); the store otherwise waits 10 s for a server.
+    from sqlalchemy.engine import make_url
+
+    from sequencer.cli_safe import with_short_connect_timeout
+
+    url = make_url(with_short_connect_timeout("postgresql+psycopg://lab@db.example/results"))
+    assert url.query == {"connect_timeout": "2"} and url.database == "results"
+    named = "postgresql+psycopg://lab@db.example/results?connect_timeout=30"
+    assert with_short_connect_timeout(named) == named
+    with_option = make_url(with_short_connect_timeout("postgresql+psycopg://db/r?sslmode=require"))
+    assert with_option.query == {"sslmode": "require", "connect_timeout": "2"}
+    assert with_short_connect_timeout("sqlite:///results.db") == "sqlite:///results.db"
