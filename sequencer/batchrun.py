@@ -177,7 +177,7 @@ class _BatchRun:
         # every procedure of the batch (a board may name its own) read before the first board
         self.procedures: dict[str, Procedure] = {}
         for path in dict.fromkeys(batch.procedure_of(b) for b in batch.boards):
-            self.procedures[path] = load_procedure(path)
+            self.procedures[path] = load_procedure(path, lab_dir=options.lab.folder)
         self.bench: BenchSpec | None = (
             load_bench(options.bench_path, allowed_visa_libraries=options.allowed_visa_libraries)
             if options.bench_path

@@ -61,9 +61,11 @@ def validate(
     procedures: tuple[str, ...], fragment: bool, board_type: str | None, bench_path: str | None
 ) -> None:
     """Check procedure files; print file:line:column: message per problem (exit 2 if any)."""
+    from sequencer.compose import lab_for
     from sequencer.procedure import validate_paths
 
-    problems = validate_paths(procedures, fragment=fragment, board_type=board_type)
+    lab = lab_for(env(), bench_path)  # the bench file's lab: folder, unless BENCHWRIGHT_LAB is set
+    problems = validate_paths(procedures, fragment=fragment, board_type=board_type, lab_dir=lab.folder)
     if problems:
         fail(EXIT_INPUT, "\n".join(str(p) for p in problems))
     from sequencer.compose import plan_for
@@ -76,7 +78,7 @@ def validate(
             planned = f"planned for {board_type}" if board_type else "give --board-type to plan it"
             lines.append(f"{path}: ok (fragment; {planned})")
             continue
-        plan = plan_for(load_procedure(path), "VALIDATE-ONLY")
+        plan = plan_for(load_procedure(path, lab_dir=lab.folder), "VALIDATE-ONLY", lab=lab)
         problems += _bench_problems(plan, spec)
         for line in unjudged_warnings(plan):
             click.echo(f"{path}: warning: {line}", err=True)
@@ -132,7 +134,9 @@ def plan(
     lab = lab_for(env(), bench_path)  # the bench file's lab: folder, unless BENCHWRIGHT_LAB is set
     if lab.warning():
         click.echo(f"warning: {lab.warning()}", err=True)
-    planned = plan_for(load_procedure(procedure), serial, board_type=board_type, lab=lab)
+    planned = plan_for(
+        load_procedure(procedure, lab_dir=lab.folder), serial, board_type=board_type, lab=lab
+    )
     if sim_board:
         from sequencer.compose import sim_timing
         from sequencer.procedure.estimate import EstimateSettings, estimate_plan
@@ -232,10 +236,13 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
     with opener(db, env()) as store:
         record = compose.check_store(store, repeat) if repeat is not None else None
         stored = store.run_inputs(repeat) if repeat is not None else ()
+        lab = compose.lab_for(env(), bench_path, allowed_visa_libraries=allow_visa_library)
+        if lab.warning():
+            warn(lab.warning())
         if record is not None:
             proc = rerun_inputs.stored_procedure(record, stored, warn)
         elif procedure:
-            proc = load_procedure(procedure)
+            proc = load_procedure(procedure, lab_dir=lab.folder)
         else:
             raise click.UsageError("give PROCEDURE or --repeat RUN_ID")
         if serial is None and sim_board:
@@ -244,9 +251,6 @@ def run(procedure: str | None, bench_path: str | None, sim_board: str | None, se
             serial = record.board
         if not serial:
             raise click.UsageError("give --board SERIAL")
-        lab = compose.lab_for(env(), bench_path, allowed_visa_libraries=allow_visa_library)
-        if lab.warning():
-            warn(lab.warning())
         plan_ = compose.plan_for(proc, serial, board_type=board_type, stored=stored, lab=lab)
         if sim_board:
             compose.check_sim_board(plan_, sim_board)

@@ -2,9 +2,9 @@
 
 Public API::
 
-    load_procedure(path) -> Procedure
+    load_procedure(path, *, lab_dir=None) -> Procedure
     load_procedure_text(text, path, files=None) -> Procedure
-    validate_paths(paths, *, fragment=False, board_type=None) -> list[Problem]
+    validate_paths(paths, *, fragment=False, board_type=None, lab_dir=None) -> list[Problem]
     check_fragment(path, board_type=None) -> list[Problem]   (a file for include:, on its own)
     build_plan(procedure, board, *, overrides=None) -> Plan
     format_plan(plan) -> str
@@ -40,25 +40,33 @@ VALIDATION_SERIAL = "VALIDATION"
 
 
 def validate_paths(
-    paths: Iterable[str | Path], *, fragment: bool = False, board_type: str | None = None
+    paths: Iterable[str | Path],
+    *,
+    fragment: bool = False,
+    board_type: str | None = None,
+    lab_dir: Path | None = None,
 ) -> list[Problem]:
     """Every problem of every procedure file: loading, then a plan for its board type.
 
     A file whose modeline names the fragment schema (or every file, with ``fragment``) is checked as a
-    fragment (:func:`check_fragment`), planned for ``board_type`` when one is given.
+    fragment (:func:`check_fragment`), planned for ``board_type`` when one is given.  ``lab_dir``: a
+    lab's own folder, whose board types and limit sets are found before the shipped ones.
     """
+    from .board_choice import LabFiles
+
+    lab = LabFiles(folder=lab_dir)
     problems: list[Problem] = []
     for path in paths:
         if fragment or _marked_fragment(path):
             problems.extend(check_fragment(path, board_type))
             continue
         try:
-            procedure = load_procedure(path)
+            procedure = load_procedure(path, lab_dir=lab_dir)
         except ProcedureError as exc:
             problems.extend(exc.problems)
             continue
         try:
-            board = board_info(procedure.board_type, VALIDATION_SERIAL)
+            board = board_info(lab.find("boards", procedure.board_type), VALIDATION_SERIAL)
         except ProcedureError as exc:
             problems.append(
                 Problem(

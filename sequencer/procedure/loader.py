@@ -73,15 +73,20 @@ _TEXT_RULES = {
 class _Reader:
     """Finds and reads the files a procedure names, from disk or from given texts."""
 
-    def __init__(self, root_path: str, files: Mapping[str, str] | None) -> None:
+    def __init__(
+        self, root_path: str, files: Mapping[str, str] | None, lab_dir: Path | None = None
+    ) -> None:
         self.root_dir = posixpath.dirname(root_path.replace("\\", "/"))
         self.given = files
+        self.lab_dir = lab_dir
         self.read: dict[str, str] = {}
         self.limits_keys: set[str] = set()
 
     def display(self, key: str) -> str:
         if key.startswith(LIMITS_BY_NAME):
-            return str(shipped_dir("limits") / key[len(LIMITS_BY_NAME) :])
+            name = key[len(LIMITS_BY_NAME) :]
+            own = None if self.lab_dir is None else self.lab_dir / "limits" / name
+            return str(own if own is not None and own.is_file() else shipped_dir("limits") / name)
         return posixpath.normpath(posixpath.join(self.root_dir, key)) if self.root_dir else key
 
     def text(self, key: str) -> str:
@@ -321,8 +326,12 @@ class _Loader:
         try:
             return parse_limits_text(self.reader.text(key), file)
         except OSError as exc:
+            hint = (
+                " (a lab's own limit sets: a folder with limits/, named by 'lab: DIR' in the bench "
+                "file or BENCHWRIGHT_LAB)" if by_name and self.reader.lab_dir is None else ""
+            )
             self.problems.append(
-                Problem(at, f"cannot read limits file {file}: {exc.strerror or exc}")
+                Problem(at, f"cannot read limits file {file}: {exc.strerror or exc}{hint}")
             )
         except ProcedureError as exc:
             self.problems.extend(exc.problems)
@@ -362,19 +371,24 @@ def _check_root(procedure: Procedure, problems: list[Problem]) -> Procedure:
 
 
 def load_procedure_text(
-    text: str | bytes, path: str | Path, files: Mapping[str, str] | None = None
+    text: str | bytes,
+    path: str | Path,
+    files: Mapping[str, str] | None = None,
+    *,
+    lab_dir: Path | None = None,
 ) -> Procedure:
     """Load a procedure from its text; ``path`` names it in messages and anchors relative includes.
 
     ``files`` (relative path -> text, as given by :meth:`Procedure.source_files`) supplies every included
     file and the limits file, so that a stored procedure runs again exactly; without it they are read
-    from disk.
+    from disk.  ``lab_dir``: a lab's own folder (``board_choice.LabFiles``); a limit set named by
+    board type (``limits: PA4L``) is read from ``<lab_dir>/limits/`` before the shipped ones.
     """
     path = str(path)
     data = load_yaml(text, path, error=ProcedureError)
     text = text.decode("utf-8") if isinstance(text, bytes) else text
     problems: list[Problem] = []
-    reader = _Reader(path, files)
+    reader = _Reader(path, files, lab_dir)
     key = posixpath.basename(path.replace("\\", "/")) or "procedure.yaml"
     procedure = _Loader(reader, problems).procedure(data, path, key, fragment=False, stack=(key,))
     procedure = _check_root(procedure, problems)
@@ -389,15 +403,15 @@ def load_procedure_text(
     )
 
 
-def load_procedure(path: str | Path) -> Procedure:
-    """Load and validate the procedure file at ``path``."""
+def load_procedure(path: str | Path, *, lab_dir: Path | None = None) -> Procedure:
+    """Load and validate the procedure file at ``path`` (``lab_dir``: as :func:`load_procedure_text`)."""
     try:
         raw = read_bounded(path)
     except OSError as exc:
         raise ProcedureError(
             [Problem(Location(str(path), 1, 1), f"cannot read procedure: {exc.strerror}")]
         ) from None
-    return load_procedure_text(raw, path)
+    return load_procedure_text(raw, path, lab_dir=lab_dir)
 
 
 def _order(problem: Problem) -> tuple[str, int, int]:

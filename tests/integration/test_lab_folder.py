@@ -128,6 +128,29 @@ def test_plan_finds_the_lab_type_through_the_bench_file(site):
     assert unknown.exit_code == 2 and "PA4L" in unknown.output
 
 
+def test_a_labs_own_procedure_names_its_own_type_and_limit_set(site):
+    # a procedure the lab wrote for its type: board_type and limits both PA4L, found only in the
+    # folder the bench file names (validate, plan and run alike; shipped files do not know them)
+    root, bench = site
+    text = (PROCEDURES / "noise.yaml").read_text()
+    text = text.replace("board_type: PA8", "board_type: PA4L").replace("limits: PA8", "limits: PA4L")
+    text = text.replace("include: parts/", f"include: {PROCEDURES / 'parts'}/")
+    assert "board_type: PA4L" in text and "limits: PA4L" in text
+    own = root / "benches" / "noise-pa4l.yaml"
+    own.write_text(text)
+    attach_commands()
+    runner = CliRunner()
+    valid = runner.invoke(cli, ["validate", str(own), "--bench", str(bench)], env={LAB_ENV: ""})
+    assert valid.exit_code == 0, valid.output
+    bare = runner.invoke(cli, ["validate", str(own)], env={LAB_ENV: ""})
+    assert bare.exit_code == 2 and "'lab: DIR' in the bench file" in bare.output
+    args = ["run", str(own), "--bench", str(bench), "--board", SERIAL, "--yes",
+            "--db", f"sqlite:///{root / 'own.db'}"]  # fmt: skip
+    result = runner.invoke(cli, args, env={LAB_ENV: ""})
+    assert result.exit_code == 1, result.output  # channel 2's 0.5 mV fails the lab's 0.45 mV
+    assert _noise_limits(root / "own.db")[2] == (0.45, "fail")
+
+
 def test_a_lab_folder_that_is_not_there_is_located(tmp_path):
     bench = tmp_path / "bench.yaml"
     bench.write_text("bench: b\nlab: nowhere\ninstruments:\n  pulser: {address: 'TCPIP0::127.0.0.1::5025::SOCKET'}\n")
