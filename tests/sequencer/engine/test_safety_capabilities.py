@@ -41,7 +41,18 @@ def run(state, bias, **opts):
     return out, [e for e in events if isinstance(e, SafetyEvent)]
 
 
-def test_a_supply_without_a_slew_command_is_ramped_in_small_steps(tmp_path):
+def test_a_supply_without_a_slew_command_is_ramped_in_small_steps(tmp_path, monkeypatch):
+    # The software ramp plans its set points on the driver's clock, which here ticks 10 ms per
+    # look: the steps depend on the number of polls, never on how busy the machine is (with the
+    # real clock, one stall of a second between two polls made the whole ramp one step).
+    import types
+
+    import drivers.roles.bias as bias_module
+
+    ticks = itertools.count()
+    monkeypatch.setattr(
+        bias_module, "time", types.SimpleNamespace(monotonic=lambda: 1000.0 + next(ticks) * 0.01)
+    )
     path = dialect_file(
         tmp_path,
         (SLEW_SET, '    set_ramp_rate: {absent: "no slew command"}'),
