@@ -10,7 +10,9 @@ instruments:   # roles: pulser, scope, threshold, counter, bias, switch, coincid
 Per instrument also ``read_termination``, ``write_termination`` (a string, or ``LF``/``CR``/``CRLF``),
 ``timeout_ms``, ``chunk_size``, ``visa_library`` (default ``@py``), ``busy_poll_us`` (how long a
 wait for a reply polls before it sleeps, default 200; 0 turns it off) and, for the bias supply,
-``max_current_uA``.  Unknown keys are located errors with a "did you mean" hint.  A dialect given as a
+``max_current_uA``; ``timing: {round_trip_ms, transfer_MBps, relay_settle_ms, rearm_us}`` is the
+instrument's pace in the bench timing model (:mod:`drivers.timing`; ``plan --bench`` estimates with
+it; each key optional, defaults there).  Unknown keys are located errors with a "did you mean" hint.  A dialect given as a
 path is resolved against the bench file's folder and checked at load.
 
 ``visa_library`` names a pyvisa backend (``@py``, ``@ivi``, ``@sim``).  A path to a VISA library is
@@ -39,6 +41,7 @@ from drivers.capabilities import role_problems
 from drivers.dialect import GENERIC, Dialect, parse_dialect, shipped_dialect_path
 from drivers.errors import ConfigError, Location, Problem
 from drivers.scpi.session import Identity
+from drivers.timing import InstrumentTiming, read_timing
 from drivers.transport import (
     DEFAULT_BUSY_POLL_US,
     DEFAULT_CHUNK_SIZE,
@@ -66,6 +69,7 @@ _KEYS = (
     "write_termination",
     "chunk_size",
     "busy_poll_us",
+    "timing",
     *_BIAS_ONLY,
 )
 
@@ -92,6 +96,8 @@ class InstrumentSpec:
     #: How a hardware interlock is wired to the supply's inhibit input (bias only; required when
     #: the dialect cannot read the interlock, and then acknowledged for each run).
     hardware_interlock: str = ""
+    #: The instrument's pace in the bench timing model (``timing:``; defaults when absent).
+    timing: InstrumentTiming = field(default_factory=InstrumentTiming)
     #: The dialect's text as read once when the bench was loaded (or as stored with a run): the
     #: text the instrument is driven by and the text the run keeps are the same bytes.
     dialect_text: str = field(default="", repr=False)
@@ -319,6 +325,7 @@ def _instrument(
     values["timeout_ms"] = check.integer("timeout_ms", DEFAULT_TIMEOUT_MS, 1, 3_600_000)
     values["chunk_size"] = check.integer("chunk_size", DEFAULT_CHUNK_SIZE, 1024, 1 << 30)
     values["busy_poll_us"] = check.integer("busy_poll_us", DEFAULT_BUSY_POLL_US, 0, 100_000)
+    values["timing"] = _timing(role, entry, problems, source)
     values["read_termination"] = check.termination("read_termination")
     values["write_termination"] = check.termination("write_termination")
     values["dialect"], dialect, values["dialect_text"] = _dialect(
@@ -416,6 +423,18 @@ def _dialect(
     except ConfigError as exc:
         problems.extend(exc.problems)
     return label, dialect, text
+
+
+def _timing(role: str, entry: Mapping, problems: list[Problem], source: str) -> InstrumentTiming:
+    """The instrument's ``timing:`` mapping (:func:`drivers.timing.read_timing`), its problems located."""
+    if "timing" not in entry:
+        return InstrumentTiming()
+    timing, found = read_timing(entry["timing"])
+    raw = entry["timing"]
+    for key, message in found:
+        where = _where(raw, key, source) if key is not None else _where(entry, "timing", source)
+        problems.append(Problem(where, f"{role}: {message}"))
+    return timing
 
 
 class _Checker:

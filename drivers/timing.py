@@ -28,6 +28,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from typing import Any
 
 DEFAULT_ROUND_TRIP_S = 1e-3
 DEFAULT_TRANSFER_BPS = 10e6
@@ -89,3 +90,22 @@ def transfer_s(nbytes: int, timing: InstrumentTiming) -> float:
 def ramp_s(from_volts: float, to_volts: float, slew_V_per_s: float) -> float:
     """Seconds a supply takes to slew between two set points."""
     return abs(to_volts - from_volts) / slew_V_per_s if slew_V_per_s > 0 else 0.0
+
+
+def read_timing(raw: Any) -> tuple[InstrumentTiming, list[tuple[str | None, str]]]:
+    """An instrument's ``timing:`` mapping (the :data:`KEYS`, each a number from 0 in the key's
+    unit) as SI values, and its problems as ``(key or None, message)`` for the caller to locate."""
+    if not isinstance(raw, Mapping):
+        return InstrumentTiming(), [(None, "timing must be a mapping of " + ", ".join(KEYS))]
+    problems: list[tuple[str | None, str]] = []
+    values: dict[str, float] = {}
+    for key, value in raw.items():
+        if key not in KEYS:
+            problems.append((key, f"unknown timing key {key!r} (known: {', '.join(KEYS)})"))
+            continue
+        if isinstance(value, bool) or not isinstance(value, int | float) or not 0 <= value < 1e6:
+            problems.append((key, f"timing.{key} must be a number from 0"))
+            continue
+        attr, factor = KEYS[key]
+        values[attr] = float(value) * factor
+    return InstrumentTiming(**values), problems

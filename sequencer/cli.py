@@ -125,8 +125,9 @@ def plan(
     """Show the expanded step list with paths, counts and an estimated duration.
 
     The estimate follows the bench timing model the simulator runs by (drivers/timing.py: 1 ms a
-    message, acquisitions of averages / trigger rate, gates, relay settling, ramps); --sim takes a
-    board file's own timing, --timing-from the durations of a run already recorded on your bench.
+    message, acquisitions of averages / trigger rate, gates, relay settling, ramps); --bench takes
+    each instrument's timing: from the bench file, --sim a board file's, --timing-from the
+    durations of a run already recorded on your bench.
     """
     from sequencer.compose import lab_for, plan_for
     from sequencer.procedure import format_plan, load_procedure
@@ -137,14 +138,16 @@ def plan(
     planned = plan_for(
         load_procedure(procedure, lab_dir=lab.folder), serial, board_type=board_type, lab=lab
     )
-    if sim_board:
-        from sequencer.compose import sim_timing
+    bench_spec = _bench_to_check(bench_path)
+    if sim_board or bench_spec is not None:
+        from sequencer.compose import bench_timing, sim_timing
         from sequencer.procedure.estimate import EstimateSettings, estimate_plan
 
-        planned = estimate_plan(planned, EstimateSettings(timing=sim_timing(sim_board)))
+        timing = sim_timing(sim_board) if sim_board else bench_timing(bench_spec)
+        planned = estimate_plan(planned, EstimateSettings(timing=timing))
     from sequencer.procedure import unjudged_warnings
 
-    problems = _bench_problems(planned, _bench_to_check(bench_path))
+    problems = _bench_problems(planned, bench_spec)
     if problems:
         fail(EXIT_INPUT, "\n".join(str(p) for p in dict.fromkeys(problems)))
     for line in unjudged_warnings(planned):

@@ -219,6 +219,13 @@ def describe_bench_time(pace: Any) -> str:
             f" = {parts or 'nothing'}")  # fmt: skip
 
 
+def bench_timing(spec: BenchSpec) -> Any:
+    """The bench timing model of a bench file: each instrument's ``timing:`` under its role."""
+    from drivers.timing import BenchTiming
+
+    return BenchTiming(roles={role: inst.timing for role, inst in spec.instruments.items()})
+
+
 def sim_timing(sim_board: str) -> Any:
     """The ``timing:`` section of a simulated board file (the defaults for a sensor file)."""
     from drivers.sim import load_sim_file

@@ -79,3 +79,29 @@ def test_realtime_needs_a_simulated_bench(tmp_path):
         cli, ["run", str(QUICK), "--bench", str(tmp_path / "b.yaml"), "--realtime"]
     )
     assert result.exit_code == 2 and "--realtime paces a simulated bench" in result.output
+
+
+def test_plan_takes_each_instruments_timing_from_the_bench_file(tmp_path):
+    bench = tmp_path / "bench.yaml"
+    bench.write_text(
+        "bench: b\ninstruments:\n"
+        '  pulser: {address: "TCPIP0::127.0.0.1::5025::SOCKET"}\n'
+        '  scope: {address: "TCPIP0::127.0.0.1::5026::SOCKET"}\n'
+        '  switch: {address: "TCPIP0::127.0.0.1::5027::SOCKET", timing: {relay_settle_ms: 500}}\n'
+    )
+    runner = CliRunner()
+    plain = runner.invoke(cli, ["plan", str(QUICK)], catch_exceptions=False)
+    slowed = runner.invoke(cli, ["plan", str(QUICK), "--bench", str(bench)], catch_exceptions=False)
+    assert slowed.exit_code == 0, slowed.output
+
+    def seconds(text: str) -> float:
+        return _duration(
+            re.search(r"estimated duration (.+)$", text.strip().splitlines()[-1]).group(1)
+        )
+
+    # the same 24 relay moves as with the board file's timing
+    assert seconds(slowed.stdout) - seconds(plain.stdout) == pytest.approx(24 * 0.498, abs=1.0)
+    bench.write_text(bench.read_text().replace("relay_settle_ms: 500", "relay_settle: 500"))
+    bad = runner.invoke(cli, ["plan", str(QUICK), "--bench", str(bench)])
+    assert bad.exit_code == 2
+    assert f"{bench}:5:" in bad.output and "unknown timing key 'relay_settle'" in bad.output
