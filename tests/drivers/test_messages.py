@@ -258,3 +258,37 @@ def test_a_raw_switch_command_makes_the_routes_unknown():
     switch.open_all()
     switch.route(1, "x1", 1)
     link.assert_done()
+
+
+def test_a_counter_starts_counts_and_checks_in_one_message():
+    from drivers.errors import InstrumentError as Refused
+    from drivers.roles import Counter
+
+    joined = f"INITiate:IMMediate;:FETCh:TOTalize?;:{ERRQ}"
+    link = ScriptedTransport().expect(
+        (f"SENSe:GATE:TIME 0.05;:{ERRQ}", JOINED_OK),
+        (f"ROUTe:TERMinals:CHANnel 3;:{ERRQ}", JOINED_OK),
+        (joined, b'+412;0,"No error"\n'),
+        (joined, b'+7;-213,"Init ignored; busy"\n'),  # a ';' inside the quoted message
+        (ERRQ, OK),
+        (f"ROUTe:TERMinals:CHANnel 3;:{ERRQ}", JOINED_OK),  # forgotten after the error
+        (joined, b'+9;0,"No error"\n'),
+    )
+    counter = _role(Counter, link)
+    counter.set_gate(0.05)
+    assert counter.count(3) == 412
+    with pytest.raises(Refused) as caught:
+        counter.count(3)
+    assert caught.value.code == -213 and caught.value.command == joined
+    assert counter.count(3) == 9
+    link.assert_done()
+
+
+def test_a_reply_with_one_response_where_two_were_asked_is_garbled():
+    from drivers.errors import ProtocolError
+    from drivers.scpi.joined import split_last_unit
+
+    assert split_last_unit('12;0,"No error"') == ("12", '0,"No error"')
+    assert split_last_unit('1;2;-100,"a;b"') == ("1;2", '-100,"a;b"')
+    with pytest.raises(ProtocolError, match="one response"):
+        split_last_unit('0,"No error"')
