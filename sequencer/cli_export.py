@@ -77,6 +77,10 @@ def export(db: str | None, whats: tuple[str, ...], run_id: int | None, board: st
         with open_listing(db) as listing:
             rows = listing.export_rows(run_id=run_id, board=board, procedure=procedure, batch=batch,
                                        since=_utc(since), until=_utc(until))
+            if not rows:  # a name no run carries is a typo, not an empty export
+                from sequencer.cli_names import refuse_unknown_names
+
+                refuse_unknown_names(listing, batch=batch, board=board)
         _emit(format_rows(rows, fmt, EXPORT_COLUMNS), out_file)  # type: ignore[arg-type]
         return
     from sequencer.results.tables import Selection, read_table
@@ -84,6 +88,11 @@ def export(db: str | None, whats: tuple[str, ...], run_id: int | None, board: st
     sel = Selection(run_id=run_id, board=board, procedure=procedure, batch=batch,
                     since=_utc(since), until=_utc(until))
     with open_existing_store(db) as store:
+        from sequencer.cli_names import refuse_unknown_names
+        from sequencer.store.listing import StoreListing
+
+        if batch is not None or board is not None:
+            refuse_unknown_names(StoreListing(store), batch=batch, board=board)
         if fmt in BINARY:
             from sequencer.results.formats import write_parquet, write_root
 

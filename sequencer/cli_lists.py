@@ -36,11 +36,14 @@ def _utc(moment: Any) -> Any:
 def runs(db: str | None, fmt: str, board: str | None, procedure: str | None, batch: str | None,
          operator: str | None, status: str | None, verdict: str | None, since: Any, until: Any) -> None:
     """Past runs: id, procedure, board, status, start, end, verdict, operator, batch."""
+    from sequencer.cli_names import refuse_unknown_names
     from sequencer.store.rows import RUN_COLUMNS, format_rows, run_rows
 
     with open_listing(db, mark_stale=True) as listing:
         lines = listing.run_lines(newest_first=False, board=board, procedure=procedure, batch=batch,
                                   operator=operator, status=status, since=_utc(since), until=_utc(until))  # fmt: skip
+        if not lines:  # a name no run carries is a typo, not an empty answer
+            refuse_unknown_names(listing, batch=batch, board=board)
         counts = listing.run_counts([r.id for r in lines])
     verdicts = {r.id: counts[r.id].verdict(r.status) for r in lines}
     if verdict is not None:

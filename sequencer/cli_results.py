@@ -99,6 +99,10 @@ def trend(db: str | None, board: str, quantity: str, channel: int | None, output
 
     kwargs = dict(reference_runs=reference_runs, band=tuple(band) if band else None, procedure=procedure)
     with compose.open_existing_store(db, env()) as store:
+        from sequencer.cli_names import refuse_unknown_names
+        from sequencer.store.listing import StoreListing
+
+        refuse_unknown_names(StoreListing(store), board=board)  # a typo is not a flat trend
         try:
             keys = [] if channel is not None else series_keys(store, board, quantity, output=output, procedure=procedure)
             if len(keys) > 1:

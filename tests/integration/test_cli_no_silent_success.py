@@ -46,3 +46,21 @@ def test_certify_refuses_a_run_that_did_not_complete(tmp_path: Path) -> None:
     code, _, err = _invoke("certify", "--db", url, "--run", "1", "--out", str(tmp_path / "certs"), "--partial")
     assert code == 0, err
     assert len(list((tmp_path / "certs").glob("*.pdf"))) == 2
+
+
+def test_runs_export_and_trend_refuse_a_name_no_run_carries(tmp_path: Path) -> None:
+    url = _db(tmp_path, RunSpec(batch="NR-B07", full=False), RunSpec(batch="NR-B08", board="NR-PA8-0002", full=False))
+    for args in (("runs", "--batch", "NOPE"), ("export", "--batch", "NOPE"),
+                 ("export", "--batch", "NOPE", "--what", "runs", "--format", "json")):
+        code, out, err = _invoke(*args, "--db", url)
+        assert code == 2 and out == "", (args, out)
+        assert "--batch: no batch 'NOPE' in the database" in err and "known batches: NR-B07, NR-B08" in err
+    code, out, err = _invoke("runs", "--db", url, "--board", "nr-pa8-0002")
+    assert code == 2 and "did you mean 'NR-PA8-0002'?" in err
+    code, out, err = _invoke("trend", "--db", url, "--board", "NR-PA8-0003", "--quantity", "gain")
+    assert code == 2 and "--board: no board 'NR-PA8-0003'" in err and "NR-PA8-0002" in err
+    # a known name that the other filters exclude is an empty answer, not a mistake
+    code, out, err = _invoke("runs", "--db", url, "--batch", "NR-B07", "--status", "aborted")
+    assert code == 0 and "NR-B07" not in out and err == ""
+    code, out, _ = _invoke("export", "--db", url, "--batch", "NR-B08", "--format", "json")
+    assert code == 0 and "NR-PA8-0002" in out
