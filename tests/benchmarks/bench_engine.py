@@ -126,7 +126,9 @@ class Recorder:
 
 def _run_exchanges(log: list[tuple[str, str, Any]]) -> list[tuple[str, str, Any]]:
     """The run's exchanges: from its first command on (opening the bench is not part of it)."""
-    start = next(i for i, entry in enumerate(log) if entry[2] == "SENSe:SWEep:SRATe 1e+09")
+    # the sample rate may go out joined with the other time-base settings in one message
+    first = "SENSe:SWEep:SRATe 1e+09"
+    start = next(i for i, entry in enumerate(log) if first in str(entry[2] or ""))
     return log[start:]
 
 
