@@ -11,16 +11,75 @@ of microseconds (a simulator, an instrument on a quiet LAN) is then picked up wi
 to sleep: waking a sleeping thread costs more than the reply itself on a virtual machine (measured
 with tests/benchmarks/bench_engine.py, see the README).  The poll releases the interpreter lock at
 every system call, so an instrument simulated in the same process still gets to answer.
+
+On a loaded machine the poll takes the CPU the instrument's own process needs (measured:
+``engine_overhead`` 1.33 with the poll against 0.85 without it at a load average of 14-20 on 2 CPUs;
+on a quiet machine the poll wins, 1.19-1.21 without it).  :class:`BusyPoll` therefore decides per
+link, by trial, whether waits poll.
 """
 
 from __future__ import annotations
 
 import select
 import socket
+import statistics
 import time
 
 RECV_SIZE = 65536
 _DONTWAIT = getattr(socket, "MSG_DONTWAIT", 0)
+
+
+class BusyPoll:
+    """How long a wait polls before it sleeps: ``poll_s`` while polling pays, 0 while it does not.
+
+    Decided by trial, per link: a window of waits with the poll and a window without it, the
+    median wait of each compared (the whole wait, poll and sleep); the faster way is kept for
+    ``KEEP_WINDOWS`` windows, then tried again (a machine's load changes).  Not thread-safe by
+    design: one per link, used under the session's lock."""
+
+    #: waits per trial window
+    WINDOW = 16
+    #: windows the decision holds before the next trial
+    KEEP_WINDOWS = 16
+
+    __slots__ = ("_left", "_on", "_phase", "_waits", "poll_s")
+
+    def __init__(self, poll_s: float) -> None:
+        self.poll_s = max(0.0, poll_s)
+        self._phase = "trial-on"  # then "trial-off", then "keep"
+        self._on = True  # the poll as used now
+        self._waits: dict[bool, list[float]] = {True: [], False: []}
+        self._left = 0  # waits left in "keep"
+
+    @property
+    def polling(self) -> bool:
+        """Whether waits poll now."""
+        return self._on and self.poll_s > 0.0
+
+    def budget(self) -> float:
+        """Seconds the next wait may poll."""
+        return self.poll_s if self.polling else 0.0
+
+    def record(self, waited_s: float) -> None:
+        """One wait's length (seconds, poll and sleep together)."""
+        if self.poll_s <= 0.0:
+            return
+        if self._phase == "keep":
+            self._left -= 1
+            if self._left <= 0:
+                self._phase, self._on = "trial-on", True
+                self._waits = {True: [], False: []}
+            return
+        window = self._waits[self._on]
+        window.append(waited_s)
+        if len(window) < self.WINDOW:
+            return
+        if self._phase == "trial-on":
+            self._phase, self._on = "trial-off", False
+            return
+        on, off = (statistics.median(self._waits[k]) for k in (True, False))
+        self._phase, self._on = "keep", on <= off
+        self._left = self.KEEP_WINDOWS * self.WINDOW
 
 
 def peer_closed(sock: socket.socket | None) -> bool:
@@ -60,7 +119,7 @@ def receive_message(
     term: bytes,
     timeout_s: float,
     max_bytes: int,
-    poll_s: float = 0.0,
+    poll_s: float | BusyPoll = 0.0,
 ) -> bytes:
     """Bytes up to and including the terminator byte ``term``; the rest stays in ``pending``."""
     deadline = time.monotonic() + timeout_s
@@ -82,7 +141,11 @@ def receive_message(
 
 
 def receive_exactly(
-    pending: bytearray, sock: socket.socket, n: int, timeout_s: float, poll_s: float = 0.0
+    pending: bytearray,
+    sock: socket.socket,
+    n: int,
+    timeout_s: float,
+    poll_s: float | BusyPoll = 0.0,
 ) -> bytearray:
     """Exactly ``n`` bytes, received straight into one buffer (no termination character)."""
     buffer = bytearray(n)
@@ -116,11 +179,17 @@ def discard_input(sock: socket.socket, timeout_s: float, quiet_s: float = 0.1) -
 
 
 def _wait_readable(
-    sock: socket.socket, deadline: float, timeout_s: float, what: str, poll_s: float
+    sock: socket.socket, deadline: float, timeout_s: float, what: str, poll: float | BusyPoll
 ) -> None:
-    """Return once ``sock`` is readable: busy-poll for ``poll_s``, then sleep until ``deadline``."""
-    if poll_s > 0.0:
-        poll_until = min(deadline, time.monotonic() + poll_s)
+    """Return once ``sock`` is readable: busy-poll (``poll`` seconds, or what a :class:`BusyPoll`
+    allows now), then sleep until ``deadline``."""
+    if isinstance(poll, BusyPoll):
+        start = time.monotonic()
+        _wait_readable(sock, deadline, timeout_s, what, poll.budget())
+        poll.record(time.monotonic() - start)
+        return
+    if poll > 0.0:
+        poll_until = min(deadline, time.monotonic() + poll)
         while True:
             if select.select([sock], [], [], 0)[0]:
                 return

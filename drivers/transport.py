@@ -84,7 +84,7 @@ class VisaTransport:
         self._session_of: tuple[Any, Any] = (None, None)  # (resource, its pyvisa-py session)
         self._read_term = settings.read_termination.encode("ascii")
         self._write_term = settings.write_termination
-        self._poll_s = max(0, settings.busy_poll_us) / 1e6
+        self._poll = sockio.BusyPoll(max(0, settings.busy_poll_us) / 1e6)  # self-disabling
         #: Why the last close of the resource failed ('' when it did not); the link is dropped
         #: either way (a backend may raise anything while closing a dead session).
         self.close_error = ""
@@ -184,7 +184,7 @@ class VisaTransport:
                 return self._visa(resource).read_raw()  # type: ignore[no-any-return]
             pending, sock = link
             return sockio.receive_message(
-                pending, sock, term[-1:], self._timeout_ms / 1000.0, MAX_MESSAGE_BYTES, self._poll_s
+                pending, sock, term[-1:], self._timeout_ms / 1000.0, MAX_MESSAGE_BYTES, self._poll
             )
         except _MAPPED_ERRORS as exc:
             raise self._translate(exc, self._last_command) from exc
@@ -202,7 +202,7 @@ class VisaTransport:
             if link is not None:
                 pending, sock = link
                 timeout_s = self._timeout_ms / 1000.0
-                return sockio.receive_exactly(pending, sock, n, timeout_s, self._poll_s)  # type: ignore[return-value]
+                return sockio.receive_exactly(pending, sock, n, timeout_s, self._poll)  # type: ignore[return-value]
             data = self._pyvisa_read_bytes(self._visa(resource), n)
         except _MAPPED_ERRORS as exc:
             raise self._translate(exc, self._last_command) from exc

@@ -108,3 +108,43 @@ def test_peer_closing_during_the_poll_is_end_of_file(pair):
     peer.close()
     with pytest.raises(ConnectionResetError, match="closed the link"):
         sockio.receive_message(bytearray(), ours, b"\n", 2.0, 1 << 20, poll_s=0.05)
+
+
+def _feed(poll: sockio.BusyPoll, on_s: float, off_s: float, waits: int) -> list[bool]:
+    """Record ``waits`` waits lasting ``on_s`` when polled, ``off_s`` when not; polled or not, each."""
+    seen = []
+    for _ in range(waits):
+        seen.append(poll.polling)
+        poll.record(on_s if poll.polling else off_s)
+    return seen
+
+
+def test_a_busy_poll_that_makes_waits_longer_is_turned_off_until_the_next_trial():
+    # the rule is the project's own (sockio.BusyPoll): one window polled, one not, the faster kept
+    poll = sockio.BusyPoll(200e-6)
+    w, keep = poll.WINDOW, poll.KEEP_WINDOWS * poll.WINDOW
+    seen = _feed(poll, on_s=300e-6, off_s=100e-6, waits=2 * w + keep + 1)
+    assert seen == [True] * w + [False] * w + [False] * keep + [True]  # kept off, then tried again
+    assert poll.budget() == 200e-6
+
+
+def test_a_busy_poll_that_makes_waits_shorter_stays_on():
+    poll = sockio.BusyPoll(200e-6)
+    w, keep = poll.WINDOW, poll.KEEP_WINDOWS * poll.WINDOW
+    seen = _feed(poll, on_s=50e-6, off_s=400e-6, waits=2 * w + keep)
+    assert seen == [True] * w + [False] * w + [True] * keep
+
+
+def test_no_poll_configured_is_never_tried():
+    poll = sockio.BusyPoll(0.0)
+    assert _feed(poll, on_s=1e-6, off_s=1.0, waits=3 * poll.WINDOW) == [False] * 3 * poll.WINDOW
+
+
+def test_waits_through_a_busy_poll_are_timed_for_its_trial(pair):
+    ours, theirs = pair
+    poll = sockio.BusyPoll(0.05)
+    pending = bytearray()
+    for _ in range(3):
+        theirs.sendall(b"1\n")
+        assert sockio.receive_message(pending, ours, b"\n", 2.0, 1 << 20, poll) == b"1\n"
+    assert len(poll._waits[True]) == 3 and all(w >= 0 for w in poll._waits[True])
