@@ -71,5 +71,6 @@ QUANTITY_UNITS: Mapping[str, str] = MappingProxyType(
         "zero_crossing_walk_ns": "ns",
         "disc_walk_ns": "ns",
         "disc_jitter_ns": "ns",
+        "coincidence_width_ns": "ns",
     }
 )

@@ -60,10 +60,22 @@ def _instruments(board: BoardSpec, clock: Callable[[], float]) -> dict[str, SimI
     pulser = Pulser(**common("pulser"))
     switch = Switch(channels=n, **common("switch"))
     threshold = ThresholdDac(channels=n, **common("threshold"))
+    coincidence = CoincidenceUnit(
+        spec=board.coincidence,
+        pulser=pulser,
+        seed=board.seed,
+        time_scale=board.time_scale,
+        **common("coincidence"),
+    )
     return {
         "pulser": pulser,
         "scope": SCOPES[board.command_sets.get("scope", "generic")](
-            board=board, pulser=pulser, switch=switch, threshold=threshold, **common("scope")
+            board=board,
+            pulser=pulser,
+            switch=switch,
+            threshold=threshold,
+            coincidence=coincidence,
+            **common("scope"),
         ),
         "threshold": threshold,
         "counter": Counter(
@@ -71,13 +83,7 @@ def _instruments(board: BoardSpec, clock: Callable[[], float]) -> dict[str, SimI
         ),
         "bias": SUPPLIES[board.command_sets.get("bias", "generic")](board=board, **common("bias")),
         "switch": switch,
-        "coincidence": CoincidenceUnit(
-            spec=board.coincidence,
-            pulser=pulser,
-            seed=board.seed,
-            time_scale=board.time_scale,
-            **common("coincidence"),
-        ),
+        "coincidence": coincidence,
     }
 
 

@@ -50,6 +50,9 @@ Section ``coincidence`` (every key optional):
 ``resolving_extra_ns``        0.0        true resolving time minus the set window (ns; a fault)
 ``efficiency1``               1.0        probability input 1 fires on a pulse above threshold
 ``efficiency2``               1.0        the same for input 2
+``output_width_ns``           10.0       width of the unit's logic output ``coinc`` (ns, the
+                                         discriminator section's logic level, edges and noise)
+``output_delay_ns``           8.0        later input to the output's leading edge (ns)
 ============================  =========  ===========================================================
 
 Section ``converter`` (every key optional; :mod:`drivers.sim.converter`; used while the pulser runs
@@ -99,7 +102,7 @@ from drivers.timing import DEFAULT_TIMING, BenchTiming
 #: The instrument roles, in port order (port_base + index).
 ROLES = ("pulser", "scope", "threshold", "counter", "bias", "switch", "coincidence")
 #: Board outputs and the digit k of the switch route numbers.
-OUTPUT_INDEX = MappingProxyType({"x1": 1, "x5": 2, "shaped": 3, "disc": 4})
+OUTPUT_INDEX = MappingProxyType({"x1": 1, "x5": 2, "shaped": 3, "disc": 4, "coinc": 5})
 FAULT_KINDS = (
     "interlock_open",
     "no_reply",
@@ -164,6 +167,8 @@ class CoincidenceSpec:
     resolving_extra_ns: float = 0.0
     efficiency1: float = 1.0
     efficiency2: float = 1.0
+    output_width_ns: float = 10.0
+    output_delay_ns: float = 8.0
 
 
 @dataclass(frozen=True, kw_only=True)

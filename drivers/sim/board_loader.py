@@ -175,6 +175,8 @@ _COINCIDENCE = {
     "resolving_extra_ns": _number(-1000.0, 1e4),
     "efficiency1": _number(0.0, 1.0),
     "efficiency2": _number(0.0, 1.0),
+    "output_width_ns": _number(0.0, 1e5, above=True),
+    "output_delay_ns": _number(0.0, 1e4),
 }
 
 

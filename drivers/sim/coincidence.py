@@ -216,6 +216,16 @@ class CoincidenceUnit(SimInstrument):
         jitter = rng.normal(0.0, spec.jitter_ns * 1e-9, times.size) if spec.jitter_ns > 0 else 0.0
         return times + self.delays_s[index] + jitter
 
+    def output_edge_ns(self, height_mV: float, rng: np.random.Generator) -> float | None:
+        """For one pulser pulse seen by both inputs at t = 0 (height ``height_mV``): when the unit's
+        logic output ``coinc`` starts (ns: the later input + ``output_delay_ns``), or None when the
+        pair is not a coincidence (an input did not fire, or |t₂ − t₁| ≥ τ)."""
+        one = Train(times_s=np.zeros(1), heights_mV=np.array([float(height_mV)]))
+        t1, t2 = self._fired(one, 0, rng), self._fired(one, 1, rng) + self.spec.skew_ns * 1e-9
+        if t1.size == 0 or t2.size == 0 or abs(t2[0] - t1[0]) >= self.resolving_time_s:
+            return None
+        return max(t1[0], t2[0]) * 1e9 + self.spec.output_delay_ns
+
     def _fetch(self, call: Call) -> str:
         if self.result is None:
             self.push_error(-230, STANDARD_ERRORS[-230])

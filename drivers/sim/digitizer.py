@@ -28,7 +28,9 @@ While the pulser runs in sine mode every input digitises the generator's sine th
 model of the board's ``converter`` section (:mod:`drivers.sim.converter`: DNL pattern, missing codes,
 noise, aperture jitter, bandwidth); such records are single acquisitions (an average count above 1
 is refused with -221).  So are captures of a discriminator's logic output ``disc``
-(:mod:`drivers.sim.disc_output`), drawn once per capture from the noisy pulse the discriminator saw.
+(:mod:`drivers.sim.disc_output`), drawn once per capture from the noisy pulse the discriminator saw,
+and of the coincidence unit's output ``coinc`` (the pulser's pulse at both its inputs, through the
+unit's delays, jitter and window: ``output_width_ns`` wide, ``output_delay_ns`` after the later input).
 """
 
 from __future__ import annotations
@@ -42,6 +44,7 @@ import numpy as np
 from drivers.scpi.blocks import format_block
 from drivers.sim.adc import CODES_16, digitize
 from drivers.sim.board import BoardSpec
+from drivers.sim.coincidence import CoincidenceUnit
 from drivers.sim.converter import convert, sine_volts, transitions
 from drivers.sim.disc_output import fire_time_ns, logic_mV
 from drivers.sim.instrument import Call, Command, SimInstrument, command
@@ -116,12 +119,14 @@ class Digitizer(SimInstrument):
         pulser: Pulser,
         switch: Switch,
         threshold: ThresholdDac | None = None,
+        coincidence: CoincidenceUnit | None = None,
         **kwargs: object,
     ) -> None:
         self.board = board
         self.pulser = pulser
         self.switch = switch
         self.threshold = threshold  # the discriminators' levels, for the logic output ``disc``
+        self.coincidence = coincidence  # the unit whose output ``coinc`` the scope may see
         self.settings = ScopeSettings()
         self.record: Record | None = None
         self.captures = 0
@@ -225,7 +230,8 @@ class Digitizer(SimInstrument):
         if self.pulser.sine_on and s.averages > 1:
             raise scpi_error(-221, "the converter model acquires single records of the sine")
         routed = (self.switch.source_of(i) for i in range(1, SCOPE_INPUTS + 1))
-        if s.averages > 1 and any(src is not None and src[0] == "disc" for src in routed):
+        logic = any(src is not None and src[0] in ("disc", "coinc") for src in routed)
+        if s.averages > 1 and logic:
             raise scpi_error(-221, "a discriminator's logic output is captured single-shot")
         self.captures += 1
         started = self.pace.mark()
@@ -262,10 +268,15 @@ class Digitizer(SimInstrument):
                 rows.append(-1)
                 continue
             output, channel = source
-            if output == "disc":  # the discriminator's logic output, drawn once per capture
-                volts[i - 1] = 1e-3 * self._logic(channel, injected, t_ns, rng)
+            if output in ("disc", "coinc"):  # logic outputs, drawn once per capture
+                volts[i - 1] = 1e-3 * (
+                    self._logic(channel, injected, t_ns, rng)
+                    if output == "disc"
+                    else self._coincidence_logic(t_ns, rng)
+                )
                 sigma[i - 1] = 1e-3 * board.discriminator.logic_noise_mV
-                rows.append(streams.setdefault((channel, "disc"), len(streams)))
+                key = channel if output == "disc" else -channel  # own noise per logic output
+                rows.append(streams.setdefault((key, "disc"), len(streams)))
                 continue
             volts[i - 1] = 1e-3 * output_signal_mV(
                 board,
@@ -352,6 +363,16 @@ class Digitizer(SimInstrument):
         level = self.threshold.level_mV(channel)
         fired = fire_time_ns(self.board, channel, self.pulser.amplitude_mV, level, rng)
         return logic_mV(self.board, fired, t_ns)
+
+    def _coincidence_logic(self, t_ns: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+        """The coincidence unit's output for the pulser pulse both its inputs see (pulser on)."""
+        unit = self.coincidence
+        if unit is None or not self.pulser.settings.output_on:
+            return logic_mV(self.board, None, t_ns)
+        edge = unit.output_edge_ns(self.pulser.amplitude_mV, rng)
+        spec = self.board.coincidence
+        start = None if edge is None else self.board.pulse_delay_ns + edge
+        return logic_mV(self.board, start, t_ns, delay_ns=0.0, width_ns=spec.output_width_ns)
 
     def _noise(
         self,

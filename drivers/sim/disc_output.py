@@ -83,12 +83,23 @@ def fire_time_ns(
     return _crossing(t, cfd, 0.0, k_arm) or armed
 
 
-def logic_mV(board: BoardSpec, fired_ns: float | None, t_ns: np.ndarray) -> np.ndarray:
-    """The noise-free logic output at times ``t_ns`` for a discriminator that fired at ``fired_ns``."""
+def logic_mV(
+    board: BoardSpec,
+    fired_ns: float | None,
+    t_ns: np.ndarray,
+    *,
+    delay_ns: float | None = None,
+    width_ns: float | None = None,
+) -> np.ndarray:
+    """The noise-free logic output at times ``t_ns`` for a discriminator that fired at ``fired_ns``
+    (``delay_ns``, ``width_ns``: another unit's, e.g. the coincidence output; default the
+    discriminator's).  Linear edges of ``edge_ns``: the 50 % points are exactly ``width`` apart."""
     spec = board.discriminator
     if fired_ns is None:
         return np.zeros_like(t_ns, dtype=float)
-    x = t_ns - (fired_ns + spec.propagation_ns)
+    delay = spec.propagation_ns if delay_ns is None else delay_ns
+    width = spec.width_ns if width_ns is None else width_ns
+    x = t_ns - (fired_ns + delay)
     rise = np.clip(x / spec.edge_ns, 0.0, 1.0)
-    fall = np.clip((spec.width_ns + spec.edge_ns - x) / spec.edge_ns, 0.0, 1.0)
+    fall = np.clip((width + spec.edge_ns - x) / spec.edge_ns, 0.0, 1.0)
     return spec.logic_mV * np.minimum(rise, fall)

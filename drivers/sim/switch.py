@@ -1,7 +1,7 @@
 """Simulated channel switch: the injection multiplexer and the output-to-scope-input routes.
 
 Numbering (drivers/dialects/generic.yaml): injection of board channel c is ``100 + c``; board channel
-c, output k (x1 = 1, x5 = 2, shaped = 3, disc = 4) to scope input i is ``1000·i + 100·k + c``.  Both are
+c, output k (x1 = 1, x5 = 2, shaped = 3, disc = 4, coinc = 5) to scope input i is ``1000·i + 100·k + c``.  Both are
 1-of-N multiplexers: closing a route to input i opens the previous route on i; closing an injection
 opens the previous injection.  A number outside that scheme is -222 Data out of range.
 """

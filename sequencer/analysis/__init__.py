@@ -37,6 +37,7 @@ from .landau import (
 )
 from .levels import state_levels
 from .lines import LineFit, fit_line, inl_percent, inl_with_uncertainty
+from .logic import pulse_duration
 from .noise import ELEMENTARY_CHARGE_C, TraceAverage, average_traces, enc_electrons
 from .photoelectrons import (
     MeanPhotoelectrons,
@@ -127,6 +128,7 @@ __all__ = [
     "noise_rate",
     "peaking_time",
     "pretrigger_baseline",
+    "pulse_duration",
     "pulse_height",
     "pulse_onset",
     "pulse_reasons",

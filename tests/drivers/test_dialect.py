@@ -24,8 +24,9 @@ def test_generic_dialect_covers_every_operation_the_drivers_use():
     assert absent == [("bias", "set_keep_alive")]  # not in SCPI-1999's standard commands
     assert d.format == 2 and d.waveform is not None
     assert d.waveform.data.big_endian and d.waveform.data.kind == "int16"
-    # disc: a discriminator's logic output (issue 18)
-    assert d.table("switch", "outputs") == {"x1": 1, "x5": 2, "shaped": 3, "disc": 4}
+    # disc: a discriminator's logic output, coinc: the coincidence unit's output (issue 18)
+    expected = {"x1": 1, "x5": 2, "shaped": 3, "disc": 4, "coinc": 5}
+    assert d.table("switch", "outputs") == expected
 
 
 def test_generic_templates_give_scpi_1999_long_forms():

@@ -63,7 +63,9 @@ def healthy(tmp_path_factory):
 @pytest.fixture(scope="module")
 def wide(tmp_path_factory):
     folder = tmp_path_factory.mktemp("coinc-wide")
-    board = module_file(folder, "NR-IDC4-9002", resolving_extra_ns=12.0, efficiency1=0.9)
+    board = module_file(
+        folder, "NR-IDC4-9002", resolving_extra_ns=12.0, efficiency1=0.9, output_width_ns=14.0
+    )
     return run_module(board, folder / "r.db")
 
 
@@ -75,6 +77,8 @@ def test_healthy_unit_measures_its_window_and_passes(healthy):
     ratio = values["accidental_ratio"]
     assert ratio.value == pytest.approx(1.0, abs=4 * ratio.uncertainty)
     assert failed == 0 and all(m.verdict in ("pass", "info") for m in values.values())
+    # the unit's logic output: 10 ns wide between its 50 % crossings (the board's default)
+    assert values["coincidence_width_ns"].value == pytest.approx(10.0, abs=0.05)
     assert number.endswith("NR-IDC4-9001-CH00")  # one certificate for the module as a whole
 
 
@@ -87,4 +91,7 @@ def test_wide_resolving_time_and_lost_pairs_fail(wide):
     # the accidentals follow the true tau, which the delay curve measured: still about 1
     ratio = values["accidental_ratio"]
     assert ratio.value == pytest.approx(1.0, abs=4 * ratio.uncertainty)
-    assert failed == 2
+    # the output pulse: 14 ns against 9..11 ns (IEEE 181 duration at 50 %, linear edges)
+    width = values["coincidence_width_ns"]
+    assert width.value == pytest.approx(14.0, abs=0.05) and width.verdict == "fail"
+    assert failed == 3

@@ -1,5 +1,5 @@
 """Handlers of the ``coincidence.*`` kinds and of the coincidence analyses (``analyse.delay_curve``,
-``analyse.accidentals``).
+``analyse.accidentals``, ``analyse.output_width``: the unit's logic output captured by the scope).
 
 A ``coincidence.count`` reading is ``{"coincidences": C, "singles": [S1, S2], "gate_s": G}``.
 """
@@ -144,7 +144,40 @@ def analyse_accidentals(ctx: RunContext, step: PlannedStep) -> StepResult:
     )
 
 
+def analyse_output_width(ctx: RunContext, step: PlannedStep) -> StepResult:
+    """Width of the unit's logic output between its 50 % crossings (``an.pulse_duration``), mean
+    over the single captures that hold a whole output pulse (an input below 100 % efficiency
+    misses some: counted in the results); none at all refuses the step."""
+    name = step.args["traces"]
+    items = ctx.select_traces(name, step.labels)
+    if not items:
+        raise CoincidenceInputError(f"no traces called {name!r} in the scope {dict(step.labels)}")
+    trace = items[0].trace
+    rows = np.vstack([i.trace.mV for i in items])
+    nb = an.pretrigger_baseline(int(step.args.get("n_baseline") or 0), trace.t0_ns, trace.dt_ns)
+    widths = np.atleast_1d(
+        an.pulse_duration(rows, trace.dt_ns, float(step.args["level"]), n_baseline=nb)
+    )
+    found = widths[np.isfinite(widths)]
+    if found.size == 0:
+        raise CoincidenceInputError(
+            f"no whole output pulse in any of {widths.size} captures (no coincidence, or the "
+            "record too short)"
+        )
+    err = float(found.std(ddof=1) / math.sqrt(found.size)) if found.size > 1 else None
+    return StepResult(
+        results={"widths_ns": found.tolist(), "captures_without_output": int(widths.size - found.size)},
+        measurements=[
+            measure(
+                ctx, step, "coincidence_width_ns", float(found.mean()), uncertainty=err,
+                channel=None, output=None,
+            )
+        ],
+    )
+
+
 HANDLERS = {
+    "analyse.output_width": analyse_output_width,
     "coincidence.window": set_window,
     "coincidence.delay": set_delay,
     "coincidence.threshold": set_threshold,
