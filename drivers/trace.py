@@ -2,18 +2,26 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
 
 @dataclass(frozen=True)
 class Trace:
-    """Samples in volts on a uniform time base.
+    """Samples in volts on a uniform time base: the one trace record of benchwright.
 
     ``volts`` is 1-D (one acquisition or an average of ``averages`` acquisitions).  The time of sample
     ``i`` is ``t0_s + i * dt_s``; ``t0_s`` is relative to the trigger (negative = pre-trigger).
     ``source`` names the scope input (``"CHAN1"``); ``averages`` how many acquisitions were averaged.
+
+    The same record crosses every layer (STYLE.md rule 16): a driver returns it with the capture
+    fields; the engine gives it the ``name`` the procedure chose and its step's ``labels`` (channel,
+    output, sweep values); the store keeps it with its step ``path`` and hands it back the same way,
+    so resume replays exactly what was captured without a converter.  A leaf module (numpy only):
+    the store and the reports may import it.
     """
 
     volts: np.ndarray
@@ -22,6 +30,9 @@ class Trace:
     source: str = ""
     averages: int = 1
     meta: dict[str, str] = field(default_factory=dict)
+    name: str = ""  # the procedure's name for it (``into: [pulses]``)
+    labels: Mapping[str, Any] = field(default_factory=dict)  # channel, output, sweep values
+    path: str = ""  # the step that captured it, once recorded
 
     @property
     def mV(self) -> np.ndarray:

@@ -14,14 +14,12 @@ from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any
 
-import numpy as np
-
 from drivers.trace import Trace
 from sequencer.errors import RunAborted
 from sequencer.events import Event, Measurement
 from sequencer.procedure.plan_model import Plan, PlannedStep
 
-from .records import NamedTrace, RunOptions
+from .records import RunOptions
 
 
 @dataclass(frozen=True)
@@ -87,7 +85,7 @@ class RunContext:
         self.step: PlannedStep | None = None
         self.guard: Any = None  # safety.BiasGuard, set by the runner
         self.in_cleanup = False  # the cleanup block runs to its end whatever was requested
-        self.traces: list[NamedTrace] = []
+        self.traces: list[Trace] = []
         self.readings: list[Reading] = []
         self.measurements: list[Measurement] = []
         # scope input -> (low, high) rails in mV, from the last scope.input step: a sample there is
@@ -117,7 +115,7 @@ class RunContext:
                 self.stop.wait(min(left, slice_s))
 
     # -- items --------------------------------------------------------------------------------
-    def add_trace(self, item: NamedTrace) -> None:
+    def add_trace(self, item: Trace) -> None:
         self.traces.append(item)
 
     def add_reading(self, item: Reading) -> None:
@@ -126,7 +124,7 @@ class RunContext:
     def add_measurement(self, m: Measurement) -> None:
         self.measurements.append(m)
 
-    def select_traces(self, name: str, scope: Mapping[str, Any]) -> list[NamedTrace]:
+    def select_traces(self, name: str, scope: Mapping[str, Any]) -> list[Trace]:
         """Traces called ``name`` in ``scope``, in capture order."""
         return [t for t in self.traces if t.name == name and in_scope(t.labels, scope)]
 
@@ -147,14 +145,3 @@ class RunContext:
             if m.quantity == quantity and m.channel == channel and m.output == output:
                 return m
         return None
-
-
-def trace_from_store(stored: Any) -> Trace:
-    """A driver ``Trace`` rebuilt from what the store kept."""
-    return Trace(
-        volts=np.asarray(stored.samples, dtype=float),
-        dt_s=float(stored.dt_s),
-        t0_s=float(stored.t0_s),
-        source=str(stored.source or ""),
-        averages=int(stored.averages or 1),
-    )

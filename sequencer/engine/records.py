@@ -76,15 +76,6 @@ class RunOutcome:
 
 
 @dataclass(frozen=True, kw_only=True)
-class NamedTrace:
-    """A captured trace with the name the procedure gave it and the labels of its step."""
-
-    name: str
-    trace: Trace
-    labels: Mapping[str, Any] = field(default_factory=dict)
-
-
-@dataclass(frozen=True, kw_only=True)
 class StepResult:
     """What a step handler produced.
 
@@ -93,7 +84,7 @@ class StepResult:
     """
 
     results: Mapping[str, Any] = field(default_factory=dict)
-    traces: Sequence[NamedTrace] = ()
+    traces: Sequence[Trace] = ()  # each with its name and its step's labels
     measurements: Sequence[Measurement] = ()
     settings: Mapping[str, Any] = field(default_factory=dict)
 
@@ -101,22 +92,10 @@ class StepResult:
 EMPTY_RESULT = StepResult()
 
 
-class StoredTraceLike(Protocol):
-    """A trace as the store keeps it."""
-
-    name: str
-    samples: Any
-    dt_s: float
-    t0_s: float
-    source: str
-    averages: int
-    labels: Mapping[str, Any]
-
-
 class CompletedStepLike(Protocol):
     """What the store kept of a completed step (``Store.completed_steps``)."""
 
     kind: str
     results: Mapping[str, Any]
-    traces: Sequence[StoredTraceLike]
+    traces: Sequence[Trace]  # the same record the step produced, as the store returns it
     measurements: Sequence[Measurement]

@@ -3,14 +3,14 @@
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from typing import Any
 
 from sequencer.events import Measurement
 from sequencer.procedure.kinds import KINDS
 from sequencer.procedure.plan_model import PlannedStep
 
-from .context import trace_from_store
-from .records import CompletedStepLike, NamedTrace, StepResult
+from .records import CompletedStepLike, StepResult
 
 
 def yields_data(kind_name: str) -> bool:
@@ -49,10 +49,7 @@ def measurement_from_store(m: Any) -> Measurement:
 
 def result_from_store(step: PlannedStep, done: CompletedStepLike) -> StepResult:
     """The result a completed step gave, rebuilt from the store."""
-    traces = [
-        NamedTrace(name=t.name, trace=trace_from_store(t), labels=dict(t.labels or step.labels))
-        for t in done.traces
-    ]
+    traces = [replace(t, labels=dict(t.labels or step.labels)) for t in done.traces]
     return StepResult(
         results=dict(done.results or {}),
         traces=traces,

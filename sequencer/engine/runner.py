@@ -241,8 +241,8 @@ class Runner:
         for item in result.traces:
             ctx.add_trace(item)
             if publish:
-                t = item.trace
-                self.emit(
+                t = item
+                self.emit(  # the event carries the record's fields, plus where it was captured
                     TraceCaptured(
                         run_id=self.run_id,
                         path=step.path,

@@ -162,7 +162,7 @@ def trace_table(store: Store, sel: Selection = Selection()) -> Table:
     for run in _runs(store, sel):
         for t in store.traces(run.id):
             labels = dict(t.labels or {})
-            samples = np.asarray(t.samples, dtype=np.float64)
+            samples = np.asarray(t.volts, dtype=np.float64)
             rows.append({
                 "run_id": run.id, "board": run.board, "step": t.path, "name": t.name,
                 "channel": _label_int(labels, "channel"),

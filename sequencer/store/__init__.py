@@ -35,7 +35,6 @@ _WHERE = {
     "SeriesPoint": "sequencer.store.records",
     "StepRecord": "sequencer.store.records",
     "StoredMeasurement": "sequencer.store.records",
-    "StoredTrace": "sequencer.store.records",
     "Store": "sequencer.store.store",
 }
 
@@ -51,7 +50,6 @@ __all__ = [
     "StepRecord",
     "Store",
     "StoredMeasurement",
-    "StoredTrace",
     "default_url",
     "export_rows",
     "format_rows",
@@ -68,7 +66,6 @@ if TYPE_CHECKING:
         SeriesPoint,
         StepRecord,
         StoredMeasurement,
-        StoredTrace,
     )
     from sequencer.store.rows import EXPORT_COLUMNS, RUN_COLUMNS, format_rows, run_rows
     from sequencer.store.sqlite_files import DEFAULT_URL, default_url

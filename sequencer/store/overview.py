@@ -8,18 +8,17 @@ A run's verdict follows from the counts: ``fail`` as soon as one value is outsid
 
 from __future__ import annotations
 
-import dataclasses
 from collections.abc import Sequence
 from datetime import UTC, datetime
 from typing import Any
 
 from sqlalchemy import Connection, case, func, select
 
+from drivers.trace import Trace
 from sequencer.store.lines import LINE_COLUMNS, BatchLine, RunCounts, RunLine
-from sequencer.store.models import Measurement, Run, Step, Trace
-from sequencer.store.queries import run_filters
-from sequencer.store.records import StoredTrace
-from sequencer.store.tracecodec import decode_samples
+from sequencer.store.models import Measurement, Run, Step
+from sequencer.store.models import Trace as TraceRow
+from sequencer.store.queries import run_filters, stored_trace
 
 __all__ = ["BatchLine", "RunCounts", "RunLine", "batch_lines", "count_runs", "last_position",
            "latest_trace", "run_counts", "run_lines"]
@@ -147,14 +146,14 @@ def _aware(value: Any) -> Any:
     return value.astimezone(UTC) if isinstance(value, datetime) else value
 
 
-def latest_trace(conn: Connection, run_id: int) -> StoredTrace | None:
+def latest_trace(conn: Connection, run_id: int) -> Trace | None:
     """The run's most recently stored trace (the live view shows it), or None."""
     row = (
         conn.execute(
-            select(Step.path, *Trace.__table__.c)
-            .join(Step, Step.id == Trace.step_id)
-            .where(Trace.run_id == run_id)
-            .order_by(Trace.id.desc())
+            select(Step.path, *TraceRow.__table__.c)
+            .join(Step, Step.id == TraceRow.step_id)
+            .where(TraceRow.run_id == run_id)
+            .order_by(TraceRow.id.desc())
             .limit(1)
         )
         .mappings()
@@ -162,8 +161,7 @@ def latest_trace(conn: Connection, run_id: int) -> StoredTrace | None:
     )
     if row is None:
         return None
-    names = {f.name for f in dataclasses.fields(StoredTrace)} - {"samples"}
-    return StoredTrace(samples=decode_samples(row["data"]), **{n: row[n] for n in names})
+    return stored_trace(row)
 
 
 def last_position(conn: Connection, run_id: int) -> int | None:

@@ -15,6 +15,7 @@ from typing import Any, TypeVar
 
 from sqlalchemy import ColumnElement, Connection, Select, select
 
+from drivers.trace import Trace
 from sequencer.errors import StoreError
 from sequencer.events import InstrumentInfo
 from sequencer.inputs import TEXT_KINDS, RunInput, manifest_digest
@@ -27,9 +28,9 @@ from sequencer.store.models import (
     SafetyRecord,
     Step,
     StepLabel,
-    Trace,
 )
 from sequencer.store.models import RunInput as RunInputRow
+from sequencer.store.models import Trace as TraceRow
 from sequencer.store.records import (
     Annotation as AnnotationRecord,
 )
@@ -39,7 +40,6 @@ from sequencer.store.records import (
     SeriesPoint,
     StepRecord,
     StoredMeasurement,
-    StoredTrace,
 )
 from sequencer.store.records import (
     SafetyRecord as SafetyRecordOut,
@@ -175,23 +175,34 @@ def steps(conn: Connection, run_id: int) -> list[StepRecord]:
 
 def _trace_query(run_id: int) -> Select[Any]:
     return (
-        select(Step.path, *Trace.__table__.c)
-        .join(Step, Step.id == Trace.step_id)
-        .where(Trace.run_id == run_id)
-        .order_by(Trace.id)
+        select(Step.path, *TraceRow.__table__.c)
+        .join(Step, Step.id == TraceRow.step_id)
+        .where(TraceRow.run_id == run_id)
+        .order_by(TraceRow.id)
     )
 
 
-def _stored_trace(t: Any) -> StoredTrace:
-    return _record(StoredTrace, t, samples=decode_samples(t["data"]))
+def stored_trace(t: Mapping[str, Any]) -> Trace:
+    """The trace record of a ``traces`` row joined with its step's path (samples in the dtype
+    they were captured in)."""
+    return Trace(
+        volts=decode_samples(t["data"]),
+        dt_s=t["dt_s"],
+        t0_s=t["t0_s"],
+        source=t["source"],
+        averages=t["averages"],
+        name=t["name"],
+        labels=t["labels"],
+        path=t["path"],
+    )
 
 
-def traces(conn: Connection, run_id: int, path_prefix: str | None = None) -> list[StoredTrace]:
+def traces(conn: Connection, run_id: int, path_prefix: str | None = None) -> list[Trace]:
     """The traces of a run's completed steps, optionally only under ``path_prefix``."""
     query = _trace_query(run_id)
     if path_prefix:
         query = query.where(Step.path.startswith(path_prefix, autoescape=True))
-    return [_stored_trace(t) for t in conn.execute(query).mappings()]
+    return [stored_trace(t) for t in conn.execute(query).mappings()]
 
 
 def _measurement_query(clauses: Iterable[ColumnElement[bool]]) -> Select[Any]:
@@ -216,9 +227,9 @@ def measurements(conn: Connection, **filters: Any) -> list[StoredMeasurement]:
 
 def completed_steps(conn: Connection, run_id: int) -> dict[str, CompletedStep]:
     """Path -> completed step with its settings, results, traces and measurements."""
-    by_step_traces: dict[str, list[StoredTrace]] = defaultdict(list)
+    by_step_traces: dict[str, list[Trace]] = defaultdict(list)
     for t in conn.execute(_trace_query(run_id)).mappings():
-        by_step_traces[t["path"]].append(_stored_trace(t))
+        by_step_traces[t["path"]].append(stored_trace(t))
     by_step_ms: dict[str, list[StoredMeasurement]] = defaultdict(list)
     for m in conn.execute(_measurement_query([Measurement.run_id == run_id])).mappings():
         by_step_ms[m["path"]].append(_stored_measurement(m))

@@ -7,8 +7,7 @@ from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any
 
-import numpy as np
-
+from drivers.trace import Trace
 from sequencer.events import InstrumentInfo, RunInfo
 
 
@@ -61,20 +60,6 @@ class RunRecord:
 
 
 @dataclass(frozen=True, kw_only=True)
-class StoredTrace:
-    """A captured waveform as stored; time of sample i = ``t0_s + i * dt_s``; dtype as captured."""
-
-    path: str
-    name: str
-    samples: np.ndarray
-    dt_s: float
-    t0_s: float
-    source: str = ""
-    averages: int = 1
-    labels: Mapping[str, Any] = field(default_factory=dict)
-
-
-@dataclass(frozen=True, kw_only=True)
 class StoredMeasurement:
     """One judged value with the run and step it belongs to."""
 
@@ -104,7 +89,7 @@ class CompletedStep:
     finished_at: datetime
     settings: Mapping[str, Any]
     results: Mapping[str, Any]
-    traces: tuple[StoredTrace, ...]
+    traces: tuple[Trace, ...]  # the one trace record (drivers.trace), with name, labels and path
     measurements: tuple[StoredMeasurement, ...]
     labels: Mapping[str, Any] = field(default_factory=dict)   # channel, output, sweep values (typed)
 

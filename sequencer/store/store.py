@@ -17,6 +17,7 @@ from typing import Any, Self
 from sqlalchemy import Connection, Engine
 from sqlalchemy.exc import SQLAlchemyError
 
+from drivers.trace import Trace
 from sequencer.errors import StoreError
 from sequencer.events import Event, RunInfo
 from sequencer.inputs import RunInput
@@ -40,7 +41,6 @@ from sequencer.store.records import (
     SeriesPoint,
     StepRecord,
     StoredMeasurement,
-    StoredTrace,
 )
 
 
@@ -247,7 +247,7 @@ class Store:
         with self._read(f"cannot read steps of run {run_id}") as conn:
             return queries.completed_steps(conn, run_id)
 
-    def traces(self, run_id: int, path_prefix: str | None = None) -> list[StoredTrace]:
+    def traces(self, run_id: int, path_prefix: str | None = None) -> list[Trace]:
         with self._read(f"cannot read traces of run {run_id}") as conn:
             return queries.traces(conn, run_id, path_prefix)
 

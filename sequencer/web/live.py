@@ -112,7 +112,7 @@ def verdict_grid(measurements: list[Any], channels: int) -> dict[str, Any]:
 def _trace_json(trace: Any) -> dict[str, Any] | None:
     if trace is None:
         return None
-    y = np.asarray(trace.samples, dtype=np.float64) * 1e3
+    y = np.asarray(trace.volts, dtype=np.float64) * 1e3
     step = max(1, math.ceil(y.size / TRACE_POINTS))
     idx = np.arange(0, y.size, step)
     t_ns = (trace.t0_s + idx * trace.dt_s) * 1e9

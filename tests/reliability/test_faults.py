@@ -110,7 +110,7 @@ def check_abort(url: str, run_id: int, stderr: str, kind: str) -> None:
     assert before <= set(done), sorted(before - set(done))  # every step completed before it
     assert m["path"] not in done and not set(MAIN_PATHS[failed + 1 :]) & set(done)
     for path in before & CAPTURE_PATHS:  # with its trace
-        assert [t.samples.size for t in done[path].traces] == [500], path
+        assert [t.volts.size for t in done[path].traces] == [500], path
 
 
 def run_with_fault(tmp_path: Path, fault: dict) -> None:

@@ -84,7 +84,7 @@ def check_prefix(url: str, run_id: int, why: str) -> None:
     main = [p for p in MAIN_PATHS if p in done]
     assert main == MAIN_PATHS[: len(main)], why
     for path in CAPTURE_PATHS & set(done):
-        assert [t.samples.size for t in done[path].traces] == [500], (why, path)
+        assert [t.volts.size for t in done[path].traces] == [500], (why, path)
 
 
 def run_duration(tmp_path: Path) -> float:

@@ -14,6 +14,7 @@ SEQUENCER = Path(__file__).resolve().parents[2] / "sequencer"
 LEAVES = {
     "drivers.errors", "drivers.yamlsafe", "sequencer.errors", "sequencer.events", "sequencer.quantities",
     "sequencer.inputs", "drivers.timing",
+    "drivers.trace",  # the one trace record (numpy only) that engine, store and reports share
 }
 
 # package -> project modules (prefixes) it may import, besides itself and the leaves.

@@ -14,13 +14,14 @@ from typing import Any
 
 import numpy as np
 
+from drivers.trace import Trace
 from sequencer import analysis as an
 from sequencer.procedure.kinds import KINDS
 from sequencer.procedure.plan_model import PlannedStep
 
 from ..context import Reading, RunContext
 from ..judge import channel_of, measure, output_of
-from ..records import NamedTrace, StepResult
+from ..records import StepResult
 from .refusing import AnalysisRefused, clip_reasons, merge, polarity, refuse_any
 from .series import pulse_series, s_curve_series, transfer_series
 
@@ -29,7 +30,7 @@ class AnalysisInputError(ValueError):
     """The scope holds no usable inputs for an analysis step."""
 
 
-def _traces(ctx: RunContext, step: PlannedStep, name: str) -> list[NamedTrace]:
+def _traces(ctx: RunContext, step: PlannedStep, name: str) -> list[Trace]:
     items = ctx.select_traces(name, step.labels)
     if not items:
         raise AnalysisInputError(
@@ -45,12 +46,12 @@ def _readings(ctx: RunContext, step: PlannedStep, name: str) -> list[Reading]:
     return items
 
 
-def _stack_mV(items: Sequence[NamedTrace]) -> tuple[np.ndarray, float]:
+def _stack_mV(items: Sequence[Trace]) -> tuple[np.ndarray, float]:
     """One row per trace in mV, and the common sample interval in ns."""
-    dt = items[0].trace.dt_ns
-    if any(abs(t.trace.dt_ns - dt) > 1e-9 * dt for t in items):
+    dt = items[0].dt_ns
+    if any(abs(t.dt_ns - dt) > 1e-9 * dt for t in items):
         raise AnalysisInputError("traces of one analysis have different sample intervals")
-    return np.vstack([t.trace.mV for t in items]), dt
+    return np.vstack([t.mV for t in items]), dt
 
 
 def _sweep(items: Sequence[Any], var: str) -> np.ndarray:
@@ -100,7 +101,7 @@ def _gain(ctx: RunContext, step: PlannedStep, output: str | None) -> float:
 
 def _n_baseline(step: PlannedStep, items: list[Any]) -> int:
     """The step's ``n_baseline``, or (0, the default) every pre-trigger sample of its traces."""
-    trace = items[0].trace
+    trace = items[0]
     try:
         return an.pretrigger_baseline(
             int(step.args.get("n_baseline") or 0), trace.t0_ns, trace.dt_ns
@@ -123,7 +124,7 @@ def _has_pulse(rows: np.ndarray, n_baseline: int) -> bool:
 
 
 def _heights(
-    ctx: RunContext, step: PlannedStep, items: list[NamedTrace]
+    ctx: RunContext, step: PlannedStep, items: list[Trace]
 ) -> tuple[np.ndarray, np.ndarray]:
     """Signed pulse heights of every capture and their standard uncertainties: each a capture of
     ``averages`` acquisitions, its noise the baseline RMS over √(n_baseline) samples of white
@@ -192,7 +193,7 @@ def analyse_noise(ctx: RunContext, step: PlannedStep) -> StepResult:
     n = int(step.args.get("n_baseline") or 0) or rows.shape[1]
     refuse_any(clip_reasons(items, rows[:, :n]))
     rms = np.atleast_1d(an.baseline_rms(rows, n))
-    single = rms * np.sqrt([t.trace.averages for t in items])
+    single = rms * np.sqrt([t.averages for t in items])
     combined = float(np.sqrt(np.mean(single**2)))
     gain = _gain(ctx, step, output_of(step))
     unc = combined / np.sqrt(2.0 * n * len(items)) / abs(gain)  # RMS of n Gaussian samples
@@ -315,7 +316,7 @@ def analyse_discriminator(ctx: RunContext, step: PlannedStep) -> StepResult:
 
 
 def _pulse_rows(
-    ctx: RunContext, step: PlannedStep, items: list[NamedTrace]
+    ctx: RunContext, step: PlannedStep, items: list[Trace]
 ) -> tuple[np.ndarray, float, int, int]:
     """Rows, sample interval, baseline samples and polarity of the captures of a timing step;
     refused (AnalysisRefused) when a capture is clipped or shows no pulse of that polarity.  The
@@ -340,7 +341,7 @@ def analyse_peaking(ctx: RunContext, step: PlannedStep) -> StepResult:
     value, err = _mean_err(an.peaking_time(rows, dt, n_baseline=n, polarity=sign))
     results: dict[str, Any] = {
         "traces": len(items),
-        "onset_after_trigger_ns": float(np.mean(onsets)) + items[0].trace.t0_ns,
+        "onset_after_trigger_ns": float(np.mean(onsets)) + items[0].t0_ns,
         "series": [_pulse(step, "peaking_time_ns", value, rows, dt, items)],
     }
     try:
@@ -375,8 +376,8 @@ def analyse_leakage(ctx: RunContext, step: PlannedStep) -> StepResult:
 
 
 def _pulse(step: PlannedStep, quantity: str, value: float, rows: np.ndarray, dt: float,
-           items: list[NamedTrace]) -> dict[str, Any]:
-    t0 = items[0].trace.t0_ns
+           items: list[Trace]) -> dict[str, Any]:
+    t0 = items[0].t0_ns
     return pulse_series(channel_of(step), output_of(step), quantity, value, rows, dt, t0,
                         _n_baseline(step, items))
 

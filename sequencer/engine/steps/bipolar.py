@@ -32,15 +32,15 @@ def analyse_zero_crossing(ctx: RunContext, step: PlannedStep) -> StepResult:
     items = ctx.select_traces(a["traces"], step.labels)
     if not items:
         raise ZeroCrossingInputError(f"no traces called {a['traces']!r} in the scope {dict(step.labels)}")
-    trace = items[0].trace
-    if any(abs(i.trace.dt_ns - trace.dt_ns) > 1e-9 * trace.dt_ns for i in items):
+    trace = items[0]
+    if any(abs(i.dt_ns - trace.dt_ns) > 1e-9 * trace.dt_ns for i in items):
         raise ZeroCrossingInputError("the traces of one zero-crossing step have different time bases")
     try:
         amps = np.array([float(i.labels[a["x"]]) for i in items])
         n = an.pretrigger_baseline(int(a.get("n_baseline") or 0), trace.t0_ns, trace.dt_ns)
     except KeyError:
         raise ZeroCrossingInputError(f"sweep variable {a['x']!r} is not among the labels") from None
-    rows, dt = np.vstack([i.trace.mV for i in items]), trace.dt_ns
+    rows, dt = np.vstack([i.mV for i in items]), trace.dt_ns
     sign = polarity(ctx, output_of(step))
     refuse_any(merge(clip_reasons(items, rows), an.pulse_reasons(rows, n, polarity=sign)))
     onsets = np.atleast_1d(an.pulse_onset(rows, dt, n, polarity=sign))

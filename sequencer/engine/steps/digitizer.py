@@ -13,12 +13,13 @@ import math
 
 import numpy as np
 
+from drivers.trace import Trace
 from sequencer import analysis as an
 from sequencer.procedure.plan_model import PlannedStep
 
 from ..context import RunContext
 from ..judge import measure
-from ..records import NamedTrace, StepResult
+from ..records import StepResult
 
 #: Largest distance (in LSB) of a sample from the converter's code grid that still counts as a code.
 GRID_TOLERANCE_LSB = 0.01
@@ -28,7 +29,7 @@ class DigitizerInputError(ValueError):
     """The run holds no usable digitizer records for an analysis step."""
 
 
-def _records(ctx: RunContext, step: PlannedStep) -> list[NamedTrace]:
+def _records(ctx: RunContext, step: PlannedStep) -> list[Trace]:
     name = step.args["traces"]
     items = ctx.select_traces(name, step.labels)
     if not items:
@@ -41,7 +42,7 @@ def analyse_sine(ctx: RunContext, step: PlannedStep) -> StepResult:
     items = _records(ctx, step)
     start = step.args.get("frequency")
     fits = [
-        an.fit_sine_4(item.trace.mV, 1.0 / item.trace.dt_s, None if start is None else float(start))
+        an.fit_sine_4(item.mV, 1.0 / item.dt_s, None if start is None else float(start))
         for item in items
     ]
     not_converged = sum(1 for f in fits if not f.converged)
@@ -90,7 +91,7 @@ def analyse_code_density(ctx: RunContext, step: PlannedStep) -> StepResult:
     codes = np.concatenate(
         [
             converter_codes(
-                i.trace.mV,
+                i.mV,
                 bits=bits,
                 range_mV=float(a["range"]),
                 offset_mV=float(a.get("offset") or 0.0),
@@ -124,8 +125,8 @@ def analyse_bandwidth(ctx: RunContext, step: PlannedStep) -> StepResult:
         if x not in item.labels:
             raise DigitizerInputError(f"sweep variable {x!r} is not among the labels")
         f = float(item.labels[x])
-        fs = 1.0 / item.trace.dt_s
-        fit = an.fit_sine_4(item.trace.mV, fs, an.aliased_frequency(f, fs))
+        fs = 1.0 / item.dt_s
+        fit = an.fit_sine_4(item.mV, fs, an.aliased_frequency(f, fs))
         if not fit.converged:
             raise DigitizerInputError(f"the sine fit did not converge at {f / 1e6:g} MHz")
         amplitudes.setdefault(f, []).append(fit.amplitude)

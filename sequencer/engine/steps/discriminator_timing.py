@@ -17,32 +17,33 @@ from typing import Any
 
 import numpy as np
 
+from drivers.trace import Trace
 from sequencer import analysis as an
 from sequencer.procedure.plan_model import PlannedStep
 
 from ..context import RunContext
 from ..judge import measure
-from ..records import NamedTrace, StepResult
+from ..records import StepResult
 
 
 class TimingInputError(ValueError):
     """The run holds no usable traces for a timing step."""
 
 
-def _traces(ctx: RunContext, step: PlannedStep) -> tuple[list[NamedTrace], np.ndarray, float]:
+def _traces(ctx: RunContext, step: PlannedStep) -> tuple[list[Trace], np.ndarray, float]:
     name = step.args["traces"]
     items = ctx.select_traces(name, step.labels)
     if not items:
         raise TimingInputError(f"no traces called {name!r} in the scope {dict(step.labels)}")
-    dt = items[0].trace.dt_ns
-    t0 = items[0].trace.t0_ns
-    if any(abs(i.trace.dt_ns - dt) > 1e-9 * dt or abs(i.trace.t0_ns - t0) > 1e-6 for i in items):
+    dt = items[0].dt_ns
+    t0 = items[0].t0_ns
+    if any(abs(i.dt_ns - dt) > 1e-9 * dt or abs(i.t0_ns - t0) > 1e-6 for i in items):
         raise TimingInputError("the traces of one timing step have different time bases")
-    return items, np.vstack([i.trace.mV for i in items]), dt
+    return items, np.vstack([i.mV for i in items]), dt
 
 
-def _baseline(step: PlannedStep, items: list[NamedTrace]) -> int:
-    trace = items[0].trace
+def _baseline(step: PlannedStep, items: list[Trace]) -> int:
+    trace = items[0]
     try:
         return an.pretrigger_baseline(
             int(step.args.get("n_baseline") or 0), trace.t0_ns, trace.dt_ns
@@ -59,7 +60,7 @@ def analyse_walk(ctx: RunContext, step: PlannedStep) -> StepResult:
         amps = np.array([float(i.labels[a["x"]]) for i in items])
     except KeyError:
         raise TimingInputError(f"sweep variable {a['x']!r} is not among the labels") from None
-    t0, nb = items[0].trace.t0_ns, _baseline(step, items)
+    t0, nb = items[0].t0_ns, _baseline(step, items)
     le = an.leading_edge_times(rows, dt, float(a["threshold"]), t0_ns=t0, n_baseline=nb)
     cf = an.constant_fraction_times(
         rows,
@@ -89,7 +90,7 @@ def analyse_jitter(ctx: RunContext, step: PlannedStep) -> StepResult:
     items, rows, dt = _traces(ctx, step)
     if len(items) < 2:
         raise TimingInputError("jitter needs at least two single captures")
-    t0, nb = items[0].trace.t0_ns, _baseline(step, items)
+    t0, nb = items[0].t0_ns, _baseline(step, items)
     threshold = float(step.args["threshold"])
     times = an.leading_edge_times(rows, dt, threshold, t0_ns=t0, n_baseline=nb)
     jitter = an.timing_jitter(times)
@@ -120,11 +121,11 @@ def analyse_jitter(ctx: RunContext, step: PlannedStep) -> StepResult:
     )
 
 
-def _output_times(ctx: RunContext, step: PlannedStep) -> tuple[list[NamedTrace], np.ndarray]:
+def _output_times(ctx: RunContext, step: PlannedStep) -> tuple[list[Trace], np.ndarray]:
     """Leading-edge times of the discriminator's logic pulses at ``level`` (half the logic swing)
     above their baseline; NaN where a capture holds no output pulse."""
     items, rows, dt = _traces(ctx, step)
-    t0, nb = items[0].trace.t0_ns, _baseline(step, items)
+    t0, nb = items[0].t0_ns, _baseline(step, items)
     level = float(step.args["level"])
     return items, an.leading_edge_times(rows, dt, level, t0_ns=t0, n_baseline=nb)
 

@@ -12,10 +12,10 @@ from collections.abc import Sequence
 
 import numpy as np
 
+from drivers.trace import Trace
 from sequencer.analysis import refusals
 
 from ..context import RunContext
-from ..records import NamedTrace
 from .scope import rails_of
 
 
@@ -28,11 +28,11 @@ def polarity(ctx: RunContext, output: str | None) -> int:
     return ctx.plan.board.sign(output)
 
 
-def clip_reasons(items: Sequence[NamedTrace], rows: np.ndarray) -> list[str]:
+def clip_reasons(items: Sequence[Trace], rows: np.ndarray) -> list[str]:
     """Per captured row: ``clipped: N % of samples at the rail`` or "" (rails unknown: "")."""
     out = []
     for item, row in zip(items, rows, strict=True):
-        rails = rails_of(item.trace)
+        rails = rails_of(item)
         out.append("" if rails is None else refusals.clipping_reasons(row[None, :], rails)[0])
     return out
 

@@ -9,7 +9,7 @@ from sequencer.procedure.plan_model import PlannedStep
 
 from ..context import RunContext
 from ..judge import channel_of, output_of
-from ..records import EMPTY_RESULT, NamedTrace, StepResult
+from ..records import EMPTY_RESULT, StepResult
 
 NOISE_SPAN_SIGMAS = 14.0
 """With ``follow_baseline`` the full scale is at least this many baseline RMS (±7 σ: a Gaussian
@@ -98,7 +98,7 @@ def capture(ctx: RunContext, step: PlannedStep) -> StepResult:
     labels = dict(step.labels)
     return StepResult(
         traces=[
-            NamedTrace(name=n, trace=with_rails(t, ctx.input_rails.get(i)), labels=labels)
+            replace(with_rails(t, ctx.input_rails.get(i)), name=n, labels=labels)
             for n, t, i in zip(names, traces, inputs, strict=True)
         ],
     )

@@ -15,29 +15,30 @@ from __future__ import annotations
 
 import numpy as np
 
+from drivers.trace import Trace
 from sequencer import analysis as an
 from sequencer.procedure.plan_model import PlannedStep
 
 from ..context import RunContext
 from ..judge import measure
-from ..records import NamedTrace, StepResult
+from ..records import StepResult
 
 
 class ShaperInputError(ValueError):
     """The run holds no usable shaped traces for a shaper-to-ADC step."""
 
 
-def _traces(ctx: RunContext, step: PlannedStep) -> tuple[list[NamedTrace], np.ndarray, float, int]:
+def _traces(ctx: RunContext, step: PlannedStep) -> tuple[list[Trace], np.ndarray, float, int]:
     name = step.args["traces"]
     items = ctx.select_traces(name, step.labels)
     if not items:
         raise ShaperInputError(f"no traces called {name!r} in the scope {dict(step.labels)}")
-    trace = items[0].trace
+    trace = items[0]
     try:
         nb = an.pretrigger_baseline(int(step.args.get("n_baseline") or 0), trace.t0_ns, trace.dt_ns)
     except ValueError as exc:
         raise ShaperInputError(f"traces {name!r}: {exc}") from None
-    return items, np.vstack([i.trace.mV for i in items]), trace.dt_ns, nb
+    return items, np.vstack([i.mV for i in items]), trace.dt_ns, nb
 
 
 def analyse_charge(ctx: RunContext, step: PlannedStep) -> StepResult:
@@ -71,7 +72,7 @@ def analyse_slow_adc(ctx: RunContext, step: PlannedStep) -> StepResult:
             f"period {period:g} ns is not a whole multiple (>= 2) of the {dt:g} ns sample interval"
         )
     order, tau, method = int(a["order"]), float(a["tau"]), str(a.get("method") or "shape")
-    t = items[0].trace.t0_ns + dt * np.arange(rows.shape[1])
+    t = items[0].t0_ns + dt * np.arange(rows.shape[1])
     errors = []
     for row in rows:
         y = row - row[:nb].mean()

@@ -3,14 +3,16 @@
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from datetime import UTC, datetime
 
 import numpy as np
 import pytest
 from scipy import stats
 
+from drivers.trace import Trace
 from sequencer.engine.context import Reading, RunContext, StopFlag
-from sequencer.engine.records import NamedTrace, RunOptions
+from sequencer.engine.records import RunOptions
 from sequencer.engine.steps import handler_table
 from sequencer.engine.steps.analysis import AnalysisInputError, failed_analysis
 from sequencer.events import Measurement
@@ -20,6 +22,11 @@ from sequencer.procedure.plan_model import Limit
 from .plans import plan, pulse_trace, step
 
 HANDLERS = handler_table()
+
+
+def named(*, name: str, trace, labels) -> Trace:
+    """A captured trace as the scope step gives it: with the procedure's name and its step's labels."""
+    return replace(trace, name=name, labels=labels)
 
 
 def make_ctx(limits=()) -> RunContext:
@@ -47,7 +54,7 @@ def test_transfer_selects_scope_and_matches_numpy_polyfit():
     for a, h in zip(amps, heights, strict=True):
         for ch in (3, 4):  # channel 4 must not be picked up by the channel-3 analysis
             ctx.add_trace(
-                NamedTrace(
+                named(
                     name="pulse",
                     trace=pulse_trace(h if ch == 3 else 2 * h),
                     labels={"channel": ch, "output": "x5", "amp": a},
@@ -83,7 +90,7 @@ def test_peaking_and_rise_time_of_cr_rc4():
     ctx = make_ctx()
     tau = 50.0
     ctx.add_trace(
-        NamedTrace(
+        named(
             name="sh",
             trace=pulse_trace(100.0, tau_ns=tau, dt_ns=0.5, points=3000, pretrigger_ns=100.0),
             labels={"channel": 1, "output": "x1"},
@@ -106,7 +113,7 @@ def test_noise_uses_gain_measured_earlier_and_corrects_averaging():
     ctx.add_measurement(Measurement(quantity="gain", value=5.0, unit="V/V", channel=2, output="x5"))
     for _ in range(4):
         t = pulse_trace(0.0, noise_mV=1.5, rng=rng, points=2000)
-        ctx.add_trace(NamedTrace(name="base", trace=t, labels={"channel": 2, "output": "x5"}))
+        ctx.add_trace(named(name="base", trace=t, labels={"channel": 2, "output": "x5"}))
     s = step(
         "n", "analyse.noise", labels={"channel": 2, "output": "x5"}, traces="base", n_baseline=0
     )
@@ -119,7 +126,7 @@ def test_noise_uses_gain_measured_earlier_and_corrects_averaging():
 def test_noise_without_gain_is_an_input_error():
     ctx = make_ctx()
     ctx.add_trace(
-        NamedTrace(
+        named(
             name="base", trace=pulse_trace(0.0, noise_mV=1.0), labels={"channel": 1, "output": "x1"}
         )
     )
@@ -151,7 +158,7 @@ def test_noise_is_not_referred_through_a_gain_indistinguishable_from_zero(
         )
     )
     ctx.add_trace(
-        NamedTrace(
+        named(
             name="base", trace=pulse_trace(0.0, noise_mV=1.0), labels={"channel": 1, "output": "x1"}
         )
     )
@@ -167,8 +174,8 @@ def test_noise_is_not_referred_through_a_gain_indistinguishable_from_zero(
 
 def test_crosstalk_victim_and_aggressor_channels():
     ctx = make_ctx()
-    ctx.add_trace(NamedTrace(name="agg", trace=pulse_trace(400.0), labels={"channel": 3}))
-    ctx.add_trace(NamedTrace(name="vic", trace=pulse_trace(4.0), labels={"channel": 3}))
+    ctx.add_trace(named(name="agg", trace=pulse_trace(400.0), labels={"channel": 3}))
+    ctx.add_trace(named(name="vic", trace=pulse_trace(4.0), labels={"channel": 3}))
     s = step(
         "x",
         "analyse.crosstalk",

@@ -86,7 +86,7 @@ def test_traces_round_trip_through_parquet_and_root(recorded, out: Path) -> None
     back = pq.read_table(out / "t.parquet").to_pylist()
     root = read_root(out / "t.root", "traces")
     for i, t in enumerate(stored):
-        want = np.asarray(t.samples, dtype=np.float64)
+        want = np.asarray(t.volts, dtype=np.float64)
         assert np.array_equal(np.asarray(back[i]["samples_V"]), want)
         assert np.array_equal(root["samples_V"][i], want)
         assert back[i]["step"] == root["step"][i] == t.path

@@ -52,8 +52,8 @@ def test_completed_step_keeps_settings_results_traces_and_measurements(store):
     )  # fmt: skip
     assert [m.value for m in step.measurements] == [m.value for m in sent_ms]
     for got, sent in zip(step.traces, sent_traces, strict=True):
-        assert got.samples.dtype == np.float64
-        np.testing.assert_array_equal(got.samples, sent.samples)  # bit-exact, not approximately
+        assert got.volts.dtype == np.float64
+        np.testing.assert_array_equal(got.volts, sent.samples)  # bit-exact, not approximately
         assert (got.dt_s, got.t0_s, got.source, got.averages) == (1e-9, -20e-9, "CHAN1", 16)
         assert dict(got.labels) == dict(sent.labels)
     assert [s.status for s in store.steps(run_id)] == ["completed"]
@@ -68,8 +68,8 @@ def test_trace_dtype_is_kept_as_captured(store, dtype):
     _record(store, [TraceCaptured(run_id, "cap", "raw", samples, 2e-9, 0.0)])
     _record(store, [StepFinished(run_id, "cap", "capture", "completed", T0, T0)])
     [trace] = store.traces(run_id)
-    assert trace.samples.dtype == dtype
-    np.testing.assert_array_equal(trace.samples, samples)
+    assert trace.volts.dtype == dtype
+    np.testing.assert_array_equal(trace.volts, samples)
 
 
 def test_traces_are_selected_by_path_prefix(store):
