@@ -152,8 +152,8 @@ def analyse_output_width(ctx: RunContext, step: PlannedStep) -> StepResult:
     items = ctx.select_traces(name, step.labels)
     if not items:
         raise CoincidenceInputError(f"no traces called {name!r} in the scope {dict(step.labels)}")
-    trace = items[0].trace
-    rows = np.vstack([i.trace.mV for i in items])
+    trace = items[0]
+    rows = np.vstack([i.mV for i in items])
     nb = an.pretrigger_baseline(int(step.args.get("n_baseline") or 0), trace.t0_ns, trace.dt_ns)
     widths = np.atleast_1d(
         an.pulse_duration(rows, trace.dt_ns, float(step.args["level"]), n_baseline=nb)
