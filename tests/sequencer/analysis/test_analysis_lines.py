@@ -2,12 +2,13 @@
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 import numpy as np
 import pytest
 
-from sequencer.analysis import fit_line, inl_percent
+from sequencer.analysis import fit_line, inl_percent, lines
 
 # A copy of the public NIST StRD "Norris" dataset (certified values in its header), kept with the tests.
 NORRIS = Path(__file__).resolve().parents[2] / "data" / "nist-strd-norris.csv"
@@ -124,3 +125,33 @@ def test_inl_rejects_unknown_method_and_flat_line() -> None:
         inl_percent(Q_FC, V_MV, method="endpoint")
     with pytest.raises(ValueError, match="flat"):
         inl_percent([0, 1, 2], [5, 5, 5])
+
+
+@pytest.mark.parametrize("noise_mV", [0.02, 0.3])
+def test_inl_uncertainty_covers_the_truth_under_noise(noise_mV):
+    # Truth: the INL of the noise-free curve S·tanh(A/S) over 8 points up to 160 mV (S = 1500 mV,
+    # as a healthy simulated channel), from numpy.polyfit's least-squares line.  Over repeated
+    # noisy realisations the stated k = 2 interval value ± 2u must hold the truth about as often as
+    # a 95 % interval should (>= 90 % of 300; binomial sd ~1.3 %); the first-order part alone does
+    # not when the noise bias of the largest residual matters (the larger noise here).
+    rng = np.random.default_rng(5)
+    amps = np.linspace(20.0, 160.0, 8)
+    clean = 1500.0 * np.tanh(amps / 1500.0)
+    slope, intercept = np.polyfit(amps, clean, 1)
+    truth = 100 * np.max(np.abs(clean - (slope * amps + intercept))) / (slope * np.ptp(amps))
+    covered = first_order_covered = 0
+    for _ in range(300):
+        got = lines.inl_with_uncertainty(amps, clean + rng.normal(0.0, noise_mV, 8), noise_mV)
+        floor = lines.inl_noise_floor(
+            np.eye(8) - np.column_stack([amps, np.ones(8)]) @ np.linalg.pinv(
+                np.column_stack([amps, np.ones(8)])
+            ),
+            np.full(8, noise_mV),
+            abs(slope) * np.ptp(amps),
+        )
+        first = math.sqrt(max(got.uncertainty**2 - floor**2, 0.0))
+        covered += abs(got.value - truth) <= 2 * got.uncertainty
+        first_order_covered += abs(got.value - truth) <= 2 * first
+    assert covered >= 270
+    if noise_mV >= 0.3:
+        assert first_order_covered < 270  # the floor is what makes the interval honest here
