@@ -109,6 +109,17 @@ def open_existing_store(db: str | None) -> Any:
     return Store.open(db or default_url(env()), create=False)
 
 
+def existing_run(store: Any, run_id: int) -> Any:
+    """The run's record, or ``StoreError`` naming the missing run (``compose.check_store``'s
+    answer, without importing ``compose``)."""
+    try:
+        return store.get_run(run_id)
+    except StoreError:
+        raise
+    except LookupError as exc:
+        raise StoreError(f"no run {run_id} in the database") from exc
+
+
 UNKNOWN_OPERATOR = "unknown (no login name)"
 
 

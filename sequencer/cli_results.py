@@ -13,7 +13,7 @@ from sequencer.cli_common import (
     EXIT_FAIL,
     EXIT_INPUT,
     db_option,
-    env,
+    existing_run,
     fail,
     handles_errors,
     open_existing_store,
@@ -29,12 +29,11 @@ from sequencer.cli_common import (
 @handles_errors
 def certify(db: str | None, run_id: int, out_dir: str, paper: str, partial: bool) -> None:
     """One certificate per channel (PDF and HTML) for a run."""
-    from sequencer import compose
     from sequencer.cli_progress import counting
     from sequencer.reports import certify_run
 
-    with compose.open_existing_store(db, env()) as store:
-        run = compose.check_store(store, run_id)
+    with open_existing_store(db) as store:
+        run = existing_run(store, run_id)
         if run.status != "completed" and not partial:
             fail(EXIT_INPUT, _not_completed(run_id, run.status, run.reason))
         with counting(f"certificates of run {run_id}") as progress:
@@ -92,13 +91,12 @@ def trend(db: str | None, board: str, quantity: str, channel: int | None, output
 
     Without --channel a quantity measured on several channels is shown for all of them: one
     section per channel in the text, small multiples in the PNG."""
-    from sequencer import compose
     from sequencer.reports import plot_trend, plot_trends, trend_csv, trends
     from sequencer.reports import trend as compute_trend
     from sequencer.reports.trend import series_keys
 
     kwargs = dict(reference_runs=reference_runs, band=tuple(band) if band else None, procedure=procedure)
-    with compose.open_existing_store(db, env()) as store:
+    with open_existing_store(db) as store:
         from sequencer.cli_names import refuse_unknown_names
         from sequencer.store.listing import StoreListing
 
@@ -160,10 +158,9 @@ def _trends_csv(results: list[Any], one: Any) -> str:
 @handles_errors
 def report(db: str | None, batch: str, out_dir: str | None) -> None:
     """Batch summary: yield, distributions, robust outliers, failed channels."""
-    from sequencer import compose
     from sequencer.reports import batch_report, batch_summary
 
-    with compose.open_existing_store(db, env()) as store:
+    with open_existing_store(db) as store:
         check_batch(store, batch)
         click.echo(batch_summary(store, batch).to_text())
         if out_dir:

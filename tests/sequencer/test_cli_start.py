@@ -52,6 +52,27 @@ def test_read_only_commands_import_neither_plotting_nor_analysis_nor_visa(
     assert [m for m in HEAVY + STORE_TOOLKIT if m in seen["modules"]] == []
 
 
+@pytest.mark.parametrize(("command", "code"), [
+    (("trend", "--board", "NR-PA8-0001", "--quantity", "gain"), 0),  # 0 runs, with a warning
+    (("report", "--batch", "NR-B07"), 2),  # no such batch
+    (("certify", "--run", "1"), 2),  # no such run (--out is added below)
+])
+def test_reporting_commands_do_not_compose_a_run(
+    tmp_path: Path, command: tuple[str, ...], code: int
+) -> None:
+    # trend, report and certify read the store and draw: they need SQLAlchemy and numpy, not the
+    # engine, scipy or pyvisa that ``compose`` pulls in.  On an empty database each answers after
+    # opening the store, which is the start-up checked here.
+    url = f"sqlite:///{tmp_path / 'small.db'}"
+    with Store.open(url):
+        pass
+    out = ("--out", str(tmp_path / "certs")) if command[0] == "certify" else ()
+    seen = _run_entry_point(*command, *out, "--db", url)
+    assert seen["code"] == code
+    assert "sqlalchemy" in seen["modules"]
+    assert [m for m in ("scipy", "pyvisa") if m in seen["modules"]] == []
+
+
 def test_a_store_the_light_path_cannot_read_goes_through_sqlalchemy(tmp_path: Path) -> None:
     # Control for the test above: a URL with driver options (here pysqlite's busy timeout) is
     # left to the Store, so the same probe sees SQLAlchemy and alembic loaded -- and the command
