@@ -53,7 +53,7 @@ def test_read_only_commands_import_neither_plotting_nor_analysis_nor_visa(
 
 
 @pytest.mark.parametrize(("command", "code"), [
-    (("trend", "--board", "NR-PA8-0001", "--quantity", "gain"), 0),  # 0 runs, with a warning
+    (("trend", "--board", "NR-PA8-0001", "--quantity", "gain"), 2),  # no such board
     (("report", "--batch", "NR-B07"), 2),  # no such batch
     (("certify", "--run", "1"), 2),  # no such run (--out is added below)
 ])
