@@ -32,6 +32,9 @@ READABLE: dict[str, str] = {
     "zero_crossing_ns": "Zero crossing (from onset)",
     "zero_crossing_walk_ns": "Zero-crossing walk",
     "bandwidth_mhz": "Bandwidth (-3 dB)",
+    "disc_walk_ns": "Discriminator output walk",
+    "disc_jitter_ns": "Discriminator output jitter",
+    "coincidence_width_ns": "Coincidence output width",
 }
 """Names printed on certificates (the unit is its own column, so it is not repeated in the name);
 a quantity not listed is printed by its DESIGN.md name."""
