@@ -17,7 +17,7 @@ Public API::
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Iterable, Sequence
 from pathlib import Path
 
 from drivers.errors import Problem
@@ -63,7 +63,7 @@ def validate_paths(
         try:
             procedure = load_procedure(path, lab_dir=lab_dir)
         except ProcedureError as exc:
-            problems.extend(exc.problems)
+            problems.extend(_fragment_hint(path, exc.problems))
             continue
         try:
             board = board_info(lab.find("boards", procedure.board_type), VALIDATION_SERIAL)
@@ -80,6 +80,33 @@ def validate_paths(
         except ProcedureError as exc:
             problems.extend(exc.problems)
     return problems
+
+
+FRAGMENT_HINT = (
+    ", e.g. 'board_type: PA8'; if this is a file of steps for include: (a fragment), start it with "
+    "'# yaml-language-server: $schema=<path to>/fragment.schema.json' or validate it with --fragment"
+)
+
+
+def _fragment_hint(path: str | Path, problems: Sequence[Problem]) -> list[Problem]:
+    """``problems`` of a file that looks like a fragment (only a fragment's keys, no board type)
+    with the missing-board_type problem saying how to check it as one."""
+    from drivers.yamlsafe import YamlMap, load_yaml, read_bounded
+
+    from .loader import FRAGMENT_KEYS
+
+    missing = [p for p in problems if p.message == "a procedure needs 'board_type'"]
+    if not missing:
+        return list(problems)
+    try:
+        data = load_yaml(read_bounded(path), str(path), error=ProcedureError)
+    except (OSError, ProcedureError):
+        return list(problems)
+    if not isinstance(data, YamlMap) or not set(data) <= set(FRAGMENT_KEYS):
+        return list(problems)
+    return [
+        Problem(p.location, p.message + FRAGMENT_HINT) if p in missing else p for p in problems
+    ]
 
 
 def _marked_fragment(path: str | Path) -> bool:

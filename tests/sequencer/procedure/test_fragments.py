@@ -80,3 +80,15 @@ def test_schema_command_prints_the_fragment_schema():
     result = CliRunner().invoke(cli, ["schema", "--fragment"])
     assert result.exit_code == 0
     assert json.loads(result.output)["required"] == ["name", "steps"]
+
+
+def test_a_fragment_checked_as_a_procedure_says_how_to_check_it(tmp_path: Path):
+    bare = tmp_path / "bare.yaml"
+    bare.write_text("name: part\nsteps:\n  - wait: 1 s\n")
+    messages = [p.message for p in validate_paths([bare])]
+    assert any(m.startswith("a procedure needs 'board_type', e.g. 'board_type: PA8'; if this is a "
+                            "file of steps for include:") and "--fragment" in m for m in messages)
+    # a file with a procedure's own keys is not taken for a fragment: no hint
+    procedure = tmp_path / "proc.yaml"
+    procedure.write_text("name: p\nversion: '1'\nhazards: [bias]\nsteps:\n  - wait: 1 s\n")
+    assert [p.message for p in validate_paths([procedure])] == ["a procedure needs 'board_type'"]
