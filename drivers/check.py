@@ -117,7 +117,11 @@ def _after_a_gate(driver: Any, name: str, op: Any, command: str) -> CheckLine:
             return CheckLine(role=role, op=name, skipped=(
                 f"the present gate of {gate:g} s is longer than a check waits "
                 f"({MAX_CHECK_GATE_S:g} s); a run exercises it"))  # fmt: skip
-        counted = driver.count(1) if role == "counter" else driver.count()
+        if role == "counter":
+            counted: Any = driver.count(1)
+        else:  # the reply as parsed: coincidences, then the singles of each input
+            got = driver.count()
+            counted = [got.coincidences, *got.singles]
     except BenchwrightError as exc:
         return CheckLine(role=role, op=name, command=command, error=str(exc).splitlines()[0])
     except ValueError as exc:

@@ -117,7 +117,8 @@ def test_instruments_check_asks_every_query_and_leaves_the_bias_alone(sim_bench)
     counts = next(line for line in lines if "counter.counts" in line)
     assert f"(int) over one {gate} s gate on channel 1" in counts, counts
     assert int(counts.split("-> ")[1].split()[0]) >= 0
-    assert "(csv) over one " in next(line for line in lines if "coincidence.counts" in line)
+    coincidences = next(line for line in lines if "coincidence.counts" in line)
+    assert "'FETCh:COINcidence?' -> [" in coincidences and "] (csv) over one " in coincidences
     assert "'ROUTe:CLOSe? (@101)' -> [0.0] (csv)" in text  # nothing routed to injection at rest
     with open_bench(spec, roles=["bias"]) as bench:
         assert (bench.bias.output_on(), bench.bias.setpoint()) == before  # nothing changed
