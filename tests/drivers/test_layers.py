@@ -27,10 +27,25 @@ def test_drivers_never_import_sequencer():
     assert offenders == []
 
 
+# The simulator's VXI-11 *server* borrows pyvisa-py's ONC RPC / XDR codec (the wire coding, not a VISA
+# session): that is the one import of pyvisa_py allowed outside the transport, and only that module of it.
+WIRE_CODEC = "pyvisa_py.protocols"
+
+
 def test_only_the_transport_imports_pyvisa():
     importers = sorted(
         str(p.relative_to(DRIVERS))
         for p in DRIVERS.rglob("*.py")
-        if any(m.split(".")[0] in ("pyvisa", "pyvisa_py") for m in imported_modules(p))
+        if any(
+            m.split(".")[0] in ("pyvisa", "pyvisa_py") and m != WIRE_CODEC
+            for m in imported_modules(p)
+        )
     )
     assert importers == ["transport.py"]
+
+
+def test_only_the_simulated_vxi11_server_borrows_the_rpc_codec():
+    borrowers = sorted(
+        str(p.relative_to(DRIVERS)) for p in DRIVERS.rglob("*.py") if WIRE_CODEC in imported_modules(p)
+    )
+    assert borrowers == ["sim/vxi11.py"]
