@@ -222,8 +222,15 @@ def supply_state(sim: SimBench) -> dict[str, Any]:
         "setpoint": bias.settings.setpoint_V,
         "limit_A": bias.settings.limit_A,
         "ever_on": bias.first_on is not None,
-        "received": list(bias.received),
+        "received": program_units(bias.received),
     }
+
+
+def program_units(messages: Sequence[str]) -> list[str]:
+    """The units of the program messages the supply received, in order: one message may join
+    several (``SOURce:VOLTage:SLEW 5;:SYSTem:ERRor:NEXT?``, IEEE 488.2 7.3: units separated by
+    ';', a leading ':' from the root), and the order of the commands is what the tests check."""
+    return [u.strip().removeprefix(":") for m in messages for u in m.split(";") if u.strip()]
 
 
 def voltage_commands(messages: Sequence[str]) -> list[float]:
