@@ -1,7 +1,7 @@
 """The heartbeat of a running run: a thread that refreshes the run's lease in the store.
 
 Composition-level (it calls the store; the engine knows nothing of it).  A lost lease (the run was
-taken over with ``resume --take-over``, or marked interrupted because no beat arrived in time) asks
+taken over with ``resume --take-over`` or ``safe --take-over``, or marked interrupted because no beat arrived in time) asks
 the run to stop, like a signal: bias to its safe state, cleanup, exit 3.  A beat the store refuses
 for another reason (a locked or full database) is counted and tried again at the next beat; the
 run itself meets that fault when it records its next step.
@@ -45,7 +45,8 @@ class Heartbeat:
                 self.lost = True
                 self._on_lost(
                     "the run's lease was lost: another process took the run over "
-                    "(resume --take-over) or marked it interrupted"
+                    "(resume --take-over, or safe --take-over of its bench) or marked it "
+                    "interrupted"
                 )
                 return
 

@@ -57,7 +57,7 @@ def test_safe_refuses_a_bench_held_by_a_live_run_and_takes_it_over_when_told(tmp
     assert "took over the bench from run 1" in taken.stdout
     assert state["output"] is False and abs(state["volts"]) < TOL, state
     assert old.code == EXIT_ABORT, old  # the old run lost its lease and stopped
-    assert "lease" in old.stderr, old.stderr
+    assert "lease was lost" in old.stderr and "safe --take-over" in old.stderr, old.stderr
     with Store.open(db, create=False) as store:
         run = store.list_runs()[0]
         trail = [a.kind for a in store.audit_trail(run.id)]
