@@ -20,6 +20,7 @@ from drivers.errors import ProtocolError
 from drivers.roles.base import RoleDriver, check_finite, check_range, check_word
 from drivers.roles.waveform import fetch_waveform
 from drivers.scpi.blocks import numpy_dtype
+from drivers.scpi.joined import query_joined
 from drivers.scpi.session import ScpiSession
 from drivers.trace import Trace
 
@@ -97,10 +98,22 @@ class Scope(RoleDriver):
     def acquire(self) -> None:
         """Start one acquisition (with its averages) and wait until it is complete (``*OPC?``)."""
         with self.session.lock:
+            if self._joins_acquire():  # INIT, *OPC? and the error check: one message
+                query_joined(self.session, [self._command("acquire")], self.session.opc_query,
+                             _operation_complete, timeout_ms=self.session.opc_timeout_ms)  # fmt: skip
+                return
             # the error check after INIT may wait for the acquisition: the OPC timeout, not the
             # ordinary one (a 7 s acquisition must not fail on a 5 s link timeout)
             self._write("acquire", reapply=False, timeout_ms=self.session.opc_timeout_ms)
             self.session.wait_complete()
+
+    def _joins_acquire(self) -> bool:
+        """Whether the dialect lets the acquisition's start, the operation-complete query and the
+        error check share one message (joining allowed, the start one plain command, checked)."""
+        op = self.dialect.operation("scope", "acquire")
+        policy = self.session.policy
+        return (policy.join and self.session.check_errors and op.single is not None
+                and op.check_errors is not False and op.timeout_ms is None)  # fmt: skip
 
     def fetch(self, input: int) -> Trace:
         """The last record of ``input`` as a calibrated trace in volts."""
@@ -129,6 +142,13 @@ class Scope(RoleDriver):
         with self.session.lock:
             self.acquire()
             return [self.fetch(i) for i in numbers]
+
+
+def _operation_complete(reply: str) -> bool:
+    """``*OPC?`` answers 1 when the pending operations are done (IEEE 488.2 §10.18, from memory)."""
+    if reply.strip() not in ("1", "+1"):
+        raise ValueError(f"*OPC? replied {reply!r}, expected 1")
+    return True
 
 
 def calibrated_trace(codes: np.ndarray, preamble: Sequence[float], *, source: str) -> Trace:

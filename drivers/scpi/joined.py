@@ -50,8 +50,12 @@ def query_joined(
     the whole message (what the instrument holds is forgotten, as after any error)."""
     text = join_units([*actions, query, session.error_query])
     reply = session.query(text, timeout_ms=timeout_ms, retry=False)
-    head, tail = split_last_unit(reply)
-    code, message = parse_error_entry(tail)
+    try:
+        head, tail = split_last_unit(reply)
+        code, message = parse_error_entry(tail)
+    except ProtocolError as exc:  # the whole line was read: the link is still in step
+        raise ProtocolError(f"garbled reply: {exc}", address=session.address,
+                            command=text) from None  # fmt: skip
     if code != 0:
         entries = [(code, message), *session.errors()]
         session.forget("")

@@ -292,3 +292,39 @@ def test_a_reply_with_one_response_where_two_were_asked_is_garbled():
     assert split_last_unit('1;2;-100,"a;b"') == ("1;2", '-100,"a;b"')
     with pytest.raises(ProtocolError, match="one response"):
         split_last_unit('0,"No error"')
+
+
+def test_a_garbled_joined_reply_says_so():
+    from drivers.errors import ProtocolError
+    from drivers.roles import Counter
+
+    joined = f"INITiate:IMMediate;:FETCh:TOTalize?;:{ERRQ}"
+    link = ScriptedTransport().expect(
+        (f"SENSe:GATE:TIME 0.05;:{ERRQ}", JOINED_OK),
+        (f"ROUTe:TERMinals:CHANnel 1;:{ERRQ}", JOINED_OK),
+        (joined, b"\x15?!kajvx\n"),
+    )
+    counter = _role(Counter, link)
+    counter.set_gate(0.05)
+    with pytest.raises(ProtocolError, match="garbled reply") as caught:
+        counter.count(1)
+    assert caught.value.command == joined
+
+
+def test_a_scope_starts_waits_and_checks_in_one_message():
+    from drivers.errors import ProtocolError
+    from drivers.roles import Scope
+
+    joined = f"INITiate:IMMediate;*OPC?;:{ERRQ}"
+    link = ScriptedTransport().expect(
+        ("FORMat:BORDer NORMal;:" + ERRQ, JOINED_OK),
+        ("FORMat:DATA INTeger,16;:" + ERRQ, JOINED_OK),
+        (joined, b'1;0,"No error"\n'),
+        (joined, b'0;0,"No error"\n'),  # *OPC? must say 1
+    )
+    scope = _role(Scope, link)
+    scope.acquire()
+    with pytest.raises(ProtocolError, match="expected 1"):
+        scope.acquire()
+    link.assert_done()
+    assert link.timeouts_at_write[2] == scope.session.opc_timeout_ms  # it waits for the acquisition

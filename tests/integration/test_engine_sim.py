@@ -142,7 +142,10 @@ def test_interlock_fault_aborts_with_safe_state():
 
 @pytest.mark.slow  # the drivers' resync waits its 10 s *OPC? timeout; quick variant: tests/sequencer/engine
 def test_scope_no_reply_names_instrument_command_and_step():
-    fault = {"kind": "no_reply", "role": "scope", "after_commands": 30}
+    # the scope's 10th message: *IDN?, two set-up messages at open, four of setup (each setting
+    # and its error query in one message), then 3 per capture (start + *OPC? + error query,
+    # preamble, data): the second capture of the scan
+    fault = {"kind": "no_reply", "role": "scope", "after_commands": 9}
     out, events, (_on, _) = run_on_sim(gain_plan(with_bias=False), faults=[fault], timeout_ms=300)
     assert isinstance(out, RunAborted) and out.cause == "instrument"
     text = str(out)

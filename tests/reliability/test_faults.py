@@ -32,9 +32,12 @@ from tests.reliability import kit
 
 #: Short link timeout in the bench file: a silent instrument costs ~2 timeouts, not ~2 x 5 s.
 TIMEOUT_MS = 1000
-#: The scope receives about 65 messages in a run of kit.PROCEDURE (counted on the simulator);
-#: ``after_commands: N`` acts on message N + 1.
-SCOPE_EARLY, SCOPE_MID, SCOPE_LATE = 12, 30, 52
+#: The scope receives 31 messages in a run of kit.PROCEDURE (counted on the simulator): *IDN?, two
+#: set-up messages at open, four settings (each with its error query, drivers/scpi/messages.py),
+#: then 3 per capture x 8 (start + *OPC? + error query, preamble, data);
+#: ``after_commands: N`` acts on message N + 1.  Early: a setting; mid: the third capture's start
+#: (an action); late: the seventh capture's data (a query).
+SCOPE_EARLY, SCOPE_MID, SCOPE_LATE = 6, 13, 27
 ALWAYS_ABORTS = {"no_reply", "scpi_error", "interlock_open"}
 #: What the one-line cause must say, per fault kind (a pattern of the drivers' and engine's wording).
 CAUSE = {
@@ -58,7 +61,7 @@ def scope_fault(kind: str, after: int) -> dict:
 
 QUICK = [
     scope_fault("no_reply", SCOPE_MID),
-    scope_fault("disconnect", 27),  # message 28 is an INITiate: an action, never re-sent -> abort
+    scope_fault("disconnect", 25),  # message 26 starts a capture: an action, never re-sent -> abort
     scope_fault("garbled_reply", SCOPE_MID),
     scope_fault("garbled_reply", 0),  # the *IDN? reply at opening: never taken for the identity
     scope_fault("scpi_error", SCOPE_MID),
