@@ -196,6 +196,28 @@ class BlockReader:
         return ProtocolError(message, address=self.transport.address, command=self.command)
 
 
+def await_reply(
+    transport: Any, stop: StopCheck | None, timeout_s: float, *, command: str = ""
+) -> None:
+    """Wait up to ``timeout_s`` for a reply to begin, in ``STOP_SLICE_S`` slices, raising
+    :class:`ReadStopped` when ``stop`` says so; returns at once where the link cannot tell
+    (no ``wait_for_input``) or nobody can ask to stop.  The read that follows reports a timeout."""
+    wait = getattr(transport, "wait_for_input", None)
+    if wait is None or stop is None:
+        return
+    limit = time.monotonic() + timeout_s
+    while True:
+        if stop():
+            raise ReadStopped(
+                "wait for the reply given up by a stop request",
+                address=transport.address,
+                command=command,
+            )
+        ready = wait(min(STOP_SLICE_S, max(0.0, limit - time.monotonic())))
+        if ready is None or ready or time.monotonic() >= limit:
+            return
+
+
 def read_block(
     transport: Any, bounds: BlockBounds, *, command: str = "", expected_bytes: int | None = None
 ) -> bytes | bytearray:

@@ -22,7 +22,7 @@ import contextlib
 import threading
 from collections.abc import Callable, Iterator
 from types import TracebackType
-from typing import Protocol, TypeVar
+from typing import TypeVar
 
 import numpy as np
 
@@ -41,9 +41,11 @@ from drivers.scpi.blockread import (
     DEFAULT_MIN_TRANSFER_BPS,
     BlockBounds,
     StopCheck,
+    await_reply,
     read_block,
 )
 from drivers.scpi.blocks import MAX_BLOCK_BYTES, decode_payload
+from drivers.scpi.link import Transport
 from drivers.scpi.messages import PLAIN, MessagePolicy, absolute, join_units
 from drivers.scpi.plain import (
     Identity,
@@ -62,23 +64,6 @@ DEFAULT_RETRIES = 1
 MAX_ERROR_ENTRIES = 64
 
 T = TypeVar("T")
-
-
-class Transport(Protocol):
-    """What the SCPI layer needs from a link (``drivers.transport.VisaTransport`` or a test script)."""
-
-    address: str
-    timeout_ms: int
-
-    @property
-    def read_termination(self) -> str: ...
-    def write(self, text: str) -> None: ...
-    def read(self) -> bytes: ...
-    def read_bytes(self, n: int) -> bytes: ...
-    def more_pending(self, wait_s: float = ...) -> bool: ...
-    def drain(self) -> None: ...
-    def reconnect(self) -> None: ...
-    def close(self) -> None: ...
 
 
 class ScpiSession:
@@ -410,18 +395,23 @@ class ScpiSession:
         self.messages += 1
         self.transport.write(command)
 
-    def _ask(self, command: str, timeout_ms: int | None = None) -> str:
+    def _ask(self, command: str, timeout_ms: int | None = None, *, sliced: bool = False) -> str:
+        """Send ``command`` and read its reply; ``sliced``: wait for it in short slices, looking
+        at the stop check (a long wait, e.g. ``*OPC?`` while the instrument acquires)."""
         if timeout_ms is not None:
             with self._timeout(timeout_ms):
-                return self._ask(command)
+                return self._ask(command, sliced=sliced)
         self._send(command)
+        if sliced:
+            await_reply(self.transport, self.stop_check, self.transport.timeout_ms / 1000.0,
+                        command=command)
         try:
             return self.transport.read().decode("ascii", "replace").strip()
         except TransportError as exc:
             raise exc.with_command(command) from exc
 
     def _sync(self, timeout_ms: int) -> None:
-        reply = self._ask(self.opc_query, timeout_ms)
+        reply = self._ask(self.opc_query, timeout_ms, sliced=True)
         if reply.strip() not in ("1", "+1"):
             raise ProtocolError(
                 f"{self.opc_query} replied {reply!r}, expected 1", address=self.address

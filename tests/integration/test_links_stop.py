@@ -45,6 +45,15 @@ class Acquiring(SimInstrument):
     def commands(self):
         return [command("DATA", query=self._data), command("QUICK", query=lambda c: REPLY)]
 
+    def common_commands(self):
+        # *OPC? answers once the acquisition is over (IEEE 488.2 10.19), held back like DATA?
+        return {"*OPC": (None, self._opc)}
+
+    def _opc(self, _c) -> str:
+        if self.defer:
+            self.released.wait(60.0)
+        return "1"
+
     def _data(self, _c) -> bytes:
         if self.defer:
             self.released.wait(60.0)  # a hang guard; the test releases it
@@ -60,7 +69,7 @@ class DeferringVxi11(Vxi11Server):
         self.instrument = instrument
 
     def _run(self, link, message: bytes) -> None:
-        if not message.upper().startswith(b"DATA?"):
+        if not message.upper().startswith((b"DATA?", b"*OPC?")) or self.instrument.released.is_set():
             super()._run(link, message)
             return
         _keep, reply = self.server.respond(message)
@@ -135,4 +144,34 @@ def test_over_vxi11_a_reply_whose_first_byte_was_probed_arrives_whole():
                 assert np.frombuffer(bytes(data), dtype=">i2").tolist() == RECORD.tolist()
             assert session.query("*OPC?") == "1"  # in step after the blocks
     finally:
+        stop()
+
+
+@pytest.mark.parametrize("link", ["socket", "hislip", "vxi11"])
+def test_a_stop_request_ends_an_operation_complete_wait(link):
+    # *OPC? while the instrument acquires, with a minute to wait: given up at the stop request
+    inst, stop, address = serve(link)
+    order: list[str] = []
+    pressed = threading.Event()
+
+    def press() -> None:
+        order.append("stop asked")
+        pressed.set()
+
+    try:
+        with ScpiSession(VisaTransport.open(address, timeout_ms=5_000)) as session:
+            session.stop_check = pressed.is_set
+            timer = threading.Timer(0.5, press)
+            timer.start()
+            try:
+                with pytest.raises(ReadStopped, match="given up by a stop request"):
+                    session.wait_complete(timeout_ms=60_000)
+                order.append("wait given up")
+            finally:
+                timer.cancel()
+                inst.released.set()
+                order.append("operation complete")
+            assert order == ["stop asked", "wait given up", "operation complete"]
+    finally:
+        inst.released.set()
         stop()
