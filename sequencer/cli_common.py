@@ -88,7 +88,7 @@ def _debug(debug: bool) -> None:
         traceback.print_exc()
 
 
-def open_listing(db: str | None, *, mark_stale: bool = False) -> Any:
+def open_listing(db: str | None) -> Any:
     """Runs, batches and measurements of the existing database for a read-only command
     (``store.listing``): an SQLite file is read with the standard library's sqlite3 (no
     SQLAlchemy, alembic or numpy to import), anything else through the ``Store``.  A missing
@@ -96,7 +96,7 @@ def open_listing(db: str | None, *, mark_stale: bool = False) -> Any:
     from sequencer.store.listing import open_listing as open_it
     from sequencer.store.sqlite_files import default_url
 
-    return open_it(db or default_url(env()), mark_stale=mark_stale)
+    return open_it(db or default_url(env()))
 
 
 def open_existing_store(db: str | None) -> Any:

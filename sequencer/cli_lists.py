@@ -37,11 +37,19 @@ def runs(db: str | None, fmt: str, board: str | None, procedure: str | None, bat
          operator: str | None, status: str | None, verdict: str | None, since: Any, until: Any) -> None:
     """Past runs: id, procedure, board, status, start, end, verdict, operator, batch."""
     from sequencer.cli_names import refuse_unknown_names
+    from sequencer.store.lines import as_seen
     from sequencer.store.rows import RUN_COLUMNS, format_rows, run_rows
 
-    with open_listing(db, mark_stale=True) as listing:
+    # read only: a running run whose recorder is gone is shown interrupted, stored by the writers
+    # (run, resume, safe); so a status filter is applied after that judgement
+    stored_status = status if status in ("completed", "aborted") else None
+    with open_listing(db) as listing:
         lines = listing.run_lines(newest_first=False, board=board, procedure=procedure, batch=batch,
-                                  operator=operator, status=status, since=_utc(since), until=_utc(until))  # fmt: skip
+                                  operator=operator, status=stored_status, since=_utc(since), until=_utc(until))  # fmt: skip
+        gone = listing.gone_recorders() if any(r.status == "running" for r in lines) else {}
+        lines = [as_seen(r, gone) for r in lines]
+        if status is not None:
+            lines = [r for r in lines if r.status.split(" ")[0] == status]
         if not lines:  # a name no run carries is a typo, not an empty answer
             refuse_unknown_names(listing, batch=batch, board=board)
         counts = listing.run_counts([r.id for r in lines])
@@ -50,6 +58,10 @@ def runs(db: str | None, fmt: str, board: str | None, procedure: str | None, bat
         wanted = "" if verdict == "open" else verdict
         lines = [r for r in lines if verdicts[r.id] == wanted]
     click.echo(format_rows(run_rows(lines, verdicts), fmt, RUN_COLUMNS), nl=False)
+    for r in lines:
+        if r.id in gone:
+            click.echo(f"note: run {r.id} is stored as running but {gone[r.id].reason}; shown as "
+                       f"{r.status} (`benchwright resume {r.id}` or `benchwright safe` records it)", err=True)
     note = maybe_live_note(lines)
     if note:
         click.echo(note, err=True)
@@ -60,7 +72,7 @@ def maybe_live_note(lines: Any) -> str:
     killed runner, a dead PC) or aborted without a confirmed safe state -- and ``benchwright
     safe``; '' when there are none."""
     ids = [r.id for r in lines
-           if r.status == "interrupted" or (r.status == "aborted" and "UNSAFE" in (r.reason or ""))]
+           if r.status.startswith("interrupted") or (r.status == "aborted" and "UNSAFE" in (r.reason or ""))]
     if not ids:
         return ""
     listed = ", ".join(str(i) for i in ids[:10]) + (" ..." if len(ids) > 10 else "")

@@ -18,7 +18,7 @@ from sqlalchemy.dialects import postgresql, sqlite
 from sequencer.errors import StoreError
 from sequencer.events import RunInfo
 from sequencer.store import lease
-from sequencer.store.liveness import ProcessIdentity
+from sequencer.store.liveness import Gone, ProcessIdentity, recorder_gone
 from sequencer.store.models import Annotation, Document, Instrument, Run, Step
 from sequencer.store.models import RunInput as RunInputRow
 
@@ -225,6 +225,29 @@ def reopen_run(
     annotate(conn, run_id, kind="resumed", text=f"resumed from {row.status}", detail=detail, at=at)
 
 
+def _running_rows(conn: Connection, *, lock: bool) -> list[Any]:
+    last_step = (
+        select(func.max(Step.finished_at)).where(Step.run_id == Run.id).scalar_subquery()
+    )
+    query = select(
+        Run.id, Run.host, Run.pid, Run.process_tag, Run.started_at, Run.heartbeat_at,
+        last_step.label("last_step_at"),
+    ).where(Run.status == "running")
+    return list(conn.execute(query.with_for_update() if lock else query).all())
+
+
+def gone_recorders(
+    conn: Connection,
+    me: ProcessIdentity,
+    at: datetime,
+    stale_after_s: float = lease.DEFAULT_STALE_AFTER_S,
+) -> dict[int, Gone]:
+    """The running runs whose recorder is gone, by id, as ``mark_stale`` would judge them --
+    read only (for listings, which must not write)."""
+    rows = _running_rows(conn, lock=False)
+    return {g.run_id: g for r in rows if (g := recorder_gone(r, me, at, stale_after_s)) is not None}
+
+
 def mark_stale(
     conn: Connection,
     me: ProcessIdentity,
@@ -236,30 +259,16 @@ def mark_stale(
 
     Its ``ended_at`` is the last moment known: its last finished step, heartbeat or start.
     """
-    last_step = (
-        select(func.max(Step.finished_at)).where(Step.run_id == Run.id).scalar_subquery()
-    )
-    rows = conn.execute(
-        select(
-            Run.id, Run.host, Run.pid, Run.process_tag, Run.started_at, Run.heartbeat_at,
-            last_step.label("last_step_at"),
-        )
-        .where(Run.status == "running")
-        .with_for_update()
-    ).all()
-    gone = [(r, seen) for r in rows if (seen := lease.judge(r, me, at, stale_after_s)).state != "live"]
-    for r, seen in gone:
-        ended_at = max(t for t in (r.last_step_at, r.heartbeat_at, r.started_at) if t)
-        reason = (
-            "the recording process ended without finishing the run"
-            if seen.state == "dead"
-            else f"the recorder stopped giving a heartbeat ({seen.why})"
-        )
+    rows = _running_rows(conn, lock=True)
+    gone = [g for r in rows if (g := recorder_gone(r, me, at, stale_after_s)) is not None]
+    by_id = {r.id: r for r in rows}
+    for g in gone:
+        r = by_id[g.run_id]
         conn.execute(
             update(Run)
-            .where(Run.id == r.id)
-            .values(status="interrupted", ended_at=ended_at, reason=reason)
+            .where(Run.id == g.run_id)
+            .values(status="interrupted", ended_at=g.ended_at, reason=g.reason)
         )
         detail = {"from": "running", "to": "interrupted", "pid": r.pid, "host": r.host}
-        annotate(conn, r.id, kind="interrupted", text=reason, detail=detail, at=at)
-    return [r.id for r, _ in gone]
+        annotate(conn, g.run_id, kind="interrupted", text=g.reason, detail=detail, at=at)
+    return [g.run_id for g in gone]

@@ -149,24 +149,26 @@ class LightReader:
         except sqlite3.Error as exc:
             raise StoreError(f"cannot read the results database: {exc}") from exc
 
-    def recorders_gone(self, stale_after_s: float = DEFAULT_STALE_AFTER_S) -> bool:
-        """Whether a running run's recorder is gone (``liveness.judge``, as ``lifecycle.mark_stale``
-        asks): then the run must be marked ``interrupted``, a write this path does not make."""
+    def gone_recorders(self, stale_after_s: float = DEFAULT_STALE_AFTER_S) -> dict[int, Any]:
+        """The running runs whose recorder is gone, by id (``liveness.recorder_gone``, as
+        ``lifecycle.gone_recorders`` asks): shown as interrupted, never written here."""
         rows = self._rows(
-            "SELECT host, pid, process_tag, started_at, heartbeat_at, (SELECT max(finished_at) "
+            "SELECT id, host, pid, process_tag, started_at, heartbeat_at, (SELECT max(finished_at) "
             "FROM steps WHERE steps.run_id = runs.id) FROM runs WHERE status = 'running'"
         )
         if not rows:
-            return False
-        from sequencer.store.liveness import judge, this_process
+            return {}
+        from sequencer.store.liveness import recorder_gone, this_process
 
-        me, now = this_process(), datetime.now(UTC)
-        for host, pid, tag, started, beat, last_step in rows:
-            row = SimpleNamespace(host=host, pid=pid, process_tag=tag or "", started_at=_moment(started),
-                                  heartbeat_at=_moment(beat), last_step_at=_moment(last_step))  # fmt: skip
-            if judge(row, me, now, stale_after_s).state != "live":
-                return True
-        return False
+        me, now, gone = this_process(), datetime.now(UTC), {}
+        for run_id, host, pid, tag, started, beat, last_step in rows:
+            row = SimpleNamespace(id=run_id, host=host, pid=pid, process_tag=tag or "",
+                                  started_at=_moment(started), heartbeat_at=_moment(beat),
+                                  last_step_at=_moment(last_step))  # fmt: skip
+            seen = recorder_gone(row, me, now, stale_after_s)
+            if seen is not None:
+                gone[run_id] = seen
+        return gone
 
     def run_lines(self, *, newest_first: bool = True, **filters: Any) -> list[RunLine]:
         """As ``overview.run_lines`` (filters of ``queries.run_filters`` and ``operator``)."""

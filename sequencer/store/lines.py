@@ -7,8 +7,9 @@ import SQLAlchemy.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from datetime import datetime
+from typing import Any
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -66,3 +67,13 @@ LINE_COLUMNS: tuple[str, ...] = (
     "id", "procedure", "procedure_version", "board", "board_type", "batch", "operator", "bench",
     "status", "reason", "started_at", "ended_at",
 )  # fmt: skip
+
+
+def as_seen(line: RunLine, gone: dict[int, Any]) -> RunLine:
+    """``line`` as a reader sees it now: a run stored as ``running`` whose recorder is gone
+    (``gone``: ``liveness.Gone`` by run id) is shown ``interrupted (dead)`` / ``interrupted
+    (stale)``, ended at the last moment known, with the reason -- the stored row is not changed."""
+    seen = gone.get(line.id) if line.status == "running" else None
+    if seen is None:
+        return line
+    return replace(line, status=f"interrupted ({seen.state})", reason=seen.reason, ended_at=seen.ended_at)

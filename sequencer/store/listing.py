@@ -1,6 +1,8 @@
 """One way for read-only commands to list runs and batches and export measurements, whichever path
 reads: the light one (``light.LightReader``, stdlib sqlite3) where it can, else the ``Store``
-(SQLAlchemy: PostgreSQL, a schema to upgrade, a damaged file, runs to mark interrupted).
+(SQLAlchemy: PostgreSQL, a schema to upgrade, a damaged file).  Neither writes: a running run
+whose recorder is gone is reported by ``gone_recorders`` and shown as interrupted
+(``lines.as_seen``); storing that is left to the writers (``run``, ``resume``, ``safe``).
 
 ``open_listing`` imports SQLAlchemy only when it takes the second path.
 """
@@ -32,6 +34,18 @@ class StoreListing:
         with self.store.engine.connect() as conn:
             return run_counts(conn, run_ids, steps=False)
 
+    def gone_recorders(self, stale_after_s: float | None = None) -> dict[int, Any]:
+        """As ``LightReader.gone_recorders`` (``lifecycle.gone_recorders``, read only)."""
+        from datetime import UTC, datetime
+
+        from sequencer.store import lease
+        from sequencer.store.lifecycle import gone_recorders
+        from sequencer.store.liveness import this_process
+
+        limit = lease.DEFAULT_STALE_AFTER_S if stale_after_s is None else stale_after_s
+        with self.store.engine.connect() as conn:
+            return gone_recorders(conn, this_process(), datetime.now(UTC), limit)
+
     def batch_lines(self) -> list[BatchLine]:
         from sequencer.store.overview import batch_lines
 
@@ -57,23 +71,12 @@ class StoreListing:
 Listing = LightReader | StoreListing  # the same methods (a typing.Protocol costs start-up time)
 
 
-def open_listing(url: str, *, mark_stale: bool = False) -> Listing:
+def open_listing(url: str) -> Listing:
     """A listing of the existing database at ``url`` (``StoreError`` if there is none; nothing is
-    created).  ``mark_stale``: first mark ``interrupted`` the running runs whose recorder is gone,
-    as ``benchwright runs`` does -- only the SQLAlchemy path writes, so the light path steps aside
-    when there is such a run."""
+    created, nothing written)."""
     light = LightReader.open(url)
     if light is not None:
-        if not (mark_stale and light.recorders_gone()):
-            return light
-        light.close()
+        return light
     from sequencer.store.store import Store
 
-    store = Store.open(url, create=False)
-    try:
-        if mark_stale and not store.read_only:  # a read-only database is shown as it is
-            store.mark_stale_runs_interrupted()
-    except BaseException:
-        store.close()
-        raise
-    return StoreListing(store)
+    return StoreListing(Store.open(url, create=False))

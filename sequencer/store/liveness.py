@@ -103,3 +103,28 @@ def judge(row: Any, me: ProcessIdentity, now: datetime, stale_after_s: float) ->
     if age > stale_after_s:
         return Judgement("stale", f"no heartbeat from {row.host} for {age:.0f} s")
     return Judgement("live", f"{row.host} (pid {row.pid}) gave a heartbeat {max(age, 0):.0f} s ago")
+
+
+@dataclass(frozen=True)
+class Gone:
+    """A run stored as ``running`` whose recorder is gone: what ``lifecycle.mark_stale`` writes for
+    it (``reason``, ``ended_at`` the last moment known), or what a read-only listing shows."""
+
+    run_id: int
+    state: State  # dead or stale
+    reason: str
+    ended_at: datetime
+
+
+def recorder_gone(row: Any, me: ProcessIdentity, now: datetime, stale_after_s: float) -> Gone | None:
+    """``judge`` the running run ``row`` (with its ``id``); None while its recorder is live."""
+    seen = judge(row, me, now, stale_after_s)
+    if seen.state == "live":
+        return None
+    reason = (
+        "the recording process ended without finishing the run"
+        if seen.state == "dead"
+        else f"the recorder stopped giving a heartbeat ({seen.why})"
+    )
+    last = max(t for t in (getattr(row, "last_step_at", None), row.heartbeat_at, row.started_at) if t)
+    return Gone(row.id, seen.state, reason, last)

@@ -3,18 +3,24 @@ module's real SQLite database (conftest.py)."""
 
 from __future__ import annotations
 
+import hashlib
 import json
+from datetime import UTC, datetime, timedelta
+from pathlib import Path
 
+import sqlalchemy as sa
 from click.testing import CliRunner
 
 from sequencer.cli import attach_commands, cli
+from sequencer.store import Store
+from tests.sequencer.store.scenario import run_info
 
 
 def _json(*args: str):
     attach_commands()
     result = CliRunner().invoke(cli, [*args, "--format", "json"])
     assert result.exit_code == 0, result.output
-    return json.loads(result.output)
+    return json.loads(result.stdout)  # notes go to stderr
 
 
 def test_runs_show_verdict_operator_and_batch(recorded) -> None:
@@ -55,3 +61,33 @@ def test_trend_without_a_channel_shows_every_channel(recorded, tmp_path) -> None
                                         "--format", "csv"]).output  # fmt: skip
     assert csv_text.splitlines()[0].startswith("channel,output,run_id,")
     assert len([line for line in csv_text.splitlines()[1:] if line[:1].isdigit()]) == len(keys)
+
+
+def _digest(path: Path) -> str:
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def test_runs_writes_nothing_and_shows_a_dead_run_as_interrupted(tmp_path: Path) -> None:
+    """Issue 16: a read-only command does not write.  A run stored as running whose recorder went
+    silent 10 minutes ago (another PC) is shown interrupted (stale) -- judged from the heartbeat age
+    at read time -- while the database file stays byte-identical (SHA-256 before and after)."""
+    db = tmp_path / "results.db"
+    url = f"sqlite:///{db}"
+    with Store.open(url) as store:
+        gone = store.create_run(run_info("NR-PA8-0010"), datetime.now(UTC) - timedelta(minutes=10))
+        with store.engine.begin() as conn:
+            conn.execute(sa.text("UPDATE runs SET process_tag = 'another-boot:1', heartbeat_at = :b "
+                                 "WHERE id = :i"), {"b": datetime.now(UTC) - timedelta(minutes=10), "i": gone})
+    before = _digest(db)
+    attach_commands()
+    result = CliRunner().invoke(cli, ["runs", "--db", url, "--format", "json"])
+    assert result.exit_code == 0, result.output
+    rows = json.loads(result.stdout)
+    assert [(r["id"], r["status"]) for r in rows] == [(gone, "interrupted (stale)")]
+    assert rows[0]["end"] is not None
+    assert f"run {gone} is stored as running" in result.stderr and "no heartbeat" in result.stderr
+    assert [r["id"] for r in _json("runs", "--db", url, "--status", "interrupted")] == [gone]
+    assert _json("runs", "--db", url, "--status", "running") == []
+    assert _digest(db) == before
+    with Store.open(url, create=False) as store:
+        assert store.get_run(gone).status == "running"  # left to the writers

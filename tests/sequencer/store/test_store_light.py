@@ -143,29 +143,39 @@ def test_the_light_path_never_writes(recorded: str) -> None:
         light._rows("DELETE FROM annotations")
 
 
-def test_a_running_run_whose_recorder_is_gone_is_marked_through_the_store(tmp_path: Path) -> None:
-    url = f"sqlite:///{tmp_path / 'live.db'}"
+def _stale_run(url: str) -> tuple[int, int]:
+    """A run of this (live) process and one of another PC (another boot id) silent for 10 min."""
     with Store.open(url) as store:
         live = store.create_run(run_info("NR-PA8-0009"), datetime.now(UTC))
-    listing = open_listing(url, mark_stale=True)
-    with listing:  # our own process recorded it and is alive: nothing to mark, the light path reads
-        assert isinstance(listing, LightReader)
-        assert [r.status for r in listing.run_lines()] == ["running"]
-    with Store.open(url) as store:
         gone = store.create_run(run_info("NR-PA8-0010"), datetime.now(UTC) - timedelta(minutes=10))
-        with store.engine.begin() as conn:  # another PC (another boot id) silent for 10 minutes
+        with store.engine.begin() as conn:
             conn.execute(
                 sa.text("UPDATE runs SET process_tag = 'another-boot:1', heartbeat_at = :b "
                         "WHERE id = :i"),
                 {"b": datetime.now(UTC) - timedelta(minutes=10), "i": gone},
             )
-    with open_listing(url) as listing:  # no marking asked: the light path, nothing written
+    return live, gone
+
+
+def test_a_running_run_whose_recorder_is_gone_is_judged_alike_on_both_paths(tmp_path: Path) -> None:
+    """Both read paths judge the silent run gone (liveness.judge: 600 s > the 60 s limit) and the
+    live one not; neither writes (the stored status stays running)."""
+    url = f"sqlite:///{tmp_path / 'live.db'}"
+    live, gone = _stale_run(url)
+    with open_listing(url) as listing:
         assert isinstance(listing, LightReader)
-        assert {r.id: r.status for r in listing.run_lines()}[gone] == "running"
-    with open_listing(url, mark_stale=True) as listing:
-        assert isinstance(listing, StoreListing)
-        statuses = {r.id: r.status for r in listing.run_lines()}
-    assert statuses == {live: "running", gone: "interrupted"}
+        light_gone = listing.gone_recorders()
+    with Store.open(url, create=False) as store:
+        store_gone = StoreListing(store).gone_recorders()
+        assert {r.id: r.status for r in store.list_runs()} == {live: "running", gone: "running"}
+    assert set(light_gone) == set(store_gone) == {gone}
+    assert light_gone[gone].state == store_gone[gone].state == "stale"
+    assert light_gone[gone].reason == store_gone[gone].reason
+    assert "no heartbeat" in light_gone[gone].reason
+    # the writer (mark_stale, as resume and run call it) stores the very reason the readers show
+    with Store.open(url) as store:
+        assert store.mark_stale_runs_interrupted() == [gone]
+        assert store.get_run(gone).reason == light_gone[gone].reason
 
 
 def test_the_package_names_resolve_lazily_to_their_modules() -> None:
