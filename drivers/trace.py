@@ -8,6 +8,10 @@ from typing import Any
 
 import numpy as np
 
+META_NOT_STORED = "meta_not_stored"
+"""Key of ``Trace.meta`` on a trace read back from a store that did not keep its meta (rows written
+before schema revision 0008): what the capture knew (its input's rails) is lost, not empty."""
+
 
 @dataclass(frozen=True)
 class Trace:

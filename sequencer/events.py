@@ -115,6 +115,7 @@ class TraceCaptured:
     source: str = ""
     averages: int = 1
     labels: Mapping[str, Any] = field(default_factory=dict)   # channel, output, sweep values...
+    meta: Mapping[str, str] = field(default_factory=dict)  # e.g. the input's rails (clipping)
 
 
 @dataclass(frozen=True)

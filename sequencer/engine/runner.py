@@ -253,6 +253,7 @@ class Runner:
                         source=t.source,
                         averages=t.averages,
                         labels=dict(item.labels),
+                        meta=dict(t.meta),
                     )
                 )
         for name, value in dict(result.results.get("readings", {})).items():

@@ -37,7 +37,7 @@ from sequencer.store.sqlite_files import (
 #: only when there is a running run to judge.
 DEFAULT_STALE_AFTER_S = 60.0
 #: The newest schema revision (``migrations/versions``); a test checks it against alembic's head.
-HEAD_REVISION = "0007"
+HEAD_REVISION = "0008"
 
 _PREFIX = "sqlite:///"
 _STORED = "%Y-%m-%d %H:%M:%S.%f"  # how SQLAlchemy's SQLite DateTime writes a (naive UTC) moment

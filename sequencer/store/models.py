@@ -191,6 +191,8 @@ class Trace(Base):
     source: Mapped[str] = mapped_column(String(100))
     averages: Mapped[int] = mapped_column(Integer)
     labels: Mapped[dict[str, Any]]
+    # the capture's meta (the input's rails, to check for clipping); NULL: stored before 0008
+    meta: Mapped[dict[str, Any] | None]
     data: Mapped[bytes] = mapped_column(LargeBinary)
 
 

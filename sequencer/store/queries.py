@@ -15,7 +15,7 @@ from typing import Any, TypeVar
 
 from sqlalchemy import ColumnElement, Connection, Select, select
 
-from drivers.trace import Trace
+from drivers.trace import META_NOT_STORED, Trace
 from sequencer.errors import StoreError
 from sequencer.events import InstrumentInfo
 from sequencer.inputs import TEXT_KINDS, RunInput, manifest_digest
@@ -193,8 +193,17 @@ def stored_trace(t: Mapping[str, Any]) -> Trace:
         averages=t["averages"],
         name=t["name"],
         labels=t["labels"],
+        meta=_stored_meta(t.get("meta")),
         path=t["path"],
     )
+
+
+def _stored_meta(meta: Any) -> dict[str, str]:
+    """A stored trace's meta; a row written before revision 0008 kept none, and says so (an
+    analysis that needs the input's rails then refuses it rather than not checking for clipping)."""
+    if meta is None:
+        return {META_NOT_STORED: "stored before the database kept a trace's meta (revision 0008)"}
+    return {str(k): str(v) for k, v in dict(meta).items()}
 
 
 def traces(conn: Connection, run_id: int, path_prefix: str | None = None) -> list[Trace]:

@@ -124,6 +124,7 @@ def trace_rows(run_id: int, step_id: int, traces: list[TraceCaptured]) -> list[d
                 "source": t.source,
                 "averages": int(t.averages),
                 "labels": dict(t.labels),
+                "meta": {str(k): str(v) for k, v in t.meta.items()},
                 "data": encode_samples(samples),
             }
         )

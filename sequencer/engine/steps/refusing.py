@@ -12,7 +12,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from drivers.trace import Trace
+from drivers.trace import META_NOT_STORED, Trace
 from sequencer.analysis import refusals
 
 from ..context import RunContext
@@ -29,11 +29,17 @@ def polarity(ctx: RunContext, output: str | None) -> int:
 
 
 def clip_reasons(items: Sequence[Trace], rows: np.ndarray) -> list[str]:
-    """Per captured row: ``clipped: N % of samples at the rail`` or "" (rails unknown: "")."""
+    """Per captured row: ``clipped: N % of samples at the rail`` or "".  Rails never known (no
+    ``scope.set_input`` before the capture): "".  Rails lost (a trace replayed from rows stored
+    before the store kept a trace's meta): refused, ``rails unknown: ...`` -- it cannot be checked."""
     out = []
     for item, row in zip(items, rows, strict=True):
         rails = rails_of(item)
-        out.append("" if rails is None else refusals.clipping_reasons(row[None, :], rails)[0])
+        if rails is None:
+            lost = item.meta.get(META_NOT_STORED) if item.meta else None
+            out.append(f"rails unknown, cannot check for clipping: {lost}" if lost else "")
+        else:
+            out.append(refusals.clipping_reasons(row[None, :], rails)[0])
     return out
 
 
