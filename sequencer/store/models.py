@@ -9,7 +9,8 @@ the two.  Layout::
     instruments   the bench's instruments of a run (identity, serial, calibration due date and, from
                   revision 0007, the date of the last calibration)
     steps         one row per finished step (completed, failed or skipped), with settings and results
-    traces        captured waveforms of a completed step (npy + zlib, dtype as captured)
+    traces        captured waveforms of a completed step (npy + zlib, dtype as captured) and, from
+                  revision 0008, their meta (the input's rails, to check for clipping)
     measurements  judged values of a completed step (DESIGN.md quantity names)
     safety_events bias / HV events, written the moment they happen
     annotations   notes and the audit trail (status changes, resumes); added in revision 0002
