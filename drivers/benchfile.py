@@ -31,12 +31,12 @@ from __future__ import annotations
 
 import dataclasses
 import datetime as dt
-import difflib
 from collections.abc import Collection, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from drivers.bench_values import EntryReader, first_control, key_location, report_unknown
 from drivers.capabilities import role_problems
 from drivers.dialect import GENERIC, Dialect, parse_dialect, shipped_dialect_path
 from drivers.errors import ConfigError, Location, Problem
@@ -53,7 +53,6 @@ from drivers.yamlsafe import YamlMap, load_yaml, read_bounded
 ROLES = (
     "pulser", "scope", "threshold", "counter", "bias", "switch", "coincidence", "mca", "temperature",
 )
-_TERMINATIONS = {"LF": "\n", "CR": "\r", "CRLF": "\r\n", "\\n": "\n", "\\r": "\r", "\\r\\n": "\r\n"}
 #: The pyvisa backends a bench file may name by itself (no native code chosen by a file).
 NAMED_VISA_BACKENDS = ("@py", "@ivi", "@sim")
 _BIAS_ONLY = ("max_volts", "max_ramp_V_per_s", "max_current_uA", "hardware_interlock")
@@ -188,23 +187,23 @@ def bench_from_mapping(
                 )
             ]
         )
-    _unknown(data, ("bench", "instruments", "lab"), "key", problems, source)
+    report_unknown(data, ("bench", "instruments", "lab"), "key", problems, source)
     lab = _lab(data, problems, source, base_dir) if "lab" in data else None
     name = data.get("bench")
     if not isinstance(name, str) or not name.strip():
-        problems.append(Problem(_where(data, "bench", source), "'bench:' must name the bench"))
+        problems.append(Problem(key_location(data, "bench", source), "'bench:' must name the bench"))
         name = ""
     instruments: dict[str, InstrumentSpec] = {}
     entries = data.get("instruments")
     if not isinstance(entries, Mapping) or not entries:
         problems.append(
             Problem(
-                _where(data, "instruments", source),
+                key_location(data, "instruments", source),
                 f"'instruments:' must map roles ({', '.join(ROLES)}) to instruments",
             )
         )
     else:
-        _unknown(entries, ROLES, "role", problems, source)
+        report_unknown(entries, ROLES, "role", problems, source)
         for role in ROLES:
             if role in entries:
                 spec = _instrument(role, entries[role], entries, problems, source, base_dir,
@@ -227,8 +226,8 @@ def _lab(data: Mapping, problems: list[Problem], source: str, base_dir: Path | N
     """The ``lab:`` folder, relative paths against the bench file's folder.  Checked to exist only
     for a bench read from a file (``base_dir``): a recorded copy names a folder of another time."""
     value = data.get("lab")
-    where = _where(data, "lab", source)
-    if not isinstance(value, str) or not value.strip() or _first_control(value) is not None:
+    where = key_location(data, "lab", source)
+    if not isinstance(value, str) or not value.strip() or first_control(value) is not None:
         problems.append(Problem(where, "lab: must be the path of a folder (with boards/, limits/)"))
         return None
     folder = Path(value.strip()).expanduser()
@@ -296,24 +295,24 @@ def _instrument(
     if not isinstance(entry, Mapping):
         problems.append(
             Problem(
-                _where(parent, role, source),
+                key_location(parent, role, source),
                 f"{role}: expected a mapping such as {{address: ..., dialect: generic}}",
             )
         )
         return None
     start = len(problems)
-    _unknown(entry, _KEYS, f"{role} key", problems, source)
+    report_unknown(entry, _KEYS, f"{role} key", problems, source)
     if role != "bias":
         for key in _BIAS_ONLY:
             if key in entry:
                 problems.append(
                     Problem(
-                        _where(entry, key, source, of_key=True),
+                        key_location(entry, key, source, of_key=True),
                         f"{role}: {key} applies to the bias supply only",
                     )
                 )
     values: dict[str, Any] = {"role": role}
-    check = _Checker(role, entry, problems, source)
+    check = EntryReader(role, entry, problems, source)
     values["address"] = check.text("address", required=True)
     values["visa_library"] = check.text("visa_library", default=DEFAULT_VISA_LIBRARY)
     values["expect_id"] = check.text("expect_id", default="", allow_empty=True)
@@ -341,7 +340,7 @@ def _instrument(
                 dialect,
                 role,
                 hardware_interlock=values.get("hardware_interlock", ""),
-                entry=_where(entry, "dialect", source) if "dialect" in entry else _where(entry, None, source),
+                entry=key_location(entry, "dialect", source) if "dialect" in entry else key_location(entry, None, source),
             )
         )
     if len(problems) > start:
@@ -367,7 +366,7 @@ def _visa_library_allowed(
         return True
     problems.append(
         Problem(
-            _where(entry, "visa_library", source),
+            key_location(entry, "visa_library", source),
             f"{spec.role}: visa_library {library!r} is not a named backend "
             f"({', '.join(NAMED_VISA_BACKENDS)}); a library path loads native code and must be "
             f"allowed on the command line: --allow-visa-library {path}",
@@ -393,7 +392,7 @@ def _dialect(
     The text is read once, here, and kept with the spec: the instrument is driven by the same bytes
     the run stores.  ``stored`` (the text a recorded run used) replaces the file on disk."""
     name = entry.get("dialect", GENERIC)
-    where = _where(entry, "dialect", source)
+    where = key_location(entry, "dialect", source)
     if not isinstance(name, str) or not name.strip():
         problems.append(
             Problem(where, f"{role}: dialect must be 'generic' or the path of a dialect file")
@@ -432,125 +431,6 @@ def _timing(role: str, entry: Mapping, problems: list[Problem], source: str) -> 
     timing, found = read_timing(entry["timing"])
     raw = entry["timing"]
     for key, message in found:
-        where = _where(raw, key, source) if key is not None else _where(entry, "timing", source)
+        where = key_location(raw, key, source) if key is not None else key_location(entry, "timing", source)
         problems.append(Problem(where, f"{role}: {message}"))
     return timing
-
-
-class _Checker:
-    """Reads typed values out of one instrument entry, recording located problems."""
-
-    def __init__(self, role: str, entry: Mapping, problems: list[Problem], source: str) -> None:
-        self.role, self.entry, self.problems, self.source = role, entry, problems, source
-
-    def bad(self, key: str, message: str) -> None:
-        """A problem with ``key`` at its line and column."""
-        self._bad(key, message)
-
-    def _bad(self, key: str, message: str) -> None:
-        self.problems.append(
-            Problem(_where(self.entry, key, self.source), f"{self.role}: {key} {message}")
-        )
-
-    def text(
-        self, key: str, *, required: bool = False, default: str = "", allow_empty: bool = False
-    ) -> str:
-        if key not in self.entry:
-            if required:
-                self.problems.append(
-                    Problem(_where(self.entry, None, self.source), f"{self.role}: missing '{key}:'")
-                )
-            return default
-        value = self.entry[key]
-        if value is None and allow_empty:
-            return ""
-        if not isinstance(value, str) or (not allow_empty and not value.strip()):
-            self._bad(key, "must be a non-empty string" if not allow_empty else "must be a string")
-            return default
-        control = _first_control(value.strip())
-        if control is not None:
-            self._bad(key, f"holds the control character {control!r} (one line of printable text is expected)")
-            return default
-        return value.strip()
-
-    def integer(self, key: str, default: int, low: int, high: int) -> int:
-        value = self.entry.get(key, default)
-        if not isinstance(value, int) or isinstance(value, bool) or not low <= value <= high:
-            self._bad(key, f"must be an integer from {low} to {high}, got {value!r}")
-            return default
-        return value
-
-    def positive(self, key: str, *, required: bool) -> float | None:
-        if key not in self.entry:
-            if required:
-                self.problems.append(
-                    Problem(
-                        _where(self.entry, None, self.source),
-                        f"{self.role}: missing '{key}:' (a safety limit the bias supply needs)",
-                    )
-                )
-            return None
-        value = self.entry[key]
-        if not isinstance(value, int | float) or isinstance(value, bool) or not value > 0:
-            self._bad(key, f"must be a positive number, got {value!r}")
-            return None
-        return float(value)
-
-    def date(self, key: str) -> dt.date | None:
-        value = self.entry.get(key)
-        if value is None or value == "":
-            return None
-        if isinstance(value, dt.datetime):
-            return value.date()
-        if isinstance(value, dt.date):
-            return value
-        if isinstance(value, str):
-            try:
-                return dt.date.fromisoformat(value.strip())
-            except ValueError:
-                pass
-        self._bad(key, f"must be a date YYYY-MM-DD, got {value!r}")
-        return None
-
-    def termination(self, key: str) -> str:
-        value = self.entry.get(key, "\n")
-        if isinstance(value, str):
-            value = _TERMINATIONS.get(value.strip() if value.strip() else value, value)
-        if not isinstance(value, str) or not value or len(value) > 2:
-            self._bad(
-                key,
-                f'must be one or two characters such as "\\n", LF, CR or CRLF, got {value!r} (without a read termination every query times out)',
-            )
-            return "\n"
-        return value
-
-
-def _first_control(text: str) -> str | None:
-    """The first control character (C0, DEL, C1) or lone surrogate in ``text``, else ``None``."""
-    for char in text:
-        code = ord(char)
-        if code < 0x20 or 0x7F <= code < 0xA0 or 0xD800 <= code < 0xE000:
-            return char
-    return None
-
-
-def _where(data: Any, key: Any, source: str, *, of_key: bool = False) -> Location:
-    if isinstance(data, YamlMap):
-        return data.where(key, of_key=of_key)
-    return Location(source, 1, 1)
-
-
-def _unknown(
-    data: Mapping, allowed: tuple[str, ...], what: str, problems: list[Problem], source: str
-) -> None:
-    for key in data:
-        if key not in allowed:
-            close = difflib.get_close_matches(str(key), allowed, n=1)
-            hint = (
-                f" (did you mean {close[0]!r}?)"
-                if close
-                else f" (expected one of: {', '.join(allowed)})"
-            )
-            problems.append(
-                Problem(_where(data, key, source, of_key=True), f"unknown {what} {key!r}{hint}")
-            )
