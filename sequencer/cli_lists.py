@@ -41,7 +41,7 @@ def runs(db: str | None, fmt: str, board: str | None, procedure: str | None, bat
     from sequencer.store.rows import RUN_COLUMNS, format_rows, run_rows
 
     # read only: a running run whose recorder is gone is shown interrupted, stored by the writers
-    # (run, resume, safe); so a status filter is applied after that judgement
+    # (resume, batch); so a status filter is applied after that judgement
     stored_status = status if status in ("completed", "aborted") else None
     with open_listing(db) as listing:
         lines = listing.run_lines(newest_first=False, board=board, procedure=procedure, batch=batch,
@@ -61,7 +61,7 @@ def runs(db: str | None, fmt: str, board: str | None, procedure: str | None, bat
     for r in lines:
         if r.id in gone:
             click.echo(f"note: run {r.id} is stored as running but {gone[r.id].reason}; shown as "
-                       f"{r.status} (`benchwright resume {r.id}` or `benchwright safe` records it)", err=True)
+                       f"{r.status} (`benchwright resume {r.id}` records it)", err=True)
     note = maybe_live_note(lines)
     if note:
         click.echo(note, err=True)
