@@ -63,7 +63,8 @@ def certify_run(
         return written_here
     from .certify_pool import CertificatePool
 
-    with CertificatePool(n, paper=paper, on_progress=lambda d, t, _left: report(d, t)) as pool:
+    with CertificatePool(n, paper=paper, on_progress=lambda d, t, _left: report(d, t),
+                         fine_progress=on_progress is not None) as pool:
         pool.submit(datas, out)
         return pool.wait()
 

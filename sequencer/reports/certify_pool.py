@@ -1,12 +1,12 @@
 """``CertificatePool``: one process pool that renders the certificates of several runs.
 
-Why a pool that outlives one run: starting workers costs each of them the import of matplotlib,
-fpdf and the certificate modules and the building of its figures (a second or more on a loaded
-2-core machine).  ``certify_run`` paid that once per run; the demo certifies eight runs.  Here the
-workers start once, their initializer does the shared plot set-up (matplotlib on Agg, one
-:class:`~sequencer.reports.plots.Plotter` per process, kept for every later certificate), and runs
-are submitted as they finish -- the caller goes on (the demo qualifies the next board) while the
-workers draw.  ``wait`` collects, with progress and the time left at the pace so far.
+Why a pool that outlives one run: starting a worker costs the import of matplotlib, fpdf and the
+certificate modules and the building of its figures (seconds on a loaded 2-core machine).
+``certify_run`` paid that per run; the demo certifies a dozen runs.  Here each worker does the
+plot set-up once as it starts (``certify_worker``: matplotlib on Agg, the renderers, one
+:class:`~sequencer.reports.plots.Plotter` with its figures built) and keeps it for every task.
+Runs are submitted as they finish -- the caller goes on (the demo qualifies the next board) while
+the workers draw.  ``wait`` collects, with progress and the time left at the pace so far.
 
 The data of each certificate is read from the store in the caller's process (one snapshot per run);
 only plain data crosses to the workers.  Workers start with ``forkserver`` (``spawn`` where it is
@@ -27,32 +27,28 @@ from typing import Any, Self
 from .certificate_data import CertificateData, gather_certificates
 from .reading import StoreReader
 
-PER_TASK = 2
-"""Certificates per task: small enough that progress moves and the two workers stay balanced,
-large enough that the pickling of a task is not the cost."""
+TASKS_PER_WORKER = 1
+"""A run's certificates are split into this many tasks per worker (twice that with
+``fine_progress``, so that a single run's progress moves).  Measured on this 2-core machine, 32 certificates: tasks of 16 took
+8.4-10.3 s, tasks of 2 took 10.9-12.8 s (a per-task cost), rendering in one process 10.3-11.7 s."""
 STALL_S = 600.0
 """``wait`` gives up (``RuntimeError``) when no task has finished for this long: a worker that hangs
 must not hang the command.  Generous: a task is two certificates, seconds even on a loaded machine."""
 
-_PLOTTER: Any = None  # the worker's Plotter, built once by ``_set_up_worker``
-
-
-def _set_up_worker() -> None:
-    """Shared plot set-up, once per worker process: Agg, the modules, one Plotter."""
-    global _PLOTTER
-    import matplotlib
-
-    matplotlib.use("Agg")
-    from . import certificate_html, certificate_pdf  # noqa: F401  (imported once, here)
-    from .plots import Plotter
-
-    _PLOTTER = Plotter()
+WORKER_MODULE = "sequencer.reports.certify_worker"
 
 
 def _render_in_worker(datas: list[CertificateData], out_dir: str, paper: str) -> list[str]:
-    from .certify import render_certificates
+    import importlib
 
-    return render_certificates(datas, out_dir, paper, plotter=_PLOTTER)
+    return importlib.import_module(WORKER_MODULE).render(datas, out_dir, paper)
+
+
+def _set_up_worker() -> None:
+    """The shared plot set-up, once per worker as it starts (``certify_worker`` at import)."""
+    import importlib
+
+    importlib.import_module(WORKER_MODULE)
 
 
 def pool_context() -> Any:
@@ -73,10 +69,12 @@ class CertificatePool:
         *,
         paper: str = "A4",
         on_progress: Callable[[int, int, float | None], None] | None = None,
+        fine_progress: bool = False,
     ) -> None:
         self.workers = max(1, workers or os.cpu_count() or 1)
         self.paper = paper
         self._report = on_progress or (lambda done, total, left: None)
+        self._parts = self.workers * TASKS_PER_WORKER * (2 if fine_progress else 1)
         self._pool = ProcessPoolExecutor(
             max_workers=self.workers, mp_context=pool_context(), initializer=_set_up_worker
         )
@@ -93,8 +91,9 @@ class CertificatePool:
         from .certify import certificate_stem
 
         paths = [out / f"{certificate_stem(d)}{s}" for d in datas for s in (".pdf", ".html")]
-        for i in range(0, len(datas), PER_TASK):
-            chunk = datas[i:i + PER_TASK]
+        size = max(1, -(-len(datas) // self._parts))  # ceiling division
+        for i in range(0, len(datas), size):
+            chunk = datas[i:i + size]
             self._pending[self._pool.submit(_render_in_worker, chunk, str(out), self.paper)] = len(chunk)
         self._expected += paths
         self._collect(block=False)
