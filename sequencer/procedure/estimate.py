@@ -5,7 +5,8 @@ The figures come from the timing model the simulator paces itself by (:mod:`driv
 
 * ``scope.capture``: ``averages`` acquisitions, each the longer of the record (points / sample rate)
   and the trigger period (1 / pulser rate) plus the scope's re-arm time; one message to start it,
-  then per input two queries (preamble, data) and the block's transfer (points x 2 bytes);
+  then per input two queries (preamble, data) and the block's transfer (points x 2 bytes); with
+  ``target_uncertainty`` that many times ``max_captures`` (an upper bound);
 * ``counter.count``: the gate time and two messages; ``bias.ramp``: |V - previous setpoint| / rate
   plus a settling check; ``switch.route``/``inject``: one message and the relays' settling;
 * ``wait``: its time; ``prompt``: a typical operator reply; analysis: a few milliseconds;
@@ -69,7 +70,16 @@ def _capture(s: EstimateSettings, b: _Bench, args: dict[str, Any]) -> float:
     acquire = acquisition_s(averages=b.averages, points=b.points, sample_rate_hz=b.sample_rate,
                             trigger_rate_hz=b.pulse_rate, rearm_s=scope.rearm_s)  # fmt: skip
     per_input = 2 * scope.round_trip_s + transfer_s(b.points * s.bytes_per_sample, scope)
-    return acquire + scope.round_trip_s + len(args.get("inputs", (1,))) * per_input
+    one = acquire + scope.round_trip_s + len(args.get("inputs", (1,))) * per_input
+    return _captures(args) * one
+
+
+def _captures(args: dict[str, Any]) -> int:
+    """Captures of one ``scope.capture``: one, or with ``target_uncertainty`` its ``max_captures``
+    (the most it may take: the estimate is an upper bound there)."""
+    if float(args.get("target_uncertainty") or 0.0) > 0.0:
+        return int(args.get("max_captures") or 16)
+    return 1
 
 
 def _ramp(s: EstimateSettings, b: _Bench, args: dict[str, Any]) -> float:

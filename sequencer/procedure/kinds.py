@@ -113,9 +113,20 @@ KINDS: Mapping[str, StepKind] = {k.name: k for k in (
        Arg("source", "str"), Arg("level", "voltage", required=False, default=0.0), configures=True),
     _k("scope.average", "scope", "number of acquisitions averaged per capture", Arg("count", "int"),
        configures=True),
-    _k("scope.capture", "scope", "acquire and fetch traces from one or more inputs",
+    _k("scope.capture", "scope",
+       "acquire and fetch traces from one or more inputs; with target_uncertainty, capture again "
+       "until the pulse height's standard error of the mean reaches it (GUM Type A; min 3, max 16 "
+       "captures unless given), the traces averaged over the captures",
        Arg("inputs", "ints", doc="scope inputs, e.g. [1] or [1, 2, 3]"),
-       Arg("into", "names", doc="one trace name per input"), measures=True),
+       Arg("into", "names", doc="one trace name per input"),
+       Arg("target_uncertainty", "voltage", required=False,
+           doc="repeat the capture until the pulse height on the first input has this standard "
+               "error of the mean (GUM Type A, JCGM 100:2008 4.2); unset or 0 = one capture"),
+       Arg("min_captures", "int", required=False,
+           doc="captures at least, with target_uncertainty (unset: 3)"),
+       Arg("max_captures", "int", required=False,
+           doc="captures at most, with target_uncertainty (unset: 16)"),
+       measures=True),
     # -- threshold DAC, counter -------------------------------------------------------------------
     _k("threshold.level", "threshold", "set a discriminator threshold",
        Arg("channel", "int"), Arg("mV", "voltage"), configures=True),

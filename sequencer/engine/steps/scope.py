@@ -4,7 +4,11 @@ from __future__ import annotations
 
 from dataclasses import replace
 
+import numpy as np
+
 from drivers.trace import Trace
+from sequencer.analysis.averaging import MeanToTarget, capture_heights
+from sequencer.analysis.pulses import pretrigger_baseline
 from sequencer.procedure.plan_model import PlannedStep
 
 from ..context import RunContext
@@ -94,14 +98,58 @@ def capture(ctx: RunContext, step: PlannedStep) -> StepResult:
     names = [names] if isinstance(names, str) else list(names)
     if len(names) != len(inputs):
         raise ValueError(f"scope.capture: {len(inputs)} inputs but {len(names)} names in 'into'")
-    traces = ctx.bench.scope.capture(inputs)
+    target = float(step.args.get("target_uncertainty") or 0.0)
+    results: dict = {}
+    if target > 0.0:
+        traces, results = _capture_to_target(ctx, step, inputs, target)
+    else:
+        traces = ctx.bench.scope.capture(inputs)
     labels = dict(step.labels)
     return StepResult(
         traces=[
             replace(with_rails(t, ctx.input_rails.get(i)), name=n, labels=labels)
             for n, t, i in zip(names, traces, inputs, strict=True)
         ],
+        results=results,
     )
+
+
+def _capture_to_target(
+    ctx: RunContext, step: PlannedStep, inputs: list[int], target_mV: float
+) -> tuple[list[Trace], dict]:
+    """Captures repeated until the pulse height on the first input has a standard error of the mean
+    at or below ``target_mV`` (GUM Type A, :mod:`sequencer.analysis.averaging`); every input's
+    traces are averaged over the same captures.  The stop flag is looked at before each capture;
+    the count is bounded by ``max_captures``."""
+    a = step.args
+    rule = MeanToTarget(target_mV, min_count=int(a.get("min_captures") or 3),
+                        max_count=int(a.get("max_captures") or 16))  # fmt: skip
+    taken: list[list[Trace]] = []
+    while not rule.stopped:
+        ctx.checkpoint()
+        taken.append(list(ctx.bench.scope.capture(inputs)))
+        first = [t[0] for t in taken]
+        try:
+            n = pretrigger_baseline(0, first[0].t0_ns, first[0].dt_ns)
+        except ValueError as exc:
+            raise ValueError(f"scope.capture target_uncertainty: {exc}") from None
+        rule.replace_all(capture_heights(np.stack([t.mV for t in first]), n))
+    averaged = [_mean_trace([t[k] for t in taken]) for k in range(len(inputs))]
+    return averaged, {
+        "captures": len(taken),
+        "height_sem_mV": rule.standard_error,
+        "target_reached": rule.reached,
+        "stopped": rule.stopped,
+    }
+
+
+def _mean_trace(traces: list[Trace]) -> Trace:
+    """The mean of captures of one input: its ``averages`` the sum of theirs."""
+    first = traces[0]
+    if len(traces) == 1:
+        return first
+    volts = np.mean(np.stack([t.volts for t in traces]), axis=0)
+    return replace(first, volts=volts, averages=sum(t.averages for t in traces))
 
 
 HANDLERS = {

@@ -194,3 +194,15 @@ def test_plan_carries_source_and_limits():
     ])
     assert plan.sha256 == hashlib.sha256("".join(lines).encode()).hexdigest()
     assert plan.limit_for("gain", "x5").low == 4.75
+
+
+def test_a_capture_to_a_target_uncertainty_is_estimated_at_its_most_captures():
+    plan = plan_of(
+        HEAD + "steps:\n  - scope.timebase: {sample_rate: 1 GS/s, points: 5000}\n"
+        "  - scope.average: 10\n  - pulser.rate: 100 Hz\n"
+        "  - scope.capture: {inputs: [1], into: [a], target_uncertainty: 0.05 mV, max_captures: 6}\n"
+    )
+    # the one-input capture of test_capture_and_count_estimates, at most 6 times (an upper bound:
+    # the captures stop earlier when the height's standard error reaches the target)
+    one = 10 * 0.01 + 0.001 + (2 * 0.001 + 0.001)
+    assert plan.steps[3].estimate_s == pytest.approx(6 * one)
