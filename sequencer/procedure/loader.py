@@ -188,7 +188,8 @@ class _Loader:
         raw = data.get("limits")
         ref = raw.get("file") if isinstance(raw, YamlMap) else raw
         types = data.get("board_types")
-        declared = {data.get("board_type"), *(types if isinstance(types, list) else ())}
+        named = (data.get("board_type"), *(types if isinstance(types, list) else ()))
+        declared = {name for name in named if isinstance(name, str)}  # a malformed entry is the schema's to report
         if (
             isinstance(ref, str)
             and not ref.endswith((".yaml", ".yml"))
