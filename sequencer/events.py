@@ -24,8 +24,9 @@ from typing import Any, Literal
 import numpy as np
 
 from sequencer.inputs import RunInput
+from sequencer.records import Measurement as Measurement  # re-exported: the one record
+from sequencer.records import Verdict as Verdict
 
-Verdict = Literal["pass", "fail", "info"]
 StepStatus = Literal["completed", "failed", "skipped", "replayed"]
 RunStatus = Literal["running", "completed", "aborted", "interrupted"]
 
@@ -65,24 +66,6 @@ class RunInfo:
     caveats: tuple[str, ...] = ()       # printed on every certificate of the run (changed text, overrides)
     batch: str = ""
     repeat_of: int | None = None
-
-
-@dataclass(frozen=True)
-class Measurement:
-    """One judged value. ``channel`` is 1-based or None (per board); verdict pass/fail/info."""
-
-    quantity: str
-    value: float
-    unit: str
-    uncertainty: float | None = None
-    channel: int | None = None
-    output: str | None = None
-    aggressor: int | None = None
-    low: float | None = None
-    high: float | None = None
-    verdict: Verdict = "info"
-    qualifier: str = ""   # "" or "within uncertainty": value ± U straddles a limit (decision rule)
-    reason: str = ""      # why ``value`` is NaN: what the analysis refused (empty for a value)
 
 
 @dataclass(frozen=True)

@@ -108,7 +108,7 @@ def batch_summary(
     for run in runs:
         ms = store.measurements(run_id=run.id)
         for m in ms:
-            if m.value is not None and math.isfinite(m.value):
+            if math.isfinite(m.value):  # NaN: not measured (sequencer.records)
                 groups[(m.quantity, m.output, value_group(m))].append((run.board, m))
         board_fails = [_reason(m) for m in ms if m.channel is None and m.verdict == "fail"]
         for ch in judged_channels(m.channel for m in ms):  # a module as a whole: once

@@ -11,12 +11,12 @@ from datetime import datetime
 from typing import Protocol, runtime_checkable
 
 from sequencer.inputs import RunInput
+from sequencer.records import Measurement
 from sequencer.store.records import (
     CompletedStep,
     RunRecord,
     SafetyRecord,
     SeriesPoint,
-    StoredMeasurement,
 )
 
 
@@ -35,7 +35,7 @@ class StoreReader(Protocol):
         procedure: str | None = None,
         since: datetime | None = None,
         until: datetime | None = None,
-    ) -> list[StoredMeasurement]: ...
+    ) -> list[Measurement]: ...
 
     def completed_steps(self, run_id: int) -> dict[str, CompletedStep]: ...
 

@@ -34,7 +34,6 @@ _WHERE = {
     "SafetyRecord": "sequencer.store.records",
     "SeriesPoint": "sequencer.store.records",
     "StepRecord": "sequencer.store.records",
-    "StoredMeasurement": "sequencer.store.records",
     "Store": "sequencer.store.store",
 }
 
@@ -49,7 +48,6 @@ __all__ = [
     "SeriesPoint",
     "StepRecord",
     "Store",
-    "StoredMeasurement",
     "default_url",
     "export_rows",
     "format_rows",
@@ -65,7 +63,6 @@ if TYPE_CHECKING:
         SafetyRecord,
         SeriesPoint,
         StepRecord,
-        StoredMeasurement,
     )
     from sequencer.store.rows import EXPORT_COLUMNS, RUN_COLUMNS, format_rows, run_rows
     from sequencer.store.sqlite_files import DEFAULT_URL, default_url

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import dataclasses
 import functools
+import math
 from collections import defaultdict
 from collections.abc import Iterable, Mapping
 from datetime import datetime
@@ -19,6 +20,7 @@ from drivers.trace import META_NOT_STORED, Trace
 from sequencer.errors import StoreError
 from sequencer.events import InstrumentInfo
 from sequencer.inputs import TEXT_KINDS, RunInput, manifest_digest
+from sequencer.records import Measurement as MeasurementRecord
 from sequencer.store.models import (
     Annotation,
     Document,
@@ -39,7 +41,6 @@ from sequencer.store.records import (
     RunRecord,
     SeriesPoint,
     StepRecord,
-    StoredMeasurement,
 )
 from sequencer.store.records import (
     SafetyRecord as SafetyRecordOut,
@@ -224,11 +225,14 @@ def _measurement_query(clauses: Iterable[ColumnElement[bool]]) -> Select[Any]:
     )
 
 
-def _stored_measurement(m: Any) -> StoredMeasurement:
-    return _record(StoredMeasurement, m)
+def _stored_measurement(m: Any) -> MeasurementRecord:
+    """The one boundary of a missing value on the way out: SQL NULL reads back as NaN
+    (``recording`` writes NaN as NULL); see ``sequencer.records``."""
+    value = m["value"]
+    return _record(MeasurementRecord, m, value=math.nan if value is None else float(value))
 
 
-def measurements(conn: Connection, **filters: Any) -> list[StoredMeasurement]:
+def measurements(conn: Connection, **filters: Any) -> list[MeasurementRecord]:
     """Measurements of the runs matching ``run_filters(**filters)``, by run then as recorded."""
     query = _measurement_query(run_filters(**filters))
     return [_stored_measurement(m) for m in conn.execute(query).mappings()]
@@ -239,7 +243,7 @@ def completed_steps(conn: Connection, run_id: int) -> dict[str, CompletedStep]:
     by_step_traces: dict[str, list[Trace]] = defaultdict(list)
     for t in conn.execute(_trace_query(run_id)).mappings():
         by_step_traces[t["path"]].append(stored_trace(t))
-    by_step_ms: dict[str, list[StoredMeasurement]] = defaultdict(list)
+    by_step_ms: dict[str, list[MeasurementRecord]] = defaultdict(list)
     for m in conn.execute(_measurement_query([Measurement.run_id == run_id])).mappings():
         by_step_ms[m["path"]].append(_stored_measurement(m))
     labels = step_labels(conn, run_id)

@@ -9,6 +9,7 @@ from typing import Any
 
 from drivers.trace import Trace
 from sequencer.events import InstrumentInfo, RunInfo
+from sequencer.records import Measurement
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -60,26 +61,6 @@ class RunRecord:
 
 
 @dataclass(frozen=True, kw_only=True)
-class StoredMeasurement:
-    """One judged value with the run and step it belongs to."""
-
-    run_id: int
-    path: str
-    quantity: str
-    value: float | None
-    unit: str
-    uncertainty: float | None
-    channel: int | None
-    output: str | None
-    aggressor: int | None
-    low: float | None
-    high: float | None
-    verdict: str
-    qualifier: str = ""  # "within uncertainty" when value ± U straddles a limit (decision rule)
-    reason: str = ""     # why the value is None (NaN): the analysis's refusal, in words
-
-
-@dataclass(frozen=True, kw_only=True)
 class CompletedStep:
     """A completed step of a run, everything the engine needs to replay it on resume."""
 
@@ -90,7 +71,7 @@ class CompletedStep:
     settings: Mapping[str, Any]
     results: Mapping[str, Any]
     traces: tuple[Trace, ...]  # the one trace record (drivers.trace), with name, labels and path
-    measurements: tuple[StoredMeasurement, ...]
+    measurements: tuple[Measurement, ...]  # the one measurement record (sequencer.records)
     labels: Mapping[str, Any] = field(default_factory=dict)   # channel, output, sweep values (typed)
 
 

@@ -21,6 +21,7 @@ from drivers.trace import Trace
 from sequencer.errors import StoreError
 from sequencer.events import Event, RunInfo
 from sequencer.inputs import RunInput
+from sequencer.records import Measurement
 from sequencer.store import bench_lease, lease, lifecycle, queries
 from sequencer.store.connect import (
     DEFAULT_BUSY_TIMEOUT_S,
@@ -40,7 +41,6 @@ from sequencer.store.records import (
     SafetyRecord,
     SeriesPoint,
     StepRecord,
-    StoredMeasurement,
 )
 
 
@@ -258,7 +258,7 @@ class Store:
         procedure: str | None = None,
         since: datetime | None = None,
         until: datetime | None = None,
-    ) -> list[StoredMeasurement]:
+    ) -> list[Measurement]:
         filters: dict[str, Any] = dict(run_id=run_id, board=board, procedure=procedure)
         with self._read("cannot read measurements") as conn:
             return queries.measurements(conn, **filters, since=since, until=until)

@@ -99,7 +99,7 @@ def verdict_grid(measurements: list[Any], channels: int) -> dict[str, Any]:
         if m.channel is not None:
             columns.setdefault(key, None)
         old = target.get(where)
-        value = None if m.value is None or not math.isfinite(m.value) else float(m.value)
+        value = float(m.value) if math.isfinite(m.value) else None  # NaN: not measured
         new = {"verdict": m.verdict, "value": value, "unit": m.unit, "n": 1 + (old["n"] if old else 0)}
         if old and VERDICT_RANK.get(old["verdict"], 0) >= VERDICT_RANK.get(m.verdict, 0):
             new = {**old, "n": new["n"]}  # the worst verdict of the cell stays

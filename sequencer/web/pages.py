@@ -103,12 +103,12 @@ def measurement_rows(measurements: list[Any]) -> list[dict[str, Any]]:
     (``fail (within uncertainty)``), and beside a value not measured, the reason it was refused."""
     rows = []
     for m in measurements:
-        value, unc = format_measured(m.value, m.uncertainty)
+        value, unc = format_measured(m.value if m.measured else None, m.uncertainty)
         qualifier = m.qualifier
         rows.append({
             "m": m, "value": value, "uncertainty": unc, "limits": format_limits(m.low, m.high),
             "verdict": f"{m.verdict} ({qualifier})" if qualifier else m.verdict,
-            "reason": m.reason if m.value is None else "",
+            "reason": "" if m.measured else m.reason,
         })  # fmt: skip
     return rows
 

@@ -64,7 +64,7 @@ def _agree(a: Any, b: Any) -> bool:
         return False
     if a.quantity not in DISCRIMINATOR or a.value == b.value:
         return True
-    if a.value is None or b.value is None:
+    if not (a.measured and b.measured):
         return False
     u = math.hypot(a.uncertainty or 0.0, b.uncertainty or 0.0)
     return abs(a.value - b.value) <= 3 * u

@@ -143,7 +143,7 @@ def test_dead_channel_fails_what_a_lab_expects(run):
     # its gain is indistinguishable from zero, so no noise is referred to the input through it:
     # the figure is absent (NaN, stored as NULL), not RMS divided by ~0
     noise = [m for m in ms if m.channel == DEAD and m.quantity == "noise_in_mV"]
-    assert len(noise) == 2 and all(m.value is None for m in noise), noise
+    assert len(noise) == 2 and all(not m.measured for m in noise), noise
 
 
 def test_shipped_example_board_passes_with_exit_code_zero(tmp_path):

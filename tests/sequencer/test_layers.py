@@ -4,6 +4,8 @@ down only.  Checked on the absolute import statements of every module (AST, not 
 from __future__ import annotations
 
 import ast
+import subprocess
+import sys
 from pathlib import Path
 
 import pytest
@@ -15,6 +17,7 @@ LEAVES = {
     "drivers.errors", "drivers.yamlsafe", "sequencer.errors", "sequencer.events", "sequencer.quantities",
     "sequencer.inputs", "drivers.timing",
     "drivers.trace",  # the one trace record (numpy only) that engine, store and reports share
+    "sequencer.records",  # the one measurement and step-result records (stdlib only), likewise shared
 }
 
 # package -> project modules (prefixes) it may import, besides itself and the leaves.
@@ -64,3 +67,13 @@ def test_imports_point_down(package: str) -> None:
             if _within(name, FORBIDDEN.get(package, set())) or not _within(name, ALLOWED[package]):
                 offenders.append(f"{path.relative_to(SEQUENCER)} imports {name}")
     assert offenders == []
+
+
+def test_shared_records_need_only_the_standard_library() -> None:
+    """``sequencer.records`` is shared by the light read path, which must not pay for numpy or
+    SQLAlchemy: importing it in a fresh interpreter loads neither (nor the numpy trace module)."""
+    probe = ("import sys, sequencer.records; "
+             "print(sorted(m for m in ('numpy', 'sqlalchemy', 'drivers.trace') if m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True,
+                         cwd=SEQUENCER.parent, timeout=120)  # a deadline, not a speed assertion
+    assert out.stdout.strip() == "[]"
