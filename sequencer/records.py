@@ -2,7 +2,9 @@
 
 A leaf module (standard library only): ``sequencer.engine``, ``sequencer.store`` (its light read path
 included) and ``sequencer.reports`` import it without importing each other, numpy or SQLAlchemy.
-A trace is ``drivers.trace.Trace``; a measurement is ``Measurement`` below.
+A trace is ``drivers.trace.Trace``; a measurement is ``Measurement`` and a step's result
+``StepResult`` below (the engine's handlers make one; the store gives one back per completed step,
+and resume replays it as it is).
 
 A missing value has one spelling everywhere: ``value`` is NaN and ``reason`` says why (what the
 analysis refused). ``Measurement.measured`` is the test for it. The database keeps a missing value as
@@ -13,8 +15,13 @@ nowhere else.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
-from typing import Literal
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from datetime import datetime
+from typing import TYPE_CHECKING, Any, Literal
+
+if TYPE_CHECKING:  # a type only: drivers.trace imports numpy
+    from drivers.trace import Trace
 
 Verdict = Literal["pass", "fail", "info"]
 
@@ -48,4 +55,25 @@ class Measurement:
         return not math.isnan(self.value)
 
 
-__all__ = ["Measurement", "Verdict"]
+@dataclass(frozen=True, kw_only=True)
+class StepResult:
+    """What a step produced: a handler's result, or what the store kept of a completed step.
+
+    ``results`` is JSON-able; its ``readings`` entry (name -> value) feeds the context, so a
+    replayed step restores exactly what the live step gave the later analysis steps. A handler
+    leaves ``path``, ``kind``, the times and ``labels`` empty (the plan's step has them); the store
+    fills them in from the step's row.
+    """
+
+    results: Mapping[str, Any] = field(default_factory=dict)
+    traces: Sequence[Trace] = ()  # each with its name and its step's labels
+    measurements: Sequence[Measurement] = ()
+    settings: Mapping[str, Any] = field(default_factory=dict)
+    path: str = ""
+    kind: str = ""
+    started_at: datetime | None = None
+    finished_at: datetime | None = None
+    labels: Mapping[str, Any] = field(default_factory=dict)   # channel, output, sweep values (typed)
+
+
+__all__ = ["Measurement", "StepResult", "Verdict"]

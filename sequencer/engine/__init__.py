@@ -7,12 +7,11 @@ from __future__ import annotations
 
 from .preflight import bench_problems, build_caution, check_plan_against_bench
 from .provenance import describe_run
-from .records import Caution, CompletedStepLike, RunOptions, RunOutcome, StepResult
+from .records import Caution, RunOptions, RunOutcome, StepResult
 from .runner import Runner
 
 __all__ = [
     "Caution",
-    "CompletedStepLike",
     "RunOptions",
     "RunOutcome",
     "Runner",

@@ -6,12 +6,11 @@ its flags and hands it to :class:`~sequencer.engine.runner.Runner`.
 
 from __future__ import annotations
 
-from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass, field
-from typing import Any, Literal, Protocol
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Literal
 
-from drivers.trace import Trace
-from sequencer.events import Measurement
+from sequencer.records import StepResult as StepResult  # re-exported: the one step-result record
 
 DEFAULT_INTERLOCK_INTERVAL_S = 0.25
 """How often the interlock watcher reads the bias supply while a voltage is live."""
@@ -75,27 +74,4 @@ class RunOutcome:
     warnings: tuple[str, ...] = ()  # e.g. safety events the results database did not take
 
 
-@dataclass(frozen=True, kw_only=True)
-class StepResult:
-    """What a step handler produced.
-
-    ``results`` is JSON-able; its ``readings`` entry (name -> value) feeds the context, so a
-    replayed step restores exactly what the live step gave the later analysis steps.
-    """
-
-    results: Mapping[str, Any] = field(default_factory=dict)
-    traces: Sequence[Trace] = ()  # each with its name and its step's labels
-    measurements: Sequence[Measurement] = ()
-    settings: Mapping[str, Any] = field(default_factory=dict)
-
-
 EMPTY_RESULT = StepResult()
-
-
-class CompletedStepLike(Protocol):
-    """What the store kept of a completed step (``Store.completed_steps``)."""
-
-    kind: str
-    results: Mapping[str, Any]
-    traces: Sequence[Trace]  # the same record the step produced, as the store returns it
-    measurements: Sequence[Measurement]

@@ -7,7 +7,7 @@ from dataclasses import replace
 from sequencer.procedure.kinds import KINDS
 from sequencer.procedure.plan_model import PlannedStep
 
-from .records import CompletedStepLike, StepResult
+from .records import StepResult
 
 
 def yields_data(kind_name: str) -> bool:
@@ -23,7 +23,7 @@ def reexecuted_on_resume(step: PlannedStep) -> bool:
     return kind.configures or (step.block in ("setup", "cleanup") and not yields_data(step.kind))
 
 
-def result_from_store(step: PlannedStep, done: CompletedStepLike) -> StepResult:
+def result_from_store(step: PlannedStep, done: StepResult) -> StepResult:
     """The result a completed step gave, rebuilt from the store."""
     traces = [replace(t, labels=dict(t.labels or step.labels)) for t in done.traces]
     return StepResult(

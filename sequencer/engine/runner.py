@@ -31,7 +31,7 @@ from .context import Reading, RunContext, StopFlag
 from .faults import FAULTS, describe_fault
 from .preflight import check_plan_against_bench, hazard_steps
 from .provenance import describe_run
-from .records import CompletedStepLike, RunOptions, RunOutcome, StepResult
+from .records import RunOptions, RunOutcome, StepResult
 from .replay import reexecuted_on_resume, result_from_store, yields_data
 from .safety import BiasGuard
 from .signals import stop_on_signals
@@ -70,7 +70,7 @@ class Runner:
         run_id: int,
         subscribers: Sequence[Callable[[Event], None]],
         options: RunOptions,
-        completed: Mapping[str, CompletedStepLike] | None = None,
+        completed: Mapping[str, StepResult] | None = None,  # Store.completed_steps
         clock: Callable[[], datetime] = utc_now,
         info: RunInfo | None = None,
         stop: StopFlag | None = None,

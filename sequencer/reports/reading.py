@@ -11,9 +11,8 @@ from datetime import datetime
 from typing import Protocol, runtime_checkable
 
 from sequencer.inputs import RunInput
-from sequencer.records import Measurement
+from sequencer.records import Measurement, StepResult
 from sequencer.store.records import (
-    CompletedStep,
     RunRecord,
     SafetyRecord,
     SeriesPoint,
@@ -37,7 +36,7 @@ class StoreReader(Protocol):
         until: datetime | None = None,
     ) -> list[Measurement]: ...
 
-    def completed_steps(self, run_id: int) -> dict[str, CompletedStep]: ...
+    def completed_steps(self, run_id: int) -> dict[str, StepResult]: ...
 
     def safety_events(self, run_id: int) -> list[SafetyRecord]: ...
 

@@ -29,7 +29,6 @@ _WHERE = {
     "run_rows": "sequencer.store.rows",
     "export_rows": "sequencer.store.export",
     "Annotation": "sequencer.store.records",
-    "CompletedStep": "sequencer.store.records",
     "RunRecord": "sequencer.store.records",
     "SafetyRecord": "sequencer.store.records",
     "SeriesPoint": "sequencer.store.records",
@@ -42,7 +41,6 @@ __all__ = [
     "EXPORT_COLUMNS",
     "RUN_COLUMNS",
     "Annotation",
-    "CompletedStep",
     "RunRecord",
     "SafetyRecord",
     "SeriesPoint",
@@ -58,7 +56,6 @@ if TYPE_CHECKING:
     from sequencer.store.export import export_rows
     from sequencer.store.records import (
         Annotation,
-        CompletedStep,
         RunRecord,
         SafetyRecord,
         SeriesPoint,

@@ -21,6 +21,7 @@ from sequencer.errors import StoreError
 from sequencer.events import InstrumentInfo
 from sequencer.inputs import TEXT_KINDS, RunInput, manifest_digest
 from sequencer.records import Measurement as MeasurementRecord
+from sequencer.records import StepResult
 from sequencer.store.models import (
     Annotation,
     Document,
@@ -37,7 +38,6 @@ from sequencer.store.records import (
     Annotation as AnnotationRecord,
 )
 from sequencer.store.records import (
-    CompletedStep,
     RunRecord,
     SeriesPoint,
     StepRecord,
@@ -238,7 +238,7 @@ def measurements(conn: Connection, **filters: Any) -> list[MeasurementRecord]:
     return [_stored_measurement(m) for m in conn.execute(query).mappings()]
 
 
-def completed_steps(conn: Connection, run_id: int) -> dict[str, CompletedStep]:
+def completed_steps(conn: Connection, run_id: int) -> dict[str, StepResult]:
     """Path -> completed step with its settings, results, traces and measurements."""
     by_step_traces: dict[str, list[Trace]] = defaultdict(list)
     for t in conn.execute(_trace_query(run_id)).mappings():
@@ -253,7 +253,7 @@ def completed_steps(conn: Connection, run_id: int) -> dict[str, CompletedStep]:
         .order_by(Step.id)
     )
     return {
-        s["path"]: CompletedStep(
+        s["path"]: StepResult(
             labels=labels.get(s["id"], {}),
             path=s["path"],
             kind=s["kind"],

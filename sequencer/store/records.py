@@ -3,13 +3,11 @@
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
 
-from drivers.trace import Trace
 from sequencer.events import InstrumentInfo, RunInfo
-from sequencer.records import Measurement
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -58,21 +56,6 @@ class RunRecord:
             batch=self.batch,
             repeat_of=self.repeat_of,
         )
-
-
-@dataclass(frozen=True, kw_only=True)
-class CompletedStep:
-    """A completed step of a run, everything the engine needs to replay it on resume."""
-
-    path: str
-    kind: str
-    started_at: datetime
-    finished_at: datetime
-    settings: Mapping[str, Any]
-    results: Mapping[str, Any]
-    traces: tuple[Trace, ...]  # the one trace record (drivers.trace), with name, labels and path
-    measurements: tuple[Measurement, ...]  # the one measurement record (sequencer.records)
-    labels: Mapping[str, Any] = field(default_factory=dict)   # channel, output, sweep values (typed)
 
 
 @dataclass(frozen=True, kw_only=True)

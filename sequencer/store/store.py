@@ -21,7 +21,7 @@ from drivers.trace import Trace
 from sequencer.errors import StoreError
 from sequencer.events import Event, RunInfo
 from sequencer.inputs import RunInput
-from sequencer.records import Measurement
+from sequencer.records import Measurement, StepResult
 from sequencer.store import bench_lease, lease, lifecycle, queries
 from sequencer.store.connect import (
     DEFAULT_BUSY_TIMEOUT_S,
@@ -36,7 +36,6 @@ from sequencer.store.migrate import current_revisions, ensure_schema, refuse_old
 from sequencer.store.recording import Recorder
 from sequencer.store.records import (
     Annotation,
-    CompletedStep,
     RunRecord,
     SafetyRecord,
     SeriesPoint,
@@ -242,7 +241,7 @@ class Store:
         with self._read(f"cannot read steps of run {run_id}") as conn:
             return queries.steps(conn, run_id)
 
-    def completed_steps(self, run_id: int) -> dict[str, CompletedStep]:
+    def completed_steps(self, run_id: int) -> dict[str, StepResult]:
         """Path -> completed step with settings, results, traces and measurements (for resume)."""
         with self._read(f"cannot read steps of run {run_id}") as conn:
             return queries.completed_steps(conn, run_id)

@@ -8,7 +8,7 @@ import signal
 
 import pytest
 
-from sequencer.engine import Runner, RunOptions, check_plan_against_bench
+from sequencer.engine import Runner, RunOptions, StepResult, check_plan_against_bench
 from sequencer.errors import RunAborted
 from sequencer.events import (
     MeasurementMade,
@@ -180,16 +180,9 @@ def test_sigterm_becomes_an_abort_with_cleanup_and_handlers_restored():
     assert signal.getsignal(signal.SIGTERM) is before
 
 
-class Done:
-    """What a store keeps of a completed step (the CompletedStepLike protocol)."""
-
-    def __init__(self, kind, results=None, traces=(), measurements=()):
-        self.kind, self.results, self.traces, self.measurements = (
-            kind,
-            results or {},
-            traces,
-            measurements,
-        )
+def kept(kind, results=None, traces=(), measurements=()):
+    """What a store keeps of a completed step: the one step-result record (sequencer.records)."""
+    return StepResult(kind=kind, results=results or {}, traces=traces, measurements=measurements)
 
 
 def test_resume_reapplies_configuring_steps_and_replays_readings():
@@ -204,9 +197,9 @@ def test_resume_reapplies_configuring_steps_and_replays_readings():
         ]
     )
     completed = {
-        "setup/route": Done("switch.route"),
-        "amp": Done("pulser.amplitude"),
-        "ask": Done("prompt", results={"readings": {"hv": {"volts": 30.0, "current_A": 6e-9}}}),
+        "setup/route": kept("switch.route"),
+        "amp": kept("pulser.amplitude"),
+        "ask": kept("prompt", results={"readings": {"hv": {"volts": 30.0, "current_A": 6e-9}}}),
     }
 
     def no_prompt(message, wants):
@@ -229,7 +222,7 @@ def test_resume_reapplies_configuring_steps_and_replays_readings():
 def test_resume_refuses_a_changed_step_kind():
     bench = scripted_bench(BenchState())
     p = plan([step("amp", "pulser.amplitude", mV=20.0)])
-    exc, _ = run(p, bench, completed={"amp": Done("pulser.rate")})
+    exc, _ = run(p, bench, completed={"amp": kept("pulser.rate")})
     assert isinstance(exc, RunAborted) and exc.cause == "precondition"
 
 

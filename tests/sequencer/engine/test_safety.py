@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import pytest
 
-from sequencer.engine import Caution, Runner, RunOptions
+from sequencer.engine import Caution, Runner, RunOptions, StepResult
 from sequencer.errors import RunAborted
 from sequencer.events import SafetyEvent
 
@@ -191,9 +191,8 @@ def test_lost_bias_link_is_reported_unsafe_in_capitals():
 
 
 def test_resume_asks_again_before_reapplying_a_ramp():
-    class Done:
-        def __init__(self, kind):
-            self.kind, self.results, self.traces, self.measurements = kind, {}, (), ()
+    def kept(kind):
+        return StepResult(kind=kind)
 
     state = BenchState()
     asked: list[Caution] = []
@@ -201,7 +200,7 @@ def test_resume_asks_again_before_reapplying_a_ramp():
     options = RunOptions(
         operator="B", acknowledge=lambda c: asked.append(c) or True, ramp_poll_s=0.001
     )
-    completed = {"hv/limit": Done("bias.limit"), "hv/up": Done("bias.ramp")}
+    completed = {"hv/limit": kept("bias.limit"), "hv/up": kept("bias.ramp")}
     out = Runner(
         hv_plan(), bench, run_id=4, subscribers=[], options=options, completed=completed
     ).run()
