@@ -23,12 +23,12 @@ from __future__ import annotations
 import contextlib
 import itertools
 import socket
-import socketserver
 import struct
 import threading
 from dataclasses import dataclass, field
 
 from drivers.sim.server import MAX_LINE, InstrumentServer
+from drivers.sim.tcp_serving import ConnectionServer
 
 HEADER = struct.Struct("!2sBBIQ")
 MAX_PAYLOAD = 1 << 24  # a larger announced payload is not a client we serve
@@ -83,25 +83,6 @@ def _exactly(sock: socket.socket, n: int) -> bytes | None:
     return bytes(data)
 
 
-class _Handler(socketserver.BaseRequestHandler):
-    server: _TcpServer
-
-    def handle(self) -> None:
-        sock: socket.socket = self.request
-        sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
-        self.server.owner.serve_channel(sock)
-
-
-class _TcpServer(socketserver.ThreadingTCPServer):
-    allow_reuse_address = True
-    daemon_threads = True
-    block_on_close = False
-
-    def __init__(self, address: tuple[str, int], owner: HislipServer) -> None:
-        self.owner = owner
-        super().__init__(address, _Handler)
-
-
 class HislipServer:
     """Serves one instrument (through its raw-socket :class:`InstrumentServer`) over HiSLIP."""
 
@@ -111,7 +92,7 @@ class HislipServer:
         self._ids = itertools.count(1)
         self._lock = threading.Lock()
         self._stopping = threading.Event()
-        self._tcp = _TcpServer((host, port), self)
+        self._tcp = ConnectionServer((host, port), self.serve_channel)
         self._thread: threading.Thread | None = None
 
     @property

@@ -11,37 +11,13 @@ from __future__ import annotations
 
 import contextlib
 import socket
-import socketserver
 import threading
 
 from drivers.sim.faults import FaultRunner
 from drivers.sim.instrument import SimInstrument
+from drivers.sim.tcp_serving import ConnectionServer
 
 MAX_LINE = 1 << 20
-
-
-class _Handler(socketserver.BaseRequestHandler):
-    server: _TcpServer
-
-    def handle(self) -> None:
-        sock: socket.socket = self.request
-        sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
-        owner = self.server.owner
-        owner.track(sock, True)
-        try:
-            owner.serve_client(sock)
-        finally:
-            owner.track(sock, False)
-
-
-class _TcpServer(socketserver.ThreadingTCPServer):
-    allow_reuse_address = True
-    daemon_threads = True
-    block_on_close = False  # client threads are joined by InstrumentServer.stop
-
-    def __init__(self, address: tuple[str, int], owner: InstrumentServer) -> None:
-        self.owner = owner
-        super().__init__(address, _Handler)
 
 
 class InstrumentServer:
@@ -62,9 +38,17 @@ class InstrumentServer:
         self._stopping = threading.Event()
         self._clients: dict[socket.socket, threading.Thread] = {}
         self._clients_lock = threading.Lock()
-        self._tcp = _TcpServer((host, port), self)
+        self._tcp = ConnectionServer((host, port), self._serve_tracked)
         self._thread: threading.Thread | None = None
         instrument.sleep = self._sleep_unlocked
+
+    def _serve_tracked(self, sock: socket.socket) -> None:
+        """Serves one client, known to :meth:`stop` (which closes and joins it) while it lasts."""
+        self.track(sock, True)
+        try:
+            self.serve_client(sock)
+        finally:
+            self.track(sock, False)
 
     @property
     def port(self) -> int:

@@ -32,7 +32,6 @@ from __future__ import annotations
 import contextlib
 import itertools
 import socket
-import socketserver
 import struct
 import threading
 from collections.abc import Callable
@@ -41,6 +40,7 @@ from dataclasses import dataclass, field
 from pyvisa_py.protocols import rpc
 
 from drivers.sim.server import MAX_LINE, InstrumentServer
+from drivers.sim.tcp_serving import ConnectionServer
 
 #: VXI-11 core channel program and version (VXI-11 rev 1.0, B.6).
 DEVICE_CORE_PROG, DEVICE_CORE_VERS = 0x0607AF, 1
@@ -66,25 +66,6 @@ PROG_UNAVAIL, PROG_MISMATCH, PROC_UNAVAIL, GARBAGE_ARGS = 1, 2, 3, 4
 class _Link:
     partial: bytearray = field(default_factory=bytearray)
     output: bytearray = field(default_factory=bytearray)
-
-
-class _Handler(socketserver.BaseRequestHandler):
-    server: _TcpServer
-
-    def handle(self) -> None:
-        sock: socket.socket = self.request
-        sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
-        self.server.owner.serve_connection(sock)
-
-
-class _TcpServer(socketserver.ThreadingTCPServer):
-    allow_reuse_address = True
-    daemon_threads = True
-    block_on_close = False
-
-    def __init__(self, address: tuple[str, int], owner: Vxi11Server) -> None:
-        self.owner = owner
-        super().__init__(address, _Handler)
 
 
 class _Drop(Exception):
@@ -138,7 +119,7 @@ class Vxi11Server:
         self._lock = threading.Lock()
         self._stopping = threading.Event()
         self._connections: set[socket.socket] = set()
-        self._tcp = _TcpServer((host, port), self)
+        self._tcp = ConnectionServer((host, port), self.serve_connection)
         self._thread: threading.Thread | None = None
         self._procedures: dict[int, Callable[[rpc.Unpacker, rpc.Packer], None]] = {
             CREATE_LINK: self._create_link,
