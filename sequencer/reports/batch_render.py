@@ -50,7 +50,8 @@ def _histograms(s: BatchSummary) -> list[tuple[str, bytes]]:
     out = []
     for q in s.stats:
         group = f", {q.group} channels" if q.group else ""
-        title = q.quantity + (f" ({q.output}{group})" if q.output else "") + f": {q.n} values"
+        kind = f" [{q.board_type}]" if q.board_type else ""
+        title = q.quantity + kind + (f" ({q.output}{group})" if q.output else "") + f": {q.n} values"
         out.append((title, plotter.histogram(q.values, q.low, q.high, title, q.unit)))
     return out
 

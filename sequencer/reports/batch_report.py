@@ -7,7 +7,9 @@ channels.  A run whose values all belong to the module as a whole (a coincidence
 one "channel", the module (``MODULE_CHANNEL``, printed ``module``).
 
 Outliers (robust, also inside the limits): a value is an outlier when
-``|x - median| > outlier_sigma · 1.4826 · MAD`` over the batch's values of that quantity and output,
+``|x - median| > outlier_sigma · 1.4826 · MAD`` over the batch's values of that quantity and output
+(and board type, when the batch holds boards of more than one type: an inverted type's negative gains
+are a population of their own, not outliers of the other's),
 MAD the median absolute deviation (1.4826 = 1/Φ⁻¹(3/4) makes it estimate σ of a normal distribution;
 P. J. Huber, *Robust Statistics*, 1981, from memory).  ``DEFAULT_OUTLIER_SIGMA`` 3.5 is the cut of
 B. Iglewicz and D. C. Hoaglin, *How to Detect and Handle Outliers*, ASQC 1993 (from memory).
@@ -43,6 +45,9 @@ class QuantityStats:
     group: str  # "" or, for crosstalk, "adjacent" / "distant" (module docstring)
     unit: str
     n: int
+    #: The board type of this population when the batch holds more than one type ("" otherwise):
+    #: boards of different types (an inverted board's negative gain) are never pooled.
+    board_type: str = ""
     median: float
     robust_sigma: float  # 1.4826 · MAD
     mean: float
@@ -102,14 +107,16 @@ def batch_summary(
     if not outlier_sigma > 0:
         raise ValueError(f"outlier_sigma must be > 0, got {outlier_sigma}")
     runs = _latest_runs(store.runs_of_batch(batch))
-    groups: dict[tuple[str, str | None, str], list[tuple[str, Any]]] = defaultdict(list)
+    mixed = len({r.board_type for r in runs}) > 1
+    groups: dict[tuple[str, str | None, str, str], list[tuple[str, Any]]] = defaultdict(list)
     failed: list[FailedChannel] = []
     channels = passed = 0
     for run in runs:
         ms = store.measurements(run_id=run.id)
         for m in ms:
             if math.isfinite(m.value):  # NaN: not measured (sequencer.records)
-                groups[(m.quantity, m.output, value_group(m))].append((run.board, m))
+                kind = run.board_type if mixed else ""
+                groups[(m.quantity, m.output, value_group(m), kind)].append((run.board, m))
         board_fails = [_reason(m) for m in ms if m.channel is None and m.verdict == "fail"]
         for ch in judged_channels(m.channel for m in ms):  # a module as a whole: once
             channels += 1
@@ -127,7 +134,7 @@ def batch_summary(
             else:
                 passed += 1
     stats, outliers = [], []
-    for key in sorted(groups, key=lambda k: (quantity_rank(k[0]), k[0], k[1] or "", k[2])):
+    for key in sorted(groups, key=lambda k: (quantity_rank(k[0]), k[0], k[1] or "", k[2], k[3])):
         s, out = _stats(key, groups[key], outlier_sigma)
         stats.append(s)
         outliers += out
@@ -151,8 +158,9 @@ def value_group(m: Any) -> str:
 
 
 def label(q: QuantityStats) -> str:
-    """``crosstalk_pct (adjacent)``; the plain name for a quantity of one population."""
-    return q.quantity + (f" ({q.group})" if q.group else "")
+    """``crosstalk_pct (adjacent)``; the plain name for a quantity of one population; in a batch of
+    several board types, the type too (``gain [PA8N]``)."""
+    return q.quantity + (f" ({q.group})" if q.group else "") + (f" [{q.board_type}]" if q.board_type else "")
 
 
 def _latest_runs(runs: list[Any]) -> list[Any]:
@@ -171,9 +179,9 @@ def _reason(m: Any) -> str:
 
 
 def _stats(
-    key: tuple[str, str | None, str], rows: list[tuple[str, Any]], k: float
+    key: tuple[str, str | None, str, str], rows: list[tuple[str, Any]], k: float
 ) -> tuple[QuantityStats, list[Outlier]]:
-    quantity, output, group = key
+    quantity, output, group, board_type = key
     x = np.asarray([m.value for _, m in rows], dtype=float)
     median = float(np.median(x))
     robust = MAD_TO_SIGMA * float(np.median(np.abs(x - median)))
@@ -185,6 +193,7 @@ def _stats(
         group=group,
         unit=rows[0][1].unit,
         n=int(x.size),
+        board_type=board_type,
         median=median,
         robust_sigma=robust,
         mean=float(x.mean()),

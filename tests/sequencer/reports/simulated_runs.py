@@ -71,6 +71,7 @@ class RunSpec:
     """What to record; ``gain_scale`` multiplies a channel's true gain (to make a bad channel)."""
 
     board: str = "NR-PA8-0001"
+    board_type: str = "PA8"
     batch: str = "NR-B07"
     channels: int = 8
     seed: int = 7
@@ -95,7 +96,7 @@ def run_info(spec: RunSpec) -> RunInfo:
         procedure_path="procedures/pa8-qualify.yaml",
         bench="bench-2",
         board=spec.board,
-        board_type="PA8",
+        board_type=spec.board_type,
         operator=spec.operator,
         software_version="0.1.0",
         instruments=(

@@ -148,3 +148,39 @@ def test_an_outlier_row_names_its_crosstalk_group_and_aggressor():
     )
     (row,) = outlier_rows(s)
     assert row[2] == "crosstalk_pct (adjacent, from ch 2)"
+
+
+def test_board_types_are_never_pooled(tmp_path):
+    # A batch of two PA8 boards and a board of another type whose gain differs by design (here half;
+    # the demo's inverted type, gain -1, is the same case with a sign): pooled, the healthy channels
+    # of the other type would all sit ~50-100 robust sigma from the median and be listed as
+    # outliers. Each type is its own population (median as numpy computes it on that type alone).
+    with Store.open(f"sqlite:///{tmp_path / 'mixed.db'}") as store:
+        specs = [
+            RunSpec(board="NR-PA8-0001", seed=1, full=False),
+            RunSpec(board="NR-PA8-0002", seed=2, full=False),
+            RunSpec(
+                board="NR-PA8N-0003",
+                board_type="PA8N",
+                seed=3,
+                full=False,
+                gain_scale={ch: 0.5 for ch in range(1, 9)},
+            ),
+        ]
+        for i, spec in enumerate(specs):
+            record_run(store, RunSpec(**{**spec.__dict__, "started_at": T0 + timedelta(hours=i)}))
+        s = batch_summary(store, "NR-B07", outlier_sigma=3.5)
+    gain_x1 = {q.board_type: q for q in s.stats if (q.quantity, q.output) == ("gain", "x1")}
+    assert set(gain_x1) == {"PA8", "PA8N"}
+    assert (gain_x1["PA8"].n, gain_x1["PA8N"].n) == (16, 8)
+    assert gain_x1["PA8N"].median < 0.6 < 0.9 < gain_x1["PA8"].median
+    x = np.asarray(gain_x1["PA8N"].values)
+    assert gain_x1["PA8N"].median == np.median(x)
+    assert not [o for o in s.outliers if o.board == "NR-PA8N-0003" and o.quantity == "gain"]
+    assert "gain [PA8N]" in s.to_text() and "gain [PA8]" in s.to_text()
+
+
+def test_one_board_type_keeps_plain_labels(batch_store):
+    s = batch_summary(batch_store, "NR-B07")
+    assert {q.board_type for q in s.stats} == {""}
+    assert "[PA8]" not in s.to_text()
