@@ -13,6 +13,7 @@ FAST = SafeSettings(poll_s=0.001)
 def live_state(volts: float = 5.0) -> BenchState:
     state = BenchState()
     state.bias.update(setpoint=volts, output=True)
+    state.settle()  # at 5 V when found, whatever the wall clock (it slewed up from 0 V at 1 V/s)
     return state
 
 

@@ -169,6 +169,13 @@ class BenchState:
         moved = min(abs(distance), b["rate"] * (time.monotonic() - self._slew_at))
         return self._slew_from + math.copysign(moved, distance)
 
+    def settle(self) -> None:
+        """The output stands at its set point already: a supply *found* live (the safe-state tests),
+        not one being ramped, so what its meter reads does not depend on how long the test took to
+        reach its first query."""
+        self._slew_from = self.bias["setpoint"] if self.bias["output"] else 0.0
+        self._slew_at = time.monotonic()
+
     def at_setpoint(self) -> bool:
         """True when the output has slewed all the way to the set point."""
         return abs(self._slewed() - self.bias["setpoint"]) < 1e-9
