@@ -28,7 +28,7 @@ import threading
 from dataclasses import dataclass, field
 
 from drivers.sim.server import MAX_LINE, InstrumentServer
-from drivers.sim.tcp_serving import ConnectionServer
+from drivers.sim.tcp_serving import ConnectionServer, receive_exactly
 
 HEADER = struct.Struct("!2sBBIQ")
 MAX_PAYLOAD = 1 << 24  # a larger announced payload is not a client we serve
@@ -60,27 +60,14 @@ def pack(kind: int, control: int = 0, parameter: int = 0, payload: bytes = b"") 
 
 def read_message(sock: socket.socket) -> tuple[int, int, int, bytes] | None:
     """(type, control code, parameter, payload) of the next message; None at end of stream."""
-    head = _exactly(sock, HEADER.size)
+    head = receive_exactly(sock, HEADER.size)
     if head is None:
         return None
     prologue, kind, control, parameter, length = HEADER.unpack(head)
     if prologue != b"HS" or length > MAX_PAYLOAD:
         return None
-    payload = _exactly(sock, length) if length else b""
+    payload = receive_exactly(sock, length) if length else b""
     return None if payload is None else (kind, control, parameter, payload)
-
-
-def _exactly(sock: socket.socket, n: int) -> bytes | None:
-    data = bytearray()
-    while len(data) < n:
-        try:
-            chunk = sock.recv(n - len(data))
-        except OSError:
-            return None
-        if not chunk:
-            return None
-        data += chunk
-    return bytes(data)
 
 
 class HislipServer:

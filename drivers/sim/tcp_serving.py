@@ -30,3 +30,17 @@ class ConnectionServer(socketserver.ThreadingTCPServer):
     def __init__(self, address: tuple[str, int], serve: Callable[[socket.socket], None]) -> None:
         self.serve = serve
         super().__init__(address, _Handler)
+
+
+def receive_exactly(sock: socket.socket, n: int) -> bytes | None:
+    """``n`` bytes from ``sock``; None when the peer closes or the socket fails first."""
+    data = bytearray()
+    while len(data) < n:
+        try:
+            chunk = sock.recv(n - len(data))
+        except OSError:
+            return None
+        if not chunk:
+            return None
+        data += chunk
+    return bytes(data)

@@ -40,7 +40,7 @@ from dataclasses import dataclass, field
 from pyvisa_py.protocols import rpc
 
 from drivers.sim.server import MAX_LINE, InstrumentServer
-from drivers.sim.tcp_serving import ConnectionServer
+from drivers.sim.tcp_serving import ConnectionServer, receive_exactly
 
 #: VXI-11 core channel program and version (VXI-11 rev 1.0, B.6).
 DEVICE_CORE_PROG, DEVICE_CORE_VERS = 0x0607AF, 1
@@ -76,14 +76,14 @@ def read_record(sock: socket.socket) -> bytes | None:
     """One RPC record (its fragments joined); None at end of stream or on a record too long."""
     record = bytearray()
     while True:
-        head = _exactly(sock, 4)
+        head = receive_exactly(sock, 4)
         if head is None:
             return None
         (word,) = _FRAGMENT.unpack(head)
         length = word & 0x7FFF_FFFF
         if len(record) + length > MAX_RECORD:
             return None
-        body = _exactly(sock, length) if length else b""
+        body = receive_exactly(sock, length) if length else b""
         if body is None:
             return None
         record += body
@@ -94,19 +94,6 @@ def read_record(sock: socket.socket) -> bytes | None:
 def send_record(sock: socket.socket, record: bytes) -> None:
     """One RPC record in one fragment."""
     sock.sendall(_FRAGMENT.pack(0x8000_0000 | len(record)) + record)
-
-
-def _exactly(sock: socket.socket, n: int) -> bytes | None:
-    data = bytearray()
-    while len(data) < n:
-        try:
-            chunk = sock.recv(n - len(data))
-        except OSError:
-            return None
-        if not chunk:
-            return None
-        data += chunk
-    return bytes(data)
 
 
 class Vxi11Server:
