@@ -129,6 +129,12 @@ def plan(
     each instrument's timing: from the bench file, --sim a board file's, --timing-from the
     durations of a run already recorded on your bench.
     """
+    if sim_board and bench_path:
+        # each names the timing of the instruments the estimate is made for: the simulated board's
+        # timing: section or the bench file's per instrument; taking one silently misleads
+        raise click.UsageError("give --sim BOARD.yaml or --bench BENCH.yaml, not both: each gives the "
+                               "instruments' timing the estimate is made with (a simulated board's "
+                               "or a real bench's)")
     from sequencer.compose import lab_for, plan_for
     from sequencer.procedure import format_plan, load_procedure
 

@@ -105,3 +105,14 @@ def test_plan_takes_each_instruments_timing_from_the_bench_file(tmp_path):
     bad = runner.invoke(cli, ["plan", str(QUICK), "--bench", str(bench)])
     assert bad.exit_code == 2
     assert f"{bench}:5:" in bad.output and "unknown timing key 'relay_settle'" in bad.output
+
+
+def test_plan_refuses_a_simulated_board_and_a_bench_file_together(tmp_path):
+    # the two give contradicting instrument timings (a simulated board's, a real bench's): the
+    # estimate would silently follow one of them
+    bench = tmp_path / "bench.yaml"
+    bench.write_text("bench: b\ninstruments:\n"
+                     '  scope: {address: "TCPIP0::127.0.0.1::5026::SOCKET"}\n')
+    done = CliRunner().invoke(cli, ["plan", str(QUICK), "--sim", str(BOARD), "--bench", str(bench)])
+    assert done.exit_code == 2
+    assert "--sim" in done.output and "--bench" in done.output and "not both" in done.output
