@@ -87,16 +87,23 @@ def maybe_live_note(lines: Any) -> str:
 @handles_errors
 def batches(db: str | None, fmt: str) -> None:
     """Batches in the database: boards, runs, how many pass or fail, first and last run."""
+    from sequencer.store.lines import as_seen
     from sequencer.store.rows import format_rows, iso_utc
 
     rows = []
     with open_listing(db) as listing:
-        for b in listing.batch_lines():
+        batch_lines = listing.batch_lines()
+        # as ``runs``: a run stored as running whose recorder is gone is judged at read time
+        # (shown interrupted, nothing written), so it is not counted as running
+        gone = listing.gone_recorders() if any(b.running for b in batch_lines) else {}
+        for b in batch_lines:
             lines = listing.run_lines(batch=b.batch)
+            lines = [as_seen(r, gone) for r in lines]
             counts = listing.run_counts([r.id for r in lines])
             verdicts = [counts[r.id].verdict(r.status) for r in lines]
+            running = sum(r.status == "running" for r in lines)
             rows.append({
-                "batch": b.batch, "boards": b.boards, "runs": b.runs, "running": b.running,
+                "batch": b.batch, "boards": b.boards, "runs": b.runs, "running": running,
                 "passed": verdicts.count("pass"), "failed": verdicts.count("fail"),
                 "first": iso_utc(b.first_started), "last": iso_utc(b.last_started),
             })  # fmt: skip

@@ -91,3 +91,25 @@ def test_runs_writes_nothing_and_shows_a_dead_run_as_interrupted(tmp_path: Path)
     assert _digest(db) == before
     with Store.open(url, create=False) as store:
         assert store.get_run(gone).status == "running"  # left to the writers
+
+
+def test_batches_judge_a_gone_recorder_at_read_time_as_runs_does(tmp_path: Path) -> None:
+    """A run stored as running whose recorder went silent 10 minutes ago is not "running" in
+    ``batches`` either (as ``runs`` shows it: interrupted (stale)), while a run whose recorder is
+    this very process, beating now, still is; the file is not written (SHA-256 before and after).
+    Both paths: the light reader (plain URL) and the Store (a URL with a driver option)."""
+    db = tmp_path / "results.db"
+    url = f"sqlite:///{db}"
+    with Store.open(url) as store:
+        gone = store.create_run(run_info("NR-PA8-0010", batch="B-GONE"),
+                                datetime.now(UTC) - timedelta(minutes=10))
+        store.create_run(run_info("NR-PA8-0011", batch="B-LIVE"), datetime.now(UTC))
+        with store.engine.begin() as conn:
+            conn.execute(sa.text("UPDATE runs SET process_tag = 'another-boot:1', heartbeat_at = :b "
+                                 "WHERE id = :i"), {"b": datetime.now(UTC) - timedelta(minutes=10), "i": gone})
+    before = _digest(db)
+    for db_url in (url, url + "?timeout=20"):
+        rows = {r["batch"]: r for r in _json("batches", "--db", db_url)}
+        assert (rows["B-GONE"]["runs"], rows["B-GONE"]["running"]) == (1, 0)
+        assert (rows["B-LIVE"]["runs"], rows["B-LIVE"]["running"]) == (1, 1)
+    assert _digest(db) == before
