@@ -18,7 +18,8 @@ from drivers.trace import Trace
 from sequencer.store.lines import LINE_COLUMNS, BatchLine, RunCounts, RunLine
 from sequencer.store.models import Measurement, Run, Step
 from sequencer.store.models import Trace as TraceRow
-from sequencer.store.queries import run_filters, stored_trace
+from sequencer.store.queries import run_filters
+from sequencer.store.stored import stored_trace
 
 __all__ = ["BatchLine", "RunCounts", "RunLine", "batch_lines", "count_runs", "last_position",
            "latest_trace", "run_counts", "run_lines"]

@@ -6,19 +6,15 @@ apply to the run's start: ``since`` inclusive, ``until`` exclusive, aware dateti
 
 from __future__ import annotations
 
-import dataclasses
-import functools
-import math
 from collections import defaultdict
 from collections.abc import Iterable, Mapping
 from datetime import datetime
-from typing import Any, TypeVar
+from typing import Any
 
 from sqlalchemy import ColumnElement, Connection, Select, select
 
-from drivers.trace import META_NOT_STORED, Trace
+from drivers.trace import Trace
 from sequencer.errors import StoreError
-from sequencer.events import InstrumentInfo
 from sequencer.inputs import TEXT_KINDS, RunInput, manifest_digest
 from sequencer.records import Measurement as MeasurementRecord
 from sequencer.records import StepResult
@@ -45,20 +41,13 @@ from sequencer.store.records import (
 from sequencer.store.records import (
     SafetyRecord as SafetyRecordOut,
 )
-from sequencer.store.tracecodec import decode_samples
-
-R = TypeVar("R")
-
-
-@functools.cache
-def _field_names(cls: type) -> tuple[str, ...]:
-    return tuple(f.name for f in dataclasses.fields(cls))
-
-
-def _record(cls: type[R], row: Mapping[str, Any], **given: Any) -> R:
-    """A ``cls`` from the columns of ``row`` named as its fields; ``given`` supplies the others."""
-    names = _field_names(cls)
-    return cls(**{name: row[name] for name in names if name not in given}, **given)
+from sequencer.store.stored import (
+    label_value,
+    record,
+    run_record,
+    stored_measurement,
+    stored_trace,
+)
 
 
 def run_filters(
@@ -101,49 +90,12 @@ def _run_records(conn: Connection, runs: Select[Any]) -> list[RunRecord]:
             select(Document.sha256, Document.text).where(Document.sha256.in_(docs_of))
         ).all()
     )
-    instruments: dict[int, list[InstrumentInfo]] = defaultdict(list)
+    instruments: dict[int, list[Mapping[str, Any]]] = defaultdict(list)
     for i in conn.execute(
         select(*Instrument.__table__.c).where(Instrument.run_id.in_(ids)).order_by(Instrument.id)
     ).mappings():
-        instruments[i["run_id"]].append(
-            InstrumentInfo(
-                role=i["role"],
-                address=i["address"],
-                maker=i["maker"],
-                model=i["model"],
-                serial=i["serial"],
-                firmware=i["firmware"],
-                calibration_due=i["calibration_due"],
-                calibrated=i["calibrated"],
-            )
-        )
-    return [
-        RunRecord(
-            id=r["id"],
-            procedure=r["procedure"],
-            procedure_version=r["procedure_version"],
-            procedure_sha256=r["procedure_sha256"],
-            procedure_path=r["procedure_path"],
-            procedure_text=texts[r["procedure_doc"]],
-            bench=r["bench"],
-            bench_text=texts.get(r["bench_doc"], "") if r["bench_doc"] else "",
-            board=r["board"],
-            board_type=r["board_type"],
-            batch=r["batch"],
-            operator=r["operator"],
-            software_version=r["software_version"],
-            parameters=r["parameters"],
-            instruments=tuple(instruments[r["id"]]),
-            repeat_of=r["repeat_of"],
-            status=r["status"],
-            reason=r["reason"],
-            started_at=r["started_at"],
-            ended_at=r["ended_at"],
-            host=r["host"],
-            pid=r["pid"],
-        )
-        for r in rows
-    ]
+        instruments[i["run_id"]].append(i)
+    return [run_record(r, texts, instruments[r["id"]]) for r in rows]
 
 
 def _runs(clauses: Iterable[ColumnElement[bool]]) -> Select[Any]:
@@ -171,7 +123,7 @@ def latest_run(conn: Connection, **filters: Any) -> RunRecord | None:
 def steps(conn: Connection, run_id: int) -> list[StepRecord]:
     """Every finished step of a run (completed, failed, skipped), in the order written."""
     query = select(*Step.__table__.c).where(Step.run_id == run_id).order_by(Step.id)
-    return [_record(StepRecord, s) for s in conn.execute(query).mappings()]
+    return [record(StepRecord, s) for s in conn.execute(query).mappings()]
 
 
 def _trace_query(run_id: int) -> Select[Any]:
@@ -181,30 +133,6 @@ def _trace_query(run_id: int) -> Select[Any]:
         .where(TraceRow.run_id == run_id)
         .order_by(TraceRow.id)
     )
-
-
-def stored_trace(t: Mapping[str, Any]) -> Trace:
-    """The trace record of a ``traces`` row joined with its step's path (samples in the dtype
-    they were captured in)."""
-    return Trace(
-        volts=decode_samples(t["data"]),
-        dt_s=t["dt_s"],
-        t0_s=t["t0_s"],
-        source=t["source"],
-        averages=t["averages"],
-        name=t["name"],
-        labels=t["labels"],
-        meta=_stored_meta(t.get("meta")),
-        path=t["path"],
-    )
-
-
-def _stored_meta(meta: Any) -> dict[str, str]:
-    """A stored trace's meta; a row written before revision 0008 kept none, and says so (an
-    analysis that needs the input's rails then refuses it rather than not checking for clipping)."""
-    if meta is None:
-        return {META_NOT_STORED: "stored before the database kept a trace's meta (revision 0008)"}
-    return {str(k): str(v) for k, v in dict(meta).items()}
 
 
 def traces(conn: Connection, run_id: int, path_prefix: str | None = None) -> list[Trace]:
@@ -225,17 +153,10 @@ def _measurement_query(clauses: Iterable[ColumnElement[bool]]) -> Select[Any]:
     )
 
 
-def _stored_measurement(m: Any) -> MeasurementRecord:
-    """The one boundary of a missing value on the way out: SQL NULL reads back as NaN
-    (``recording`` writes NaN as NULL); see ``sequencer.records``."""
-    value = m["value"]
-    return _record(MeasurementRecord, m, value=math.nan if value is None else float(value))
-
-
 def measurements(conn: Connection, **filters: Any) -> list[MeasurementRecord]:
     """Measurements of the runs matching ``run_filters(**filters)``, by run then as recorded."""
     query = _measurement_query(run_filters(**filters))
-    return [_stored_measurement(m) for m in conn.execute(query).mappings()]
+    return [stored_measurement(m) for m in conn.execute(query).mappings()]
 
 
 def completed_steps(conn: Connection, run_id: int) -> dict[str, StepResult]:
@@ -245,7 +166,7 @@ def completed_steps(conn: Connection, run_id: int) -> dict[str, StepResult]:
         by_step_traces[t["path"]].append(stored_trace(t))
     by_step_ms: dict[str, list[MeasurementRecord]] = defaultdict(list)
     for m in conn.execute(_measurement_query([Measurement.run_id == run_id])).mappings():
-        by_step_ms[m["path"]].append(_stored_measurement(m))
+        by_step_ms[m["path"]].append(stored_measurement(m))
     labels = step_labels(conn, run_id)
     query = (
         select(*Step.__table__.c)
@@ -289,7 +210,7 @@ def quantity_series(
         query = query.where(Measurement.channel == channel)
     if output is not None:
         query = query.where(Measurement.output == output)
-    return [_record(SeriesPoint, m) for m in conn.execute(query).mappings()]
+    return [record(SeriesPoint, m) for m in conn.execute(query).mappings()]
 
 
 def annotations(
@@ -301,7 +222,7 @@ def annotations(
     )
     if notes_only:
         query = query.where(Annotation.kind == "note")
-    return [_record(AnnotationRecord, a) for a in conn.execute(query).mappings()]
+    return [record(AnnotationRecord, a) for a in conn.execute(query).mappings()]
 
 
 def safety_events(conn: Connection, run_id: int) -> list[SafetyRecordOut]:
@@ -310,7 +231,7 @@ def safety_events(conn: Connection, run_id: int) -> list[SafetyRecordOut]:
         .where(SafetyRecord.run_id == run_id)
         .order_by(SafetyRecord.id)
     )
-    return [_record(SafetyRecordOut, s) for s in conn.execute(query).mappings()]
+    return [record(SafetyRecordOut, s) for s in conn.execute(query).mappings()]
 
 
 def run_inputs(conn: Connection, run_id: int) -> tuple[RunInput, ...]:
@@ -346,14 +267,6 @@ def text_digests(conn: Connection, procedure: str, version: str) -> dict[str, in
     return found
 
 
-_LABEL_VALUE = {
-    "int": lambda number, _text: int(number),
-    "float": lambda number, _text: float(number),
-    "bool": lambda number, _text: bool(number),
-    "text": lambda _number, text: text,
-}
-
-
 def step_labels(conn: Connection, run_id: int) -> dict[int, dict[str, Any]]:
     """Step id -> its labels with their types restored (int, float, bool, text)."""
     found: dict[int, dict[str, Any]] = defaultdict(dict)
@@ -363,5 +276,5 @@ def step_labels(conn: Connection, run_id: int) -> dict[int, dict[str, Any]]:
         .order_by(StepLabel.id)
     )
     for step_id, name, type_, number, text in rows:
-        found[step_id][name] = _LABEL_VALUE[type_](number, text)
+        found[step_id][name] = label_value(type_, number, text)
     return found
