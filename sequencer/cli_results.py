@@ -13,6 +13,7 @@ from sequencer.cli_common import (
     EXIT_FAIL,
     EXIT_INPUT,
     db_option,
+    env,
     existing_run,
     fail,
     handles_errors,
@@ -60,8 +61,12 @@ def _not_completed(run_id: int, status: str, reason: str) -> str:
 def verify(db: str | None, certificate: str) -> None:
     """Check a certificate (PDF or HTML) against the database; exit 1 if anything differs."""
     from sequencer.reports import verify_certificate
+    from sequencer.store.light_records import open_records
+    from sequencer.store.sqlite_files import default_url
 
-    with open_existing_store(db) as store:
+    # an SQLite file is read with the standard library (no SQLAlchemy, alembic); anything else
+    # (PostgreSQL, an older schema, a damaged file) through the Store, as the listings do
+    with open_records(db or default_url(env())) as store:
         result = verify_certificate(store, Path(certificate))
     if result.ok:
         click.echo(f"{certificate}: matches the database (certificate {result.number}, data sha256 {result.data_sha256[:12]})")

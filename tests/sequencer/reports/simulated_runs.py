@@ -31,6 +31,7 @@ from sequencer.events import (
     StepStarted,
     TraceCaptured,
 )
+from sequencer.inputs import RunInput
 
 T0 = datetime(2025, 3, 3, 8, 0, 0, tzinfo=UTC)
 PROCEDURE_TEXT = "procedure: pa8-qualify\nversion: '2.0'\nsteps: []\n"
@@ -85,6 +86,9 @@ class RunSpec:
     #: A supply whose interlock cannot be read: the bench's declaration, recorded with the run's
     #: interlock check and acknowledgement as the bias guard records them ('' = a readable one).
     hardware_interlock: str = ""
+    #: Texts the run used (``sequencer.inputs``) and caveats every certificate prints.
+    inputs: tuple[RunInput, ...] = ()
+    caveats: tuple[str, ...] = ()
 
 
 def run_info(spec: RunSpec) -> RunInfo:
@@ -132,6 +136,8 @@ def run_info(spec: RunSpec) -> RunInfo:
             ),
         ),
         batch=spec.batch,
+        inputs=spec.inputs,
+        caveats=spec.caveats,
     )
 
 
