@@ -326,7 +326,8 @@ def _read_role(role: str, ops: YamlMap, fmt: int, parts: _Parts, problems: list[
             problems.append(Problem(ops.where("waveform", of_key=True),
                                     "'waveform:' belongs to the scope role"))  # fmt: skip
         else:
-            parts.waveform = read_waveform(ops["waveform"], ops.where("waveform"), problems)
+            parts.waveform = read_waveform(ops["waveform"], ops.where("waveform"), problems,
+                                           operations=set(known))  # fmt: skip
 
 
 def _check_byte_order(parts: _Parts, problems: list[Problem]) -> None:

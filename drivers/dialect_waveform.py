@@ -8,6 +8,9 @@ and fetched (the arithmetic itself is :mod:`drivers.scpi.waveform`)::
         fields: {points: 3, x_increment: 5, x_origin: 6, x_reference: 7,
                  y_increment: 8, y_origin: 9, y_reference: 10}
       # preamble: {queries: {x_increment: "WAVeform:XINCrement?", ...}}   # ... or one query each
+      #   cache: true           # keep it between captures (default; drivers/roles/preamble_cache.py)
+      #   affected_by: [set_range, set_offset, set_points, set_sample_rate, set_trigger_delay,
+      #                 set_average_count]   # the writes that may change it (default: every write)
       data: {query: "WAVeform:DATA?", kind: uint8, byte_order: big}     # or encoding: ascii
       chunks: {max_points: 1000000, range: "WAVeform:STARt {start};:WAVeform:STOP {stop}"}
 
@@ -16,7 +19,7 @@ and fetched (the arithmetic itself is :mod:`drivers.scpi.waveform`)::
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Collection, Mapping
 from dataclasses import dataclass
 
 from drivers.dialect_ops import check_template, unknown_keys
@@ -42,11 +45,20 @@ class WaveformSpec:
     select: Template | None = None
     max_points: int | None = None
     chunk_range: Template | None = None
+    #: Keep the preamble between captures; None: every write may change it, else these operations.
+    cache: bool = True
+    affected_by: frozenset[str] | None = None
     location: Location
 
 
-def read_waveform(section: object, where: Location, problems: list[Problem]) -> WaveformSpec | None:
-    """The section, or ``None`` with located problems added."""
+def read_waveform(
+    section: object,
+    where: Location,
+    problems: list[Problem],
+    operations: Collection[str] | None = None,
+) -> WaveformSpec | None:
+    """The section, or ``None`` with located problems added; ``operations``: the role's operation
+    names, which ``preamble.affected_by`` may list."""
     if not isinstance(section, YamlMap):
         problems.append(
             Problem(where, "'waveform:' must be a mapping (select, preamble, data, chunks)")
@@ -61,13 +73,14 @@ def read_waveform(section: object, where: Location, problems: list[Problem]) -> 
     pre = _preamble(section, problems)
     data_query, data = _data(section, problems)
     max_points, chunk_range = _chunks(section, problems, pre)
+    cache, affected_by = _caching(section.get("preamble"), operations, problems)
     if len(problems) > before or data_query is None or data is None or pre is None:
         return None
     query, positions, separator, queries = pre
     return WaveformSpec(preamble_query=query, positions=positions, separator=separator,
                         preamble_queries=queries, data_query=data_query, data=data, select=select,
-                        max_points=max_points, chunk_range=chunk_range,
-                        location=section.where())  # fmt: skip
+                        max_points=max_points, chunk_range=chunk_range, cache=cache,
+                        affected_by=affected_by, location=section.where())  # fmt: skip
 
 
 def _template(
@@ -87,7 +100,8 @@ def _preamble(section: YamlMap, problems: list[Problem]) -> tuple | None:
                                 "waveform needs 'preamble:' with 'query:' and 'fields:', or "
                                 "'queries:'"))  # fmt: skip
         return None
-    unknown_keys(entry, ("query", "fields", "separator", "queries"), "preamble key", problems)
+    unknown_keys(entry, ("query", "fields", "separator", "queries", "cache", "affected_by"),
+                 "preamble key", problems)  # fmt: skip
     if "queries" in entry:
         queries = entry["queries"]
         if not isinstance(queries, YamlMap):
@@ -129,6 +143,31 @@ def _preamble(section: YamlMap, problems: list[Problem]) -> tuple | None:
     if separator not in (",", ";"):
         problems.append(Problem(entry.where("separator"), "preamble separator must be ',' or ';'"))
     return query, positions, separator, None
+
+
+def _caching(
+    entry: object, operations: Collection[str] | None, problems: list[Problem]
+) -> tuple[bool, frozenset[str] | None]:
+    """``cache:`` (true or false) and ``affected_by:`` (a list of the role's write operations)."""
+    if not isinstance(entry, YamlMap):
+        return True, None
+    cache = entry.get("cache", True)
+    if not isinstance(cache, bool):
+        problems.append(Problem(entry.where("cache"), "preamble cache must be true or false"))
+        cache = True
+    if "affected_by" not in entry:
+        return cache, None
+    names = entry["affected_by"]
+    if not isinstance(names, list) or not all(isinstance(n, str) for n in names):
+        problems.append(Problem(entry.where("affected_by"), "preamble affected_by lists the "
+                                "operations that may change it, e.g. [set_range, set_points]"))  # fmt: skip
+        return cache, None
+    unknown = [n for n in names if operations is not None and n not in operations]
+    if unknown:
+        problems.append(Problem(entry.where("affected_by"), f"preamble affected_by: unknown "
+                                f"operation {', '.join(unknown)} (known: "
+                                f"{', '.join(sorted(operations or ()))})"))  # fmt: skip
+    return cache, frozenset(names)
 
 
 def _required(found: Mapping[str, object], where: Location, problems: list[Problem]) -> None:

@@ -1,7 +1,8 @@
 """Oscilloscope / digitizer: input ranges, time base, trigger, averaging, calibrated traces.
 
 A format-2 dialect declares how a record is selected, calibrated and fetched in its ``waveform:``
-section (:mod:`drivers.roles.waveform`).  Format-1 dialects: traces travel as binary blocks (``FORMat:DATA INTeger,16`` with ``FORMat:BORDer NORMal``, sent once
+section (:mod:`drivers.roles.waveform`).  The preamble is kept between captures while no write of ours may have changed it
+(:mod:`drivers.roles.preamble_cache`).  Format-1 dialects: traces travel as binary blocks (``FORMat:DATA INTeger,16`` with ``FORMat:BORDer NORMal``, sent once
 when the scope is opened) and are calibrated with ``TRACe:PREamble?``:
 ``x_increment_s, x_origin_s, y_increment_V, y_origin_V, points, averages``;
 ``volts = code * y_increment + y_origin``, ``t = x_origin + i * x_increment``.
@@ -11,13 +12,14 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from drivers.dialect import Dialect
 from drivers.errors import ProtocolError
 from drivers.roles.base import RoleDriver, check_finite, check_range, check_word
+from drivers.roles.preamble_cache import PreambleCache
 from drivers.roles.waveform import fetch_waveform
 from drivers.scpi.blocks import numpy_dtype
 from drivers.scpi.joined import query_joined
@@ -51,6 +53,21 @@ class Scope(RoleDriver):
             if dialect.has("common", "byte_order"):
                 session.write(dialect.command("common", "byte_order"))
             self._write("set_data_format", kind=dialect.binary.data_format)
+        wave = dialect.waveform
+        #: The preamble kept between captures while no write may have changed it.
+        self.preambles: PreambleCache = PreambleCache(
+            session,
+            enabled=wave.cache if wave is not None else True,
+            affected_by=wave.affected_by if wave is not None else None,
+        )
+
+    def _write(self, op: str, **kwargs: Any) -> None:  # every write of ours passes the cache
+        cache = getattr(self, "preambles", None)
+        if cache is None:  # writes made while opening, before there is anything to keep
+            super()._write(op, **kwargs)
+            return
+        with cache.writing(op):
+            super()._write(op, **kwargs)
 
     def set_input(self, input: int, *, range_mV: float, offset_mV: float = 0.0) -> None:
         """Full-scale range (±range/2) and offset of one input, in mV."""
@@ -99,13 +116,15 @@ class Scope(RoleDriver):
         """Start one acquisition (with its averages) and wait until it is complete (``*OPC?``)."""
         with self.session.lock:
             if self._joins_acquire():  # INIT, *OPC? and the error check: one message
-                query_joined(self.session, [self._command("acquire")], self.session.opc_query,
-                             _operation_complete, timeout_ms=self.session.opc_timeout_ms)  # fmt: skip
-                return
-            # the error check after INIT may wait for the acquisition: the OPC timeout, not the
-            # ordinary one (a 7 s acquisition must not fail on a 5 s link timeout)
-            self._write("acquire", reapply=False, timeout_ms=self.session.opc_timeout_ms)
-            self.session.wait_complete()
+                with self.preambles.writing("acquire"):
+                    query_joined(self.session, [self._command("acquire")], self.session.opc_query,
+                                 _operation_complete, timeout_ms=self.session.opc_timeout_ms)  # fmt: skip
+            else:
+                # the error check after INIT may wait for the acquisition: the OPC timeout, not
+                # the ordinary one (a 7 s acquisition must not fail on a 5 s link timeout)
+                self._write("acquire", reapply=False, timeout_ms=self.session.opc_timeout_ms)
+                self.session.wait_complete()
+            self.preambles.acquired()
 
     def _joins_acquire(self) -> bool:
         """Whether the dialect lets the acquisition's start, the operation-complete query and the
@@ -119,14 +138,22 @@ class Scope(RoleDriver):
         """The last record of ``input`` as a calibrated trace in volts."""
         n = _input(input)
         if self.dialect.waveform is not None:
-            return fetch_waveform(self.session, self.dialect.waveform, n)
+            return fetch_waveform(self.session, self.dialect.waveform, n, self.preambles)
         binary = self.dialect.binary
         with self.session.lock:
-            pre = self._query("preamble", input=n)
-            dtype = numpy_dtype(binary.kind, binary.big_endian)
-            payload = self.session.query_block_bytes(
-                self._command("fetch", input=n), expected_bytes=expected_bytes(pre, dtype.itemsize)
-            )
+            try:
+                pre = self.preambles.get(n)
+                if pre is None:
+                    pre = self._query("preamble", input=n)
+                    self.preambles.put(n, pre)
+                dtype = numpy_dtype(binary.kind, binary.big_endian)
+                payload = self.session.query_block_bytes(
+                    self._command("fetch", input=n),
+                    expected_bytes=expected_bytes(pre, dtype.itemsize),
+                )
+            except BaseException:
+                self.preambles.clear()
+                raise
         if len(payload) % dtype.itemsize:
             raise ProtocolError(
                 f"CHAN{n}: block of {len(payload)} bytes is not a whole number of {binary.kind}",

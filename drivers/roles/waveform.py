@@ -1,19 +1,22 @@
 """Fetching one calibrated record as a format-2 dialect's ``waveform:`` section declares it.
 
-Select the source (if the instrument needs it), read the preamble (one query with fields by
-position, or one query per value), then the data -- in chunks of at most ``max_points`` when the
+Select the source (if the instrument needs it and another one was selected since), read the
+preamble (one query with fields by position, or one query per value; unless the one kept still
+holds, :mod:`drivers.roles.preamble_cache`), then the data -- in chunks of at most ``max_points`` when the
 record is longer -- and calibrate with the references (:mod:`drivers.scpi.waveform`).  A record
 whose length differs from the preamble's, or a preamble that would give wrong volts, is refused.
 """
 
 from __future__ import annotations
 
+import contextlib
 from typing import Any
 
 import numpy as np
 
 from drivers.dialect_waveform import WaveformSpec
 from drivers.errors import ConfigError, Problem, ProtocolError
+from drivers.roles.preamble_cache import PreambleCache
 from drivers.scpi.blocks import numpy_dtype
 from drivers.scpi.replies import parse_number, split_fields
 from drivers.scpi.session import ScpiSession
@@ -29,25 +32,45 @@ from drivers.scpi.waveform import (
 from drivers.trace import Trace
 
 
-def fetch_waveform(session: ScpiSession, spec: WaveformSpec, input: int) -> Trace:
-    """The last record of ``input`` in volts, with its time base."""
+def fetch_waveform(
+    session: ScpiSession, spec: WaveformSpec, input: int, cache: PreambleCache | None = None
+) -> Trace:
+    """The last record of ``input`` in volts, with its time base; ``cache`` keeps the selection
+    and the preamble between captures (:mod:`drivers.roles.preamble_cache`)."""
     source = f"CHAN{input}"
     with session.lock:
-        if spec.select is not None:
-            session.write(_fill(spec, spec.select, input=input), reapply=False)
-        pre = read_preamble(session, spec, input)
-        codes = read_codes(session, spec, input, pre)
-    if pre.points is not None and len(codes) != pre.points:
-        raise ProtocolError(
-            f"{source}: preamble announces {pre.points} points, the record holds {len(codes)}",
-            address=session.address,
-        )
+        try:
+            pre, codes = _fetch(session, spec, input, cache)
+        except BaseException:
+            if cache is not None:
+                cache.clear()
+            raise
     try:
         volts = calibrate(codes, pre)
     except ValueError as exc:
         raise ProtocolError(f"{source}: {exc}", address=session.address) from None
     return Trace(volts=volts, dt_s=pre.x_increment, t0_s=pre.t0_s, source=source,
                  averages=pre.averages)  # fmt: skip
+
+
+def _fetch(
+    session: ScpiSession, spec: WaveformSpec, input: int, cache: PreambleCache | None
+) -> tuple[Preamble, np.ndarray]:
+    if spec.select is not None and not (cache is not None and cache.selected(input)):
+        with cache.selecting(input) if cache is not None else contextlib.nullcontext():
+            session.write(_fill(spec, spec.select, input=input), reapply=False)
+    pre = cache.get(input) if cache is not None else None
+    if pre is None:
+        pre = read_preamble(session, spec, input)
+        if cache is not None:
+            cache.put(input, pre)
+    codes = read_codes(session, spec, input, pre, cache)
+    if pre.points is not None and len(codes) != pre.points:
+        raise ProtocolError(
+            f"CHAN{input}: preamble announces {pre.points} points, the record holds {len(codes)}",
+            address=session.address,
+        )
+    return pre, codes
 
 
 def read_preamble(session: ScpiSession, spec: WaveformSpec, input: int) -> Preamble:
@@ -68,7 +91,13 @@ def read_preamble(session: ScpiSession, spec: WaveformSpec, input: int) -> Pream
     )
 
 
-def read_codes(session: ScpiSession, spec: WaveformSpec, input: int, pre: Preamble) -> np.ndarray:
+def read_codes(
+    session: ScpiSession,
+    spec: WaveformSpec,
+    input: int,
+    pre: Preamble,
+    cache: PreambleCache | None = None,
+) -> np.ndarray:
     command = _fill(spec, spec.data_query, input=input)
     if spec.chunk_range is None or spec.max_points is None or pre.points is None:
         return _one(session, spec, command, pre.points)
@@ -76,7 +105,8 @@ def read_codes(session: ScpiSession, spec: WaveformSpec, input: int, pre: Preamb
     for first, count in chunk_ranges(pre.points, spec.max_points):
         fields = {"input": input, "start": first + 1, "stop": first + count, "offset": first,
                   "count": count}  # fmt: skip
-        session.write(_fill(spec, spec.chunk_range, **fields), reapply=False)
+        with cache.writing("chunks.range") if cache is not None else contextlib.nullcontext():
+            session.write(_fill(spec, spec.chunk_range, **fields), reapply=False)
         part = _one(session, spec, command, count)
         if len(part) != count:
             raise ProtocolError(

@@ -21,7 +21,6 @@ from __future__ import annotations
 import contextlib
 import threading
 from collections.abc import Callable, Iterator
-from types import TracebackType
 from typing import TypeVar
 
 import numpy as np
@@ -112,6 +111,9 @@ class ScpiSession:
         #: Program messages sent (each one exchange on the link) and settings not re-sent.
         self.messages = 0
         self.skipped = 0
+        #: Writes sent or held (not skipped), and times the instrument's state became unknown
+        #: (error, resync, reconnect, *RST, forget): a role's cache holds while neither moves.
+        self.changes = self.state_lost = 0
 
     @property
     def address(self) -> str:
@@ -142,11 +144,12 @@ class ScpiSession:
         checked = self.check_errors if check is None else check
         with self.lock:
             if header_of(command) == "*RST":
-                self._known.clear()
+                self._lose_state()
             tracked = reapply and track and self.policy.skip_unchanged
             if tracked and self._known.get(name) == command:
                 self.skipped += 1
                 return
+            self.changes += 1
             if self._pending is not None and timeout_ms is None:
                 self._pending.append((command, name if reapply else None, checked))
                 self._known.pop(name, None)
@@ -154,7 +157,7 @@ class ScpiSession:
             try:
                 self._call(lambda: self._write_checked(command, checked, timeout_ms), retry=reapply)
             except BaseException:
-                self._known.clear()
+                self._lose_state()
                 raise
             if reapply:
                 self._settings[name] = command
@@ -195,7 +198,7 @@ class ScpiSession:
                 for command, _, ch in pending:
                     self._call(lambda c=command, k=ch: self._write_checked(c, k, None), retry=retry)
         except BaseException:
-            self._known.clear()
+            self._lose_state()
             raise
         for command, name, _ in pending:
             if name is not None:
@@ -211,6 +214,7 @@ class ScpiSession:
     def forget(self, prefix: str) -> None:
         """Drop cached settings whose key starts with ``prefix`` (e.g. after ``ROUTe:OPEN:ALL``)."""
         with self.lock:
+            self.state_lost += 1
             for k in [k for k in self._settings if k.startswith(prefix)]:
                 del self._settings[k]
             for k in [k for k in self._known if k.startswith(prefix)]:
@@ -325,12 +329,7 @@ class ScpiSession:
     def __enter__(self) -> ScpiSession:
         return self
 
-    def __exit__(
-        self,
-        exc_type: type[BaseException] | None,
-        exc: BaseException | None,
-        tb: TracebackType | None,
-    ) -> None:
+    def __exit__(self, *exc_info: object) -> None:
         self.close()
 
     # -- recovery --------------------------------------------------------------------------------
@@ -363,8 +362,12 @@ class ScpiSession:
                 raise failure from recovery  # the command that failed, not the resync, is the news
         raise AssertionError("unreachable")  # pragma: no cover
 
+    def _lose_state(self) -> None:  # settings are sent again, caches (the preamble) dropped
+        self._known.clear()
+        self.state_lost += 1
+
     def _recover_if_needed(self) -> None:
-        self._known.clear()  # whatever went wrong, what the instrument holds is no longer known
+        self._lose_state()  # whatever went wrong, what the instrument holds is no longer known
         if self._out_of_step and not self._link_lost:
             try:
                 self._resync()
