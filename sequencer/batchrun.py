@@ -94,6 +94,9 @@ class BatchOutcome:
     batch: str
     boards: tuple[BoardOutcome, ...]
     stopped: bool = False
+    #: Why the batch was refused mid-way (an instrument's calibration fell due, say, when the clock
+    #: passed midnight): the refusal's problems, the boards left ``not run``; exit 2.
+    refused: tuple[Problem, ...] = ()
 
     @property
     def channels(self) -> int:
@@ -108,8 +111,13 @@ class BatchOutcome:
         return [b.run_id for b in self.boards if b.run_id is not None]
 
     def exit_code(self) -> int:
-        """DESIGN.md: 3 a run aborted (or the batch stopped), 1 a value outside limits, else 0."""
-        if self.stopped or any(b.status == "aborted" for b in self.boards):
+        """DESIGN.md: 3 a run aborted, 2 the batch refused mid-way (bad input: the bench), 3 the
+        batch stopped, 1 a value outside limits, else 0."""
+        if any(b.status == "aborted" for b in self.boards):
+            return 3
+        if self.refused:
+            return 2
+        if self.stopped:
             return 3
         return 1 if any(b.status == "failed" for b in self.boards) else 0
 
@@ -184,6 +192,7 @@ class _BatchRun:
             else None
         )
         self.outcomes: list[BoardOutcome] = []
+        self.refused: tuple[Problem, ...] = ()
 
     def run(self) -> BatchOutcome:
         self._t0 = time.monotonic()
@@ -201,7 +210,8 @@ class _BatchRun:
             self._report(index, count, outcome)
             if self.options.on_board is not None:
                 self.options.on_board(outcome)
-        return BatchOutcome(batch=self.batch.name, boards=tuple(self.outcomes), stopped=stopped)
+        return BatchOutcome(batch=self.batch.name, boards=tuple(self.outcomes), stopped=stopped,
+                            refused=self.refused)
 
     def _check_boards_first(self) -> None:
         """Every board of the batch planned for its board type, and on a bench file checked against
@@ -300,6 +310,13 @@ class _BatchRun:
             bench = compose.bench_for(None, sim) if sim else contextlib.nullcontext(self.bench)
             with bench as spec:
                 result = compose.execute(plan, spec, self.store, request)
+        except ConfigError as exc:
+            # refused before the run was recorded (an instrument's calibration fell due after the
+            # check before the first board): the bench refuses every board left, so the batch ends
+            # here with what was done summarised, not with the error alone
+            self.refused = tuple(exc.problems)
+            note = f"refused before the run: {exc.problems[0].message}" if exc.problems else "refused"
+            return BoardOutcome(serial=board.serial, status="not run", note=note), True
         except RunAborted as exc:
             run_id = self._aborted_run(board.serial)
             note = f"aborted: {exc}"

@@ -132,6 +132,12 @@ def batch(
             kwargs = {} if outlier_sigma is None else {"outlier_sigma": outlier_sigma}
             for path in batch_report(store, spec.name, report_dir, **kwargs):
                 click.echo(f"batch report: {path}")
+    if outcome.refused:
+        left = [b.serial for b in outcome.boards if b.status == "not run"]
+        click.echo(f"batch {spec.name}: refused mid-way, {len(left)} board(s) not run "
+                   f"({', '.join(left)}):", err=True)
+        for problem in outcome.refused:
+            click.echo(f"  {problem}", err=True)
     sys.exit(outcome.exit_code())
 
 

@@ -128,3 +128,41 @@ def test_a_batch_with_the_override_runs_and_records_the_caveat(tmp_path, sim):
         [run] = store.list_runs()
         [caveat] = store.caveats(run.id)
     assert "scope: calibration was due 2020-01-31" in caveat
+
+
+def test_a_refusal_mid_batch_prints_the_summary_of_what_was_done_then_exits_2(tmp_path, sim, monkeypatch):
+    # The scope's calibration is due on DUE: fine when the batch is checked and board 1 runs, past
+    # due once the clock has passed midnight before board 2 (drivers/benchfile.py: due < today).
+    # The batch used to end with the refusal alone (exit 2, no summary of board 1).
+    import sequencer.batchrun
+    import sequencer.compose
+
+    due = dt.date.today()  # the simulated bench's other instruments are in calibration today
+    runs_checked = []
+
+    class Midnight(dt.date):
+        @classmethod
+        def today(cls) -> dt.date:  # the check of each run: board 1 on DUE, then the day after
+            runs_checked.append(1)
+            return due if len(runs_checked) == 1 else due + dt.timedelta(days=1)
+
+    class Due(dt.date):
+        @classmethod
+        def today(cls) -> dt.date:
+            return due
+
+    monkeypatch.setattr(sequencer.batchrun, "date", Due)
+    monkeypatch.setattr(sequencer.compose, "date", Midnight)
+    db = f"sqlite:///{tmp_path / 'r.db'}"
+    bench = _bench(tmp_path, sim, "scope", calibrated=due - dt.timedelta(days=365), calibration_due=due)
+    batch = _batch(tmp_path, ["NR-PA8-0001", "NR-PA8-0002", "NR-PA8-0003"])
+    code, out = _invoke("batch", str(batch), "--bench", str(bench), "--db", db, "--yes")
+    assert code == 2, out
+    assert len(runs_checked) == 2, out  # board 1 checked and ran; board 2 refused; board 3 never tried
+    assert "[1/3] NR-PA8-0001: PASSED" in out or "[1/3] NR-PA8-0001: FAILED" in out
+    assert "[2/3] NR-PA8-0002: NOT RUN" in out and f"calibration was due {due.isoformat()} (1 days ago)" in out
+    assert "batch NR-TEST-CAL: 1 boards, 8 channels" in out  # the summary of what was done
+    assert "refused mid-way, 2 board(s) not run (NR-PA8-0002, NR-PA8-0003)" in out
+    assert "Traceback" not in out
+    with Store.open(db) as store:
+        assert [r.board for r in store.list_runs()] == ["NR-PA8-0001"]  # board 2 was never recorded
