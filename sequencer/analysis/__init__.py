@@ -59,7 +59,13 @@ from .sipm import (
     dark_count_staircase,
 )
 from .thresholds import ThresholdCalibration, noise_rate, rice_nu0, threshold_calibration
-from .timing import peaking_time, pulse_onset, rise_time, zero_crossing_time
+from .timing import (
+    onset_and_peaking_time,
+    peaking_time,
+    pulse_onset,
+    rise_time,
+    zero_crossing_time,
+)
 from .transfer import TransferFit, transfer_curve
 
 __all__ = [
@@ -126,6 +132,7 @@ __all__ = [
     "leading_edge_times",
     "mean_photoelectrons",
     "noise_rate",
+    "onset_and_peaking_time",
     "peaking_time",
     "pretrigger_baseline",
     "pulse_duration",

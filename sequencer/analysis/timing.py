@@ -126,6 +126,29 @@ def pulse_onset(
     return per_row(refuse_rows(_onsets(arr, step, n, sign, why)[0], why), one)
 
 
+def onset_and_peaking_time(
+    traces: ArrayLike,
+    dt_ns: float,
+    n_baseline: int,
+    *,
+    polarity: int = 1,
+    min_snr: float = DEFAULT_MIN_SNR,
+    rails_mV: ArrayLike | None = None,
+) -> tuple[float | np.ndarray, float | np.ndarray]:
+    """:func:`pulse_onset` and :func:`peaking_time` (with ``n_baseline``, no ``t0_ns``) from one fit
+    of each row: the same values as the two calls, for half the fitting (each fit is ~10 ms of
+    least squares; the two calls would fit every row twice)."""
+    step = positive(dt_ns, "dt_ns")
+    sign = check_polarity(polarity)
+    arr, one = as_traces(traces)
+    top, _, _ = peak_values(sign * arr)
+    finite_rows(top, "peaking_time")
+    n = n_baseline_for(n_baseline, arr.shape[1])
+    why = pulse_reasons(arr, n, polarity=sign, min_snr=min_snr, rails_mV=check_rails(rails_mV))
+    start, peak = _onsets(arr, step, n, sign, why)
+    return per_row(refuse_rows(start, why), one), per_row(refuse_rows(peak - start, why), one)
+
+
 def _onsets(
     arr: np.ndarray, dt_ns: float, n_baseline: int, sign: int, why: list[str]
 ) -> tuple[np.ndarray, np.ndarray]:

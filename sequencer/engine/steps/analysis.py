@@ -335,10 +335,11 @@ def analyse_peaking(ctx: RunContext, step: PlannedStep) -> StepResult:
     items = _traces(ctx, step, step.args["traces"])
     rows, dt, n, sign = _pulse_rows(ctx, step, items)
     refuse_any(an.pulse_reasons(rows, n, polarity=sign))
-    onsets = np.atleast_1d(an.pulse_onset(rows, dt, n, polarity=sign))
+    fitted, peaking = an.onset_and_peaking_time(rows, dt, n, polarity=sign)  # one fit per row
+    onsets = np.atleast_1d(fitted)
     if not np.all(np.isfinite(onsets)):
         raise AnalysisRefused("the pulse onset could not be fitted")
-    value, err = _mean_err(an.peaking_time(rows, dt, n_baseline=n, polarity=sign))
+    value, err = _mean_err(peaking)
     results: dict[str, Any] = {
         "traces": len(items),
         "onset_after_trigger_ns": float(np.mean(onsets)) + items[0].t0_ns,

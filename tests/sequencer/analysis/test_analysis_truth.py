@@ -19,6 +19,7 @@ from sequencer.analysis import (
     baseline_rms,
     crosstalk_percent,
     crosstalk_reasons,
+    onset_and_peaking_time,
     peaking_time,
     pulse_height,
     pulse_onset,
@@ -90,6 +91,23 @@ def test_shaped_peaking_time_counts_from_the_delayed_onset(
     )
     # counted from the trigger, the delay would be in it
     assert np.all(peaking_time(rows, dt, trigger, n_baseline=20, polarity=polarity) > 1.1 * peaking)
+
+
+@pytest.mark.parametrize("kind", ["unipolar", "bipolar"])
+def test_onset_and_peaking_time_from_one_fit_are_the_two_functions_values(kind: str) -> None:
+    # REFERENCES.md: CR-RC³ peaks at 3·τ (CR²-RC³ at (4-2)·τ) after its onset; the one-fit function
+    # gives exactly what pulse_onset and peaking_time give, including the refused (NaN) row
+    tau, dt, onset = 50.0, 4.0, 137.0
+    t = time_axis(400, dt)
+    rng = np.random.default_rng(21)
+    rows = -5.0 + 200.0 * _shaped(3, kind, t, onset, tau) + rng.standard_normal((3, t.size))
+    rows[2] = -5.0 + rng.standard_normal(t.size)  # no pulse: refused by both
+    start, peaking = onset_and_peaking_time(rows, dt, 20)
+    np.testing.assert_array_equal(start, pulse_onset(rows, dt, 20))
+    np.testing.assert_array_equal(peaking, peaking_time(rows, dt, n_baseline=20))
+    np.testing.assert_allclose(peaking[:2], _peak_x(3, kind) * tau, rtol=0.02)
+    np.testing.assert_allclose(start[:2], onset, atol=1.5)
+    assert math.isnan(start[2]) and math.isnan(peaking[2])
 
 
 def test_bipolar_zero_crossing_of_a_negative_pulse() -> None:
