@@ -335,8 +335,9 @@ def execute(
             store.reopen_run(run_id, lease_token=token, take_over=request.take_over)
             for line in (*overridden, *request.resume_caveats):
                 store.add_caveat(run_id, f"on resume: {line}")
-        subscribers: list[Callable[[Event], None]] = [store.subscriber]
-        closers: list[Callable[[], None]] = []
+        recorder = store.writing_behind()  # step N written while step N+1 runs (store/behind.py)
+        subscribers: list[Callable[[Event], None]] = [recorder]
+        closers: list[Callable[[], None]] = [lambda: recorder.close(raise_failure=False)]
         if request.progress:
             display = ProgressDisplay(plan, force_terminal=_plain_progress(plan, request))
             subscribers.append(display)
@@ -362,7 +363,7 @@ def execute(
                 plan, bench, run_id=run_id, subscribers=subscribers, options=options,
                 completed=completed, info=info, stop=stop,
             )
-            with heartbeat:
+            with recorder, heartbeat:
                 outcome = runner.run()
         finally:
             for close in closers:

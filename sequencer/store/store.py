@@ -23,6 +23,7 @@ from sequencer.events import Event, RunInfo
 from sequencer.inputs import RunInput
 from sequencer.records import Measurement, StepResult
 from sequencer.store import bench_lease, lease, lifecycle, queries
+from sequencer.store.behind import WriteBehind
 from sequencer.store.connect import (
     DEFAULT_BUSY_TIMEOUT_S,
     database_exists,
@@ -49,6 +50,25 @@ def _as_store_error(what: str) -> Iterator[None]:
         yield
     except SQLAlchemyError as exc:
         raise as_store_error(what, exc) from exc
+
+
+class _Synchronous:
+    """``Store.writing_behind`` where no thread may write: the store's ``handle`` as it is."""
+
+    def __init__(self, handle: Callable[[Event], None]) -> None:
+        self.handle = handle
+
+    def __call__(self, event: Event) -> None:
+        self.handle(event)
+
+    def __enter__(self) -> Self:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        return None
+
+    def close(self, *, raise_failure: bool = True) -> None:
+        return None
 
 
 class Store:
@@ -160,6 +180,15 @@ class Store:
     def subscriber(self) -> Callable[[Event], None]:
         """``handle``, to subscribe to the runner's events."""
         return self.handle
+
+    def writing_behind(self) -> WriteBehind | _Synchronous:
+        """A subscriber that records the run one step behind, on a writer thread (``behind.py``);
+        use it as a context manager (its exit writes what is queued).  An in-memory SQLite
+        database is one connection per thread, so it is recorded synchronously instead."""
+        database = self.engine.url.database or ""
+        if self.engine.url.get_backend_name() == "sqlite" and database in ("", ":memory:"):
+            return _Synchronous(self.handle)
+        return WriteBehind(self.handle)
 
     def reopen_run(self, run_id: int, *, lease_token: str = "", take_over: bool = False) -> None:
         """Set an aborted/interrupted (or dead-recorder running) run to running under a new

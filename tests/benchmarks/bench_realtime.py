@@ -47,10 +47,11 @@ def qualify_realtime(procedure: Path = PROCEDURE, board: Path = BOARD) -> dict:
         Store.open(f"sqlite:///{tmp}/bench.db") as store,
         start_sim_bench(board, realtime=True) as sim,
         open_bench(bench_from_mapping(sim.bench_mapping(), source="<bench>")) as bench,
+        store.writing_behind() as recorder,  # as `benchwright run` records (sequencer/compose.py)
     ):
         info = describe_run(plan, bench, operator="bench")
         run_id = store.create_run(info, started_at=datetime.now(UTC))
-        runner = Runner(plan, bench, run_id=run_id, subscribers=[store.subscriber, on_event],
+        runner = Runner(plan, bench, run_id=run_id, subscribers=[recorder, on_event],
                         options=RunOptions(unattended=True, handle_signals=False), info=info)  # fmt: skip
         start = time.perf_counter()
         runner.run()
