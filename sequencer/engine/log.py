@@ -33,6 +33,7 @@ def format_event(event: Event) -> str:
         return (
             f"- trace {event.name} at {event.path}: {len(event.samples)} samples, "
             f"dt {event.dt_s:g} s, {event.source or '?'} x{event.averages}"
+            + "".join(f", {k} {v}" for k, v in sorted(event.meta.items()))
         )
     if isinstance(event, MeasurementMade):
         m = event.measurement

@@ -97,7 +97,7 @@ SERIES_COLUMNS = _columns((
 TRACE_COLUMNS = _columns((
     ("run_id", "int"), ("board", "str"), ("step", "str"), ("name", "str"), ("channel", "int"),
     ("output", "str"), ("source", "str"), ("averages", "int"), ("dt_s", "float"), ("t0_s", "float"),
-    ("n_samples", "int"), ("samples_V", "samples"), ("labels", "str"),
+    ("n_samples", "int"), ("samples_V", "samples"), ("labels", "str"), ("meta", "str"),
 ))  # fmt: skip
 
 #: table name -> its columns (what ``export --what`` names)
@@ -157,7 +157,10 @@ def _label_int(labels: Mapping[str, Any], key: str) -> int | None:
 
 
 def trace_table(store: Store, sel: Selection = Selection()) -> Table:
-    """One row per stored trace, with its samples (volts, float64) and labels as JSON text."""
+    """One row per stored trace, with its samples (volts, float64), labels and meta as JSON text.
+
+    ``meta`` is what the capture knew (``rails_mV``: the input's range, to check for clipping); a
+    trace stored before revision 0008 says it was not kept (``drivers.trace.META_NOT_STORED``)."""
     rows = []
     for run in _runs(store, sel):
         for t in store.traces(run.id):
@@ -170,6 +173,7 @@ def trace_table(store: Store, sel: Selection = Selection()) -> Table:
                 "source": t.source, "averages": int(t.averages), "dt_s": float(t.dt_s),
                 "t0_s": float(t.t0_s), "n_samples": int(samples.size), "samples_V": samples,
                 "labels": json.dumps(labels, sort_keys=True, default=str),
+                "meta": json.dumps(dict(t.meta or {}), sort_keys=True),
             })  # fmt: skip
     return Table(name="traces", columns=TRACE_COLUMNS, rows=tuple(rows))
 

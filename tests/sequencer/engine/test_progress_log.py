@@ -78,3 +78,18 @@ def test_run_log_one_line_per_event(tmp_path):
     assert len(lines) == 1 + 2 * 2 + 1  # started, 2 x (step started, finished), finished
     assert "run 9 started: engine-test 1 board NR-PA8-0001" in lines[0] and "operator C" in lines[0]
     assert lines[-1].endswith("run 9 completed")
+
+
+def test_run_log_shows_a_traces_meta():
+    # the input's rails a capture was taken with (what the clipping check needs) are in the log line
+    import numpy as np
+
+    from sequencer.engine.log import format_event
+    from sequencer.events import TraceCaptured
+
+    line = format_event(TraceCaptured(
+        run_id=1, path="noise/ch1/x1/capture", name="baseline", samples=np.zeros(100), dt_s=1e-9,
+        t0_s=0.0, source="CHAN1", averages=16, meta={"rails_mV": "-50.0,50.0"},
+    ))
+    assert line == ("- trace baseline at noise/ch1/x1/capture: 100 samples, dt 1e-09 s, CHAN1 x16, "
+                    "rails_mV -50.0,50.0")

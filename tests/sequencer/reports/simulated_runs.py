@@ -19,6 +19,7 @@ import numpy as np
 from scipy import stats
 
 from sequencer import analysis as an
+from sequencer.engine.steps.scope import RAILS_META
 from sequencer.engine.steps.series import pulse_series, s_curve_series, transfer_series
 from sequencer.events import (
     InstrumentInfo,
@@ -41,6 +42,7 @@ TRIALS = 200
 N_SAMPLES = 400
 DT_S = 1e-9
 N_BASELINE = 60
+CAPTURE_RAILS_MV = "-1000.0,1000.0"  # the scope input range the invented captures were taken with
 GAINS = {"x1": 1.0, "x5": 5.0}
 LIMITS: dict[tuple[str, str | None], tuple[float | None, float | None]] = {
     ("gain", "x1"): (0.9, 1.1),
@@ -304,6 +306,7 @@ def _transfer(
             t0_s=-80e-9,
             source="CHAN1",
             labels={"channel": ch, "output": output, "amp": amp},
+            meta={RAILS_META: CAPTURE_RAILS_MV},  # as scope.capture records the input's range
         )
         rec.step(
             path, "scope.capture", settings={"inputs": [1], "into": ["pulse"]}, traces=(trace,)
@@ -346,6 +349,7 @@ def _shape(rec: _Recorder, rng: np.random.Generator, ch: int) -> None:
         dt_s=DT_S,
         t0_s=-80e-9,
         labels={"channel": ch, "output": "shaped"},
+        meta={RAILS_META: CAPTURE_RAILS_MV},
     )
     rec.step(path, "scope.capture", settings={"inputs": [2], "into": ["shaped"]}, traces=(trace,))
     peaking = float(an.peaking_time(samples_mV, 1.0, 80.0))

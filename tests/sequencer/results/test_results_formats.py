@@ -263,3 +263,29 @@ def test_csv_versions_stay_text_with_the_documented_dtypes(recorded, what: str) 
 def test_csv_dtypes_name_the_table() -> None:
     with pytest.raises(ValueError, match="one of runs, measurements"):
         results.csv_dtypes("measurement")
+
+
+def test_trace_export_carries_each_traces_stored_meta(recorded, out: Path) -> None:
+    """The capture's meta (``rails_mV``, the scope input's range kept for the clipping check,
+    revision 0008) is exported with its trace: JSON from the command, Parquet and ROOT read back
+    with their reference readers (pyarrow, uproot)."""
+    import json
+
+    from sequencer.engine.steps.scope import RAILS_META
+    from tests.sequencer.reports.simulated_runs import CAPTURE_RAILS_MV
+
+    url, store = recorded
+    stored = store.traces(1)
+    assert stored and all(dict(t.meta) == {RAILS_META: CAPTURE_RAILS_MV} for t in stored)
+    done = _invoke("export", "--db", url, "--run", "1", "--what", "traces", "--format", "json")
+    assert done.exit_code == 0, done.output
+    rows = json.loads(done.stdout)
+    assert len(rows) == len(stored)
+    assert [json.loads(r["meta"]) for r in rows] == [dict(t.meta) for t in stored]
+    table = read_table(store, "traces", Selection(run_id=1))
+    write_parquet(table, out / "t.parquet")
+    write_root([table], out / "t.root")
+    back = pq.read_table(out / "t.parquet").to_pylist()
+    root = read_root(out / "t.root", "traces")
+    for i, t in enumerate(stored):
+        assert json.loads(back[i]["meta"]) == json.loads(str(root["meta"][i])) == dict(t.meta)
