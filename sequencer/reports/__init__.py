@@ -3,6 +3,7 @@
 ::
 
     certify_run(store, run_id, out_dir, *, workers=None) -> list[Path]     # PDF + HTML per channel
+        (a process pool: from a script, call it under ``if __name__ == "__main__":``)
     verify_certificate(store, path) -> VerifyResult(ok, differences)
     batch_summary(store, batch) -> BatchSummary     (.to_text() for the terminal)
     batch_report(store, batch, out_dir) -> list[Path]                     # PDF + HTML

@@ -41,6 +41,8 @@ def certify_run(
 
     ``workers``: processes to render with (default: the CPU count, through a
     :class:`~sequencer.reports.certify_pool.CertificatePool`); 1 renders in this process.
+    More than one worker from a script: call this under ``if __name__ == "__main__":`` (each
+    worker process starts by importing the script; ``certify_pool`` module docstring).
     ``on_progress(done, total)`` is called as certificates are written.
     """
     out = Path(out_dir)

@@ -11,6 +11,11 @@ the workers draw.  ``wait`` collects, with progress and the time left at the pac
 The data of each certificate is read from the store in the caller's process (one snapshot per run);
 only plain data crosses to the workers.  Workers start with ``forkserver`` (``spawn`` where it is
 missing), never ``fork``, which is unsafe in a process that runs threads (the simulated bench does).
+Both start a worker by importing the caller's ``__main__`` module: a script that uses the pool (or
+``certify_run`` with more than one worker) must call it under ``if __name__ == "__main__":``, else
+each worker runs the script's top level again (Python's multiprocessing documentation, "The spawn
+and forkserver start methods": "Safe importing of main module").  No fallback can undo that second
+run, so a pool broken that way is reported naming the guard (``BROKEN_POOL``), never retried here.
 """
 
 from __future__ import annotations
@@ -20,6 +25,7 @@ import os
 import time
 from collections.abc import Callable
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from concurrent.futures.process import BrokenProcessPool
 from pathlib import Path
 from types import TracebackType
 from typing import Any, Self
@@ -36,6 +42,13 @@ STALL_S = 600.0
 must not hang the command.  Generous: a task is two certificates, seconds even on a loaded machine."""
 
 WORKER_MODULE = "sequencer.reports.certify_worker"
+
+BROKEN_POOL = (
+    "a certificate worker process ended abruptly ({cause}). From a script: call certify_run / "
+    "CertificatePool under 'if __name__ == \"__main__\":' -- each worker starts by importing the "
+    "script (multiprocessing's forkserver and spawn start methods), and without that guard runs "
+    "its top level again; or pass workers=1 to render in this process"
+)
 
 
 def _render_in_worker(datas: list[CertificateData], out_dir: str, paper: str) -> list[str]:
@@ -117,7 +130,10 @@ class CertificatePool:
                 break
             for future in done:
                 count = self._pending.pop(future)
-                self._written.update(future.result())  # a worker's error is raised here
+                try:
+                    self._written.update(future.result())  # a worker's error is raised here
+                except BrokenProcessPool as exc:
+                    raise RuntimeError(BROKEN_POOL.format(cause=exc)) from exc
                 self._done += count
             if not block:
                 break

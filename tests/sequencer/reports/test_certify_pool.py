@@ -38,3 +38,39 @@ def test_certify_run_through_the_pool_reports_progress_to_the_end(store, tmp_pat
     paths = certify_run(store, run_id, tmp_path, workers=2, on_progress=lambda d, t: told.append((d, t)))
     assert len(paths) == 12 and all(p.exists() for p in paths)
     assert told[-1] == (6, 6)
+
+
+SCRIPT = """
+import sys
+from pathlib import Path
+from sequencer.reports import certify_run
+from sequencer.store import Store
+
+def main():
+    with Store.open(sys.argv[1], create=False) as store:
+        print(len(certify_run(store, 1, Path(sys.argv[2]), workers=2)), "written")
+
+{call}
+"""
+
+
+def test_a_script_without_the_main_guard_is_told_about_it(store, tmp_path: Path) -> None:
+    # Python's multiprocessing documentation ("Safe importing of main module"): under forkserver and
+    # spawn a worker imports the script, so an unguarded call runs again in it and the pool breaks.
+    # The error names the guard; the same script with the guard writes every certificate (control).
+    import subprocess
+    import sys
+
+    record_run(store, RunSpec(channels=6))
+    url = str(store.engine.url)
+    outcomes = {}
+    for name, call in (("unguarded", "main()"), ("guarded", 'if __name__ == "__main__":\n    main()')):
+        script = tmp_path / f"{name}.py"
+        script.write_text(SCRIPT.format(call=call))
+        outcomes[name] = subprocess.run([sys.executable, str(script), url, str(tmp_path / name)],
+                                        capture_output=True, text=True, timeout=600)
+    guarded, unguarded = outcomes["guarded"], outcomes["unguarded"]
+    assert guarded.returncode == 0, guarded.stderr
+    assert guarded.stdout.strip() == "12 written"
+    assert unguarded.returncode != 0
+    assert "if __name__ == \"__main__\":" in unguarded.stderr and "workers=1" in unguarded.stderr
