@@ -19,7 +19,9 @@ from typing import Any
 
 import numpy as np
 
+from sequencer.inputs import RunInput
 from sequencer.quantities import judged_channels
+from sequencer.records import StepResult
 
 from .certificate_context import decision_rule
 from .reading import StoreReader
@@ -68,12 +70,14 @@ class RunSnapshot:
     """One run read from the store: record, measurements, completed steps, safety events, caveats
     and the quantities its limit set limits."""
 
+    steps: Mapping[str, StepResult]  # path -> the completed step (its results keep the series)
+
     def __init__(self, store: StoreReader, run_id: int) -> None:
         self.store = store
         self.run_id = run_id
         self.run = store.get_run(run_id)
         self.measurements = tuple(store.measurements(run_id=run_id))
-        self.steps: Mapping[str, Any] = dict(store.completed_steps(run_id))
+        self.steps = dict(store.completed_steps(run_id))
         self.safety_events = tuple(store.safety_events(run_id))
         self.caveats = tuple(store.caveats(run_id))
         inputs = store.run_inputs(run_id)
@@ -83,7 +87,7 @@ class RunSnapshot:
         self.channels = judged_channels(m.channel for m in self.measurements)
 
 
-def _limit_quantities(inputs: Iterable[Any]) -> frozenset[str]:
+def _limit_quantities(inputs: Iterable[RunInput]) -> frozenset[str]:
     """Quantities of the stored limit set (none when the run kept no limit set, or it no longer reads)."""
     from sequencer.errors import ProcedureError
     from sequencer.procedure.limits import parse_limits_text

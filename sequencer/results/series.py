@@ -16,7 +16,18 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterator, Mapping
 from dataclasses import asdict, dataclass
-from typing import Any
+from typing import Any, Protocol, runtime_checkable
+
+from sequencer.records import StepResult
+
+
+@runtime_checkable
+class StepsReader(Protocol):
+    """What ``read_series`` reads: a run's completed steps by path (``Store``, ``LightRecords`` and
+    any ``reports.reading.StoreReader`` answer it).  Only this one query, so that a caller with a
+    narrower reader than the whole store can use it."""
+
+    def completed_steps(self, run_id: int) -> dict[str, StepResult]: ...
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -115,7 +126,7 @@ CONVERTERS: dict[str, Convert] = {
 }
 
 
-def read_series(store: Any, run_id: int) -> list[CurvePoint]:
+def read_series(store: StepsReader, run_id: int) -> list[CurvePoint]:
     """Every stored series point of run ``run_id``'s completed steps, in step order; kinds not in
     ``CONVERTERS`` are left out (they have no agreed point form yet)."""
     points: list[CurvePoint] = []
