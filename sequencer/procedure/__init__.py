@@ -13,28 +13,65 @@ Public API::
     load_limits(path) -> tuple[Limit, ...]
     load_batch(path) -> Batch
     parse_quantity(text, dimension) -> float
+
+The names are resolved lazily (module ``__getattr__``, PEP 562): importing one module of the
+package -- ``sequencer.procedure.limits``, which ``verify`` needs to read a stored limit set --
+does not import the loader, the expander and the JSON schemas with it.
 """
 
 from __future__ import annotations
 
+import importlib
 from collections.abc import Iterable, Sequence
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 from drivers.errors import Problem
 from sequencer.errors import ProcedureError
 
-from .batch import Batch, BatchBoard, load_batch
-from .boards import board_info, board_type_input, board_type_of_input, load_board_type
-from .coverage import unjudged_warnings
-from .expand import build_plan
-from .formatting import format_plan
-from .fragments import check_fragment, is_fragment_text
-from .limits import QUANTITY_UNITS, load_limits
-from .loader import load_procedure, load_procedure_text
-from .model import Procedure
-from .plan_model import BoardInfo, Limit, Plan, PlannedStep, ProcedureMeta
-from .schema import fragment_schema, procedure_schema, schema_text
-from .units import Quantity, UnitError, parse_quantity
+if TYPE_CHECKING:  # what the lazy names are, for type checkers and editors
+    from .batch import Batch, BatchBoard, load_batch
+    from .boards import board_info, board_type_input, board_type_of_input, load_board_type
+    from .coverage import unjudged_warnings
+    from .expand import build_plan
+    from .formatting import format_plan
+    from .fragments import check_fragment, is_fragment_text
+    from .limits import QUANTITY_UNITS, load_limits
+    from .loader import load_procedure, load_procedure_text
+    from .model import Procedure
+    from .plan_model import BoardInfo, Limit, Plan, PlannedStep, ProcedureMeta
+    from .schema import fragment_schema, procedure_schema, schema_text
+    from .units import Quantity, UnitError, parse_quantity
+
+#: public name -> the module of this package that defines it
+_LAZY: dict[str, str] = {
+    **dict.fromkeys(("Batch", "BatchBoard", "load_batch"), "batch"),
+    **dict.fromkeys(("board_info", "board_type_input", "board_type_of_input", "load_board_type"), "boards"),
+    "unjudged_warnings": "coverage",
+    "build_plan": "expand",
+    "format_plan": "formatting",
+    **dict.fromkeys(("check_fragment", "is_fragment_text"), "fragments"),
+    **dict.fromkeys(("QUANTITY_UNITS", "load_limits"), "limits"),
+    **dict.fromkeys(("load_procedure", "load_procedure_text"), "loader"),
+    "Procedure": "model",
+    **dict.fromkeys(("BoardInfo", "Limit", "Plan", "PlannedStep", "ProcedureMeta"), "plan_model"),
+    **dict.fromkeys(("fragment_schema", "procedure_schema", "schema_text"), "schema"),
+    **dict.fromkeys(("Quantity", "UnitError", "parse_quantity"), "units"),
+}
+
+
+def __getattr__(name: str) -> Any:
+    module = _LAZY.get(name)
+    if module is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(importlib.import_module(f".{module}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted({*globals(), *_LAZY})
+
 
 VALIDATION_SERIAL = "VALIDATION"
 
@@ -53,6 +90,10 @@ def validate_paths(
     lab's own folder, whose board types and limit sets are found before the shipped ones.
     """
     from .board_choice import LabFiles
+    from .boards import board_info
+    from .expand import build_plan
+    from .fragments import check_fragment
+    from .loader import load_procedure
 
     lab = LabFiles(folder=lab_dir)
     problems: list[Problem] = []
@@ -111,6 +152,8 @@ def _fragment_hint(path: str | Path, problems: Sequence[Problem]) -> list[Proble
 
 def _marked_fragment(path: str | Path) -> bool:
     """Whether the file says (in its modeline) it is a fragment; unreadable files are left to the loader."""
+    from .fragments import is_fragment_text
+
     try:
         with open(path, "rb") as handle:
             first = handle.readline(4096).decode("utf-8", "replace")
