@@ -22,6 +22,7 @@ from sequencer.events import (
     RunStarted,
     StepFinished,
     StepStarted,
+    StepStatus,
     TraceCaptured,
 )
 from sequencer.procedure.kinds import KINDS
@@ -29,6 +30,7 @@ from sequencer.procedure.plan_model import Plan, PlannedStep
 
 from .context import Reading, RunContext, StopFlag
 from .faults import FAULTS, describe_fault
+from .overlap import Held, Overlap, defers, may_overlap
 from .preflight import check_plan_against_bench, hazard_steps
 from .provenance import describe_run
 from .records import RunOptions, RunOutcome, StepResult
@@ -86,6 +88,7 @@ class Runner:
         self.handlers = handler_table()
         self.stop = stop if stop is not None else StopFlag()  # shared with whoever may stop it
         self._ctx: RunContext | None = None
+        self._overlap = Overlap()  # an analysis computing while the next steps run (overlap.py)
 
     # -- events -------------------------------------------------------------------------------
     def emit(self, event: Event) -> None:
@@ -101,6 +104,7 @@ class Runner:
             try:
                 return self._run()
             finally:
+                self._overlap.close()
                 self.bench.watch_stop(None)
 
     def _read_should_stop(self) -> bool:
@@ -131,12 +135,15 @@ class Runner:
             body = [s for s in self.plan.steps if s.block != "cleanup"]
             for index, step in enumerate(body):
                 self._step(ctx, step, index)
+            self._publish(ctx)
             ctx.step = None
         except BaseException as exc:
             failure = self._as_abort(exc, ctx.path)
             if not isinstance(exc, BenchwrightError | KeyboardInterrupt):
                 failure.__cause__ = exc
         unsafe = guard.make_safe(ctx.path) if failure is not None else ""
+        if failure is not None:
+            self._publish_after_abort(ctx)
         try:
             cleanup_error = self._cleanup(ctx, aborted=failure is not None)
         except BaseException as exc:  # a subscriber failed on a cleanup step's failure: the
@@ -195,10 +202,16 @@ class Runner:
             )
 
     def _step(self, ctx: RunContext, step: PlannedStep, index: int) -> None:
+        fresh = step.path not in self.completed
+        if self._overlap and (self._overlap.done() or not (fresh and may_overlap(step))):
+            self._publish(ctx)
         ctx.step = step
         ctx.checkpoint()
         ctx.guard.at_step()
         started = self.clock()
+        if fresh and (self._overlap or defers(step)):
+            self._hold(ctx, Held(step=step, index=index, started=started))
+            return
         self._announce(step, index, started)
         done = self.completed.get(step.path)
         if done is not None and not reexecuted_on_resume(step):
@@ -210,6 +223,12 @@ class Runner:
             result = self._execute(ctx, step)
             self._absorb(ctx, step, result, publish=done is None)
             status = "completed" if done is None else "replayed"
+        self._finished(step, started, self.clock(), status, result)
+
+    def _finished(
+        self, step: PlannedStep, started: datetime, finished: datetime, status: StepStatus,
+        result: StepResult | None,
+    ) -> None:  # fmt: skip
         self.emit(
             StepFinished(
                 run_id=self.run_id,
@@ -217,13 +236,49 @@ class Runner:
                 kind=step.kind,
                 status=status,
                 started_at=started,
-                finished_at=self.clock(),
+                finished_at=finished,
                 settings=dict(step.args),
                 labels=dict(step.labels),
                 results={} if result is None else with_qualifiers(result),
                 error=str(result.results.get("error", "")) if result is not None else "",
             )
         )
+
+    # -- an analysis computing while the next steps run (overlap.py) ----------------------------
+    def _hold(self, ctx: RunContext, item: Held) -> None:
+        """Start an analysis on the worker, or run a step after it and keep its result."""
+        if not self._overlap:
+            self._overlap.start(item, lambda: (self._execute(ctx, item.step), self.clock()))
+            return
+        self._overlap.held.append(item)
+        item.result = self._execute(ctx, item.step)  # raising: announced at publication only
+        item.finished = self.clock()
+
+    def _publish(self, ctx: RunContext) -> None:
+        """Wait for the held analysis, then emit its events and the held steps', in plan order
+        (an analysis that raised is raised here, at its own step)."""
+        if not self._overlap:
+            return
+        first = self._overlap.held[0]
+        ctx.step = first.step
+        self._announce(first.step, first.index, first.started)  # before its failure, if any
+        for item in self._overlap.take():
+            ctx.step = item.step
+            if item is not first:
+                self._announce(item.step, item.index, item.started)
+            if item.result is None or item.finished is None:
+                continue  # the step that raised: started, never finished (as without overlap)
+            self._absorb(ctx, item.step, item.result, publish=True)
+            self._finished(item.step, item.started, item.finished, "completed", item.result)
+
+    def _publish_after_abort(self, ctx: RunContext) -> None:
+        """On an abort (after the bias safe state): what was measured is still recorded."""
+        path = ctx.step
+        try:
+            self._publish(ctx)
+        except BaseException:  # the abort is the news; an analysis failing now adds nothing
+            self._overlap.held.clear()
+        ctx.step = path
 
     def _execute(self, ctx: RunContext, step: PlannedStep) -> StepResult:
         handler = self.handlers[step.kind]
