@@ -73,6 +73,7 @@ class BatchOptions:
     override_instrument_checks: bool = False  # run past calibration due / wrong identity (a caveat)
     default_operator: str = ""  # for a board the batch file names no operator for (the login name)
     on_board: Callable[[BoardOutcome], None] | None = None  # after each board (the demo certifies)
+    sim_bench_name: str | None = None  # the simulated bench's name (the demo runs three at once)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -307,7 +308,11 @@ class _BatchRun:
                 note = f"refused before any instrument was touched: {exc.problems[0].message}"
                 return BoardOutcome(serial=board.serial, status="aborted", note=note), False
         try:
-            bench = compose.bench_for(None, sim) if sim else contextlib.nullcontext(self.bench)
+            bench = (
+                compose.bench_for(None, sim, sim_bench_name=opts.sim_bench_name)
+                if sim
+                else contextlib.nullcontext(self.bench)
+            )
             with bench as spec:
                 result = compose.execute(plan, spec, self.store, request)
         except ConfigError as exc:

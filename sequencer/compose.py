@@ -189,12 +189,15 @@ def bench_for(
     allowed_visa_libraries: Sequence[str] = (),
     realtime: bool = False,
     report: Callable[[str], None] | None = None,
+    sim_bench_name: str | None = None,
 ) -> Iterator[BenchSpec]:
     """The bench spec from a bench file, or a simulated bench started in-process for the run.
 
     ``allowed_visa_libraries``: library paths allowed on the command line (see drivers.benchfile).
     ``realtime``: the simulated instruments take the time a real bench would (drivers/timing.py).
     ``report``: told, after a run on the simulator, how long a real bench would have taken.
+    ``sim_bench_name``: the simulated bench's name (recorded with the run; benches sharing one
+    database are told apart by it), else the simulator's default.
     """
     if bench_path and sim_board:
         raise OptionError("give --bench FILE or --sim BOARD.yaml, not both")
@@ -205,7 +208,8 @@ def bench_for(
         raise OptionError(MISSING_BENCH)
     from drivers.sim import start_sim_bench
 
-    with start_sim_bench(sim_board, realtime=realtime) as sim:
+    named = {} if sim_bench_name is None else {"bench_name": sim_bench_name}
+    with start_sim_bench(sim_board, realtime=realtime, **named) as sim:
         spec = bench_from_mapping(sim.bench_mapping(), source=f"<simulated bench for {sim_board}>")
         yield replace(spec, text=simulated_bench_text(sim_board, sim.bench_mapping()))
         if report is not None:

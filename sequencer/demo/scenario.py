@@ -1,4 +1,6 @@
-"""Run the demo scenario: the invented batch NR-2026-W14, qualified on simulated boards.
+"""Run the demo scenario: three invented batches (preamp boards, scintillator modules, the
+trigger chain), qualified on simulated boards by three benches of one lab at once
+(``benches``: a process per bench, one shared database, progress prefixed with the bench).
 
 Everything the demo writes goes into one folder (default ``./benchwright-demo``)::
 
@@ -10,20 +12,25 @@ Everything the demo writes goes into one folder (default ``./benchwright-demo``)
 
 Running it again qualifies the boards again into the same database (the summary takes each board's
 latest completed run).  The demo always ends normally: some of its boards fail on purpose.
+Stopped (Ctrl-C, SIGTERM), every bench stops its run as a single run stops -- bias ramped down
+and off -- and the demo exits 3 once all have ended.
 """
 
 from __future__ import annotations
 
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from sequencer.batchrun import BatchOptions, BatchOutcome, qualify_batch
+from sequencer.batchrun import BatchOutcome
 from sequencer.pace import describe_left
-from sequencer.procedure import load_batch
+from sequencer.procedure import Batch, load_batch
 from sequencer.store import Store
+
+if TYPE_CHECKING:
+    from .benches import Bench
 
 DEMO_BATCH = "batch.yaml"
 DEMO_MODULE_BATCH = "modules.yaml"
@@ -53,80 +60,117 @@ class DemoResult:
     trigger_outcome: BatchOutcome | None = None
 
 
+BATCH_FILES = (DEMO_BATCH, DEMO_MODULE_BATCH, DEMO_TRIGGER_BATCH)
+PREAMP_BENCHES = 2
+"""The preamp batch's boards are shared by this many identical benches (alternately, in batch
+order): its five boards, each with two real-time ramps, would alone take longer than the other
+two batches together."""
+
+
+def demo_benches(batches: Mapping[str, Batch]) -> list[Bench]:
+    """The benches of the demo's lab: two preamp benches sharing the preamp batch, a module bench
+    and a trigger-chain bench; each name is recorded with its runs."""
+    from .benches import Bench
+
+    preamp = batches[DEMO_BATCH]
+    serials = [b.serial for b in preamp.boards]
+    benches = [
+        Bench(name=f"demo-bench-preamp-{i + 1}", batch_file=DEMO_BATCH, label=f"preamp-{i + 1}",
+              serials=tuple(serials[i::PREAMP_BENCHES]))
+        for i in range(PREAMP_BENCHES)
+    ]
+    benches.append(Bench(name="demo-bench-modules", batch_file=DEMO_MODULE_BATCH, label="modules"))
+    benches.append(Bench(name="demo-bench-trigger", batch_file=DEMO_TRIGGER_BATCH, label="trigger"))
+    return benches
+
+
 def run_demo(
     out_dir: Path | str = DEFAULT_OUT,
     *,
     echo: Callable[[str], None] = print,
     workers: int | None = None,
 ) -> DemoResult:
-    """Qualify the demo batch on the simulator, certify every run, summarise the batch."""
+    """Qualify the scenario's three batches at once on simulated benches of one lab, into one
+    database (``benches``); certify every run as it ends; summarise each batch once its benches
+    are done."""
     from sequencer.reports import batch_report, batch_summary
+    from sequencer.reports.certify_pool import CertificatePool
+
+    from .benches import run_benches
 
     start = time.perf_counter()
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
-    batch = load_batch(demo_dir() / DEMO_BATCH)
+    batches = {file: load_batch(demo_dir() / file) for file in BATCH_FILES}
     db_url = f"sqlite:///{(out / 'results.db').resolve()}"
-    echo(f"demo: batch {batch.name} ({len(batch.boards)} invented boards) on the simulator")
-    from sequencer.reports.certify_pool import CertificatePool
-
+    benches = demo_benches(batches)
+    _introduce(batches, benches, echo)
     progress = _CertificateProgress(echo)
-    echo("demo: its database is a throwaway, so commits do not wait for the disk (a power cut may "
-         "lose the last steps); the store of a real run waits for the disk after every step")
+    texts: dict[str, str] = {}
+    reports: dict[str, list[Path]] = {}
     with (
-        Store.open(db_url, wait_for_disk=False) as store,
+        Store.open(db_url, wait_for_disk=False) as store,  # the schema, before any bench opens it
         CertificatePool(workers, on_progress=progress) as pool,
     ):
-        # the workers draw each board's certificates while the next board is qualified
-        outcome = _qualify(store, batch, out, echo, pool)
-        modules = load_batch(demo_dir() / DEMO_MODULE_BATCH)
-        echo(
-            f"demo: batch {modules.name} ({len(modules.boards)} invented scintillator modules, "
-            "cosmic rays on the simulator's fast clock)"
-        )
-        module_outcome = _qualify(store, modules, out, echo, pool)
-        trigger = load_batch(demo_dir() / DEMO_TRIGGER_BATCH)
-        echo(
-            f"demo: batch {trigger.name} ({len(trigger.boards)} invented trigger-chain modules: "
-            "a coincidence unit, a fast digitizer)"
-        )
-        trigger_outcome = _qualify(store, trigger, out, echo, pool)
-        batches = (batch, modules, trigger)
-        text = "\n\n".join(batch_summary(store, b.name).to_text() for b in batches)
+        def certify(bench: Bench, board: Any) -> None:
+            # the workers draw each board's certificates while the benches go on (not once the
+            # demo is being stopped)
+            if board.run_id is not None and not bench.signalled:
+                pool.submit_run(store, board.run_id, out / "certificates")
+
+        def summarise(bench: Bench) -> None:
+            # a batch's summary and report once all its benches are done, while the others work
+            if any(b.outcome is None for b in benches if b.batch_file == bench.batch_file):
+                return
+            name = batches[bench.batch_file].name
+            texts[bench.batch_file] = batch_summary(store, name).to_text()
+            reports[bench.batch_file] = batch_report(store, name, out / "batch-report")
+
+        run_benches(benches, db_url, echo=echo, on_board=certify, on_done=summarise)
+        text = "\n\n".join(texts[file] for file in BATCH_FILES)
         summary_path = out / "batch-summary.txt"
         summary_path.write_text(text + "\n", encoding="utf-8")
-        report = [p for b in batches for p in batch_report(store, b.name, out / "batch-report")]
         progress.waiting = True
         certificates = pool.wait()
     echo("")
     echo(text)
+    preamp, modules, trigger = (_batch_outcome(batches[f], benches) for f in BATCH_FILES)
     return DemoResult(
         out_dir=out,
         db_url=db_url,
         certificates=tuple(certificates),
         summary_path=summary_path,
-        report=tuple(report),
-        outcome=outcome,
+        report=tuple(p for file in BATCH_FILES for p in reports[file]),
+        outcome=preamp,
         seconds=time.perf_counter() - start,
-        module_outcome=module_outcome,
-        trigger_outcome=trigger_outcome,
+        module_outcome=modules,
+        trigger_outcome=trigger,
     )
 
 
-def _qualify(
-    store: Store, batch: Any, out: Path, echo: Callable[[str], None], pool: Any
-) -> BatchOutcome:
-    """Qualify one batch of the scenario on the simulator; each board's run goes to the
-    certificate pool as soon as it ends."""
+def _introduce(batches: Mapping[str, Batch], benches: list[Bench], echo: Callable[[str], None]) -> None:
+    preamp, modules, trigger = (batches[f] for f in BATCH_FILES)
+    shares = [b for b in benches if b.batch_file == DEMO_BATCH]
+    echo(f"demo: {len(benches)} simulated benches of one lab at once, one database:")
+    echo(f"demo:   {', '.join(b.label for b in shares)} - batch {preamp.name}, "
+         f"{len(preamp.boards)} invented preamp boards shared by {len(shares)} identical benches")
+    echo(f"demo:   modules - batch {modules.name}, {len(modules.boards)} invented scintillator "
+         "modules (cosmic rays on the simulator's fast clock)")
+    echo(f"demo:   trigger - batch {trigger.name}, {len(trigger.boards)} invented trigger-chain "
+         "modules (a coincidence unit, a fast digitizer)")
+    echo("demo: its database is a throwaway, so commits do not wait for the disk (a power cut may "
+         "lose the last steps); the store of a real run waits for the disk after every step")
 
-    def certify(board: Any) -> None:
-        if board.run_id is not None:
-            pool.submit_run(store, board.run_id, out / "certificates")
 
-    options = BatchOptions(
-        sim_dir=str(demo_dir()), unattended=True, requalify=True, echo=echo, on_board=certify
+def _batch_outcome(batch: Batch, benches: list[Bench]) -> BatchOutcome:
+    """The outcome of ``batch`` over the benches that shared it, its boards in batch order."""
+    shares = [b.outcome for b in benches if b.outcome is not None and b.outcome.batch == batch.name]
+    by_serial = {o.serial: o for share in shares for o in share.boards}
+    return BatchOutcome(
+        batch=batch.name,
+        boards=tuple(by_serial[b.serial] for b in batch.boards if b.serial in by_serial),
+        stopped=any(share.stopped for share in shares),
     )
-    return qualify_batch(batch, store, options)
 
 
 class _CertificateProgress:

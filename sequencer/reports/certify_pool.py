@@ -58,9 +58,15 @@ def _render_in_worker(datas: list[CertificateData], out_dir: str, paper: str) ->
 
 
 def _set_up_worker() -> None:
-    """The shared plot set-up, once per worker as it starts (``certify_worker`` at import)."""
-    import importlib
+    """The shared plot set-up, once per worker as it starts (``certify_worker`` at import).
 
+    A worker ignores SIGINT: a Ctrl-C in the terminal reaches the whole process group, and the
+    command that owns the pool decides what stops (it cancels what is queued and waits for what is
+    being drawn); a worker interrupted mid-drawing only broke the pool with a traceback."""
+    import importlib
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
     importlib.import_module(WORKER_MODULE)
 
 

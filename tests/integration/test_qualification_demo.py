@@ -1,9 +1,9 @@
 """``benchwright demo``: the invented batch qualified end to end on the simulator.
 
-The full demo takes about 95 s on 2 cores for five 8-channel boards with real-time bias ramps and 80
-certificates, about 90 s more for the three scintillator modules and a few seconds for the
-trigger-chain modules (short scans): marked slow.  Its time goal (under two minutes) is measured by
-tests/benchmarks/bench_demo.py, not asserted here.  The quick test checks the scenario itself:
+The full demo qualifies five 8-channel boards (on two preamp benches), three scintillator modules
+and two trigger-chain modules (short scans) on four simulated benches at once, with real-time bias
+ramps, and draws 51 certificates: marked slow.  Its time goal (under a minute) is measured by
+tests/benchmarks/bench_demo.py, not asserted here; here the benches' runs are checked to overlap.  The quick test checks the scenario itself:
 invented serials, one fault of each kind, the batch file naming the shipped procedure, and a board
 of the inverted board type PA8N judged as such (issue 15).
 """
@@ -17,6 +17,7 @@ from click.testing import CliRunner
 from sequencer.cli import attach_commands, cli
 from sequencer.demo import DEMO_BATCH, DEMO_MODULE_BATCH, DEMO_TRIGGER_BATCH, demo_dir
 from sequencer.procedure import load_batch, load_procedure
+from sequencer.store import Store
 
 
 def test_the_scenario_has_one_fault_of_each_kind():
@@ -87,3 +88,13 @@ def test_demo_runs_end_to_end(tmp_path):
     assert "batch NR-2026-W14T: 2 boards, 5 channels, 0 passed" in summary
     assert "resolving_time_ns" in summary and "missing_codes" in summary
     assert str(out / "certificates") in result.output
+    # four benches at once into the one database, each run recorded with its bench
+    with Store.open(f"sqlite:///{out / 'results.db'}", create=False) as store:
+        runs = store.list_runs()
+    benches = {r.bench for r in runs}
+    assert benches == {"demo-bench-preamp-1", "demo-bench-preamp-2", "demo-bench-modules",
+                       "demo-bench-trigger"}
+    long = ("demo-bench-preamp-1", "demo-bench-preamp-2", "demo-bench-modules")
+    spans = [(min(r.started_at for r in runs if r.bench == b),
+              max(r.ended_at for r in runs if r.bench == b)) for b in long]
+    assert max(start for start, _ in spans) < min(end for _, end in spans)  # the three at once
