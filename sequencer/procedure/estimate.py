@@ -5,8 +5,10 @@ The figures come from the timing model the simulator paces itself by (:mod:`driv
 
 * ``scope.capture``: ``averages`` acquisitions, each the longer of the record (points / sample rate)
   and the trigger period (1 / pulser rate) plus the scope's re-arm time; one message to start it,
-  then per input two queries (preamble, data) and the block's transfer (points x 2 bytes); with
-  ``target_uncertainty`` that many times ``max_captures`` (an upper bound);
+  then per input the data query and the block's transfer (points x 2 bytes), and the preamble
+  query too unless a capture since the last scope setting has read it (the driver keeps it,
+  drivers/roles/preamble_cache.py); with ``target_uncertainty`` or ``noise_target`` that many
+  times ``max_captures`` (an upper bound);
 * ``counter.count``: the gate time and two messages; ``bias.ramp``: |V - previous setpoint| / rate
   plus a settling check; ``switch.route``/``inject``: one message and the relays' settling;
 * ``wait``: its time; ``prompt``: a typical operator reply; analysis: a few milliseconds;
@@ -60,6 +62,7 @@ class _Bench:
     coincidence_gate: float = 0.1
     bias_volts: float = 0.0
     made: dict[str, Any] = field(default_factory=dict)  # step kind -> the last setting made
+    preamble_kept: bool = False  # a capture read the preamble since the last scope setting
 
 
 Rule = Callable[[EstimateSettings, _Bench, dict[str, Any]], float]
@@ -69,16 +72,21 @@ def _capture(s: EstimateSettings, b: _Bench, args: dict[str, Any]) -> float:
     scope = s.timing.of("scope")
     acquire = acquisition_s(averages=b.averages, points=b.points, sample_rate_hz=b.sample_rate,
                             trigger_rate_hz=b.pulse_rate, rearm_s=scope.rearm_s)  # fmt: skip
-    per_input = 2 * scope.round_trip_s + transfer_s(b.points * s.bytes_per_sample, scope)
-    one = acquire + scope.round_trip_s + len(args.get("inputs", (1,))) * per_input
-    return _captures(args) * one
+    per_input = scope.round_trip_s + transfer_s(b.points * s.bytes_per_sample, scope)
+    inputs = len(args.get("inputs", (1,)))
+    one = acquire + scope.round_trip_s + inputs * per_input
+    preambles = 0 if b.preamble_kept else inputs * scope.round_trip_s
+    b.preamble_kept = True
+    return _captures(args) * one + preambles
 
 
 def _captures(args: dict[str, Any]) -> int:
-    """Captures of one ``scope.capture``: one, or with ``target_uncertainty`` its ``max_captures``
-    (the most it may take: the estimate is an upper bound there)."""
+    """Captures of one ``scope.capture``: one, or with ``target_uncertainty`` or ``noise_target``
+    its ``max_captures`` (the most it may take: the estimate is an upper bound there)."""
     if float(args.get("target_uncertainty") or 0.0) > 0.0:
         return int(args.get("max_captures") or 16)
+    if float(args.get("noise_target") or 0.0) > 0.0:
+        return int(args.get("max_captures") or 8)
     return 1
 
 
@@ -160,6 +168,8 @@ def estimate_steps(
             seconds = settings.analysis_s
         else:
             seconds = settings.message_s(step.kind.split(".", 1)[0])
+        if step.kind.startswith("scope.") and step.kind != "scope.capture" and seconds > 0.0:
+            bench.preamble_kept = False  # a scope setting sent: the next capture reads it again
         out.append(max(0.0, seconds))
     return out
 

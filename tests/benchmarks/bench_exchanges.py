@@ -5,7 +5,8 @@
   commands and their error query into one message and checks the error queue once per group
   (drivers/scpi/messages.py).  Baseline, in the same run: the same procedure on the same board with a
   copy of the generic dialect whose ``messages:`` allows none of that (one command and one error
-  query per message).  An exchange is one program message sent (a query and its reply count once);
+  query per message) and whose scope reads its preamble for every capture (``cache: false``,
+  drivers/roles/preamble_cache.py).  An exchange is one program message sent (a query and its reply count once);
   counted by every role's session.  Goal: ratio <= 0.5.
 
 Both runs must give the same verdict for every value, and every value that has an uncertainty must
@@ -47,6 +48,11 @@ def plain_generic(folder: Path) -> Path:
     lines = [PLAIN_MESSAGES if ln.startswith("messages:") else ln for ln in text.splitlines()]
     if PLAIN_MESSAGES not in lines:
         raise SystemExit("the generic dialect has no 'messages:' line to switch off")
+    # the scope's waveform preamble, read for every capture
+    at = [i for i, ln in enumerate(lines) if ln.strip() == "preamble:"]
+    if len(at) != 1:
+        raise SystemExit("the generic dialect's waveform preamble was not found to switch off")
+    lines.insert(at[0] + 1, " " * (len(lines[at[0]]) - len(lines[at[0]].lstrip()) + 2) + "cache: false")
     out = folder / "generic-plain.yaml"
     out.write_text("\n".join(lines) + "\n", encoding="utf-8")
     return out

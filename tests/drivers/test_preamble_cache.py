@@ -193,7 +193,8 @@ def test_affected_by_names_operations_of_the_role():
     bad = LAB.replace("set_average_count]", "set_avrage_count]")
     with pytest.raises(ConfigError) as exc:
         parse_dialect(bad, "lab.yaml")
-    assert "lab.yaml:17:" in str(exc.value) and "unknown operation set_avrage_count" in str(exc.value)
+    text = str(exc.value)
+    assert "lab.yaml:17:" in text and "unknown operation set_avrage_count" in text
     with pytest.raises(ConfigError, match="cache must be true or false"):
         parse_dialect(LAB.replace("affected_by: [set_range, set_offset, set_average_count]",
                                   "cache: maybe"), "lab.yaml")  # fmt: skip

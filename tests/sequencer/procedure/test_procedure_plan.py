@@ -203,6 +203,24 @@ def test_a_capture_to_a_target_uncertainty_is_estimated_at_its_most_captures():
         "  - scope.capture: {inputs: [1], into: [a], target_uncertainty: 0.05 mV, max_captures: 6}\n"
     )
     # the one-input capture of test_capture_and_count_estimates, at most 6 times (an upper bound:
-    # the captures stop earlier when the height's standard error reaches the target)
-    one = 10 * 0.01 + 0.001 + (2 * 0.001 + 0.001)
-    assert plan.steps[3].estimate_s == pytest.approx(6 * one)
+    # the captures stop earlier when the height's standard error reaches the target); the
+    # preamble is read once, then kept (drivers/roles/preamble_cache.py)
+    one = 10 * 0.01 + 0.001 + (0.001 + 0.001)
+    assert plan.steps[3].estimate_s == pytest.approx(6 * one + 0.001)
+
+
+def test_noise_records_to_a_target_and_a_kept_preamble():
+    plan = plan_of(
+        HEAD + "steps:\n  - scope.timebase: {sample_rate: 1 GS/s, points: 5000}\n"
+        "  - pulser.rate: 100 Hz\n"
+        "  - scope.capture: {inputs: [1], into: [a], noise_target: 2 %, max_captures: 4}\n"
+        "  - scope.capture: {inputs: [1], into: [b]}\n"
+        "  - scope.input: {input: 1, range: 50 mV}\n"
+        "  - scope.capture: {inputs: [1], into: [c]}\n"
+    )
+    # one acquisition = one trigger period (10 ms); start, data query, 10 kB at 10 MB/s
+    one = 0.01 + 0.001 + (0.001 + 0.001)
+    records, again, _, after = (s.estimate_s for s in plan.steps[2:])
+    assert records == pytest.approx(4 * one + 0.001)  # at most 4, one preamble
+    assert again == pytest.approx(one)  # nothing set since: the preamble is kept
+    assert after == pytest.approx(one + 0.001)  # a new range: read again
