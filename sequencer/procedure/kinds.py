@@ -122,10 +122,16 @@ KINDS: Mapping[str, StepKind] = {k.name: k for k in (
        Arg("target_uncertainty", "voltage", required=False,
            doc="repeat the capture until the pulse height on the first input has this standard "
                "error of the mean (GUM Type A, JCGM 100:2008 4.2); unset or 0 = one capture"),
+       Arg("noise_target", "percent", required=False,
+           doc="noise records: repeat the capture until the RMS of the first input's samples has "
+               "this relative standard uncertainty, their correlation counted (1/sqrt(2 dof), "
+               "GUM E.4.3; Bartlett's effective samples); every capture kept; unset or 0 = one"),
        Arg("min_captures", "int", required=False,
-           doc="captures at least, with target_uncertainty (unset: 3)"),
+           doc="captures at least, with a target (unset: 3 for target_uncertainty, 1 for "
+               "noise_target)"),
        Arg("max_captures", "int", required=False,
-           doc="captures at most, with target_uncertainty (unset: 16)"),
+           doc="captures at most, with a target (unset: 16 for target_uncertainty, 8 for "
+               "noise_target)"),
        measures=True),
     # -- threshold DAC, counter -------------------------------------------------------------------
     _k("threshold.level", "threshold", "set a discriminator threshold",

@@ -16,6 +16,7 @@ import numpy as np
 
 from drivers.trace import Trace
 from sequencer import analysis as an
+from sequencer.analysis.noise_stats import rms_precision
 from sequencer.procedure.kinds import KINDS
 from sequencer.procedure.plan_model import PlannedStep
 
@@ -187,7 +188,9 @@ def analyse_transfer(ctx: RunContext, step: PlannedStep) -> StepResult:
 
 def analyse_noise(ctx: RunContext, step: PlannedStep) -> StepResult:
     """Baseline RMS, corrected to a single acquisition for averaged captures (white noise falls as
-    1/√N with N averages — REFERENCES.md), divided by the gain."""
+    1/√N with N averages — REFERENCES.md), divided by the gain.  Its uncertainty counts the
+    samples' correlation (Bartlett's effective sample count, :mod:`sequencer.analysis.noise_stats`):
+    band-limited noise sampled fast has far fewer independent samples than points."""
     items = _traces(ctx, step, step.args["traces"])
     rows, _ = _stack_mV(items)
     n = int(step.args.get("n_baseline") or 0) or rows.shape[1]
@@ -196,9 +199,11 @@ def analyse_noise(ctx: RunContext, step: PlannedStep) -> StepResult:
     single = rms * np.sqrt([t.averages for t in items])
     combined = float(np.sqrt(np.mean(single**2)))
     gain = _gain(ctx, step, output_of(step))
-    unc = combined / np.sqrt(2.0 * n * len(items)) / abs(gain)  # RMS of n Gaussian samples
+    precision = rms_precision(rows[:, :n])
+    unc = combined * precision.relative_uncertainty / abs(gain)
+    found = {"baseline_rms_mV": combined, "gain": gain, "traces": len(items)}
     return StepResult(
-        results={"baseline_rms_mV": combined, "gain": gain, "traces": len(items)},
+        results={**found, "effective_samples": precision.effective},
         measurements=[measure(ctx, step, "noise_in_mV", combined / abs(gain), uncertainty=unc)],
     )
 

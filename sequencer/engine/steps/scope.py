@@ -8,6 +8,7 @@ import numpy as np
 
 from drivers.trace import Trace
 from sequencer.analysis.averaging import MeanToTarget, capture_heights
+from sequencer.analysis.noise_stats import RmsToTarget
 from sequencer.analysis.pulses import pretrigger_baseline
 from sequencer.procedure.plan_model import PlannedStep
 
@@ -92,26 +93,62 @@ def set_averages(ctx: RunContext, step: PlannedStep) -> StepResult:
 
 
 def capture(ctx: RunContext, step: PlannedStep) -> StepResult:
-    """Acquire once, fetch every input; trace ``into[i]`` comes from input ``inputs[i]``."""
+    """Acquire once, fetch every input; trace ``into[i]`` comes from input ``inputs[i]``.  With
+    ``target_uncertainty`` the captures repeat and are averaged; with ``noise_target`` they repeat
+    and each is handed on (several traces under each name)."""
     inputs = [int(i) for i in step.args["inputs"]]
     names = step.args["into"]
     names = [names] if isinstance(names, str) else list(names)
     if len(names) != len(inputs):
         raise ValueError(f"scope.capture: {len(inputs)} inputs but {len(names)} names in 'into'")
     target = float(step.args.get("target_uncertainty") or 0.0)
+    noise_target = float(step.args.get("noise_target") or 0.0) / 100.0
+    if target > 0.0 and noise_target > 0.0:
+        raise ValueError("scope.capture: target_uncertainty (pulses, averaged) or noise_target "
+                         "(noise, every capture kept), not both")  # fmt: skip
     results: dict = {}
     if target > 0.0:
-        traces, results = _capture_to_target(ctx, step, inputs, target)
+        captures = [_capture_to_target(ctx, step, inputs, target)]
+        results = captures[0][1]
+    elif noise_target > 0.0:
+        taken, results = _noise_to_target(ctx, step, inputs, noise_target)
+        captures = [(t, results) for t in taken]
     else:
-        traces = ctx.bench.scope.capture(inputs)
+        captures = [(ctx.bench.scope.capture(inputs), results)]
     labels = dict(step.labels)
     return StepResult(
         traces=[
             replace(with_rails(t, ctx.input_rails.get(i)), name=n, labels=labels)
+            for traces, _ in captures
             for n, t, i in zip(names, traces, inputs, strict=True)
         ],
         results=results,
     )
+
+
+def _noise_to_target(
+    ctx: RunContext, step: PlannedStep, inputs: list[int], target: float
+) -> tuple[list[list[Trace]], dict]:
+    """Noise captures (each kept as it is: averaging would divide the noise) repeated until the RMS
+    of the first input's samples has a relative standard uncertainty at or below ``target``,
+    counting their correlation (:mod:`sequencer.analysis.noise_stats`).  The stop flag is looked
+    at before each capture; the count is bounded by ``max_captures``."""
+    a = step.args
+    rule = RmsToTarget(target, min_count=int(a.get("min_captures") or 1),
+                       max_count=int(a.get("max_captures") or 8))  # fmt: skip
+    taken: list[list[Trace]] = []
+    while not rule.stopped:
+        ctx.checkpoint()
+        taken.append(list(ctx.bench.scope.capture(inputs)))
+        rule.replace_all(np.stack([t[0].mV for t in taken]))
+    p = rule.precision
+    return taken, {
+        "captures": len(taken),
+        "rms_relative_uncertainty": p.relative_uncertainty if p else float("nan"),
+        "effective_samples": p.effective if p else float("nan"),
+        "target_reached": rule.reached,
+        "stopped": rule.stopped,
+    }
 
 
 def _capture_to_target(
