@@ -71,8 +71,10 @@ def run() -> list[dict]:
         print(f"  bench clock {kind:12s} {seconds:7.2f} s", file=sys.stderr)
     slowest = sorted(r["per_kind"].items(), key=lambda kv: -kv[1])[:8]
     print(
-        "  slowest step kinds: " + ", ".join(f"{k} {s:.1f} s" for k, s in slowest), file=sys.stderr
-    )
+        "  slowest step kinds: " + ", ".join(f"{k} {s:.1f} s" for k, s in slowest)
+        + " (an analysis computes while the steps after it run: its time overlaps theirs)",
+        file=sys.stderr,
+    )  # fmt: skip
     ratio = wall / floor
     return [
         {

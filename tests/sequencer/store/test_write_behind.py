@@ -12,7 +12,6 @@ from __future__ import annotations
 import threading
 from collections.abc import Callable
 from datetime import UTC, datetime
-from pathlib import Path
 
 import pytest
 
@@ -135,29 +134,26 @@ def test_close_writes_everything_queued_then_refuses_more() -> None:
         behind(_finished(10))
 
 
-def test_a_store_records_the_same_run_behind_as_synchronously(tmp_path: Path) -> None:
-    def record(url: str, behind: bool) -> list[object]:
-        with Store.open(url) as store:
-            run_id = store.create_run(run_info(), datetime.now(UTC))
-            events: list[Event] = []
-            for i in range(6):
-                events += step_events(run_id, f"steps/{i}", index=i, seed=i)
-            events.append(finished(run_id, "completed"))
-            if behind:
-                with store.writing_behind() as recorder:
-                    assert isinstance(recorder, WriteBehind)
-                    for event in events:
-                        recorder(event)
-            else:
+def test_a_store_records_the_same_run_behind_as_synchronously(store: Store) -> None:
+    # on SQLite and PostgreSQL (the conftest's db_url): the writer thread takes its own connection
+    def record(behind: bool) -> list[object]:
+        run_id = store.create_run(run_info(), datetime.now(UTC))
+        events: list[Event] = []
+        for i in range(6):
+            events += step_events(run_id, f"steps/{i}", index=i, seed=i)
+        events.append(finished(run_id, "completed"))
+        if behind:
+            with store.writing_behind() as recorder:
+                assert isinstance(recorder, WriteBehind)
                 for event in events:
-                    store.handle(event)
-            run = store.get_run(run_id)
-            steps = store.steps(run_id)
-            rows = [(s.path, s.status, s.position) for s in steps]
-            ms = sorted((m.quantity, m.channel, m.value) for m in store.measurements(run_id))
-            return [run.status, rows, ms]
+                    recorder(event)
+        else:
+            for event in events:
+                store.handle(event)
+        rows = [(s.path, s.status, s.position) for s in store.steps(run_id)]
+        ms = [(m.path, m.quantity, m.channel, m.value) for m in store.measurements(run_id)]
+        return [store.get_run(run_id).status, rows, ms]
 
-    sync = record(f"sqlite:///{tmp_path}/sync.db", behind=False)
-    behind = record(f"sqlite:///{tmp_path}/behind.db", behind=True)
-    assert behind == sync
-    assert sync[0] == "completed" and len(sync[1]) == 6
+    sync = record(behind=False)
+    assert record(behind=True) == sync
+    assert sync[0] == "completed" and len(sync[1]) == 6 and len(sync[2]) == 18
