@@ -47,49 +47,36 @@ def _wall(argv: list[str]) -> float:
 _ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
 
 
-def run() -> list[dict[str, Any]]:
-    from sequencer.store import Store
-
-    with tempfile.TemporaryDirectory() as tmp:
-        url = f"sqlite:///{Path(tmp) / 'small.db'}"
-        with Store.open(url):
-            pass
-        ours_argv = [sys.executable, "-m", "sequencer", "runs", "--db", url]
-        base_argv = [sys.executable, "-c", "import sqlite3"]
-        _wall(ours_argv)  # warm-up: the bytecode cache (module docstring)
-        ours, base = [], []
-        for _ in range(REPEATS):
-            ours.append(_wall(ours_argv))
-            base.append(_wall(base_argv))
+def _row(name: str, command: list[str], goal: float) -> dict[str, Any]:
+    """``benchwright COMMAND`` against the interpreter floor, interleaved, best of ``REPEATS``."""
+    ours_argv = [sys.executable, "-m", "sequencer", *command]
+    base_argv = [sys.executable, "-c", "import sqlite3"]
+    _wall(ours_argv)  # warm-up: the bytecode cache (module docstring)
+    ours, base = [], []
+    for _ in range(REPEATS):
+        ours.append(_wall(ours_argv))
+        base.append(_wall(base_argv))
     best, floor = min(ours), min(base)
     ratio = best / floor
-    return [{
-        "name": "cli_start", "ours": best, "baseline": floor, "unit": "s", "ratio": ratio,
-        "goal": f"≤ {GOAL:g}×", "verdict": "met" if ratio <= GOAL else "short",
-    }, _verify_row()]
+    return {
+        "name": name, "ours": best, "baseline": floor, "unit": "s", "ratio": ratio,
+        "goal": f"≤ {goal:g}×", "verdict": "met" if ratio <= goal else "short",
+    }
 
 
-def _verify_row() -> dict[str, Any]:
+def run() -> list[dict[str, Any]]:
     from sequencer.reports import certify_run
     from sequencer.store import Store
     from tests.sequencer.reports.simulated_runs import RunSpec, record_run
 
     with tempfile.TemporaryDirectory() as tmp:
+        url = f"sqlite:///{Path(tmp) / 'small.db'}"
+        with Store.open(url):
+            pass
+        start = _row("cli_start", ["runs", "--db", url], GOAL)
         url = f"sqlite:///{Path(tmp) / 'certified.db'}"
         with Store.open(url) as store:
             run_id = record_run(store, RunSpec(channels=8))
             paths = certify_run(store, run_id, Path(tmp) / "certificates", workers=1)
         html = str(next(p for p in paths if p.suffix == ".html"))
-        ours_argv = [sys.executable, "-m", "sequencer", "verify", "--db", url, html]
-        base_argv = [sys.executable, "-c", "import sqlite3"]
-        _wall(ours_argv)  # warm-up: the bytecode cache (module docstring)
-        ours, base = [], []
-        for _ in range(REPEATS):
-            ours.append(_wall(ours_argv))
-            base.append(_wall(base_argv))
-    best, floor = min(ours), min(base)
-    ratio = best / floor
-    return {
-        "name": "cli_verify", "ours": best, "baseline": floor, "unit": "s", "ratio": ratio,
-        "goal": f"≤ {VERIFY_GOAL:g}×", "verdict": "met" if ratio <= VERIFY_GOAL else "short",
-    }
+        return [start, _row("cli_verify", ["verify", "--db", url, html], VERIFY_GOAL)]

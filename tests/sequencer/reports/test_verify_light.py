@@ -23,6 +23,7 @@ from sequencer.inputs import RunInput
 from sequencer.reports.certificate_data import data_sha256, gather_certificates
 from sequencer.store import Store
 from sequencer.store.light_records import LightRecords, open_records
+from tests.sequencer.test_cli_start import PROBE
 
 from .simulated_runs import PROCEDURE_TEXT, RunSpec, record_run
 from .test_verify import _copy_db, _tamper_db
@@ -127,20 +128,6 @@ def test_verify_command_on_both_paths_passes_untouched_and_names_tampering(certi
     done = _verify(f"sqlite:///{db}{options}", edited)
     assert done.exit_code == 1
     assert "embedded data does not match the SHA-256" in done.stderr
-
-
-PROBE = """
-import json, sys
-from sequencer.cli import main
-sys.argv = ["benchwright", *sys.argv[1:]]
-try:
-    main()
-except SystemExit as exit_:
-    code = exit_.code
-else:
-    code = 0
-print(json.dumps({"code": code, "modules": sorted({m.split(".")[0] for m in sys.modules})}))
-"""
 
 
 def test_verify_of_an_sqlite_file_imports_no_database_toolkit(certified):
