@@ -216,3 +216,38 @@ def test_plain_messages_an_acquisition_and_a_chunk_range_keep_it():
     assert scope.capture([1])[0].volts.tolist() == pytest.approx([0.005, 0.002])
     assert scope.capture([1])[0].volts.tolist() == pytest.approx([0.005, 0.002])
     link.assert_done()
+
+
+FORMAT_1 = textwrap.dedent(
+    """\
+    dialect: lab1
+    binary: {data_format: 'INTeger,16', kind: int16, byte_order: big}
+    roles:
+      scope:
+        set_range: {write: "RANG{input:d} {volts:.9g}"}
+        set_offset: {write: "OFFS{input:d} {volts:.9g}"}
+        set_data_format: {write: "FORM {kind}"}
+        acquire: {write: "INIT"}
+        preamble: {query: "PRE? {input:d}", returns: csv}
+        fetch: {query: "DATA? {input:d}", returns: block}
+    """
+)
+
+
+def test_a_format_1_dialect_keeps_it_until_any_write():
+    # x_increment, x_origin, y_increment, y_origin, points, averages; one int16 code of 100
+    plain_init = [("INIT", None), (ERRQ, OK), ("*OPC?", b"1\n")]
+    pre, data = ("PRE? 1", b"1e-9,0,0.001,0,1,1\n"), ("DATA? 1", b"#12\x00\x64\n")
+    link = ScriptedTransport().expect(
+        ("FORM INTeger,16", None), (ERRQ, OK),
+        plain_init, pre, data,
+        plain_init, data,
+        ("RANG1 0.1", None), (ERRQ, OK), ("OFFS1 0", None), (ERRQ, OK),  # sent: no tracking
+        plain_init, ("PRE? 1", b"1e-9,0,0.002,0,1,1\n"), data,
+    )  # fmt: skip
+    scope = scope_on(link, parse_dialect(FORMAT_1, "lab1.yaml"))
+    assert scope.capture([1])[0].volts.tolist() == pytest.approx([0.1])
+    assert scope.capture([1])[0].volts.tolist() == pytest.approx([0.1])
+    scope.set_input(1, range_mV=100)
+    assert scope.capture([1])[0].volts.tolist() == pytest.approx([0.2])
+    link.assert_done()
