@@ -13,11 +13,14 @@ Instrument time is what the bench's clock accounted for the scope's acquisitions
 * the stopping rule did what it says: a point that stopped early reached the target, one that did
   not took the whole budget;
 * less acquisition time than the fixed count, and exactly the captures taken times 32 averages
-  at the pulser's 10 kHz (the timing model: acquisition = averages / trigger rate).
+  at the pulser's 10 kHz (the timing model: acquisition = averages / trigger rate);
+* on a second board with inverted outputs, a 20 ns cable delay and DC levels of a few mV (judged
+  as PA8N), the same values and verdicts too, and its true (negative) gains within 1 %.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from pathlib import Path
 
@@ -25,7 +28,7 @@ import pytest
 
 from drivers.sim import start_sim_bench
 from sequencer import compose
-from sequencer.procedure import build_plan, load_procedure
+from sequencer.procedure import build_plan, load_board_type, load_procedure
 from sequencer.store import Store
 from tests.integration.qualification_sim import PROCEDURES, channel, small_board, write_board
 
@@ -108,3 +111,48 @@ def test_less_acquisition_time_than_the_fixed_count(runs):
     taken = sum(s.results["captures"] for s in steps)
     assert adaptive_s == pytest.approx(taken * 32 / PULSER_HZ)
     assert adaptive_s < fixed_s
+
+
+# A board unlike the first (issue 21: validated on boards with other polarity, baselines, delays
+# and noise): inverted fast outputs, a 20 ns cable delay, DC levels of a few mV, a noisier channel.
+INVERTED = [
+    channel(gain_x1=1.01, gain_x5=4.95, baseline_mV=-3.0),
+    channel(gain_x1=0.98, gain_x5=5.05, baseline_mV=4.0, noise_in_mV=0.5),
+]
+
+
+@pytest.fixture(scope="module")
+def inverted_runs(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("adaptive_amplitude_inverted")
+    board = write_board(folder, "NR-PA8-T702", INVERTED, seed=23, polarity="negative",
+                        pulse_delay_ns=20.0)  # fmt: skip
+    plan_runs = []
+    for name, overrides in (("fixed", {}), ("adaptive", ADAPTIVE)):
+        inverted = dataclasses.replace(load_board_type("PA8N"), serial="NR-PA8-T702",
+                                       channels=len(INVERTED))  # judged by its own polarity
+        plan = build_plan(load_procedure(PROCEDURES / "gain-linearity.yaml"), inverted,
+                          overrides=overrides)  # fmt: skip
+        request = compose.RunRequest(operator="test", unattended=True, progress=False,
+                                     handle_signals=False)  # fmt: skip
+        with Store.open(f"sqlite:///{folder / name}.db") as store, start_sim_bench(board) as sim:
+            from drivers.bench import bench_from_mapping
+
+            spec = bench_from_mapping(sim.bench_mapping(), source="<sim>")
+            result = compose.execute(plan, spec, store, request)
+            plan_runs.append({(m.quantity, m.channel, m.output): m
+                              for m in store.measurements(run_id=result.run_id)})  # fmt: skip
+    return plan_runs
+
+
+def test_an_inverted_delayed_board_gives_the_same_values_and_its_true_gains(inverted_runs):
+    fixed, adaptive = inverted_runs
+    assert fixed.keys() == adaptive.keys() and len(fixed) == 3 * 2 * len(INVERTED)
+    for key, f in fixed.items():
+        a = adaptive[key]
+        assert f.verdict == a.verdict, key
+        assert f.measured and a.measured, (key, f.reason, a.reason)
+        assert abs(a.value - f.value) <= 3 * math.hypot(f.uncertainty, a.uncertainty), key
+    for ch, spec in enumerate(INVERTED, start=1):
+        for output in ("x1", "x5"):  # negative-going outputs: negative gains, within 1 %
+            truth = -spec[f"gain_{output}"]
+            assert adaptive[("gain", ch, output)].value == pytest.approx(truth, rel=0.01)
