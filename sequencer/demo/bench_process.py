@@ -25,6 +25,7 @@ then one of ``{"outcome": batch outcome}``, ``{"interrupted": reason}``, ``{"err
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import json
 import os
@@ -132,6 +133,14 @@ def qualify(
     return 0
 
 
+def serve(args: list[str], channel: Channel, demo_pid: int) -> int:
+    """Watch the demo, say ready, qualify (``args``: BATCH_FILE DB_URL BENCH_NAME [SERIALS])."""
+    watch_parent(demo_pid)
+    channel.send("ready", os.getpid())  # from here on a signal stops the bench as it should
+    batch_file, db_url, bench_name, *serials = args
+    return qualify(batch_file, db_url, bench_name, ",".join(serials), channel)
+
+
 def main(argv: list[str] | None = None) -> int:
     args = sys.argv[1:] if argv is None else argv
     if len(args) not in (3, 4):
@@ -140,11 +149,34 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     for s in (signal.SIGINT, signal.SIGTERM):
         signal.signal(s, _interrupt)
-    watch_parent(int(os.environ.get(PARENT_ENV, "0")) or os.getppid())
-    channel = Channel(sys.stdout)
-    channel.send("ready", os.getpid())  # from here on a signal stops the bench as it should
-    batch_file, db_url, bench_name, *serials = args
-    return qualify(batch_file, db_url, bench_name, ",".join(serials), channel)
+    return serve(args, Channel(sys.stdout), int(os.environ.get(PARENT_ENV, "0")) or os.getppid())
+
+
+def run_forked(args: list[str], out_fd: int, close_fds: list[int], demo_pid: int) -> None:
+    """The bench in a child forked from the demo (``forked.fork_bench``): never returns.  Its own
+    handlers first (the demo's were copied with the fork), a session of its own, only its own end
+    of the pipes kept, then ``serve``; ``os._exit`` at the end, so nothing of the demo's stack
+    (click, atexit) runs twice."""
+    code = 70  # EX_SOFTWARE: a bug, told on stderr
+    try:
+        for s in (signal.SIGINT, signal.SIGTERM):
+            signal.signal(s, _interrupt)
+        os.setsid()
+        for fd in close_fds:
+            os.close(fd)
+        with os.fdopen(out_fd, "w", encoding="utf-8") as stream:
+            code = serve(args, Channel(stream), demo_pid)
+    except KeyboardInterrupt:  # before it said ready: nothing live
+        code = 0
+    except BaseException:
+        import traceback
+
+        traceback.print_exc()
+    finally:
+        for out in (sys.stdout, sys.stderr):
+            with contextlib.suppress(Exception):
+                out.flush()
+        os._exit(code)
 
 
 if __name__ == "__main__":

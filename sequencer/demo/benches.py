@@ -28,6 +28,7 @@ from typing import IO, Any
 
 from sequencer.batchrun import BatchOutcome, BoardOutcome
 from sequencer.demo.bench_process import PARENT_ENV
+from sequencer.demo.forked import ForkedProcess
 from sequencer.errors import BenchwrightError, RunAborted
 
 START = """\
@@ -61,7 +62,7 @@ class Bench:
     batch_file: str
     label: str
     serials: tuple[str, ...] = ()  # the boards of the batch this bench qualifies (empty: all)
-    process: subprocess.Popen[str] | None = None
+    process: subprocess.Popen[str] | ForkedProcess | None = None
     outcome: BatchOutcome | None = None
     ended: str = ""  # why it ended without an outcome (interrupted, error)
     exit_code: int = 0
@@ -105,6 +106,97 @@ def _passing_signals_on(benches: list[Bench], stopped: list[str]) -> Iterator[No
             signal.signal(s, handler)
 
 
+class BenchRoom:
+    """The benches at work: entering passes SIGINT/SIGTERM on to them (from now until the end)
+    and starts them -- forked warm when this process runs no other thread
+    (:mod:`sequencer.demo.forked`), else as fresh ``python`` processes; :meth:`follow` shows
+    and acts on their messages until all have ended; leaving after a failure of the demo stops
+    every bench and waits for it.  Leaving normally raises ``RunAborted`` (cause ``signal``)
+    after a stop, or the error of a bench that failed."""
+
+    def __init__(self, benches: list[Bench], db_url: str, *, fork: bool = False) -> None:
+        self.benches = benches
+        self.db_url = db_url
+        self.fork = fork
+        self.stopped: list[str] = []
+        self._messages: queue.Queue[tuple[Bench, str | None]] = queue.Queue()
+        self._readers: list[threading.Thread] = []
+        self._signals = _passing_signals_on(benches, self.stopped)
+
+    def __enter__(self) -> BenchRoom:
+        self._signals.__enter__()
+        try:
+            from . import forked
+
+            fork = self.fork and forked.can_fork()
+            streams: list[IO[str]] = []
+            for bench in self.benches:
+                args = [bench.batch_file, self.db_url, bench.name, ",".join(bench.serials)]
+                if fork:  # every fork before the first reader thread starts
+                    bench.process, stream = forked.fork_bench(args, [s.fileno() for s in streams])
+                else:
+                    bench.process = popen = subprocess.Popen(
+                        [sys.executable, "-c", START, *args],
+                        stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, text=True,
+                        encoding="utf-8", start_new_session=True,
+                        env={**os.environ, PARENT_ENV: str(os.getpid())},
+                    )
+                    assert popen.stdout is not None
+                    stream = popen.stdout
+                streams.append(stream)
+            for bench, stream in zip(self.benches, streams, strict=True):
+                reader = threading.Thread(
+                    target=_read, args=(bench, stream, self._messages), daemon=True
+                )
+                reader.start()
+                self._readers.append(reader)
+        except BaseException:
+            self.__exit__(*sys.exc_info())
+            raise
+        return self
+
+    def follow(
+        self,
+        *,
+        echo: Callable[[str], None],
+        on_board: Callable[[Bench, BoardOutcome], None],
+        on_done: Callable[[Bench], None],
+    ) -> None:
+        """``on_board`` after each board of a bench, ``on_done`` when a bench's batch ran to its
+        end; returns once every bench has ended."""
+        _follow(self.benches, self._messages, echo, on_board, on_done)
+
+    def __exit__(self, exc_type: Any, exc: Any, tb: Any) -> None:
+        try:
+            if exc_type is not None:  # the demo's own failure: no bench goes on without it
+                _stop_all(self.benches, "stopped: the demo failed", kill=False)
+                for b in self.benches:
+                    if b.process is not None:
+                        try:
+                            b.process.wait(timeout=END_S)
+                        except subprocess.TimeoutExpired:
+                            b.process.kill()
+                return
+            for reader in self._readers:
+                reader.join()
+        finally:
+            self._signals.__exit__(None, None, None)
+        self.check()
+
+    def check(self) -> None:
+        """Once every bench has ended: ``RunAborted`` after a stop, else the error of a bench
+        that failed, else nothing."""
+        if self.stopped:
+            raise RunAborted(
+                f"the demo was stopped by {self.stopped[0]}; every bench stopped its run ("
+                + "; ".join(_ending(b) for b in self.benches) + ")",
+                cause="signal",
+            )
+        failed = [b for b in self.benches if b.outcome is None]
+        if failed:
+            raise BenchwrightError("; ".join(f"bench {b.name}: {_ending(b)}" for b in failed))
+
+
 def run_benches(
     benches: list[Bench],
     db_url: str,
@@ -112,51 +204,11 @@ def run_benches(
     echo: Callable[[str], None],
     on_board: Callable[[Bench, BoardOutcome], None],
     on_done: Callable[[Bench], None],
+    fork: bool = False,
 ) -> None:
-    """Run every bench's batch at once into ``db_url`` (which must exist); ``on_board`` after each
-    board of a bench, ``on_done`` when a bench's batch ran to its end.  Returns once every bench
-    has ended.  A stop by signal: ``RunAborted`` (cause ``signal``) once all have ended; a bench
-    that failed: its error."""
-    messages: queue.Queue[tuple[Bench, str | None]] = queue.Queue()
-    stopped: list[str] = []
-    readers = []
-    with _passing_signals_on(benches, stopped):
-        try:
-            for bench in benches:
-                bench.process = subprocess.Popen(
-                    [sys.executable, "-c", START, bench.batch_file, db_url, bench.name,
-                     ",".join(bench.serials)],
-                    stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, text=True,
-                    encoding="utf-8", start_new_session=True,
-                    env={**os.environ, PARENT_ENV: str(os.getpid())},
-                )
-                assert bench.process.stdout is not None
-                reader = threading.Thread(
-                    target=_read, args=(bench, bench.process.stdout, messages), daemon=True
-                )
-                reader.start()
-                readers.append(reader)
-            _follow(benches, messages, echo, on_board, on_done)
-        except BaseException:  # the demo's own failure: no bench goes on without it
-            _stop_all(benches, "stopped: the demo failed", kill=False)
-            for b in benches:
-                if b.process is not None:
-                    try:
-                        b.process.wait(timeout=END_S)
-                    except subprocess.TimeoutExpired:
-                        b.process.kill()
-            raise
-        for reader in readers:
-            reader.join()
-    if stopped:
-        raise RunAborted(
-            f"the demo was stopped by {stopped[0]}; every bench stopped its run ("
-            + "; ".join(_ending(b) for b in benches) + ")",
-            cause="signal",
-        )
-    failed = [b for b in benches if b.outcome is None]
-    if failed:
-        raise BenchwrightError("; ".join(f"bench {b.name}: {_ending(b)}" for b in failed))
+    """Run every bench's batch at once into ``db_url`` (which must exist) (:class:`BenchRoom`)."""
+    with BenchRoom(benches, db_url, fork=fork) as room:
+        room.follow(echo=echo, on_board=on_board, on_done=on_done)
 
 
 def _follow(

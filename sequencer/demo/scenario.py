@@ -96,7 +96,7 @@ def run_demo(
     from sequencer.reports import batch_report, batch_summary
     from sequencer.reports.certify_pool import CertificatePool
 
-    from .benches import run_benches
+    from .benches import BenchRoom
 
     start = time.perf_counter()
     out = Path(out_dir)
@@ -108,8 +108,14 @@ def run_demo(
     progress = _CertificateProgress(echo)
     texts: dict[str, str] = {}
     reports: dict[str, list[Path]] = {}
+    Store.open(db_url, wait_for_disk=False).close()  # the schema, before any bench opens it
+    from . import forked
+
+    if forked.can_fork():
+        forked.warm_up()  # once here, for every bench forked from this process
     with (
-        Store.open(db_url, wait_for_disk=False) as store,  # the schema, before any bench opens it
+        BenchRoom(benches, db_url, fork=True) as room,
+        Store.open(db_url, wait_for_disk=False) as store,
         CertificatePool(workers, on_progress=progress) as pool,
     ):
         def certify(bench: Bench, board: Any) -> None:
@@ -126,7 +132,8 @@ def run_demo(
             texts[bench.batch_file] = batch_summary(store, name).to_text()
             reports[bench.batch_file] = batch_report(store, name, out / "batch-report")
 
-        run_benches(benches, db_url, echo=echo, on_board=certify, on_done=summarise)
+        room.follow(echo=echo, on_board=certify, on_done=summarise)
+        room.check()  # a stop or a failed bench: no summary of half a batch
         text = "\n\n".join(texts[file] for file in BATCH_FILES)
         summary_path = out / "batch-summary.txt"
         summary_path.write_text(text + "\n", encoding="utf-8")

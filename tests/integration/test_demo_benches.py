@@ -132,17 +132,20 @@ def _live_run(db: Path) -> bool:
     return any(last.values())
 
 
-def _bench_processes(out: Path) -> list[int]:
-    """Pids of bench processes still writing into ``out`` (their command line names its database)."""
+def _bench_processes(out: Path, demo: int) -> list[int]:
+    """Pids of bench processes of the demo ``demo`` writing into ``out``: a bench forked from the
+    demo has the demo's command line (``--out`` names the folder), a bench started afresh names
+    the database in its own; the demo itself is not one."""
     found = []
     for entry in Path("/proc").iterdir():
-        if not entry.name.isdigit():
+        if not entry.name.isdigit() or int(entry.name) == demo:
             continue
         try:
             cmd = (entry / "cmdline").read_bytes().decode(errors="replace")
+            state = (entry / "stat").read_text().rsplit(")", 1)[1].split()[0]
         except OSError:
             continue
-        if "sequencer.demo.bench_process" in cmd and str(out) in cmd:
+        if str(out) in cmd and state != "Z":  # a zombie has ended (its parent reaps it)
             found.append(int(entry.name))
     return found
 
@@ -196,7 +199,7 @@ def test_ctrl_c_brings_every_bias_to_zero_and_ends_every_bench(tmp_path):
             demo.kill()
     assert demo.returncode == 3, output
     assert "stopped by SIGINT" in output and "Traceback" not in output
-    assert _bench_processes(out) == []
+    assert _bench_processes(out, demo.pid) == []
     _assert_every_bias_safe(out / "results.db")
 
 
@@ -209,7 +212,7 @@ def test_benches_stop_safely_when_the_demo_is_killed(tmp_path):
         assert demo.poll() is None, demo.communicate()[0]
         demo.kill()  # SIGKILL: nothing is passed on; the benches must notice by themselves
         demo.communicate(timeout=DEADLINE_S)
-        _wait_for(lambda: not _bench_processes(out), "the bench processes to end")
+        _wait_for(lambda: not _bench_processes(out, demo.pid), "the bench processes to end")
     finally:
         if demo.poll() is None:
             demo.kill()
@@ -222,7 +225,9 @@ def test_ctrl_c_while_the_benches_start_ends_quietly(tmp_path):
     demo = _start_demo(out)
     try:
         # the bench processes exist: they are starting (importing, opening the store)
-        _wait_for(lambda: _bench_processes(out) or demo.poll() is not None, "the benches")
+        _wait_for(lambda: _bench_processes(out, demo.pid) or demo.poll() is not None,
+                  "the benches")
+        assert demo.poll() is None, demo.communicate()[0]
         os.killpg(demo.pid, signal.SIGINT)
         output, _ = demo.communicate(timeout=DEADLINE_S)
     finally:
@@ -230,7 +235,7 @@ def test_ctrl_c_while_the_benches_start_ends_quietly(tmp_path):
             demo.kill()
     assert demo.returncode == 3, output
     assert "stopped by SIGINT" in output and "Traceback" not in output
-    assert _bench_processes(out) == []
+    assert _bench_processes(out, demo.pid) == []
     with sqlite3.connect(f"file:{out / 'results.db'}?mode=ro", uri=True) as conn:
         statuses = [s for (s,) in conn.execute("SELECT status FROM runs")]
     assert "running" not in statuses
