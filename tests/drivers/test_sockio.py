@@ -148,3 +148,30 @@ def test_waits_through_a_busy_poll_are_timed_for_its_trial(pair):
         theirs.sendall(b"1\n")
         assert sockio.receive_message(pending, ours, b"\n", 2.0, 1 << 20, poll) == b"1\n"
     assert len(poll._waits[True]) == 3 and all(w >= 0 for w in poll._waits[True])
+
+
+def test_a_block_arriving_in_one_segment_is_read_with_one_receive(pair):
+    # IEEE 488.2 definite block: '#', the digit count, the length digits, the data, the terminator
+    ours, peer = pair
+    payload = bytes(range(256)) * 4
+    peer.sendall(b"#41024" + payload + b"\n")
+    time.sleep(0.05)  # the whole reply is in our socket's buffer
+    pending = bytearray()
+    assert sockio.receive_exactly(pending, ours, 2, 2.0) == bytearray(b"#4")
+    # what came with the header waits in the pending buffer: the rest needs no further receive
+    assert bytes(pending) == b"1024" + payload + b"\n"
+    assert sockio.receive_exactly(pending, ours, 4, 2.0) == bytearray(b"1024")
+    assert bytes(sockio.receive_exactly(pending, ours, 1024, 2.0)) == payload
+    assert sockio.receive_message(pending, ours, b"\n", 2.0, 1 << 20) == b"\n"
+    assert not pending
+
+
+def test_a_read_longer_than_one_receive_goes_straight_into_its_buffer(pair):
+    ours, peer = pair
+    big = bytes(range(256)) * ((sockio.RECV_SIZE * 3) // 256)
+    thread = send_later(peer, big + b"tail", 0.0)
+    pending = bytearray()
+    data = sockio.receive_exactly(pending, ours, len(big), 5.0)
+    thread.join()
+    assert bytes(data) == big
+    assert sockio.receive_exactly(pending, ours, 4, 2.0) == bytearray(b"tail")
