@@ -61,6 +61,7 @@ DEFAULT_OPC_TIMEOUT_MS = 10_000
 DEFAULT_RETRIES = 1
 #: More entries than this in the error queue means the instrument is not answering the query sanely.
 MAX_ERROR_ENTRIES = 64
+_UNCHANGED = contextlib.nullcontext()
 
 T = TypeVar("T")
 
@@ -485,11 +486,12 @@ class ScpiSession:
         except TransportError as exc:
             raise exc.with_command(command) from exc
 
+    def _timeout(self, timeout_ms: int | None) -> contextlib.AbstractContextManager[None]:
+        # most exchanges keep the link's timeout: no generator made for them
+        return _UNCHANGED if timeout_ms is None else self._timeout_set(timeout_ms)
+
     @contextlib.contextmanager
-    def _timeout(self, timeout_ms: int | None) -> Iterator[None]:
-        if timeout_ms is None:
-            yield
-            return
+    def _timeout_set(self, timeout_ms: int) -> Iterator[None]:
         before = self.transport.timeout_ms
         self.transport.timeout_ms = int(timeout_ms)
         try:
