@@ -114,8 +114,10 @@ def decode_codes(payload: bytes, fmt: DataFormat) -> np.ndarray:
 
 def calibrate(codes: np.ndarray, preamble: Preamble) -> np.ndarray:
     """Volts from codes: ``(code - y_reference) * y_increment + y_origin`` (float64, native order)."""
-    volts = np.asarray(codes).astype(np.float64)  # a new array, swapped from the wire if need be
-    if not np.all(np.isfinite(volts)):
+    codes = np.asarray(codes)
+    volts = codes.astype(np.float64)  # a new array, swapped from the wire if need be
+    # integer codes are finite by construction; float and ASCII-parsed ones are looked at
+    if codes.dtype.kind not in "iu" and not np.all(np.isfinite(volts)):
         raise ValueError("the record holds non-finite codes")
     if preamble.y_reference:
         volts -= preamble.y_reference

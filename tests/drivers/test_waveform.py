@@ -68,6 +68,16 @@ def test_ascii_data_and_a_partial_element_is_refused():
         decode_codes(b"1,2,9.91E+37", DataFormat(kind="float64", ascii=True))  # overrange code
 
 
+@pytest.mark.parametrize("kind", ["float32", "float64"])
+def test_float_records_holding_nan_or_infinity_are_refused(kind):
+    # IEEE 754 binary32/binary64 NaN and +inf, big-endian as numpy encodes them: not measurements
+    pre = preamble_from({"x_increment": 1e-9, "y_increment": 1.0})
+    for bad in (np.nan, np.inf):
+        payload = np.array([0.5, bad], dtype=">f4" if kind == "float32" else ">f8").tobytes()
+        with pytest.raises(ValueError, match="non-finite"):
+            calibrate(decode_codes(payload, DataFormat(kind=kind)), pre)
+
+
 def test_x_reference_moves_the_first_sample():
     # t0 = (0 - x_reference) * x_increment + x_origin = -500 * 1 ns + 0 = -500 ns
     pre = preamble_by_position(["2", "0", "1000", "1", "1E-9", "0", "500", "0.01", "0", "128"],
