@@ -7,7 +7,11 @@ has it lets long waits look at the run's stop flag between short slices.
 
 from __future__ import annotations
 
+import contextlib
+from collections.abc import Iterator
 from typing import Protocol
+
+from drivers.errors import TransportError
 
 
 class Transport(Protocol):
@@ -25,3 +29,25 @@ class Transport(Protocol):
     def drain(self) -> None: ...
     def reconnect(self) -> None: ...
     def close(self) -> None: ...
+
+
+_UNCHANGED = contextlib.nullcontext()
+
+
+def link_timeout(
+    transport: Transport, timeout_ms: int | None
+) -> contextlib.AbstractContextManager[None]:
+    """The link's timeout set to ``timeout_ms`` inside, restored after; unchanged for None (most
+    exchanges: a shared do-nothing context, no generator built per exchange)."""
+    return _UNCHANGED if timeout_ms is None else _timeout_set(transport, timeout_ms)
+
+
+@contextlib.contextmanager
+def _timeout_set(transport: Transport, timeout_ms: int) -> Iterator[None]:
+    before = transport.timeout_ms
+    transport.timeout_ms = int(timeout_ms)
+    try:
+        yield
+    finally:
+        with contextlib.suppress(TransportError):
+            transport.timeout_ms = before

@@ -44,7 +44,7 @@ from drivers.scpi.blockread import (
     read_block,
 )
 from drivers.scpi.blocks import MAX_BLOCK_BYTES, decode_payload
-from drivers.scpi.link import Transport
+from drivers.scpi.link import Transport, link_timeout
 from drivers.scpi.messages import PLAIN, MessagePolicy, absolute, join_units
 from drivers.scpi.plain import (
     Identity,
@@ -61,7 +61,6 @@ DEFAULT_OPC_TIMEOUT_MS = 10_000
 DEFAULT_RETRIES = 1
 #: More entries than this in the error queue means the instrument is not answering the query sanely.
 MAX_ERROR_ENTRIES = 64
-_UNCHANGED = contextlib.nullcontext()
 
 T = TypeVar("T")
 
@@ -487,15 +486,4 @@ class ScpiSession:
             raise exc.with_command(command) from exc
 
     def _timeout(self, timeout_ms: int | None) -> contextlib.AbstractContextManager[None]:
-        # most exchanges keep the link's timeout: no generator made for them
-        return _UNCHANGED if timeout_ms is None else self._timeout_set(timeout_ms)
-
-    @contextlib.contextmanager
-    def _timeout_set(self, timeout_ms: int) -> Iterator[None]:
-        before = self.transport.timeout_ms
-        self.transport.timeout_ms = int(timeout_ms)
-        try:
-            yield
-        finally:
-            with contextlib.suppress(TransportError):
-                self.transport.timeout_ms = before
+        return link_timeout(self.transport, timeout_ms)
