@@ -5,7 +5,12 @@ number.  The pulse functions of this package return NaN for the rows they refuse
 say why, in words the verdict and the certificate print:
 
 * ``no pulse above N σ of the baseline noise`` — the excursion in the output's direction is not
-  larger than ``min_snr`` baseline RMS (a dead channel, an output not connected);
+  larger than ``min_snr`` times the noise σ (a dead channel, an output not connected).  σ is the
+  upper confidence bound (``SIGMA_BOUND_ALPHA``) of the baseline window's RMS for its *effective*
+  number of independent samples: shaped noise is correlated over the shaper's time constant, so a
+  300 ns window of a 50 ns CR-RC^4 output holds ~3 independent samples and its RMS alone is
+  often far below the true σ (a dead channel then read "wrong polarity" or a pulse; see
+  :func:`noise_bound_factor`);
 * ``pulse of the wrong polarity`` — the largest excursion goes the other way (a negative-going
   output analysed as positive, or the reverse): never reported as a dead channel;
 * ``clipped: N % of samples at the rail`` — samples sit at the digitizer's range limits, so neither
@@ -26,10 +31,25 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike
+from scipy.stats import chi2
 
 DEFAULT_MIN_SNR = 5.0
-"""A pulse stands at least this many baseline RMS above its baseline.  The largest of 1000 samples
-of Gaussian noise exceeds 5 σ with probability ~6e-4 (normal tail 2.9e-7 per sample, standard)."""
+"""A pulse stands at least this many σ above its baseline (σ: the noise bound below).  With σ known,
+the largest of 1000 samples of Gaussian noise exceeds 5 σ with probability ~6e-4 (normal tail
+2.9e-7 per sample, standard; correlated samples exceed it less often)."""
+
+SIGMA_BOUND_ALPHA = 1e-3
+"""The noise σ a pulse is judged against is the one-sided upper (1 - alpha) confidence bound of the
+baseline RMS, s·sqrt(ν/χ²_ν(alpha)) (the chi-square interval of a normal variance, standard), ν
+the window's effective number of samples: the bound is below the true σ with probability alpha.
+Measured (tests/sequencer/analysis/test_pulse_reasons_correlated.py, 500 seeds a shaper): noise
+alone passes for a pulse in <= 0.2 % of white/fast-shaped traces and ~1 % of CR-RC^4 traces whose
+75-sample window is 6 time constants (a window that short overstates ν); the rule claims <= 2 %
+down to 6 time constants."""
+
+ACF_MAX_LAG_FRACTION = 0.25
+"""Autocorrelations of the baseline window are summed up to N/4 lags (common practice: Box &
+Jenkins, *Time Series Analysis*, use at most N/4 lags of a sample autocorrelation)."""
 
 RAIL_TOLERANCE = 1e-3
 """A sample within this fraction of the full-scale range of a rail counts as at the rail (a 10-bit
@@ -115,6 +135,30 @@ def clipping_reasons(arr: np.ndarray, rails_mV: tuple[float, float] | None) -> l
     return [clipped(f) if f > MAX_CLIPPED_FRACTION else "" for f in frac]
 
 
+def effective_samples(window: np.ndarray) -> np.ndarray:
+    """Per row of ``window`` (2-D, N samples): the effective number of independent samples of its
+    variance, Bartlett's ν = N / (1 + 2 Σ_k ρ_k²) (M. S. Bartlett, J. R. Stat. Soc. Suppl. 8 (1946)
+    27; the variance of a sample variance of correlated Gaussian noise), ρ_k the row's sample
+    autocorrelation at lags 1..N/4, each less its white-noise expectation 1/N (Bartlett's
+    variance of ρ_k, so independent samples give ν ≈ N, not fewer).  Clipped to [1, N]."""
+    n = window.shape[1]
+    centred = window - window.mean(axis=1, keepdims=True, dtype=np.float64)
+    c0 = np.einsum("ij,ij->i", centred, centred)
+    safe = np.where(c0 > 0.0, c0, 1.0)
+    excess = np.zeros(window.shape[0])
+    for k in range(1, max(1, int(ACF_MAX_LAG_FRACTION * n)) + 1):
+        rho = np.einsum("ij,ij->i", centred[:, :-k], centred[:, k:]) / safe
+        excess += rho * rho - 1.0 / n
+    return n / np.clip(1.0 + 2.0 * excess, 1.0, float(n))
+
+
+def noise_bound_factor(nu: np.ndarray, alpha: float = SIGMA_BOUND_ALPHA) -> np.ndarray:
+    """σ_upper / s for an RMS s of ``nu`` effective samples: sqrt(ν / χ²_ν(alpha)), the one-sided
+    upper confidence bound of a normal σ (the chi-square interval, standard; ν need not be an
+    integer).  ~1.2 for 200 independent samples, ~4.5 for 5 (a short window of shaped noise)."""
+    return np.sqrt(nu / chi2.ppf(alpha, nu))
+
+
 def pulse_reasons(
     arr: np.ndarray,
     n_baseline: int,
@@ -134,7 +178,10 @@ def pulse_reasons(
 
     Checks in order: non-finite samples, clipping at the rails, the size and direction of the
     largest excursion from the mean of the first ``n_baseline`` samples (against ``min_snr`` times
-    their RMS; a noise-free baseline accepts any excursion), then (``flat_top``) a flat top.  A
+    the upper confidence bound of their RMS for their effective number of samples,
+    :func:`effective_samples` and :func:`noise_bound_factor`: correlated noise in a short window
+    is judged by the σ it may have, not the RMS it happened to show; a noise-free baseline
+    accepts any excursion), then (``flat_top``) a flat top.  A
     step's plateau is flat by nature: transition durations pass ``flat_top=False``.  Vectorised:
     one pass for the maxima, one for the minima; the flat-top run is looked at only on rows whose
     extreme sample has an equal neighbour.
@@ -146,7 +193,8 @@ def pulse_reasons(
     base = window.mean(axis=1, dtype=np.float64) if baseline is None else baseline
     # RMS about the mean in one more pass: E[x²] - E[x]² (float64 keeps a 1 V baseline's 1 µV noise)
     mean_sq = np.einsum("ij,ij->i", window, window, dtype=np.float64) / n_baseline
-    sigma = np.sqrt(np.maximum(mean_sq - base * base, 0.0))
+    rms = np.sqrt(np.maximum(mean_sq - base * base, 0.0))
+    sigma = rms * noise_bound_factor(effective_samples(window)) if n_baseline > 1 else rms
     if peaks is None:
         i_top = np.argmax(arr, axis=1) if polarity > 0 else np.argmin(arr, axis=1)
         extreme = np.take_along_axis(arr, i_top[:, None], axis=1)[:, 0].astype(np.float64)
