@@ -1,7 +1,7 @@
 """The runner's events: what happened during a run, as plain frozen records.
 
 The engine emits them; the store, the progress display and the log subscribe (wired in ``cli.py``).
-This module is a leaf (numpy only) so that both ``sequencer.engine`` and ``sequencer.store`` may import
+This module is a leaf (numpy only as a type, so that ``verify`` starts without it) so that both ``sequencer.engine`` and ``sequencer.store`` may import
 it without importing each other.
 
 Order within a run::
@@ -19,13 +19,14 @@ from __future__ import annotations
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from datetime import datetime
-from typing import Any, Literal
-
-import numpy as np
+from typing import TYPE_CHECKING, Any, Literal
 
 from sequencer.inputs import RunInput
 from sequencer.records import Measurement as Measurement  # re-exported: the one record
 from sequencer.records import Verdict as Verdict
+
+if TYPE_CHECKING:
+    import numpy as np
 
 StepStatus = Literal["completed", "failed", "skipped", "replayed"]
 RunStatus = Literal["running", "completed", "aborted", "interrupted"]

@@ -27,8 +27,6 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-
 from sequencer.quantities import MODULE_CHANNEL, judged_channels
 
 from .quantities import format_limits, format_number, quantity_rank
@@ -181,6 +179,8 @@ def _reason(m: Any) -> str:
 def _stats(
     key: tuple[str, str | None, str, str], rows: list[tuple[str, Any]], k: float
 ) -> tuple[QuantityStats, list[Outlier]]:
+    import numpy as np  # here, not at the top: ``verify`` imports this package and needs no numpy
+
     quantity, output, group, board_type = key
     x = np.asarray([m.value for _, m in rows], dtype=float)
     median = float(np.median(x))

@@ -16,9 +16,10 @@ import io
 import math
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-import numpy as np
+if TYPE_CHECKING:  # numpy is imported where used: ``verify`` imports this package and needs none
+    import numpy as np
 
 from .quantities import UNITS
 from .reading import StoreReader
@@ -88,6 +89,8 @@ def trend(
         raise ValueError(
             f"{quantity} of {board} has {len(keys)} series: choose one ({choices} ...)"
         )
+    import numpy as np
+
     values = np.asarray([p.value for p in series], dtype=float)
     errors = np.asarray([p.uncertainty or 0.0 for p in series], dtype=float)
     centre, lo, hi, source = _band(values, errors, reference_runs, band)
@@ -160,6 +163,8 @@ def _band(
     if band is not None:
         lo, hi = sorted((float(band[0]), float(band[1])))
         return (lo + hi) / 2.0, lo, hi, "given"
+    import numpy as np
+
     ref = values[:reference_runs]
     if ref.size < 2:
         return None, None, None, f"fewer than 2 runs (need {reference_runs} for the band)"
@@ -259,6 +264,8 @@ def plot_trends(results: list[TrendResult], path: Path | str, columns: int = 4) 
 
 
 def _draw(ax: Any, result: TrendResult, *, legend: bool, dates: bool) -> None:
+    import numpy as np
+
     x = np.arange(len(result.points))
     y = np.asarray([p.value for p in result.points], dtype=float)
     ok = np.asarray([not p.outside_band for p in result.points], dtype=bool)

@@ -102,14 +102,14 @@ class LightRecords(LightReader):
         )
         return [stored_measurement(m) for m in rows]
 
-    def completed_steps(self, run_id: int) -> dict[str, StepResult]:
+    def completed_steps(self, run_id: int, *, traces: bool = True) -> dict[str, StepResult]:
         """As ``queries.completed_steps``: path -> completed step with its settings, results,
-        traces and measurements."""
+        traces and measurements (``traces=False``: none read, each step's ``traces`` empty)."""
         by_step_traces: dict[str, list[Any]] = defaultdict(list)
         for t in self._mapped(
             "SELECT steps.path, t.* FROM traces t JOIN steps ON steps.id = t.step_id "
             "WHERE t.run_id = ? ORDER BY t.id", (run_id,)
-        ):
+        ) if traces else ():
             by_step_traces[t["path"]].append(stored_trace(t))
         by_step_ms: dict[str, list[Measurement]] = defaultdict(list)
         for m in self.measurements(run_id=run_id):

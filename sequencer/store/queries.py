@@ -159,10 +159,11 @@ def measurements(conn: Connection, **filters: Any) -> list[MeasurementRecord]:
     return [stored_measurement(m) for m in conn.execute(query).mappings()]
 
 
-def completed_steps(conn: Connection, run_id: int) -> dict[str, StepResult]:
-    """Path -> completed step with its settings, results, traces and measurements."""
+def completed_steps(conn: Connection, run_id: int, *, traces: bool = True) -> dict[str, StepResult]:
+    """Path -> completed step with its settings, results, traces and measurements; ``traces=False``
+    leaves the traces out (each step's ``traces`` empty) and reads none of them."""
     by_step_traces: dict[str, list[Trace]] = defaultdict(list)
-    for t in conn.execute(_trace_query(run_id)).mappings():
+    for t in conn.execute(_trace_query(run_id)).mappings() if traces else ():
         by_step_traces[t["path"]].append(stored_trace(t))
     by_step_ms: dict[str, list[MeasurementRecord]] = defaultdict(list)
     for m in conn.execute(_measurement_query([Measurement.run_id == run_id])).mappings():

@@ -270,10 +270,11 @@ class Store:
         with self._read(f"cannot read steps of run {run_id}") as conn:
             return queries.steps(conn, run_id)
 
-    def completed_steps(self, run_id: int) -> dict[str, StepResult]:
-        """Path -> completed step with settings, results, traces and measurements (for resume)."""
+    def completed_steps(self, run_id: int, *, traces: bool = True) -> dict[str, StepResult]:
+        """Path -> completed step with settings, results, traces and measurements (for resume);
+        ``traces=False``: without the traces (the reports, which print none of them)."""
         with self._read(f"cannot read steps of run {run_id}") as conn:
-            return queries.completed_steps(conn, run_id)
+            return queries.completed_steps(conn, run_id, traces=traces)
 
     def traces(self, run_id: int, path_prefix: str | None = None) -> list[Trace]:
         with self._read(f"cannot read traces of run {run_id}") as conn:

@@ -2,7 +2,8 @@
 
 Why a module of its own: ``queries`` (SQLAlchemy) and ``light_records`` (the standard library's
 sqlite3, for ``verify``) read the same tables and must hand back the same records; the conversions
-live here once, with no database library imported (numpy comes with ``drivers.trace``).
+live here once, with no database library imported; numpy (``drivers.trace``, ``tracecodec``) only
+when a trace is read: ``verify`` reads none, and starts without it.
 """
 
 from __future__ import annotations
@@ -11,13 +12,14 @@ import dataclasses
 import functools
 import math
 from collections.abc import Iterable, Mapping
-from typing import Any, TypeVar
+from typing import TYPE_CHECKING, Any, TypeVar
 
-from drivers.trace import META_NOT_STORED, Trace
 from sequencer.events import InstrumentInfo
 from sequencer.records import Measurement
 from sequencer.store.records import RunRecord
-from sequencer.store.tracecodec import decode_samples
+
+if TYPE_CHECKING:  # drivers.trace imports numpy
+    from drivers.trace import Trace
 
 R = TypeVar("R")
 
@@ -48,6 +50,9 @@ def run_record(
 def stored_trace(t: Mapping[str, Any]) -> Trace:
     """The trace record of a ``traces`` row joined with its step's path (samples in the dtype
     they were captured in)."""
+    from drivers.trace import Trace
+    from sequencer.store.tracecodec import decode_samples
+
     return record(Trace, t, volts=decode_samples(t["data"]), meta=stored_meta(t.get("meta")))
 
 
@@ -55,6 +60,8 @@ def stored_meta(meta: Any) -> dict[str, str]:
     """A stored trace's meta; a row written before revision 0008 kept none, and says so (an
     analysis that needs the input's rails then refuses it rather than not checking for clipping)."""
     if meta is None:
+        from drivers.trace import META_NOT_STORED
+
         return {META_NOT_STORED: "stored before the database kept a trace's meta (revision 0008)"}
     return {str(k): str(v) for k, v in dict(meta).items()}
 

@@ -8,6 +8,7 @@ same SHA-256 (``certificate_data.data_sha256``).
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 import subprocess
@@ -142,3 +143,40 @@ def test_verify_of_an_sqlite_file_imports_no_database_toolkit(certified):
         # control: the Store path (driver options) does load them, so the probe can see them
         assert {"sqlalchemy", "alembic"} & set(seen["modules"]) == toolkit
         assert [m for m in ("matplotlib", "scipy", "pyvisa") if m in seen["modules"]] == []
+        if not options:  # the light path decodes no trace, so needs no numpy (~0.3 G instructions)
+            assert "numpy" not in seen["modules"]
+
+
+class _AlwaysTraces:
+    """A reader that hands every step back with its traces, whatever the caller asked for."""
+
+    def __init__(self, reader):
+        self._reader = reader
+        self.asked: list[bool] = []
+
+    def __getattr__(self, name):
+        return getattr(self._reader, name)
+
+    def completed_steps(self, run_id, *, traces=True):
+        self.asked.append(traces)
+        return self._reader.completed_steps(run_id)
+
+
+def test_certificates_read_no_trace_and_print_nothing_derived_from_one(certified):
+    """verify reads no trace: no certificate field may then come from the ``traces`` table, or a
+    trace edited in the database would go unnoticed.  Control: the same run gathered with every
+    trace decoded gives certificates with the same SHA-256, on both readers."""
+    store, run_id, _, db = certified
+    with LightRecords.open(f"sqlite:///{db}") as light:
+        for reader in (store, light):
+            with_traces = _AlwaysTraces(reader)
+            full = {d.channel: data_sha256(d) for d in gather_certificates(with_traces, run_id)}
+            assert with_traces.asked == [False]  # the reports ask for none
+            assert sum(len(s.traces) for s in reader.completed_steps(run_id).values()) > 0
+            assert full == {d.channel: data_sha256(d) for d in gather_certificates(reader, run_id)}
+            lean = reader.completed_steps(run_id, traces=False)
+            assert sum(len(s.traces) for s in lean.values()) == 0
+            whole = reader.completed_steps(run_id)
+            assert lean.keys() == whole.keys()
+            for path, step in lean.items():  # everything else as read with the traces
+                assert _plain(dataclasses.replace(step, traces=whole[path].traces)) == _plain(whole[path])
