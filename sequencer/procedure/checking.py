@@ -2,51 +2,21 @@
 
 from __future__ import annotations
 
-import difflib
 import re
-from collections.abc import Iterable
 from typing import Any
 
 from drivers.errors import Location, Problem
-from drivers.yamlsafe import YamlMap
 
 from .expressions import FUNCTIONS, KEYWORDS, Attr, Name
+from .keys import check_keys as check_keys  # re-exported: moved to keys
+from .keys import require_keys as require_keys
+from .keys import suggest as suggest
 from .values import Template, references
 
 IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 SEGMENT = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.=+-]*$")
 BOARD_FIELDS = ("serial", "type", "channels", "outputs", "nominal_gain", "polarity")
 RESERVED = frozenset({"board", "channel", "output", *FUNCTIONS, *KEYWORDS})
-
-
-def suggest(word: Any, options: Iterable[str]) -> str:
-    """`` (did you mean 'x'?)`` when ``word`` is close to one of ``options``, else ``""``."""
-    close = difflib.get_close_matches(str(word), list(options), n=1, cutoff=0.6)
-    return f" (did you mean {close[0]!r}?)" if close else ""
-
-
-def check_keys(
-    mapping: YamlMap, allowed: Iterable[str], problems: list[Problem], what: str
-) -> None:
-    """Every key of ``mapping`` must be in ``allowed``; unknown ones are located at the key."""
-    allowed = tuple(allowed)
-    for key in mapping:
-        if key not in allowed:
-            problems.append(
-                Problem(
-                    mapping.where(key, of_key=True),
-                    f"unknown key {key!r} in {what}{suggest(key, allowed)}",
-                )
-            )
-
-
-def require_keys(
-    mapping: YamlMap, required: Iterable[str], problems: list[Problem], what: str
-) -> None:
-    """Every key of ``required`` must be present (reported at the mapping)."""
-    for key in required:
-        if key not in mapping:
-            problems.append(Problem(mapping.where(), f"{what} needs {key!r}"))
 
 
 def check_identifier(name: Any, location: Location, problems: list[Problem], what: str) -> bool:

@@ -28,8 +28,8 @@ from drivers.yamlsafe import YamlMap, YamlSeq, load_yaml, read_bounded
 from sequencer.errors import ProcedureError
 from sequencer.quantities import QUANTITY_UNITS
 
-from .checking import check_keys, require_keys, suggest
 from .decision import DEFAULT_COVERAGE_K, DEFAULT_RULE, RULES, DecisionRule
+from .keys import check_keys, require_keys, suggest
 from .plan_model import Limit
 
 LIMIT_KEYS = ("quantity", "output", "low", "high", "unit", "reason")

@@ -24,6 +24,9 @@ def test_reading_limits_leaves_the_loader_and_the_schemas_unimported() -> None:
     loaded = set(json.loads(done.stdout))
     assert "sequencer.procedure.limits" in loaded
     assert {f"sequencer.procedure.{m}" for m in ("loader", "expand", "schema", "batch", "fragments")} & loaded == set()
+    # nor the expression language (checking, expressions, values): limits need only the key checks
+    assert {f"sequencer.procedure.{m}" for m in ("checking", "expressions", "values")} & loaded == set()
+    assert "sequencer.procedure.keys" in loaded
 
 
 def test_every_public_name_resolves_to_its_modules_object() -> None:
