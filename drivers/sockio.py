@@ -20,6 +20,7 @@ link, by trial, whether waits poll.
 
 from __future__ import annotations
 
+import contextlib
 import select
 import socket
 import statistics
@@ -186,6 +187,25 @@ def _take_exactly(
     data = pending[:n]
     del pending[:n]
     return data
+
+
+def wait_for_bytes(
+    pending: bytearray, sock: socket.socket, timeout_s: float, poll_s: float | BusyPoll = 0.0
+) -> bool:
+    """True once input waits in ``pending`` (received here, so the read that follows needs no
+    system call) or the peer closed; False when nothing came within ``timeout_s``.  Polls first
+    like the reads do (``poll_s``, or what a :class:`BusyPoll` allows now), then sleeps: a stop
+    flag's wait for a reply would otherwise always go to sleep and pay the wake-up."""
+    if pending:
+        return True
+    budget = poll_s.budget() if isinstance(poll_s, BusyPoll) else poll_s
+    try:
+        _wait_readable(sock, time.monotonic() + timeout_s, timeout_s, "no input", budget)
+    except TimeoutError:
+        return False
+    with contextlib.suppress(BlockingIOError, InterruptedError):  # readable: recv does not block
+        pending += sock.recv(RECV_SIZE, _DONTWAIT)  # b"" at end-of-file: the read reports it
+    return True
 
 
 def discard_input(sock: socket.socket, timeout_s: float, quiet_s: float = 0.1) -> None:

@@ -175,3 +175,26 @@ def test_a_read_longer_than_one_receive_goes_straight_into_its_buffer(pair):
     thread.join()
     assert bytes(data) == big
     assert sockio.receive_exactly(pending, ours, 4, 2.0) == bytearray(b"tail")
+
+
+@polls
+def test_waiting_for_input_receives_it_for_the_read_that_follows(pair, poll_s):
+    ours, peer = pair
+    pending = bytearray()
+    assert sockio.wait_for_bytes(pending, ours, 0.02, poll_s) is False  # nothing sent: a slice ends
+    thread = send_later(peer, b"#15hello\n", 0.01)
+    assert sockio.wait_for_bytes(pending, ours, 2.0, poll_s) is True
+    thread.join()
+    assert pending.startswith(b"#1")  # already received: the header read needs no system call
+    time.sleep(0.02)
+    assert sockio.receive_exactly(pending, ours, 3, 2.0) == bytearray(b"#15")
+    assert sockio.receive_message(pending, ours, b"\n", 2.0, 1 << 20) == b"hello\n"
+
+
+def test_waiting_for_input_sees_the_peer_close(pair):
+    ours, peer = pair
+    peer.close()
+    pending = bytearray()
+    assert sockio.wait_for_bytes(pending, ours, 2.0, 200e-6) is True  # the read reports it
+    with pytest.raises(ConnectionResetError, match="closed the link"):
+        sockio.receive_message(pending, ours, b"\n", 2.0, 1 << 20)
