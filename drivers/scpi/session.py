@@ -140,10 +140,11 @@ class ScpiSession:
         ``track``: with the policy's ``skip_unchanged``, a remembered setting equal to ``command``
         is not sent again; pass ``False`` for anything a safety decision rests on.
         """
-        name = key or header_of(command)
+        header = header_of(command)
+        name = key or header
         checked = self.check_errors if check is None else check
         with self.lock:
-            if header_of(command) == "*RST":
+            if header == "*RST":
                 self._lose_state()
             tracked = reapply and track and self.policy.skip_unchanged
             if tracked and self._known.get(name) == command:
