@@ -42,14 +42,19 @@ SIGMA_BOUND_ALPHA = 1e-3
 """The noise σ a pulse is judged against is the one-sided upper (1 - alpha) confidence bound of the
 baseline RMS, s·sqrt(ν/χ²_ν(alpha)) (the chi-square interval of a normal variance, standard), ν
 the window's effective number of samples: the bound is below the true σ with probability alpha.
-Measured (tests/sequencer/analysis/test_pulse_reasons_correlated.py, 500 seeds a shaper): noise
-alone passes for a pulse in <= 0.2 % of white/fast-shaped traces and ~1 % of CR-RC^4 traces whose
-75-sample window is 6 time constants (a window that short overstates ν); the rule claims <= 2 %
-down to 6 time constants."""
+Measured (tests/sequencer/analysis/test_pulse_reasons_correlated.py, 500 seeds a shaper, CR-RC^n
+noise filtered by scipy): noise alone passes for a pulse or a wrong polarity in 0-1 of 500 white or
+fast-shaped traces and 0.4-1 % of CR-RC^4 traces whose 75-sample window is 6 time constants (a
+window that short overstates ν); the rule claims <= 2 % down to 6 time constants (the RMS alone:
+~1/3 of CR-RC^4 traces)."""
 
 ACF_MAX_LAG_FRACTION = 0.25
 """Autocorrelations of the baseline window are summed up to N/4 lags (common practice: Box &
 Jenkins, *Time Series Analysis*, use at most N/4 lags of a sample autocorrelation)."""
+
+ACF_MAX_ROWS = 64
+"""The autocorrelation is averaged over at most this many rows: 64 windows pin it down (its
+spread falls as 1/sqrt(rows)), and a call with 10,000 captures pays for 64, not 10,000."""
 
 RAIL_TOLERANCE = 1e-3
 """A sample within this fraction of the full-scale range of a rail counts as at the rail (a 10-bit
@@ -135,28 +140,38 @@ def clipping_reasons(arr: np.ndarray, rails_mV: tuple[float, float] | None) -> l
     return [clipped(f) if f > MAX_CLIPPED_FRACTION else "" for f in frac]
 
 
-def effective_samples(window: np.ndarray) -> np.ndarray:
-    """Per row of ``window`` (2-D, N samples): the effective number of independent samples of its
-    variance, Bartlett's ν = N / (1 + 2 Σ_k ρ_k²) (M. S. Bartlett, J. R. Stat. Soc. Suppl. 8 (1946)
-    27; the variance of a sample variance of correlated Gaussian noise), ρ_k the row's sample
-    autocorrelation at lags 1..N/4, each less its white-noise expectation 1/N (Bartlett's
-    variance of ρ_k, so independent samples give ν ≈ N, not fewer).  Clipped to [1, N]."""
+def effective_samples(window: np.ndarray) -> float:
+    """The effective number of independent samples of the variance of one row of ``window``
+    (2-D, N samples a row): Bartlett's ν = N / (1 + 2 Σ_k ρ_k²) (M. S. Bartlett, J. R. Stat. Soc.
+    Suppl. 8 (1946) 27; the variance of a sample variance of correlated Gaussian noise), clipped
+    to [1, N].  ρ_k, lags 1..N/4, is the sample autocorrelation averaged over the rows (the rows
+    of one call are captures of one output: one noise process), at most ``ACF_MAX_ROWS`` of them
+    evenly spaced, those with only finite samples; each ρ_k² less its white-noise expectation 1/(N·rows) (Bartlett's variance of
+    ρ_k), so independent samples give ν ≈ N, not fewer."""
     n = window.shape[1]
+    if window.shape[0] > ACF_MAX_ROWS:
+        window = window[np.linspace(0, window.shape[0] - 1, ACF_MAX_ROWS).astype(int)]
     centred = window - window.mean(axis=1, keepdims=True, dtype=np.float64)
     c0 = np.einsum("ij,ij->i", centred, centred)
+    finite = np.isfinite(c0)  # a row with NaN/inf is refused on its own; it says nothing here
+    if not finite.all():
+        centred, c0 = centred[finite], c0[finite]
+    rows = centred.shape[0]
+    if rows == 0:
+        return float(n)
     safe = np.where(c0 > 0.0, c0, 1.0)
-    excess = np.zeros(window.shape[0])
+    excess = 0.0
     for k in range(1, max(1, int(ACF_MAX_LAG_FRACTION * n)) + 1):
-        rho = np.einsum("ij,ij->i", centred[:, :-k], centred[:, k:]) / safe
-        excess += rho * rho - 1.0 / n
-    return n / np.clip(1.0 + 2.0 * excess, 1.0, float(n))
+        rho = float(np.mean(np.einsum("ij,ij->i", centred[:, :-k], centred[:, k:]) / safe))
+        excess += rho * rho - 1.0 / (n * rows)
+    return n / float(np.clip(1.0 + 2.0 * excess, 1.0, float(n)))
 
 
-def noise_bound_factor(nu: np.ndarray, alpha: float = SIGMA_BOUND_ALPHA) -> np.ndarray:
+def noise_bound_factor(nu: float, alpha: float = SIGMA_BOUND_ALPHA) -> float:
     """σ_upper / s for an RMS s of ``nu`` effective samples: sqrt(ν / χ²_ν(alpha)), the one-sided
     upper confidence bound of a normal σ (the chi-square interval, standard; ν need not be an
     integer).  ~1.2 for 200 independent samples, ~4.5 for 5 (a short window of shaped noise)."""
-    return np.sqrt(nu / chi2.ppf(alpha, nu))
+    return float(np.sqrt(nu / chi2.ppf(alpha, nu)))
 
 
 def pulse_reasons(

@@ -15,6 +15,7 @@ import pytest
 from scipy import signal, stats
 
 from sequencer.analysis.refusals import (
+    NON_FINITE,
     WRONG_POLARITY,
     effective_samples,
     no_pulse,
@@ -64,9 +65,14 @@ CASES = [(0, 1.0), (1, 3.0), (4, 3.0), (1, 12.5), (2, 12.5), (4, 12.5)]
 
 @pytest.mark.parametrize(("order", "tau"), CASES)
 def test_noise_alone_reads_no_pulse_below_the_claimed_false_alarm_rate(order, tau):
+    """Each seed alone (a call of one capture, as the mean trace of a step is judged), then all
+    seeds in one call (the autocorrelation averaged over 64 of them)."""
     rows = shaped_noise(order, tau, SEEDS, seed=1000 * order + int(10 * tau))
-    for sign in (1, -1):
-        reasons = pulse_reasons(rows, N_BASE, polarity=sign)
+    for sign, together in ((1, False), (-1, False), (1, True)):
+        if together:
+            reasons = pulse_reasons(rows, N_BASE, polarity=sign)
+        else:
+            reasons = [pulse_reasons(row[None, :], N_BASE, polarity=sign)[0] for row in rows]
         false = sum(r != no_pulse() for r in reasons)
         # binomial margin: at the claimed rate, 500 seeds exceed this count with probability 1e-3
         allowed = stats.binom.ppf(0.999, SEEDS, CLAIMED_FALSE_ALARM)
@@ -81,7 +87,7 @@ def test_the_old_rule_failed_on_shaped_noise():
     dev = np.maximum(rows.max(axis=1) - w.mean(axis=1), w.mean(axis=1) - rows.min(axis=1))
     old_false = np.mean(dev > 5.0 * w.std(axis=1))
     assert old_false > 0.1
-    new_false = np.mean([r != no_pulse() for r in pulse_reasons(rows, N_BASE)])
+    new_false = np.mean([r != no_pulse() for r in (pulse_reasons(x[None, :], N_BASE)[0] for x in rows)])
     assert new_false < old_false / 10
 
 
@@ -93,7 +99,7 @@ def test_real_pulses_are_found_with_their_polarity(order, tau, sign):
     when analysed the other way round."""
     noise = shaped_noise(order, tau, 200, seed=99 + order)
     nu = true_effective_samples(order, tau, N_BASE) if order else float(N_BASE)
-    threshold = 5.0 * float(noise_bound_factor(np.array([nu]))[0])
+    threshold = 5.0 * noise_bound_factor(nu)
     t = np.clip(np.arange(POINTS) - 100.0, 0.0, None) / 12.5  # onset at sample 100
     pulse = (t / 4.0) ** 4 * np.exp(4.0 - t)  # CR-RC^4 response to a step, unit peak at 4 τ_p
     rows = noise + sign * 3.0 * threshold * pulse
@@ -104,20 +110,32 @@ def test_real_pulses_are_found_with_their_polarity(order, tau, sign):
 
 @pytest.mark.parametrize(("order", "tau"), [(1, 3.0), (4, 3.0), (2, 12.5)])
 def test_effective_samples_follow_bartlett_on_the_true_autocorrelation(order, tau):
-    """The window estimate of ν, median over seeds, is within a factor 2 of Bartlett's ν from the
-    filter's exact autocorrelation (a short window's estimate is biased up: the factor covers it)."""
+    """The window estimate of ν, one window alone (median over seeds) and 64 together, is within a
+    factor 2 of Bartlett's ν from the filter's exact autocorrelation (a short window's estimate is
+    biased up: the factor covers it)."""
     rows = shaped_noise(order, tau, SEEDS, seed=5)
-    est = float(np.median(effective_samples(rows[:, :N_BASE])))
+    alone = float(np.median([effective_samples(w[None, :N_BASE]) for w in rows]))
+    together = effective_samples(rows[:, :N_BASE])
     truth = true_effective_samples(order, tau, N_BASE)
-    assert truth / 2.0 <= est <= 2.0 * truth, (est, truth)
+    for est in (alone, together):
+        assert truth / 2.0 <= est <= 2.0 * truth, (est, truth)
     assert truth < 0.7 * N_BASE  # correlated: fewer than the 75 samples
 
 
 def test_white_noise_keeps_about_all_its_samples_and_the_chi_square_bound():
     rows = shaped_noise(0, 1.0, SEEDS, seed=11)
-    est = effective_samples(rows[:, :200])
-    assert np.median(est) == pytest.approx(200, rel=0.1)
+    assert effective_samples(rows[:, :200]) == pytest.approx(200, rel=0.1)
+    assert np.median([effective_samples(w[None, :200]) for w in rows]) == pytest.approx(200, rel=0.1)
     # the bound is the chi-square one: sqrt(ν / χ²_ν(1e-3)) (standard normal-variance interval)
-    assert noise_bound_factor(np.array([200.0]))[0] == pytest.approx(
+    assert noise_bound_factor(200.0) == pytest.approx(
         np.sqrt(200.0 / stats.chi2.ppf(1e-3, 200.0))
     )
+
+
+def test_a_non_finite_row_spoils_only_itself():
+    """The autocorrelation is shared by the rows of a call: a row with NaN is refused for its NaN
+    and the others are judged as without it."""
+    rows = shaped_noise(0, 1.0, 4, seed=3)
+    rows[1:] += 50.0 * np.exp(-0.5 * ((np.arange(POINTS) - 300.0) / 10.0) ** 2)
+    rows[2, 10] = np.nan
+    assert pulse_reasons(rows, N_BASE) == [no_pulse(), "", NON_FINITE, ""]
