@@ -32,12 +32,15 @@ from tests.reliability import kit
 
 #: Short link timeout in the bench file: a silent instrument costs ~2 timeouts, not ~2 x 5 s.
 TIMEOUT_MS = 1000
-#: The scope receives 31 messages in a run of kit.PROCEDURE (counted on the simulator): *IDN?, two
-#: set-up messages at open, four settings (each with its error query, drivers/scpi/messages.py),
-#: then 3 per capture x 8 (start + *OPC? + error query, preamble, data);
-#: ``after_commands: N`` acts on message N + 1.  Early: a setting; mid: the third capture's start
-#: (an action); late: the seventh capture's data (a query).
-SCOPE_EARLY, SCOPE_MID, SCOPE_LATE = 6, 13, 27
+#: The scope receives 24 messages in a run of kit.PROCEDURE (counted on the simulator): *IDN?, two
+#: set-up messages at open, four settings (each joined with its error query, drivers/scpi/messages.py),
+#: then per capture x 8: start (+ *OPC? + error query, one message), the preamble for the first
+#: capture only (the driver keeps it while no write of ours changed it), data.  Capture k >= 2 starts
+#: at message 11 + 2 (k - 2).  ``after_commands: N`` acts on message N + 1.  Early: a setting;
+#: mid: the third capture's start (an action); late: the seventh capture's data (a query).
+SCOPE_EARLY, SCOPE_MID, SCOPE_LATE = 6, 12, 21
+#: The sixth capture's start (message 19): a start is never re-sent, so a dropped link there aborts.
+SCOPE_CAPTURE_START = 18
 ALWAYS_ABORTS = {"no_reply", "scpi_error", "interlock_open"}
 #: What the one-line cause must say, per fault kind (a pattern of the drivers' and engine's wording).
 CAUSE = {
@@ -61,7 +64,7 @@ def scope_fault(kind: str, after: int) -> dict:
 
 QUICK = [
     scope_fault("no_reply", SCOPE_MID),
-    scope_fault("disconnect", 25),  # message 26 starts a capture: an action, never re-sent -> abort
+    scope_fault("disconnect", SCOPE_CAPTURE_START),  # an action, never re-sent -> abort
     scope_fault("garbled_reply", SCOPE_MID),
     scope_fault("garbled_reply", 0),  # the *IDN? reply at opening: never taken for the identity
     scope_fault("scpi_error", SCOPE_MID),
