@@ -147,9 +147,14 @@ def main(argv: list[str] | None = None) -> int:
         print("usage: python -m sequencer.demo.bench_process BATCH_FILE DB_URL BENCH_NAME "
               "[SERIAL,...]", file=sys.stderr)
         return 2
+    channel = Channel(sys.stdout)
     for s in (signal.SIGINT, signal.SIGTERM):
         signal.signal(s, _interrupt)
-    return serve(args, Channel(sys.stdout), int(os.environ.get(PARENT_ENV, "0")) or os.getppid())
+    try:
+        return serve(args, channel, int(os.environ.get(PARENT_ENV, "0")) or os.getppid())
+    except KeyboardInterrupt as exc:  # before qualify took the signals over: nothing live yet
+        channel.send("interrupted", str(exc) or "stopped by a signal")
+        return 0
 
 
 def run_forked(args: list[str], out_fd: int, close_fds: list[int], demo_pid: int) -> None:
