@@ -49,7 +49,8 @@ def query_joined(
     A non-zero error entry drains the rest of the queue and raises :class:`InstrumentError` naming
     the whole message (what the instrument holds is forgotten, as after any error)."""
     text = join_units([*actions, query, session.error_query])
-    reply = session.query(text, timeout_ms=timeout_ms, retry=False)
+    # the query may wait for an acquisition or a gate: the wait looks at the run's stop flag
+    reply = session.query(text, timeout_ms=timeout_ms, retry=False, sliced=True)
     try:
         head, tail = split_last_unit(reply)
         code, message = parse_error_entry(tail)

@@ -227,10 +227,14 @@ class ScpiSession:
         with self.lock:
             return list(self._settings.values())
 
-    def query(self, command: str, *, timeout_ms: int | None = None, retry: bool = True) -> str:
-        """Send a query and return its reply as text (terminator stripped)."""
+    def query(
+        self, command: str, *, timeout_ms: int | None = None, retry: bool = True,
+        sliced: bool = False,
+    ) -> str:  # fmt: skip
+        """Send a query and return its reply as text (terminator stripped); ``sliced``: a long
+        wait (an acquisition) looks at the stop check while the reply is awaited."""
         with self.lock:
-            return self._call(lambda: self._ask(command, timeout_ms), retry=retry)
+            return self._call(lambda: self._ask(command, timeout_ms, sliced=sliced), retry=retry)
 
     def query_float(self, command: str, *, timeout_ms: int | None = None) -> float:
         return self.query_parsed(command, to_float, timeout_ms=timeout_ms)

@@ -19,6 +19,7 @@ import pytest
 
 from drivers.errors import ReadStopped
 from drivers.scpi.blocks import format_block
+from drivers.scpi.joined import query_joined
 from drivers.scpi.session import ScpiSession
 from drivers.sim.faults import FaultRunner
 from drivers.sim.hislip import HislipServer
@@ -166,6 +167,37 @@ def test_a_stop_request_ends_an_operation_complete_wait(link):
             try:
                 with pytest.raises(ReadStopped, match="given up by a stop request"):
                     session.wait_complete(timeout_ms=60_000)
+                order.append("wait given up")
+            finally:
+                timer.cancel()
+                inst.released.set()
+                order.append("operation complete")
+            assert order == ["stop asked", "wait given up", "operation complete"]
+    finally:
+        inst.released.set()
+        stop()
+
+
+@pytest.mark.parametrize("link", ["socket", "hislip", "vxi11"])
+def test_a_stop_request_ends_a_joined_acquisition_wait(link):
+    # an acquisition started, *OPC? and the error check in one message (drivers/scpi/joined.py):
+    # the joined reply waits for the acquisition and is given up at the stop request like *OPC?
+    inst, stop, address = serve(link)
+    order: list[str] = []
+    pressed = threading.Event()
+
+    def press() -> None:
+        order.append("stop asked")
+        pressed.set()
+
+    try:
+        with ScpiSession(VisaTransport.open(address, timeout_ms=5_000)) as session:
+            session.stop_check = pressed.is_set
+            timer = threading.Timer(0.5, press)
+            timer.start()
+            try:
+                with pytest.raises(ReadStopped, match="given up by a stop request"):
+                    query_joined(session, [], "*OPC?", str, timeout_ms=60_000)
                 order.append("wait given up")
             finally:
                 timer.cancel()
