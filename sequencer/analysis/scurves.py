@@ -70,6 +70,8 @@ def fit_s_curve(thresholds: ArrayLike, fired: ArrayLike, trials: ArrayLike) -> S
         cov = np.linalg.inv(_fisher(mu_s, sigma_s, x, n))
     except np.linalg.LinAlgError as exc:
         raise ValueError("S-curve errors undefined: the scan does not constrain μ and σ") from exc
+    if not res.success:
+        _check_step_left(res, sigma_s, cov, x, k, n)
     eps = stats.norm.sf(x, mu_s, sigma_s)
     return SCurveFit(
         mu=centre + scale * mu_s,
@@ -78,6 +80,28 @@ def fit_s_curve(thresholds: ArrayLike, fired: ArrayLike, trials: ArrayLike) -> S
         sigma_err=scale * float(np.sqrt(cov[1, 1])),
         chi2_ndf=_deviance(k, n, eps) / (thr.size - 2),
     )
+
+
+#: A fit BFGS could not finish ("precision loss", common at the optimum of a sharp likelihood) is
+#: kept when one Newton step from it would move μ and σ by less than this share of their errors.
+STEP_LEFT_LIMIT = 0.01
+
+
+def _check_step_left(
+    res: optimize.OptimizeResult, sigma_s: float, cov: np.ndarray,
+    x: np.ndarray, k: np.ndarray, n: np.ndarray,
+) -> None:
+    """Refuse a fit that stopped short of the maximum: the Newton step cov·∇NLL (in μ, σ) that
+    remains must be a small share of the errors, else the values are not the estimate."""
+    _, grad = _nll(res.x, x, k, n)
+    step = cov @ np.array([grad[0], grad[1] / sigma_s])  # ∂/∂σ = (∂/∂ln σ) / σ
+    errors = np.sqrt(np.diag(cov))
+    share = np.abs(step) / errors
+    if not np.all(np.isfinite(share)) or np.any(share > STEP_LEFT_LIMIT):
+        raise ValueError(
+            f"S-curve fit did not converge ({res.message}): one more step would move μ and σ by "
+            f"{share[0]:.2g} and {share[1]:.2g} of their errors"
+        )
 
 
 def _check_counts(k: np.ndarray, n: np.ndarray) -> None:
