@@ -71,9 +71,12 @@ def _client(client: socket.socket, block: bytes, stop: threading.Event) -> None:
                 if line == b"QUIT":
                     stop.set()
                     return
-                reply = _reply(line.strip(), block, state)
-                if reply:
-                    client.sendall(reply)
+                # IEEE 488.2 program message units joined by ';' (the drivers join a setting and
+                # its error query): one response message, units' responses joined by ';'.
+                units = [u.strip().lstrip(b":") for u in line.split(b";")]
+                replies = [r.removesuffix(b"\n") for u in units if (r := _reply(u, block, state))]
+                if replies:
+                    client.sendall(b";".join(replies) + b"\n")
 
 
 def _reply(line: bytes, block: bytes, state: dict[str, bytes]) -> bytes:
