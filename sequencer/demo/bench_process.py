@@ -135,10 +135,14 @@ def qualify(
 
 def serve(args: list[str], channel: Channel, demo_pid: int) -> int:
     """Watch the demo, say ready, qualify (``args``: BATCH_FILE DB_URL BENCH_NAME [SERIALS])."""
-    watch_parent(demo_pid)
-    channel.send("ready", os.getpid())  # from here on a signal stops the bench as it should
-    batch_file, db_url, bench_name, *serials = args
-    return qualify(batch_file, db_url, bench_name, ",".join(serials), channel)
+    try:
+        watch_parent(demo_pid)
+        channel.send("ready", os.getpid())  # from here on a signal stops the bench as it should
+        batch_file, db_url, bench_name, *serials = args
+        return qualify(batch_file, db_url, bench_name, ",".join(serials), channel)
+    except KeyboardInterrupt as exc:  # before qualify took the signals over: nothing live yet
+        channel.send("interrupted", str(exc) or "stopped by a signal")
+        return 0
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -147,14 +151,9 @@ def main(argv: list[str] | None = None) -> int:
         print("usage: python -m sequencer.demo.bench_process BATCH_FILE DB_URL BENCH_NAME "
               "[SERIAL,...]", file=sys.stderr)
         return 2
-    channel = Channel(sys.stdout)
     for s in (signal.SIGINT, signal.SIGTERM):
         signal.signal(s, _interrupt)
-    try:
-        return serve(args, channel, int(os.environ.get(PARENT_ENV, "0")) or os.getppid())
-    except KeyboardInterrupt as exc:  # before qualify took the signals over: nothing live yet
-        channel.send("interrupted", str(exc) or "stopped by a signal")
-        return 0
+    return serve(args, Channel(sys.stdout), int(os.environ.get(PARENT_ENV, "0")) or os.getppid())
 
 
 def run_forked(args: list[str], out_fd: int, close_fds: list[int], demo_pid: int) -> None:
