@@ -44,17 +44,18 @@ class StopFlag:
         self.cause = ""
         self.reason = ""
         self.requests = 0  # every request counts (a second signal cuts a ramp-down short)
+        #: Whether a stop was requested: a plain attribute, looked at before every step and between
+        #: the chunks of every long read (set after cause and reason, so a reader that sees it True
+        #: sees them too; the event is for waiting only).
+        self.requested = False
 
     def request(self, cause: str, reason: str) -> None:
         """Ask the run to stop; the first request gives the cause, every one is counted."""
         self.requests += 1
         if not self._event.is_set():
             self.cause, self.reason = cause, reason
+            self.requested = True
             self._event.set()
-
-    @property
-    def requested(self) -> bool:
-        return self._event.is_set()
 
     def wait(self, seconds: float) -> bool:
         """Sleep up to ``seconds``; True at once when a stop is requested."""

@@ -45,6 +45,8 @@ def with_qualifiers(result: StepResult) -> dict[str, Any]:
     """The step's results, with the decision rule's qualifiers of its measurements (the store keeps
     them with the step; the verdict column stays pass/fail/info)."""
     out = dict(result.results)
+    if not result.measurements:
+        return out
     marked = [
         {"quantity": m.quantity, "channel": m.channel, "output": m.output,
          "aggressor": m.aggressor, "qualifier": m.qualifier}
@@ -89,6 +91,7 @@ class Runner:
         self.stop = stop if stop is not None else StopFlag()  # shared with whoever may stop it
         self._ctx: RunContext | None = None
         self._overlap = Overlap()  # an analysis computing while the next steps run (overlap.py)
+        self._total = len(plan.steps)
 
     # -- events -------------------------------------------------------------------------------
     def emit(self, event: Event) -> None:
@@ -203,13 +206,14 @@ class Runner:
 
     def _step(self, ctx: RunContext, step: PlannedStep, index: int) -> None:
         fresh = step.path not in self.completed
-        if self._overlap and (self._overlap.done() or not (fresh and may_overlap(step))):
-            self._publish(ctx)
+        overlap = self._overlap  # (its ``held``: an analysis and the steps after it, unpublished)
+        if overlap.held and (overlap.done() or not (fresh and may_overlap(step))):
+            self._publish(ctx)  # (replaces overlap.held)
         ctx.step = step
         ctx.checkpoint()
         ctx.guard.at_step()
         started = self.clock()
-        if fresh and (self._overlap or defers(step)):
+        if fresh and (overlap.held or defers(step)):
             self._hold(ctx, Held(step=step, index=index, started=started))
             return
         self._announce(step, index, started)
@@ -311,8 +315,10 @@ class Runner:
                         meta=dict(t.meta),
                     )
                 )
-        for name, value in dict(result.results.get("readings", {})).items():
-            ctx.add_reading(Reading(name=name, value=value, labels=dict(step.labels)))
+        readings = result.results.get("readings")
+        if readings:
+            for name, value in dict(readings).items():
+                ctx.add_reading(Reading(name=name, value=value, labels=dict(step.labels)))
         for m in result.measurements:
             ctx.add_measurement(m)
             if publish:
@@ -351,9 +357,8 @@ class Runner:
         return first
 
     def _announce(self, step: PlannedStep, index: int, at: datetime) -> None:
-        total = len(self.plan.steps)
         self.emit(StepStarted(run_id=self.run_id, path=step.path, kind=step.kind, index=index,
-                              total=total, at=at))
+                              total=self._total, at=at))
 
     def _skip(self, step: PlannedStep, index: int, why: str) -> None:
         now = self.clock()

@@ -59,7 +59,19 @@ def with_rails(trace: Trace, rails: tuple[float, float] | None) -> Trace:
     """``trace`` with the rails of its input recorded in its meta (unchanged when unknown)."""
     if rails is None:
         return trace
-    return replace(trace, meta={**trace.meta, RAILS_META: f"{rails[0]!r},{rails[1]!r}"})
+    return replace(trace, meta=_meta_with_rails(trace, rails))
+
+
+def _meta_with_rails(trace: Trace, rails: tuple[float, float] | None) -> dict[str, str]:
+    if rails is None:
+        return trace.meta
+    return {**trace.meta, RAILS_META: f"{rails[0]!r},{rails[1]!r}"}
+
+
+def _named(trace: Trace, name: str, labels: dict, rails: tuple[float, float] | None) -> Trace:
+    """The captured ``trace`` under the procedure's name, with the step's labels and its input's
+    rails (one copy: ``dataclasses.replace`` costs microseconds and runs once per trace)."""
+    return replace(trace, name=name, labels=labels, meta=_meta_with_rails(trace, rails))
 
 
 def rails_of(trace: Trace) -> tuple[float, float] | None:
@@ -116,9 +128,10 @@ def capture(ctx: RunContext, step: PlannedStep) -> StepResult:
     else:
         captures = [(ctx.bench.scope.capture(inputs), results)]
     labels = dict(step.labels)
+    rails = ctx.input_rails
     return StepResult(
         traces=[
-            replace(with_rails(t, ctx.input_rails.get(i)), name=n, labels=labels)
+            _named(t, n, labels, rails.get(i))
             for traces, _ in captures
             for n, t, i in zip(names, traces, inputs, strict=True)
         ],
