@@ -176,13 +176,13 @@ class Runner:
 
     def _preflight(self) -> None:
         problems = check_plan_against_bench(self.plan, self.bench.spec)
+        looked: set[str] = set()  # each role once (a plan holds hundreds of steps of few roles)
         for step in self.plan.steps:
             role = KINDS[step.kind].role if step.kind in KINDS else None
-            if (
-                role is not None
-                and role in self.bench.spec.instruments
-                and self.bench.role(role) is None
-            ):
+            if role is None or role in looked:
+                continue
+            looked.add(role)
+            if role in self.bench.spec.instruments and self.bench.role(role) is None:
                 problems.append(f"role {role!r} is not open on the bench (step {step.path})")
                 break
         for path, done in self.completed.items():
@@ -194,9 +194,9 @@ class Runner:
         if problems:
             raise RunAborted("precondition failed: " + "; ".join(problems), cause="precondition")
         if (
-            hazard_steps(self.plan)
-            and not self.options.unattended
+            not self.options.unattended
             and self.options.acknowledge is None
+            and hazard_steps(self.plan)
         ):
             raise RunAborted(
                 "the procedure makes a voltage live but there is no terminal to "
