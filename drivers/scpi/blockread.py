@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import contextlib
 import time
-from collections.abc import Callable, Iterator
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
@@ -118,10 +118,8 @@ class BlockReader:
             self._between_chunks(len(data), length, deadline)
             self._await_data(len(data), length, deadline)
             want = min(self.bounds.chunk_bytes, length - len(data))
-            with self._chunk_timeout(deadline):
-                data += self.transport.read_bytes(want)
-        with self._chunk_timeout(deadline):
-            rest = self.transport.read()
+            data += self._within(deadline, self.transport.read_bytes, want)
+        rest = self._within(deadline, self.transport.read)
         if rest.strip(b"\r\n"):
             raise self._protocol(f"{len(rest)} unexpected bytes after the binary block")
         return data  # no copy: numpy reads a bytearray as it is
@@ -133,33 +131,30 @@ class BlockReader:
         deadline = self.bounds.deadline(cap, self.start)
         term = self.transport.read_termination.encode("ascii")
         self._await_data(0, None, deadline)
-        with self._chunk_timeout(deadline):
-            data = bytearray(self.transport.read())
+        data = bytearray(self._within(deadline, self.transport.read))
         while True:
             if len(data) > cap:
                 raise self._protocol(f"indefinite block above the cap of {cap} bytes")
             self._between_chunks(len(data), None, deadline)
             if not self.transport.more_pending():
                 return data
-            with self._chunk_timeout(deadline):
-                data += term + self.transport.read()
+            data += term + self._within(deadline, self.transport.read)
 
     # -- bounds ---------------------------------------------------------------------------------
     def _cap(self, *, indefinite: bool) -> int:
         return block_cap(self.expected_bytes, indefinite=indefinite, hard_cap=self.bounds.cap_bytes)
 
     def _between_chunks(self, got: int, total: int | None, deadline: float) -> None:
-        of = f" of {total}" if total is not None else ""
         if self.bounds.stop is not None and self.bounds.stop():
             raise ReadStopped(
-                f"block read stopped by a stop request after {got}{of} bytes",
+                f"block read stopped by a stop request after {got}{_of(total)} bytes",
                 address=self.transport.address,
                 command=self.command,
             )
         if time.monotonic() > deadline:
             raise InstrumentTimeout(
-                f"block not complete within {deadline - self.start:.1f} s ({got}{of} bytes; "
-                f"link timeout plus a {self.bounds.min_transfer_Bps:g} B/s transfer floor)",
+                f"block not complete within {deadline - self.start:.1f} s ({got}{_of(total)} "
+                f"bytes; link timeout plus a {self.bounds.min_transfer_Bps:g} B/s transfer floor)",
                 address=self.transport.address,
                 command=self.command,
             )
@@ -178,22 +173,27 @@ class BlockReader:
                 return
             self._between_chunks(got, total, deadline)
 
-    @contextlib.contextmanager
-    def _chunk_timeout(self, deadline: float) -> Iterator[None]:
-        """The link's timeout cut to what is left before ``deadline`` for one chunk's wait."""
-        before = self.transport.timeout_ms
+    def _within(self, deadline: float, read: Callable[..., bytes], *args: int) -> bytes:
+        """``read(*args)`` with the link's timeout cut to what is left before ``deadline`` (a plain
+        call, not a context manager: this runs for every chunk and every block's terminator)."""
+        transport = self.transport
+        before = transport.timeout_ms
         left_ms = max(1, int((deadline - time.monotonic()) * 1000))
-        if left_ms < before:
-            self.transport.timeout_ms = left_ms
+        if left_ms >= before:
+            return read(*args)
+        transport.timeout_ms = left_ms
         try:
-            yield
+            return read(*args)
         finally:
-            if left_ms < before:
-                with contextlib.suppress(TransportError):
-                    self.transport.timeout_ms = before
+            with contextlib.suppress(TransportError):
+                transport.timeout_ms = before
 
     def _protocol(self, message: str) -> ProtocolError:
         return ProtocolError(message, address=self.transport.address, command=self.command)
+
+
+def _of(total: int | None) -> str:
+    return f" of {total}" if total is not None else ""
 
 
 def await_reply(
