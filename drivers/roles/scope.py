@@ -54,6 +54,13 @@ class Scope(RoleDriver):
                 session.write(dialect.command("common", "byte_order"))
             self._write("set_data_format", kind=dialect.binary.data_format)
         wave = dialect.waveform
+        acquire = dialect.operations.get(("scope", "acquire"))
+        #: The dialect's acquisition is one plain command, checked, without a timeout of its own:
+        #: it may share a message (fixed with the dialect, so looked at once, not per capture).
+        self._acquire_joinable = (
+            acquire is not None and not acquire.absent and acquire.single is not None
+            and acquire.check_errors is not False and acquire.timeout_ms is None
+        )  # fmt: skip
         #: The preamble kept between captures while no write may have changed it.
         self.preambles: PreambleCache = PreambleCache(
             session,
@@ -129,10 +136,8 @@ class Scope(RoleDriver):
     def _joins_acquire(self) -> bool:
         """Whether the dialect lets the acquisition's start, the operation-complete query and the
         error check share one message (joining allowed, the start one plain command, checked)."""
-        op = self.dialect.operation("scope", "acquire")
-        policy = self.session.policy
-        return (policy.join and self.session.check_errors and op.single is not None
-                and op.check_errors is not False and op.timeout_ms is None)  # fmt: skip
+        return (self._acquire_joinable and self.session.policy.join
+                and self.session.check_errors)  # fmt: skip
 
     def fetch(self, input: int) -> Trace:
         """The last record of ``input`` as a calibrated trace in volts."""

@@ -23,14 +23,15 @@ T = TypeVar("T")
 
 
 def split_last_unit(reply: str) -> tuple[str, str]:
-    """A response message split at its last ``;`` outside double quotes: (the rest, the last)."""
-    quoted = False
-    cut = -1
-    for i, c in enumerate(reply):
-        if c == '"':
-            quoted = not quoted
-        elif c == ";" and not quoted:
-            cut = i
+    """A response message split at its last ``;`` outside double quotes: (the rest, the last).
+
+    A ``;`` is outside quotes when an even number of ``"`` come before it (a doubled ``""`` inside
+    a string counts twice, so it changes nothing); found with ``rfind`` and ``count`` rather than
+    a Python loop over every character, since every joined acquisition's reply comes through here.
+    """
+    cut = reply.rfind(";")
+    while cut >= 0 and reply.count('"', 0, cut) % 2:
+        cut = reply.rfind(";", 0, cut)
     if cut < 0:
         raise ProtocolError(f"reply {reply!r} holds one response where two were asked for")
     return reply[:cut].strip(), reply[cut + 1 :].strip()

@@ -294,6 +294,36 @@ def test_a_reply_with_one_response_where_two_were_asked_is_garbled():
         split_last_unit('0,"No error"')
 
 
+def test_the_last_unit_is_cut_where_a_character_by_character_reading_cuts_it():
+    """The split counts quotes with ``str.count``; the reading it must agree with walks the reply
+    one character at a time, turning 'inside quotes' on and off at each ``"`` (IEEE 488.2 string
+    response data, ``""`` for a quote inside; from memory)."""
+    import random
+
+    from drivers.errors import ProtocolError
+    from drivers.scpi.joined import split_last_unit
+
+    def walked(reply: str) -> tuple[str, str] | None:
+        quoted, cut = False, -1
+        for i, c in enumerate(reply):
+            if c == '"':
+                quoted = not quoted
+            elif c == ";" and not quoted:
+                cut = i
+        return None if cut < 0 else (reply[:cut].strip(), reply[cut + 1 :].strip())
+
+    rng = random.Random(7)
+    replies = ['1;0,"No error"', '"a;b";"c""d;e"', '"x;', ';', '";"', '1;-222,"Data ""out;"" range"']
+    replies += ["".join(rng.choice('a;" ,0') for _ in range(rng.randrange(12))) for _ in range(3000)]
+    for reply in replies:
+        expected = walked(reply)
+        if expected is None:
+            with pytest.raises(ProtocolError):
+                split_last_unit(reply)
+        else:
+            assert split_last_unit(reply) == expected, reply
+
+
 def test_a_garbled_joined_reply_says_so():
     from drivers.errors import ProtocolError
     from drivers.roles import Counter
