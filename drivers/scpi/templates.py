@@ -136,12 +136,41 @@ class Field:
     spec: str
 
 
+#: Texts a template keeps (see :meth:`Template.render`); past this it renders without keeping.
+MAX_KEPT_RENDERS = 256
+#: Value types whose equal values always print the same (a float zero aside: ``-0.0 == 0.0``).
+_KEYED_TYPES = frozenset({int, float, str, bool})
+_ABSENT = object()
+
+
 @dataclass(frozen=True)
 class Template:
     """A checked command template: literal text and fields, in order."""
 
     text: str
     parts: tuple[str | Field, ...]
+    #: Texts rendered before, by the values read (:meth:`render`).  Lives and dies with the
+    #: template: a reloaded dialect compiles new templates, so nothing kept outlives its file.
+    _kept: dict[tuple[Any, ...], str] = dataclass_field(
+        default_factory=dict, init=False, compare=False, repr=False
+    )
+    #: The value names a render reads (every field's expression text, by which a bare name is
+    #: looked up, and the names in it) when a field computes; None when every field is a bare name
+    #: (then a lookup and a format cost less than building a key: nothing is kept).
+    _reads: tuple[str, ...] | None = dataclass_field(
+        default=None, init=False, compare=False, repr=False
+    )
+
+    def __post_init__(self) -> None:
+        fields = [part for part in self.parts if isinstance(part, Field)]
+        if all(f.expression.names == {f.expression.text} for f in fields) and fields:
+            return
+        reads: list[str] = []
+        for f in fields:
+            for name in (f.expression.text, *sorted(f.expression.names)):
+                if name not in reads:
+                    reads.append(name)
+        object.__setattr__(self, "_reads", tuple(reads))
 
     @property
     def names(self) -> frozenset[str]:
@@ -152,7 +181,38 @@ class Template:
         return frozenset(out)
 
     def render(self, values: Mapping[str, Any]) -> str:
-        """The command text; booleans as ON/OFF, a field value may not hold ``;`` or a newline."""
+        """The command text; booleans as ON/OFF, a field value may not hold ``;`` or a newline.
+
+        A template is data: its render of the same values is the same text.  So a template with
+        arithmetic (``{volts / 8:.6g}``: 11 us to evaluate) or with no field at all keeps the text
+        by the values it read (each with its type: ``1``, ``1.0`` and ``True`` print differently)
+        and gives it again (1 us).  Only values of the plain types are keys, never a float zero
+        (``-0.0`` equals ``0.0`` but prints ``-0``); a render that raises keeps nothing.
+        """
+        key = None if self._reads is None else self._key(values)
+        if key is not None:
+            kept = self._kept.get(key)
+            if kept is not None:
+                return kept
+        text = self._render(values)
+        if key is not None and len(self._kept) < MAX_KEPT_RENDERS:
+            self._kept[key] = text
+        return text
+
+    def _key(self, values: Mapping[str, Any]) -> tuple[Any, ...] | None:
+        key: list[Any] = []
+        for name in self._reads or ():
+            value = values.get(name, _ABSENT)
+            kind = type(value)
+            if kind not in _KEYED_TYPES:
+                if value is not _ABSENT:
+                    return None
+            elif kind is float and not value:
+                return None
+            key += (kind, value)
+        return tuple(key)
+
+    def _render(self, values: Mapping[str, Any]) -> str:
         out: list[str] = []
         for part in self.parts:
             if isinstance(part, str):

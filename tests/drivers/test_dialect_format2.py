@@ -222,6 +222,38 @@ def test_the_safe_evaluator_refuses_what_is_not_arithmetic():
     assert compile_template("{max(1, count // 2)}", {"count"}).render({"count": 9}) == "4"
 
 
+def test_a_kept_render_is_the_text_a_fresh_template_renders():
+    """A computing template keeps its texts by the values read; every text it gives must be the
+    one a template that never rendered before gives for the same values, whatever came first."""
+    text = "CHANnel{input:d}:SCALe {volts / 8:.9g} {volts * 1} {input * 1}"
+    kept = compile_template(text, {"input", "volts"})
+    cases = [
+        {"input": 1, "volts": 0.8}, {"input": 2, "volts": 0.8}, {"input": 1, "volts": 0.8},
+        {"input": 1, "volts": -0.0}, {"input": 1, "volts": 0.0}, {"input": 1, "volts": -0.0},
+        {"input": 1, "volts": 8}, {"input": 1, "volts": 8.0}, {"input": 1, "volts": True},
+        {"input": 3, "volts": 8}, {"input": 1, "volts": 8},
+    ]  # fmt: skip
+    for values in cases * 2:
+        fresh = compile_template(text, {"input", "volts"})
+        assert kept.render(values) == fresh.render(values), values
+    zero = compile_template("{volts * 1:g}", {"volts"})
+    assert [zero.render({"volts": v}) for v in (0.0, -0.0, 0.0)] == ["0", "-0", "0"]
+    assert [zero.render({"volts": v}) for v in (1, 1.0, True)] == ["1", "1", "1"]
+
+
+def test_a_refused_render_is_refused_again_and_a_constant_one_kept():
+    scale = compile_template("SCALe {volts / 8:.9g}", {"volts"})
+    for _ in range(2):
+        with pytest.raises(ExpressionError, match="not a number"):
+            scale.render({"volts": "1;*RST"})
+        with pytest.raises(ExpressionError, match="no value for volts"):
+            scale.render({})
+    assert scale.render({"volts": 8.0}) == "SCALe 1"
+    constant = compile_template("INITiate:IMMediate", set())
+    assert constant.render({}) is constant.render({"volts": 1.0})  # made once, then given again
+    assert constant.render({}) == "INITiate:IMMediate"
+
+
 def test_format_1_files_still_read_and_new_keys_need_format_2():
     old = parse_dialect(
         "dialect: old\nroles:\n  pulser:\n    trigger: {write: '*TRG'}\n", "old.yaml"
