@@ -185,11 +185,17 @@ class Dialect:
     def render(self, operation: Operation, template: Template, values: Mapping[str, Any]) -> str:
         """``template`` filled from ``values`` after the operation's value maps."""
         maps = operation.values
-        wire = {}
-        for k, v in values.items():
-            if maps and k in maps:
-                v = map_value(k, v, maps[k])
-            wire[k] = _wire_value(k, v) if isinstance(v, str) else v
+        wire: Mapping[str, Any] = values
+        if maps:
+            wire = {}
+            for k, v in values.items():
+                if k in maps:
+                    v = map_value(k, v, maps[k])
+                wire[k] = _wire_value(k, v) if isinstance(v, str) else v
+        else:  # no value maps (most operations): the values as they are, texts checked
+            for k, v in values.items():
+                if isinstance(v, str):
+                    _wire_value(k, v)
         try:
             return template.render(wire)
         except ExpressionError as exc:
@@ -202,7 +208,7 @@ class Dialect:
 
 def _wire_value(name: str, value: Any) -> Any:
     """``value`` unchanged, unless it is text that would smuggle a second command (``ValueError``)."""
-    if isinstance(value, str) and any(c in value for c in "\r\n;"):
+    if isinstance(value, str) and ("\n" in value or "\r" in value or ";" in value):
         raise ValueError(f"{name}={value!r}: a command argument may not hold a newline or ';'")
     return value
 

@@ -189,7 +189,9 @@ class Template:
         and gives it again (1 us).  Only values of the plain types are keys, never a float zero
         (``-0.0`` equals ``0.0`` but prints ``-0``); a render that raises keeps nothing.
         """
-        key = None if self._reads is None else self._key(values)
+        if self._reads is None:
+            return self._render(values)
+        key = self._key(values)
         if key is not None:
             kept = self._kept.get(key)
             if kept is not None:
