@@ -43,9 +43,11 @@ class MessagePolicy:
 PLAIN = MessagePolicy()
 
 
+@functools.lru_cache(maxsize=256)
 def absolute(unit: str) -> str:
     """``unit`` read from the root of the command tree: a leading ``:`` unless it is a common
-    command (``*...``) or already absolute."""
+    command (``*...``) or already absolute.  Kept per text: every checked write asks it of the
+    same error query."""
     text = unit.strip()
     if not text or text.startswith((":", "*")):
         return text

@@ -6,6 +6,7 @@ Pure functions on text, used by :class:`drivers.scpi.session.ScpiSession` (which
 from __future__ import annotations
 
 import contextlib
+import functools
 from dataclasses import dataclass
 
 from drivers.errors import ProtocolError
@@ -43,8 +44,12 @@ def parse_identity(reply: str) -> Identity:
     )
 
 
+@functools.lru_cache(maxsize=64)
 def parse_error_entry(reply: str) -> tuple[int, str]:
-    """``-113,"Undefined header"`` -> ``(-113, "Undefined header")`` (SCPI-1999 SYSTem:ERRor format)."""
+    """``-113,"Undefined header"`` -> ``(-113, "Undefined header")`` (SCPI-1999 SYSTem:ERRor format).
+
+    Kept per reply text (a pure function; nearly every reply is the same ``0,"No error"``, read
+    after every setting): a refusal raises and is not kept."""
     code_text, sep, message = reply.strip().partition(",")
     try:
         code = int(code_text.strip())
