@@ -86,6 +86,11 @@ class BlockReader:
         self.command = command
         self.expected_bytes = expected_bytes
         self.start = time.monotonic()
+        #: The link's wait for input (optional in the contract), looked up once per reply; None
+        #: when nobody can ask to stop (then the reads wait in one piece, up to their timeout).
+        self._wait: Callable[[float], bool | None] | None = (
+            getattr(transport, "wait_for_input", None) if bounds.stop is not None else None
+        )
 
     # -- the reply ------------------------------------------------------------------------------
     def header(self) -> int | None:
@@ -113,12 +118,14 @@ class BlockReader:
     def definite(self, length: int) -> bytes | bytearray:
         """Exactly ``length`` data bytes, chunk by chunk, then the trailing terminator."""
         deadline = self.bounds.deadline(length, self.start)
+        chunk, read_bytes = self.bounds.chunk_bytes, self.transport.read_bytes
         data = bytearray()
-        while len(data) < length:
-            self._between_chunks(len(data), length, deadline)
-            self._await_data(len(data), length, deadline)
-            want = min(self.bounds.chunk_bytes, length - len(data))
-            data += self._within(deadline, self.transport.read_bytes, want)
+        got = 0
+        while got < length:
+            self._between_chunks(got, length, deadline)
+            self._await_data(got, length, deadline)
+            data += self._within(deadline, read_bytes, min(chunk, length - got))
+            got = len(data)
         rest = self._within(deadline, self.transport.read)
         if rest.strip(b"\r\n"):
             raise self._protocol(f"{len(rest)} unexpected bytes after the binary block")
@@ -163,8 +170,8 @@ class BlockReader:
         """Wait for the next bytes in short slices, looking at the stop flag and the deadline in
         between, for at most the link timeout (the read that follows then reports the timeout).
         Links that cannot tell whether input waits (``wait_for_input`` absent or None) skip this."""
-        wait = getattr(self.transport, "wait_for_input", None)  # optional in the contract
-        if wait is None or self.bounds.stop is None:
+        wait = self._wait
+        if wait is None:
             return
         limit = min(deadline, time.monotonic() + self.transport.timeout_ms / 1000.0)
         while True:

@@ -97,6 +97,8 @@ class ScpiSession:
         #: Looked at between the chunks of a block read (the engine hands the run's stop flag down
         #: through ``Bench.watch_stop``); True gives the read up with ``ReadStopped``.
         self.stop_check: StopCheck | None = None
+        self._bounds_inputs: tuple[object, ...] = ()
+        self._bounds: BlockBounds | None = None
         self.lock = threading.RLock()
         self._settings: dict[str, str] = {}
         #: What the instrument is known to hold (key -> command), for ``policy.skip_unchanged``.
@@ -407,7 +409,7 @@ class ScpiSession:
         """Send ``command`` and read its reply; ``sliced``: wait for it in short slices, looking
         at the stop check (a long wait, e.g. ``*OPC?`` while the instrument acquires)."""
         if timeout_ms is not None:
-            with self._timeout(timeout_ms):
+            with link_timeout(self.transport, timeout_ms):
                 return self._ask(command, sliced=sliced)
         self._send(command)
         if sliced:
@@ -438,7 +440,7 @@ class ScpiSession:
             return
         joined = self.policy.join and group is None
         try:
-            with self._timeout(timeout_ms):
+            with link_timeout(self.transport, timeout_ms):
                 if joined:  # the error query in the command's own message: one exchange
                     first = self._ask(f"{command};{absolute(self.error_query)}")
                     entries = self._error_entries(first)
@@ -475,20 +477,20 @@ class ScpiSession:
         self, command: str, timeout_ms: int | None, expected_bytes: int | None
     ) -> bytes | bytearray:
         try:
-            with self._timeout(timeout_ms):
+            with link_timeout(self.transport, timeout_ms):
                 self._send(command)
-                bounds = BlockBounds(
-                    cap_bytes=self.max_block_bytes,
-                    timeout_s=self.transport.timeout_ms / 1000.0,
-                    min_transfer_Bps=self.min_transfer_Bps,
-                    chunk_bytes=self.block_chunk_bytes,
-                    stop=self.stop_check,
-                )
-                return read_block(
-                    self.transport, bounds, command=command, expected_bytes=expected_bytes
-                )
+                return read_block(self.transport, self._block_bounds(), command=command,
+                                  expected_bytes=expected_bytes)  # fmt: skip
         except TransportError as exc:
             raise exc.with_command(command) from exc
 
-    def _timeout(self, timeout_ms: int | None) -> contextlib.AbstractContextManager[None]:
-        return link_timeout(self.transport, timeout_ms)
+    def _block_bounds(self) -> BlockBounds:
+        """The bounds of a block read now: the last ones again while none of what they are made
+        of changed (a frozen record built once per change, not per block)."""
+        inputs = (self.max_block_bytes, self.transport.timeout_ms / 1000.0,
+                  self.min_transfer_Bps, self.block_chunk_bytes, self.stop_check)  # fmt: skip
+        if inputs != self._bounds_inputs:
+            cap, timeout_s, floor, chunk, stop = self._bounds_inputs = inputs
+            self._bounds = BlockBounds(cap_bytes=cap, timeout_s=timeout_s,
+                                       min_transfer_Bps=floor, chunk_bytes=chunk, stop=stop)  # fmt: skip
+        return self._bounds

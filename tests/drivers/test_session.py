@@ -9,7 +9,13 @@ the standard's table, from memory).  Expected arrays are built with numpy's own 
 import numpy as np
 import pytest
 
-from drivers.errors import ConnectionClosed, InstrumentError, InstrumentTimeout, ProtocolError
+from drivers.errors import (
+    ConnectionClosed,
+    InstrumentError,
+    InstrumentTimeout,
+    ProtocolError,
+    ReadStopped,
+)
 from drivers.scpi.session import Identity, ScpiSession, parse_error_entry, parse_identity
 from tests.drivers.scripted import ERRQ, OK, ScriptedTransport, configured, resync
 
@@ -135,6 +141,28 @@ def test_declared_size_above_the_cap_is_rejected():
     t = ScriptedTransport().expect(("D?", b"#41000" + bytes(1000) + b"\n"))
     with pytest.raises(ProtocolError, match="cap"):
         session(t, retries=0, max_block_bytes=100).query_block("D?")
+
+
+def test_block_bounds_kept_between_reads_follow_the_cap_the_timeout_and_the_stop_check():
+    """The session keeps one bounds record while what it is made of stays the same; a new cap,
+    link timeout or stop check is in force from the next block read on."""
+    block = ("D?", b"#18" + be16([1, 2, 3, 4]) + b"\n")
+    t = ScriptedTransport().expect(block, block, *resync(), block, block, *resync(), block)
+    s = session(t, retries=0)
+    assert s.query_block("D?").tolist() == [1, 2, 3, 4]
+    s.max_block_bytes = 4  # smaller than the 8 bytes announced
+    with pytest.raises(ProtocolError, match="cap of 4"):
+        s.query_block("D?")
+    s.max_block_bytes = 1024
+    assert s.query_block("D?").tolist() == [1, 2, 3, 4]  # after the resync
+    s.stop_check = lambda: True
+    with pytest.raises(ReadStopped):
+        s.query_block("D?")
+    s.stop_check = None
+    t.timeout_ms = 2000
+    assert s.query_block("D?").tolist() == [1, 2, 3, 4]
+    assert s._block_bounds().timeout_s == 2.0 and s._block_bounds().stop is None
+    t.assert_done()
 
 
 def test_bytes_after_a_definite_block_are_an_error():
