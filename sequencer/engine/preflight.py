@@ -18,8 +18,10 @@ def is_hazard(step: PlannedStep) -> bool:
 
 
 def hazard_steps(plan: Plan) -> list[PlannedStep]:
-    """The steps of ``plan`` that can make a voltage live, in order."""
-    return [s for s in plan.steps if is_hazard(s)]
+    """The steps of ``plan`` that can make a voltage live, in order (:func:`is_hazard` for each;
+    the kinds are looked at once, not once per step: it runs before every run)."""
+    kinds = {name for name, kind in KINDS.items() if kind.hazard}
+    return [s for s in plan.steps if s.hazard or s.kind in kinds]
 
 
 def requested_ramps(

@@ -1,6 +1,9 @@
-"""The capture handler names a driver's trace field by field (``named_capture``), for speed on the
-instrument loop; it must agree with ``dataclasses.replace`` (Python standard library) on every field
-of ``Trace``, so a field added to the record is never silently dropped on its way to the store."""
+"""Shortcuts the engine takes on its hot path agree with the plain definitions they replace.
+
+The capture handler names a driver's trace field by field (``named_capture``); it must agree with
+``dataclasses.replace`` (Python standard library) on every field of ``Trace``, so a field added to
+the record is never silently dropped on its way to the store.  ``hazard_steps`` looks at the kinds
+once per plan; it must pick the steps ``is_hazard`` picks one by one."""
 
 from __future__ import annotations
 
@@ -45,3 +48,21 @@ def test_named_capture_equals_replace_on_every_field(rails: tuple[float, float] 
             assert a == b, f.name
     assert (RAILS_META in fast.meta) == (rails is not None)
     assert trace.meta == {"probe": "x10"}  # the driver's trace is left as it was
+
+
+def test_hazard_steps_are_the_steps_is_hazard_names() -> None:
+    """``hazard_steps`` looks at the kinds once per plan; it must pick exactly the steps
+    ``is_hazard`` picks one by one: every shipped kind, plus a step that declares its own hazard."""
+    from dataclasses import replace as copy_with
+
+    from sequencer.engine.preflight import hazard_steps, is_hazard
+    from sequencer.procedure.kinds import KINDS
+    from tests.sequencer.engine.plans import plan, step
+
+    steps = [step(f"s/{i}", kind) for i, kind in enumerate(sorted(KINDS))]
+    steps.append(copy_with(step("s/declared", "wait", seconds=0.0), hazard=True))
+    p = plan(steps)
+    picked = hazard_steps(p)
+    assert picked == [s for s in p.steps if is_hazard(s)]
+    assert any(s.path == "s/declared" for s in picked)
+    assert any(KINDS[s.kind].hazard for s in picked)  # some shipped kind is a hazard
