@@ -61,6 +61,9 @@ class Scope(RoleDriver):
             acquire is not None and not acquire.absent and acquire.single is not None
             and acquire.check_errors is not False and acquire.timeout_ms is None
         )  # fmt: skip
+        #: Its command, rendered at the first joined acquisition (it takes no value: the text is
+        #: fixed with the dialect, so it is not rendered again at every capture).
+        self._acquire_text: str | None = None
         #: The preamble kept between captures while no write may have changed it.
         self.preambles: PreambleCache = PreambleCache(
             session,
@@ -124,7 +127,7 @@ class Scope(RoleDriver):
         with self.session.lock:
             if self._joins_acquire():  # INIT, *OPC? and the error check: one message
                 with self.preambles.writing("acquire"):
-                    query_joined(self.session, [self._command("acquire")], self.session.opc_query,
+                    query_joined(self.session, [self._acquire_command()], self.session.opc_query,
                                  _operation_complete, timeout_ms=self.session.opc_timeout_ms)  # fmt: skip
             else:
                 # the error check after INIT may wait for the acquisition: the OPC timeout, not
@@ -138,6 +141,11 @@ class Scope(RoleDriver):
         error check share one message (joining allowed, the start one plain command, checked)."""
         return (self._acquire_joinable and self.session.policy.join
                 and self.session.check_errors)  # fmt: skip
+
+    def _acquire_command(self) -> str:
+        if self._acquire_text is None:
+            self._acquire_text = self._command("acquire")
+        return self._acquire_text
 
     def fetch(self, input: int) -> Trace:
         """The last record of ``input`` as a calibrated trace in volts."""
