@@ -97,28 +97,30 @@ def rpc_socket(session: Any) -> socket.socket | None:
 
 
 class HeldBytes:
-    """Bytes a VXI-11 wait took off the link, handed out before anything read after them."""
+    """Bytes a VXI-11 wait took off the link, handed out before anything read after them.
+
+    ``data`` is read by the transport before every read and wait to ask whether anything is held
+    (an attribute and a bytearray's truth: no Python-level ``__bool__`` call on every exchange)."""
+
+    __slots__ = ("_end", "data")
 
     def __init__(self) -> None:
-        self._data = bytearray()
+        self.data = bytearray()
         self._end = False  # they ended the reply
 
-    def __bool__(self) -> bool:
-        return bool(self._data)
-
     def keep(self, probe: Probe) -> None:
-        self._data += probe.data
+        self.data += probe.data
         self._end = probe.end
 
     def take(self, n: int) -> tuple[bytes, bool]:
         """Up to ``n`` bytes; True when they were the last of a reply that ended."""
-        taken = bytes(self._data[:n])
-        del self._data[:n]
-        ended = self._end and not self._data
-        if not self._data:
+        taken = bytes(self.data[:n])
+        del self.data[:n]
+        ended = self._end and not self.data
+        if not self.data:
             self._end = False
         return taken, ended
 
     def clear(self) -> None:
-        self._data.clear()
+        self.data.clear()
         self._end = False

@@ -25,6 +25,7 @@ import select
 import socket
 import statistics
 import time
+from typing import Any
 
 RECV_SIZE = 65536
 _DONTWAIT = getattr(socket, "MSG_DONTWAIT", 0)
@@ -81,6 +82,35 @@ class BusyPoll:
         on, off = (statistics.median(self._waits[k]) for k in (True, False))
         self._phase, self._on = "keep", on <= off
         self._left = self.KEEP_WINDOWS * self.WINDOW
+
+
+class SessionLink:
+    """The pending buffer and socket of the pyvisa-py SOCKET session a transport reads on.
+
+    Found with ``getattr`` once per session (any object: one without them has no fast link); then
+    each use checks with two identity tests that the session still holds the same buffer and
+    socket -- pyvisa-py's own reads replace its buffer, its close drops the socket -- and looks
+    again when it does not.  Four ``getattr`` and type tests per exchange cost more than the
+    reply's own parsing did."""
+
+    __slots__ = ("_link", "_session")
+
+    def __init__(self) -> None:
+        self._session: Any = None
+        self._link: tuple[bytearray, socket.socket] | None = None
+
+    def of(self, session: Any) -> tuple[bytearray, socket.socket] | None:
+        """``(pending, sock)`` of ``session``, or None when it has no such pair."""
+        link = self._link
+        if (session is self._session and link is not None
+                and session._pending_buffer is link[0] and session.interface is link[1]):  # fmt: skip
+            return link
+        pending = getattr(session, "_pending_buffer", None)
+        sock = getattr(session, "interface", None)
+        self._session = session
+        self._link = (pending, sock) if type(pending) is bytearray and isinstance(
+            sock, socket.socket) else None  # fmt: skip
+        return self._link
 
 
 def peer_closed(sock: socket.socket | None) -> bool:

@@ -82,6 +82,7 @@ class VisaTransport:
         self._timeout_ms = int(settings.timeout_ms)
         self._resource_timeout_ms = int(settings.timeout_ms)  # what the VISA resource has now
         self._session_of: tuple[Any, Any] = (None, None)  # (resource, its pyvisa-py session)
+        self._link = sockio.SessionLink()  # that session's pending buffer and socket
         self._read_term = settings.read_termination.encode("ascii")
         self._write_term = settings.write_termination
         self._poll = sockio.BusyPoll(max(0, settings.busy_poll_us) / 1e6)  # self-disabling
@@ -167,7 +168,7 @@ class VisaTransport:
 
     def read(self) -> bytes:
         """One message up to the read termination, the terminator stripped."""
-        if not self._held:
+        if not self._held.data:
             data = self._receive_message()
         else:  # a VXI-11 wait took the reply's first byte(s) off the link
             held, ended = self._held.take(1 << 30)
@@ -193,7 +194,7 @@ class VisaTransport:
         """Exactly ``n`` raw bytes, with the termination character off (binary data)."""
         if n <= 0:
             return b""
-        if self._held:
+        if self._held.data:
             head, _ = self._held.take(n)
             return head if len(head) == n else head + self.read_bytes(n - len(head))
         resource = self._live()
@@ -239,16 +240,11 @@ class VisaTransport:
             return None
         if resource is not self._session_of[0]:  # looked up once per opened resource
             self._session_of = (resource, _pyvisa_py_session(resource))
-        session = self._session_of[1]
-        pending = getattr(session, "_pending_buffer", None)  # pyvisa-py may replace the buffer
-        sock = getattr(session, "interface", None)
-        if type(pending) is bytearray and isinstance(sock, socket.socket):
-            return pending, sock
-        return None
+        return self._link.of(self._session_of[1])  # pyvisa-py may replace the buffer: checked
 
     def more_pending(self, wait_s: float = 0.005) -> bool:
         """True when more input is waiting (or arrives within ``wait_s``); best effort."""
-        if self._held:
+        if self._held.data:
             return True
         resource = self._live()
         session = _pyvisa_py_session(resource)
@@ -267,13 +263,14 @@ class VisaTransport:
         """True when input (or end-of-file) is waiting or arrives within ``timeout_s``, False when
         none does, None when this link cannot tell (not pyvisa-py SOCKET, HiSLIP or VXI-11).  Lets
         a long read wait in short slices and look at the stop flag in between."""
-        if self._held:
+        if self._held.data:
             return True
         resource = self._live()
         link = self._fast_link(resource)
         try:
             if link is not None:  # what arrives is received at once: the read needs no select
-                return sockio.wait_for_bytes(link[0], link[1], max(0.0, timeout_s), self._poll)
+                wait_s = timeout_s if timeout_s > 0.0 else 0.0  # not max(): once per reply
+                return sockio.wait_for_bytes(link[0], link[1], wait_s, self._poll)
         except (OSError, ValueError):
             return True  # the read that follows reports what is wrong
         session = _pyvisa_py_session(resource)
