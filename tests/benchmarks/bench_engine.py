@@ -16,6 +16,10 @@
   over the script, paired the same way: what the poll buys (a sleeping thread is slow to wake).
 * ``engine_vs_direct_drivers``: the engine over the same plan written as direct driver calls (the
   engine's own share of the overhead; the rest of ``engine_overhead`` is the drivers' layer).
+* ``engine_client_bytecodes``: the client's own work, counted: Python bytecodes per run of the scan
+  against its recorded replies (no I/O), over the same count for the direct driver calls
+  (:mod:`tests.benchmarks.client_work`).  Deterministic, so it judges a change to the instrument loop
+  where the wall-clock ratios above move with the machine's load.
 * ``engine_overhead_vs_naive``: the same against the naive script: pyvisa default settings (no
   TCP_NODELAY, so ~40 ms delayed-ACK stalls), same exchanges -- for reference.
 Best of ``REPEATS`` runs each (``NAIVE_REPEATS`` for the naive script), interleaved, in the same
@@ -43,6 +47,8 @@ from drivers.bench import bench_from_mapping, open_bench, open_transport
 from drivers.sim import board_from_mapping, start_sim_bench
 from sequencer.engine import Runner, RunOptions, describe_run
 from sequencer.procedure.plan_model import BoardInfo, Plan, PlannedStep, ProcedureMeta
+
+from .client_work import bytecodes_per_run
 
 REPEATS = 30
 NAIVE_REPEATS = 2
@@ -178,29 +184,34 @@ def run_drivers(plan: Plan, spec: Any) -> float:
     """The same plan as direct driver calls (no engine): isolates the engine's own share."""
     with open_bench(spec) as bench:
         t0 = time.perf_counter()
-        for st in plan.steps:
-            a = st.args
-            if st.kind == "scope.timebase":
-                bench.scope.set_timebase(
-                    sample_rate_hz=a["sample_rate"],
-                    points=a["points"],
-                    pretrigger_ns=a["pretrigger"],
-                )
-            elif st.kind == "scope.input":
-                bench.scope.set_input(a["input"], range_mV=a["range"])
-            elif st.kind == "scope.trigger":
-                bench.scope.set_trigger(a["source"])
-            elif st.kind == "pulser.output":
-                bench.pulser.set_output(a["on"])
-            elif st.kind == "switch.inject":
-                bench.switch.inject(a["channel"])
-            elif st.kind == "switch.route":
-                bench.switch.route(a["channel"], a["output"], a["input"])
-            elif st.kind == "pulser.amplitude":
-                bench.pulser.set_amplitude(a["mV"])
-            elif st.kind == "scope.capture":
-                bench.scope.capture(a["inputs"])
+        drive(plan, bench)
         return time.perf_counter() - t0
+
+
+def drive(plan: Plan, bench: Any) -> None:
+    """Each step of ``plan`` as the driver call its handler makes."""
+    for st in plan.steps:
+        a = st.args
+        if st.kind == "scope.timebase":
+            bench.scope.set_timebase(
+                sample_rate_hz=a["sample_rate"],
+                points=a["points"],
+                pretrigger_ns=a["pretrigger"],
+            )
+        elif st.kind == "scope.input":
+            bench.scope.set_input(a["input"], range_mV=a["range"])
+        elif st.kind == "scope.trigger":
+            bench.scope.set_trigger(a["source"])
+        elif st.kind == "pulser.output":
+            bench.pulser.set_output(a["on"])
+        elif st.kind == "switch.inject":
+            bench.switch.inject(a["channel"])
+        elif st.kind == "switch.route":
+            bench.switch.route(a["channel"], a["output"], a["input"])
+        elif st.kind == "pulser.amplitude":
+            bench.pulser.set_amplitude(a["mV"])
+        elif st.kind == "scope.capture":
+            bench.scope.capture(a["inputs"])
 
 
 def without_poll(spec: Any) -> Any:
@@ -280,6 +291,7 @@ def run() -> list[dict]:
         run_engine(plan, spec, opener=lambda s: Recorder(open_transport(s), again))
         if _run_exchanges(again) != log:  # the replay is fair only if every run does the same
             raise RuntimeError("the engine's exchanges differ between two runs of the same plan")
+        engine_work, driver_work = bytecodes_per_run(plan, spec, drive)
         no_poll = without_poll(spec)
         ours, tuned, naive, direct, unpolled, tuned2 = [], [], [], [], [], []
         for i in range(REPEATS):
@@ -324,6 +336,15 @@ def run() -> list[dict]:
             min(naive),
             f"reference: pyvisa default settings (best of {NAIVE_REPEATS})",
             True,
+        ),
+        _row(
+            "engine_client_bytecodes",
+            float(engine_work),
+            float(driver_work),
+            "diagnostic: Python bytecodes per run against recorded replies (no I/O; deterministic); "
+            "baseline: the same plan as direct driver calls",
+            True,
+            unit="bytecodes",
         ),
         _row(
             "engine_vs_direct_drivers",
