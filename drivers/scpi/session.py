@@ -35,6 +35,7 @@ from drivers.errors import (
     ReadStopped,
     TransportError,
 )
+from drivers.scpi import errorqueue
 from drivers.scpi.blockread import (
     DEFAULT_BLOCK_CHUNK,
     DEFAULT_MIN_TRANSFER_BPS,
@@ -49,7 +50,7 @@ from drivers.scpi.messages import PLAIN, MessagePolicy, absolute, join_units
 from drivers.scpi.plain import (
     Identity,
     header_of,
-    parse_error_entry,
+    parse_error_entry,  # noqa: F401 -- re-exported (drivers.scpi.plain's docstring)
     parse_identity,
     to_bool,
     to_csv,
@@ -59,8 +60,6 @@ from drivers.scpi.plain import (
 
 DEFAULT_OPC_TIMEOUT_MS = 10_000
 DEFAULT_RETRIES = 1
-#: More entries than this in the error queue means the instrument is not answering the query sanely.
-MAX_ERROR_ENTRIES = 64
 
 T = TypeVar("T")
 
@@ -346,7 +345,7 @@ class ScpiSession:
             self._send_group(pending)
         if self._link_lost or self._out_of_step:
             self._recover_if_needed()
-        attempts = 1 + (max(0, self.retries) if retry else 0)
+        attempts = 1 + (self.retries if retry and self.retries > 0 else 0)  # not max(): per call
         for attempt in range(attempts):
             try:
                 return op()
@@ -438,15 +437,17 @@ class ScpiSession:
         if not (self.check_errors if check is None else check):
             self._send(command)
             return
-        joined = self.policy.join and group is None
-        try:
+        if timeout_ms is not None:  # as in _ask: no context at all for the usual None
             with link_timeout(self.transport, timeout_ms):
-                if joined:  # the error query in the command's own message: one exchange
-                    first = self._ask(f"{command};{absolute(self.error_query)}")
-                    entries = self._error_entries(first)
-                else:
-                    self._send(command)
-                    entries = self._drain_errors()
+                return self._write_checked(command, True, None, group=group)
+        try:
+            if self.policy.join and group is None:  # the error query joined: one exchange
+                first = self._ask(f"{command};{absolute(self.error_query)}")
+                entries = errorqueue.entries_after(first, self._ask, self.error_query,
+                                                   address=self.address)  # fmt: skip
+            else:
+                self._send(command)
+                entries = self._drain_errors()
         except TransportError as exc:  # the news is the command before the check (INIT, ...)
             raise exc.checking_after(command) from exc
         if entries:
@@ -455,32 +456,19 @@ class ScpiSession:
             error.queued = entries  # type: ignore[attr-defined]  # every entry drained, in order
             raise error
 
-    def _error_entries(self, first_reply: str) -> list[tuple[int, str]]:
-        """The error queue from its first entry (already read) on."""
-        code, message = parse_error_entry(first_reply)
-        if code == 0:
-            return []
-        return [(code, message), *self._drain_errors()]
-
     def _drain_errors(self) -> list[tuple[int, str]]:
-        entries: list[tuple[int, str]] = []
-        for _ in range(MAX_ERROR_ENTRIES):
-            code, message = parse_error_entry(self._ask(self.error_query))
-            if code == 0:
-                return entries
-            entries.append((code, message))
-        raise ProtocolError(
-            f"error queue still not empty after {MAX_ERROR_ENTRIES} reads", address=self.address
-        )
+        return errorqueue.drain(self._ask, self.error_query, address=self.address)
 
     def _ask_block(
         self, command: str, timeout_ms: int | None, expected_bytes: int | None
     ) -> bytes | bytearray:
-        try:
+        if timeout_ms is not None:  # as in _ask: no context at all for the usual None
             with link_timeout(self.transport, timeout_ms):
-                self._send(command)
-                return read_block(self.transport, self._block_bounds(), command=command,
-                                  expected_bytes=expected_bytes)  # fmt: skip
+                return self._ask_block(command, None, expected_bytes)
+        try:
+            self._send(command)
+            return read_block(self.transport, self._block_bounds(), command=command,
+                              expected_bytes=expected_bytes)  # fmt: skip
         except TransportError as exc:
             raise exc.with_command(command) from exc
 
