@@ -149,7 +149,9 @@ class Scope(RoleDriver):
 
     def fetch(self, input: int) -> Trace:
         """The last record of ``input`` as a calibrated trace in volts."""
-        n = _input(input)
+        return self._fetch(_input(input))
+
+    def _fetch(self, n: int) -> Trace:  # ``n`` checked by the caller (capture checks them all first)
         if self.dialect.waveform is not None:
             return fetch_waveform(self.session, self.dialect.waveform, n, self.preambles)
         binary = self.dialect.binary
@@ -181,7 +183,7 @@ class Scope(RoleDriver):
         numbers = [_input(i) for i in inputs]
         with self.session.lock:
             self.acquire()
-            return [self.fetch(i) for i in numbers]
+            return [self._fetch(n) for n in numbers]
 
 
 def _operation_complete(reply: str) -> bool:

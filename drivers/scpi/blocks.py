@@ -55,14 +55,12 @@ def parse_block_header(head: bytes, *, max_bytes: int = MAX_BLOCK_BYTES) -> tupl
     block.  ``head`` must hold at least the whole header (at most 11 bytes) or a ``ProtocolError`` names
     what is missing.  Leading whitespace before ``#`` is skipped and counted in ``header_length``.
     """
-    start = 0
-    while start < len(head) and head[start : start + 1] in (b" ", b"\t", b"\r", b"\n"):
-        start += 1
-    if start >= len(head) or head[start : start + 1] != b"#":
+    start = len(head) - len(head.lstrip(b" \t\r\n"))  # leading whitespace skipped
+    if head[start : start + 1] != b"#":
         raise ProtocolError(f"binary block must start with '#', got {bytes(head[start:start + 12])!r}")
-    if start + 1 >= len(head):
-        raise ProtocolError("binary block header truncated after '#'")
     digit = head[start + 1 : start + 2]
+    if not digit:
+        raise ProtocolError("binary block header truncated after '#'")
     if not digit.isdigit():
         raise ProtocolError(f"binary block header: expected a digit after '#', got {digit!r}")
     n = int(digit)

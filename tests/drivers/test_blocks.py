@@ -45,6 +45,44 @@ def test_malformed_headers_are_rejected():
             parse_block_header(bad)
 
 
+def test_header_parse_agrees_with_a_byte_by_byte_reading():
+    """The header parse skips leading whitespace with ``lstrip``; it must give what a byte-by-byte
+    reading gives (IEEE 488.2 8.7.9, from memory): the same lengths, the same refusals."""
+    import random
+
+    def walked(head: bytes) -> tuple[int, int | None] | str:
+        start = 0
+        while start < len(head) and head[start : start + 1] in (b" ", b"\t", b"\r", b"\n"):
+            start += 1
+        if start >= len(head) or head[start : start + 1] != b"#":
+            return f"binary block must start with '#', got {bytes(head[start:start + 12])!r}"
+        if start + 1 >= len(head):
+            return "binary block header truncated after '#'"
+        digit = head[start + 1 : start + 2]
+        if not digit.isdigit():
+            return f"binary block header: expected a digit after '#', got {digit!r}"
+        n = int(digit)
+        if n == 0:
+            return start + 2, None
+        digits = head[start + 2 : start + 2 + n]
+        if len(digits) < n or not digits.isdigit():
+            return "length"
+        return start + 2 + n, int(digits)
+
+    rng = random.Random(3)
+    heads = [b"", b" ", b"#", b" \r\n#", b"\t#0", b"#41000", b"  #41000xyz", b"\x0b#12"]
+    heads += [bytes(rng.choice(b" \t\r\n#0123x") for _ in range(rng.randrange(9))) for _ in range(4000)]
+    for head in heads:
+        for given in (head, bytearray(head)):
+            expected = walked(given)
+            if isinstance(expected, tuple):
+                assert parse_block_header(given) == expected, head
+            else:
+                with pytest.raises(ProtocolError) as refused:
+                    parse_block_header(given)
+                assert expected in str(refused.value) or expected == "length", head
+
+
 def test_declared_size_cap():
     with pytest.raises(ProtocolError, match="cap"):
         parse_block_header(b"#9999999999", max_bytes=1000)
