@@ -68,10 +68,6 @@ class PreambleCache(Generic[P]):
         keeps the cache (if it was current before it); any other, or a failure, drops it."""
         return _Writing(self, op)
 
-    def _written(self, op: str, before: tuple[int, int]) -> None:
-        if not self.shapes(op) and self._mark == before:
-            self._mark = (self.session.changes, self.session.state_lost)
-
     def acquired(self) -> None:
         """An acquisition completed: preambles read from now on describe the current settings."""
         self._current()
@@ -138,7 +134,9 @@ class _Writing:
         self.before = (session.changes, session.state_lost)
 
     def __exit__(self, exc_type: type[BaseException] | None, *rest: object) -> None:
+        cache = self.cache
         if exc_type is not None:
-            self.cache.clear()
+            cache.clear()
             return  # the exception goes on
-        self.cache._written(self.op, self.before)
+        if not cache.shapes(self.op) and cache._mark == self.before:
+            cache._mark = (cache.session.changes, cache.session.state_lost)

@@ -67,7 +67,8 @@ def block_cap(
     if expected_bytes is None or expected_bytes <= 0:
         return limit
     margin = EXPECTED_MARGIN_BYTES + int(expected_bytes * EXPECTED_MARGIN_FRACTION)
-    return min(limit, int(expected_bytes) + margin)
+    wanted = int(expected_bytes) + margin
+    return wanted if wanted < limit else limit  # not min(): once per block
 
 
 class BlockReader:
@@ -99,10 +100,11 @@ class BlockReader:
         is sliced like the data's, so a stop request is seen while the instrument is silent."""
         self._await_data(0, None, self.bounds.deadline(0, self.start))
         head = self.transport.read_bytes(2)
-        for _ in range(8):  # tolerate a little whitespace before '#'
-            if head[:1] not in (b" ", b"\r", b"\n", b"\t"):
-                break
-            head = head[1:] + self.transport.read_bytes(1)
+        if head[:1] != b"#":  # tolerate a little whitespace before '#'
+            for _ in range(8):
+                if head[:1] not in (b" ", b"\r", b"\n", b"\t"):
+                    break
+                head = head[1:] + self.transport.read_bytes(1)
         if head[:1] != b"#" or not head[1:2].isdigit():
             raise self._protocol(f"binary block must start with '#<digit>', got {head!r}")
         ndigits = int(head[1:2])
