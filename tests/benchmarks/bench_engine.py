@@ -48,7 +48,7 @@ from drivers.sim import board_from_mapping, start_sim_bench
 from sequencer.engine import Runner, RunOptions, describe_run
 from sequencer.procedure.plan_model import BoardInfo, Plan, PlannedStep, ProcedureMeta
 
-from .client_work import bytecodes_per_run
+from .client_work import Exchange, Taping, bytecodes_per_run
 
 REPEATS = 30
 NAIVE_REPEATS = 2
@@ -108,26 +108,14 @@ def scan_plan() -> Plan:
     return _plan(steps)
 
 
-class Recorder:
-    """Wraps a real transport and notes every exchange (benchmark only)."""
-
-    def __init__(self, inner: Any, log: list[tuple[str, str, Any]]) -> None:
-        self._inner, self._log = inner, log
-
-    def __getattr__(self, name: str) -> Any:
-        return getattr(self._inner, name)
-
-    def write(self, text: str) -> None:
-        self._log.append((self._inner.address, "write", text))
-        self._inner.write(text)
-
-    def read(self) -> bytes:
-        self._log.append((self._inner.address, "read", None))
-        return self._inner.read()
-
-    def read_bytes(self, n: int) -> bytes:
-        self._log.append((self._inner.address, "read_bytes", n))
-        return self._inner.read_bytes(n)
+def recorded_exchanges(plan: Plan, spec: Any) -> list[tuple[str, str, Any]]:
+    """The exchanges of one engine run of ``plan`` as the script replays them: each command's text,
+    ``None`` for a message read, the byte count of each exact read (block header and data)."""
+    tape: list[Exchange] = []
+    run_engine(plan, spec, opener=lambda s: Taping(open_transport(s), tape))
+    return _run_exchanges(
+        [(a, op, v if op == "write" else None if op == "read" else len(v)) for a, op, v in tape]
+    )
 
 
 def _run_exchanges(log: list[tuple[str, str, Any]]) -> list[tuple[str, str, Any]]:
@@ -284,12 +272,8 @@ def run() -> list[dict]:
         spec = bench_from_mapping(mapping)
         noop = min(run_engine(noop_plan(), spec) for _ in range(REPEATS))
         plan = scan_plan()
-        log: list[tuple[str, str, Any]] = []
-        run_engine(plan, spec, opener=lambda s: Recorder(open_transport(s), log))
-        log = _run_exchanges(log)
-        again: list[tuple[str, str, Any]] = []
-        run_engine(plan, spec, opener=lambda s: Recorder(open_transport(s), again))
-        if _run_exchanges(again) != log:  # the replay is fair only if every run does the same
+        log = recorded_exchanges(plan, spec)
+        if recorded_exchanges(plan, spec) != log:  # the replay is fair only if every run does the same
             raise RuntimeError("the engine's exchanges differ between two runs of the same plan")
         engine_work, driver_work = bytecodes_per_run(plan, spec, drive)
         no_poll = without_poll(spec)
