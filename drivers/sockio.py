@@ -24,6 +24,7 @@ import contextlib
 import select
 import socket
 import statistics
+import threading
 import time
 from typing import Any
 
@@ -82,6 +83,27 @@ class BusyPoll:
         on, off = (statistics.median(self._waits[k]) for k in (True, False))
         self._phase, self._on = "keep", on <= off
         self._left = self.KEEP_WINDOWS * self.WINDOW
+
+
+#: Busy-poll decisions of closed links, by (address, poll seconds): see :func:`busy_poll_for`.
+_KEPT_POLLS: dict[tuple[str, float], BusyPoll] = {}
+_KEPT_LOCK = threading.Lock()
+
+
+def busy_poll_for(address: str, poll_s: float) -> BusyPoll:
+    """The :class:`BusyPoll` the last closed link to ``address`` left (:func:`keep_busy_poll`), or
+    a new one.  Whether polling pays is a property of the machine and the instrument, not of one
+    opening: a batch opens the same instruments board after board, and a new trial per opening
+    spent half of every run's first 32 waits on the losing side (sleeping on a quiet machine,
+    polling on a loaded one).  Each kept decision goes to one link at a time."""
+    with _KEPT_LOCK:
+        return _KEPT_POLLS.pop((address, max(0.0, poll_s)), None) or BusyPoll(poll_s)
+
+
+def keep_busy_poll(address: str, poll: BusyPoll) -> None:
+    """Keep a closing link's decision for the next opening of ``address`` in this process."""
+    with _KEPT_LOCK:
+        _KEPT_POLLS[(address, poll.poll_s)] = poll
 
 
 class SessionLink:

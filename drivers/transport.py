@@ -85,7 +85,9 @@ class VisaTransport:
         self._link = sockio.SessionLink()  # that session's pending buffer and socket
         self._read_term = settings.read_termination.encode("ascii")
         self._write_term = settings.write_termination
-        self._poll = sockio.BusyPoll(max(0, settings.busy_poll_us) / 1e6)  # self-disabling
+        # self-disabling, and kept between openings of the same address (sockio.busy_poll_for)
+        self._poll = sockio.busy_poll_for(address, max(0, settings.busy_poll_us) / 1e6)
+        self._poll_left = False  # left for the next opening at close (once)
         #: Why the last close of the resource failed ('' when it did not); the link is dropped
         #: either way (a backend may raise anything while closing a dead session).
         self.close_error = ""
@@ -352,8 +354,12 @@ class VisaTransport:
         ) from last
 
     def close(self) -> None:
-        """Close the resource (safe to call twice)."""
+        """Close the resource (safe to call twice); the busy poll's decision is left for the next
+        opening of the address (once: a second close leaves nothing)."""
         self._close_resource()
+        if not self._poll_left:
+            self._poll_left = True
+            sockio.keep_busy_poll(self.address, self._poll)
 
     def __enter__(self) -> VisaTransport:
         return self

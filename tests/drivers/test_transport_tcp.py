@@ -229,3 +229,27 @@ def test_reconnect_is_bounded_with_back_off():
         assert time.monotonic() - start >= 0.15 - 0.01  # back-off 0.05 s + 0.10 s, at least
     finally:
         link.close()
+
+
+def test_the_busy_poll_decision_outlives_one_opening_of_the_address(responder):
+    """A batch opens the same instruments board after board: the busy poll's trial (the project's
+    own rule, sockio.BusyPoll) goes on from where the last link to the address left it, one link at
+    a time; a second close leaves nothing more, and another address starts afresh."""
+    first = open_link(responder)
+    decision = first._poll
+    first.close()
+    first.close()  # safe to call twice; must not leave a second, blank decision behind
+    again = open_link(responder)
+    beside = open_link(responder)  # while the kept decision is in use: a fresh one
+    try:
+        assert again._poll is decision
+        assert beside._poll is not decision
+    finally:
+        again.close()
+        beside.close()
+    with Responder() as other:
+        elsewhere = open_link(other)
+        try:
+            assert elsewhere._poll is not decision and elsewhere._poll is not beside._poll
+        finally:
+            elsewhere.close()
