@@ -13,6 +13,7 @@ a released reply then still arrives whole, the probed byte first (checked with a
 from __future__ import annotations
 
 import threading
+from collections.abc import Callable
 
 import numpy as np
 import pytest
@@ -104,8 +105,11 @@ def serve(link: str):
     return inst, stop, address_of(front.port)
 
 
-@pytest.mark.parametrize("link", ["socket", "hislip", "vxi11"])
-def test_a_stop_request_ends_the_wait_for_a_reply_still_being_acquired(link):
+def stopped_while_waiting(
+    link: str, wait: Callable[[ScpiSession], object], match: str, *, timeout_ms: int
+) -> list[str]:
+    """``wait(session)`` on a reply the instrument holds back, a stop asked after 0.5 s (Ctrl-C
+    while it acquires): the order of what happened; ``wait`` must raise ``ReadStopped`` (``match``)."""
     inst, stop, address = serve(link)
     order: list[str] = []
     pressed = threading.Event()
@@ -115,22 +119,33 @@ def test_a_stop_request_ends_the_wait_for_a_reply_still_being_acquired(link):
         pressed.set()
 
     try:
-        with ScpiSession(VisaTransport.open(address, timeout_ms=60_000)) as session:
+        with ScpiSession(VisaTransport.open(address, timeout_ms=timeout_ms)) as session:
             session.stop_check = pressed.is_set
-            timer = threading.Timer(0.5, press)  # Ctrl-C while the instrument acquires
+            timer = threading.Timer(0.5, press)
             timer.start()
             try:
-                with pytest.raises(ReadStopped, match="after 0 bytes"):
-                    session.query_block_bytes("DATA?", expected_bytes=RECORD.nbytes)
-                order.append("read given up")
+                with pytest.raises(ReadStopped, match=match):
+                    wait(session)
+                order.append("given up")
             finally:
                 timer.cancel()
                 inst.released.set()
                 order.append("reply released")
-            assert order == ["stop asked", "read given up", "reply released"]
+        return order
     finally:
         inst.released.set()
         stop()
+
+
+@pytest.mark.parametrize("link", ["socket", "hislip", "vxi11"])
+def test_a_stop_request_ends_the_wait_for_a_reply_still_being_acquired(link):
+    order = stopped_while_waiting(
+        link,
+        lambda session: session.query_block_bytes("DATA?", expected_bytes=RECORD.nbytes),
+        "after 0 bytes",
+        timeout_ms=60_000,
+    )
+    assert order == ["stop asked", "given up", "reply released"]
 
 
 def test_over_vxi11_a_reply_whose_first_byte_was_probed_arrives_whole():
@@ -151,59 +166,23 @@ def test_over_vxi11_a_reply_whose_first_byte_was_probed_arrives_whole():
 @pytest.mark.parametrize("link", ["socket", "hislip", "vxi11"])
 def test_a_stop_request_ends_an_operation_complete_wait(link):
     # *OPC? while the instrument acquires, with a minute to wait: given up at the stop request
-    inst, stop, address = serve(link)
-    order: list[str] = []
-    pressed = threading.Event()
-
-    def press() -> None:
-        order.append("stop asked")
-        pressed.set()
-
-    try:
-        with ScpiSession(VisaTransport.open(address, timeout_ms=5_000)) as session:
-            session.stop_check = pressed.is_set
-            timer = threading.Timer(0.5, press)
-            timer.start()
-            try:
-                with pytest.raises(ReadStopped, match="given up by a stop request"):
-                    session.wait_complete(timeout_ms=60_000)
-                order.append("wait given up")
-            finally:
-                timer.cancel()
-                inst.released.set()
-                order.append("operation complete")
-            assert order == ["stop asked", "wait given up", "operation complete"]
-    finally:
-        inst.released.set()
-        stop()
+    order = stopped_while_waiting(
+        link,
+        lambda session: session.wait_complete(timeout_ms=60_000),
+        "given up by a stop request",
+        timeout_ms=5_000,
+    )
+    assert order == ["stop asked", "given up", "reply released"]
 
 
 @pytest.mark.parametrize("link", ["socket", "hislip", "vxi11"])
 def test_a_stop_request_ends_a_joined_acquisition_wait(link):
     # an acquisition started, *OPC? and the error check in one message (drivers/scpi/joined.py):
     # the joined reply waits for the acquisition and is given up at the stop request like *OPC?
-    inst, stop, address = serve(link)
-    order: list[str] = []
-    pressed = threading.Event()
-
-    def press() -> None:
-        order.append("stop asked")
-        pressed.set()
-
-    try:
-        with ScpiSession(VisaTransport.open(address, timeout_ms=5_000)) as session:
-            session.stop_check = pressed.is_set
-            timer = threading.Timer(0.5, press)
-            timer.start()
-            try:
-                with pytest.raises(ReadStopped, match="given up by a stop request"):
-                    query_joined(session, [], "*OPC?", str, timeout_ms=60_000)
-                order.append("wait given up")
-            finally:
-                timer.cancel()
-                inst.released.set()
-                order.append("operation complete")
-            assert order == ["stop asked", "wait given up", "operation complete"]
-    finally:
-        inst.released.set()
-        stop()
+    order = stopped_while_waiting(
+        link,
+        lambda session: query_joined(session, [], "*OPC?", str, timeout_ms=60_000),
+        "given up by a stop request",
+        timeout_ms=5_000,
+    )
+    assert order == ["stop asked", "given up", "reply released"]
